@@ -1,0 +1,121 @@
+//! Shared command-line plumbing: loading a model and reporting its
+//! diagnostics, parsing quantities given on the command line, and atomic
+//! output files.
+
+use crate::diagnostics::{Diagnostic, SourceMap, render_human, render_json};
+use crate::model::{self, Model, Units};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+pub const EXIT_OK: u8 = 0;
+pub const EXIT_MODEL: u8 = 1;
+pub const EXIT_USAGE: u8 = 2;
+
+/// Prints diagnostics to stderr as a person reads them.
+pub fn print_diagnostics(diags: &[Diagnostic], sources: &SourceMap) {
+    let mut err = std::io::stderr().lock();
+    for d in diags {
+        let _ = write!(err, "{}", render_human(d, sources));
+    }
+}
+
+/// Loads a model for a command that needs one: prints warnings, and on
+/// errors prints them and returns the exit code to use.
+pub fn load_model(path: &Path, json: bool) -> Result<(Model, SourceMap), ExitCode> {
+    let loaded = model::load_path(path);
+    if loaded.model.is_none() || loaded.diagnostics.iter().any(|d| d.is_error()) {
+        if json {
+            println!("{}", render_json(&loaded.diagnostics, &loaded.sources));
+        } else {
+            print_diagnostics(&loaded.diagnostics, &loaded.sources);
+        }
+        let usage = loaded.diagnostics.iter().any(|d| d.code == crate::diagnostics::Code::FileRead);
+        return Err(ExitCode::from(if usage { EXIT_USAGE } else { EXIT_MODEL }));
+    }
+    if !json {
+        print_diagnostics(&loaded.diagnostics, &loaded.sources);
+    }
+    Ok((loaded.model.expect("checked above"), loaded.sources))
+}
+
+/// Prints a usage error and returns exit code 2.
+pub fn usage_error(message: impl std::fmt::Display) -> ExitCode {
+    eprintln!("error: {message}");
+    ExitCode::from(EXIT_USAGE)
+}
+
+/// Prints a run failure (numerical or output) and returns exit code 1.
+pub fn run_error(message: impl std::fmt::Display) -> ExitCode {
+    eprintln!("error: {message}");
+    ExitCode::from(EXIT_MODEL)
+}
+
+/// Parses `NAME=VALUE[unit]` as given to `--set`, converting to the model's
+/// default units.
+pub fn parse_assignment(text: &str, units: Units) -> Result<(String, f64), String> {
+    let (name, value) = text.split_once('=').ok_or_else(|| format!("`{text}` is not NAME=VALUE"))?;
+    let (v, _) = model::units::parse_quantity(value, units)?;
+    Ok((name.trim().to_string(), v))
+}
+
+/// Parses a time such as `20 min` or `600` in the model's time unit.
+pub fn parse_time(text: &str, units: Units) -> Result<f64, String> {
+    let (v, dim) = model::units::parse_quantity(text, units)?;
+    match dim {
+        None => Ok(v),
+        Some(d) if d == model::Dim::TIME => Ok(v),
+        Some(d) => Err(format!("`{text}` is not a time (its unit has dimension {d})")),
+    }
+}
+
+/// Writes `bytes` to `path` atomically: to a temporary file in the same
+/// directory, then renamed over the target. Refuses to overwrite any of
+/// `inputs` (the files the command read).
+pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(), String> {
+    refuse_input_overwrite(path, inputs)?;
+    let dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let mut tmp = tempfile::Builder::new()
+        .prefix(".ratewright-")
+        .suffix(".tmp")
+        .tempfile_in(&dir)
+        .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
+    tmp.write_all(bytes).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    tmp.as_file().sync_all().map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    tmp.persist(path).map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
+    Ok(())
+}
+
+/// Errors if `out` names the same file as one of `inputs`.
+pub fn refuse_input_overwrite(out: &Path, inputs: &[PathBuf]) -> Result<(), String> {
+    let same = |a: &Path, b: &Path| match (a.canonicalize(), b.canonicalize()) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => a == b,
+    };
+    if let Some(input) = inputs.iter().find(|i| same(out, i)) {
+        return Err(format!("refusing to overwrite the input file {}", input.display()));
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn atomic_write_refuses_inputs_and_replaces_whole_files() {
+        let dir = tempfile::tempdir().unwrap();
+        let input = dir.path().join("m.mech");
+        std::fs::write(&input, "species A").unwrap();
+        assert!(write_atomic(&input, b"x", &[input.clone()]).is_err());
+        assert_eq!(std::fs::read_to_string(&input).unwrap(), "species A");
+        let out = dir.path().join("out.csv");
+        write_atomic(&out, b"a,b\n", &[input.clone()]).unwrap();
+        assert_eq!(std::fs::read_to_string(&out).unwrap(), "a,b\n");
+        let leftovers = std::fs::read_dir(dir.path()).unwrap().filter(|e| e.as_ref().unwrap().file_name().to_string_lossy().ends_with(".tmp")).count();
+        assert_eq!(leftovers, 0);
+    }
+}

@@ -1,0 +1,104 @@
+//! Rendering diagnostics for people (miette's graphical report, without
+//! colour so output is stable) and for programs (JSON).
+
+use super::{Diagnostic, Severity, SourceMap};
+use miette::{GraphicalReportHandler, GraphicalTheme, LabeledSpan, MietteDiagnostic, NamedSource};
+
+/// Renders one diagnostic as a user sees it in a terminal (no colour).
+pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
+    let handler = GraphicalReportHandler::new_themed(GraphicalTheme::unicode_nocolor()).with_width(90);
+    let primary_file = diag.labels.first().map(|l| l.span.file);
+    let mut report = MietteDiagnostic::new(diag.message.clone())
+        .with_code(diag.code.as_str())
+        .with_severity(match diag.severity {
+            Severity::Error => miette::Severity::Error,
+            Severity::Warning => miette::Severity::Warning,
+        });
+    let mut elsewhere = Vec::new();
+    for label in &diag.labels {
+        if Some(label.span.file) == primary_file {
+            let len = label.span.len();
+            report = report.and_label(LabeledSpan::new(Some(label.message.clone()), label.span.start, len));
+        } else {
+            let path = sources.get(label.span.file).map(|f| f.path.display().to_string()).unwrap_or_default();
+            let (line, col) = sources.line_col(label.span.file, label.span.start);
+            elsewhere.push(format!("{}: {path}:{line}:{col}", label.message));
+        }
+    }
+    let mut help = diag.help.clone().unwrap_or_default();
+    for note in elsewhere {
+        if !help.is_empty() {
+            help.push('\n');
+        }
+        help.push_str(&note);
+    }
+    if !help.is_empty() {
+        report = report.with_help(help);
+    }
+    let mut out = String::new();
+    let result = match primary_file.and_then(|f| sources.get(f)) {
+        Some(file) => {
+            let source = NamedSource::new(file.path.display().to_string(), file.text.clone());
+            let report = miette::Report::new(report).with_source_code(source);
+            handler.render_report(&mut out, report.as_ref())
+        }
+        None => handler.render_report(&mut out, &report),
+    };
+    if result.is_err() {
+        out = format!("{}: {} [{}]\n", severity_word(diag.severity), diag.message, diag.code.as_str());
+    }
+    out
+}
+
+fn severity_word(s: Severity) -> &'static str {
+    match s {
+        Severity::Error => "error",
+        Severity::Warning => "warning",
+    }
+}
+
+/// The JSON object of one diagnostic: file, line, column (1-based), code,
+/// severity, message, help and all labels.
+pub fn to_json_value(diag: &Diagnostic, sources: &SourceMap) -> serde_json::Value {
+    let position = |span: super::Span| {
+        let (line, column) = sources.line_col(span.file, span.start);
+        let (end_line, end_column) = sources.line_col(span.file, span.end);
+        let file = sources.get(span.file).map(|f| f.path.display().to_string());
+        (file, line, column, end_line, end_column)
+    };
+    let (file, line, column) = match diag.primary_span() {
+        Some(span) => {
+            let (f, l, c, _, _) = position(span);
+            (f, Some(l), Some(c))
+        }
+        None => (None, None, None),
+    };
+    let labels: Vec<serde_json::Value> = diag
+        .labels
+        .iter()
+        .map(|label| {
+            let (file, line, column, end_line, end_column) = position(label.span);
+            serde_json::json!({
+                "file": file, "line": line, "column": column,
+                "end_line": end_line, "end_column": end_column,
+                "message": label.message,
+            })
+        })
+        .collect();
+    serde_json::json!({
+        "file": file,
+        "line": line,
+        "column": column,
+        "code": diag.code.as_str(),
+        "severity": diag.severity,
+        "message": diag.message,
+        "help": diag.help,
+        "labels": labels,
+    })
+}
+
+/// A JSON array of diagnostics, pretty-printed.
+pub fn render_json(diags: &[Diagnostic], sources: &SourceMap) -> String {
+    let values: Vec<_> = diags.iter().map(|d| to_json_value(d, sources)).collect();
+    serde_json::to_string_pretty(&values).unwrap_or_else(|_| "[]".into())
+}

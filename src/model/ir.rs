@@ -1,0 +1,447 @@
+//! The Model: the typed intermediate representation every later stage reads.
+//!
+//! Invariants (established by lowering, relied on downstream):
+//! - every name is unique across all kinds and resolved to a [`Sym`];
+//! - all numbers are in the model's default units (`units`);
+//! - `param_order` lists every param after the params its expression uses,
+//!   and every `Param::value` is its evaluated, finite value;
+//! - every species' `initial` is finite and non-negative, and totals given a
+//!   value agree with the initial values;
+//! - step terms refer to dynamic or fixed species only, coefficients are
+//!   positive, and a mass-action step has a reverse constant iff reversible;
+//! - every item keeps the span of its statement.
+
+use super::expr::{BinOp, Expr};
+use super::units::{Dim, Units};
+use crate::diagnostics::Span;
+use num_rational::Rational64;
+use num_traits::{One, ToPrimitive, Zero};
+
+/// A stoichiometric coefficient (exact).
+pub type Coef = Rational64;
+
+/// A resolved reference to a named item; the index is into the matching
+/// vector of [`Model`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, serde::Serialize)]
+pub enum Sym {
+    Species(usize),
+    Fixed(usize),
+    Param(usize),
+    Total(usize),
+    Observable(usize),
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Species {
+    pub name: String,
+    /// Initial value in default concentration units.
+    pub initial: f64,
+    /// Whether the initial value was written (or follows from a total's value).
+    pub initial_given: bool,
+    pub description: Option<String>,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Fixed {
+    pub name: String,
+    pub value: f64,
+    pub description: Option<String>,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum ParamDef {
+    /// A number (already converted to default units).
+    Value(f64),
+    /// An expression over other params (and `pi`).
+    Expr(Expr),
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Param {
+    pub name: String,
+    pub definition: ParamDef,
+    /// The evaluated value in default units.
+    pub value: f64,
+    /// The dimension, when written as a unit or inferable from the parts.
+    pub dim: Option<Dim>,
+    pub description: Option<String>,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Term {
+    /// `Sym::Species` or `Sym::Fixed`.
+    pub sym: Sym,
+    pub coefficient: Coef,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum Rate {
+    /// Forward constant and, for a reversible step, the reverse constant.
+    MassAction { forward: Expr, reverse: Option<Expr> },
+    /// An explicit net forward rate.
+    Law(Expr),
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Step {
+    pub name: String,
+    pub reactants: Vec<Term>,
+    pub products: Vec<Term>,
+    pub reversible: bool,
+    pub rate: Rate,
+    pub description: Option<String>,
+    pub span: Span,
+    /// Span of the rate part (`with ...` or `law ...`).
+    pub rate_span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Total {
+    pub name: String,
+    /// Dynamic species and their (non-zero) coefficients.
+    pub terms: Vec<(usize, Coef)>,
+    /// The value: as written, or computed from the initial values.
+    pub value: f64,
+    pub value_given: bool,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Observable {
+    pub name: String,
+    pub expr: Expr,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum EventKind {
+    Add,
+    Remove,
+    Set,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Event {
+    pub kind: EventKind,
+    /// Index of a dynamic species.
+    pub species: usize,
+    /// Amount added or removed, or the value set (default units).
+    pub amount: f64,
+    /// Time in default units.
+    pub time: f64,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Assumptions {
+    /// Species under the quasi-steady-state assumption.
+    pub steady: Vec<(usize, Span)>,
+    /// Steps assumed at rapid equilibrium.
+    pub equilibrium: Vec<(usize, Span)>,
+}
+
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Model {
+    pub name: Option<String>,
+    pub description: Option<String>,
+    pub units: Units,
+    pub species: Vec<Species>,
+    pub fixed: Vec<Fixed>,
+    pub params: Vec<Param>,
+    /// Params in evaluation order (dependencies first).
+    pub param_order: Vec<usize>,
+    pub steps: Vec<Step>,
+    pub totals: Vec<Total>,
+    pub observables: Vec<Observable>,
+    pub events: Vec<Event>,
+    pub assumptions: Assumptions,
+}
+
+impl Model {
+    /// Finds a named item of any kind.
+    pub fn lookup(&self, name: &str) -> Option<Sym> {
+        if let Some(i) = self.species.iter().position(|s| s.name == name) {
+            return Some(Sym::Species(i));
+        }
+        if let Some(i) = self.fixed.iter().position(|s| s.name == name) {
+            return Some(Sym::Fixed(i));
+        }
+        if let Some(i) = self.params.iter().position(|s| s.name == name) {
+            return Some(Sym::Param(i));
+        }
+        if let Some(i) = self.totals.iter().position(|s| s.name == name) {
+            return Some(Sym::Total(i));
+        }
+        if let Some(i) = self.observables.iter().position(|s| s.name == name) {
+            return Some(Sym::Observable(i));
+        }
+        None
+    }
+
+    pub fn step_index(&self, name: &str) -> Option<usize> {
+        self.steps.iter().position(|s| s.name == name)
+    }
+
+    pub fn name_of(&self, sym: Sym) -> &str {
+        match sym {
+            Sym::Species(i) => &self.species[i].name,
+            Sym::Fixed(i) => &self.fixed[i].name,
+            Sym::Param(i) => &self.params[i].name,
+            Sym::Total(i) => &self.totals[i].name,
+            Sym::Observable(i) => &self.observables[i].name,
+        }
+    }
+
+    /// Value of a constant name (fixed species, param, total) or, for a
+    /// species, its initial value; observables evaluate at the initial state.
+    pub fn initial_value(&self, sym: Sym) -> f64 {
+        match sym {
+            Sym::Species(i) => self.species[i].initial,
+            Sym::Fixed(i) => self.fixed[i].value,
+            Sym::Param(i) => self.params[i].value,
+            Sym::Total(i) => self.totals[i].value,
+            Sym::Observable(i) => self.observables[i].expr.eval(&|s| self.initial_value(s), 0.0),
+        }
+    }
+
+    /// Evaluates an expression at a state `y` (dynamic species, in order) and time `t`.
+    pub fn eval_at(&self, expr: &Expr, y: &[f64], t: f64) -> f64 {
+        expr.eval(&|s| self.value_at(s, y, t), t)
+    }
+
+    /// The value of a name at state `y` and time `t`.
+    pub fn value_at(&self, sym: Sym, y: &[f64], t: f64) -> f64 {
+        match sym {
+            Sym::Species(i) => y[i],
+            Sym::Observable(i) => self.eval_at(&self.observables[i].expr, y, t),
+            other => self.initial_value(other),
+        }
+    }
+
+    /// Initial state of the dynamic species.
+    pub fn initial_state(&self) -> Vec<f64> {
+        self.species.iter().map(|s| s.initial).collect()
+    }
+
+    /// Net change of each dynamic species when `step` fires once forward:
+    /// (species index, coefficient), species in order, zeros omitted.
+    pub fn net_change(&self, step: usize) -> Vec<(usize, Coef)> {
+        let mut acc: Vec<(usize, Coef)> = Vec::new();
+        let s = &self.steps[step];
+        let mut put = |i: usize, c: Coef| match acc.iter_mut().find(|(j, _)| *j == i) {
+            Some((_, v)) => *v += c,
+            None => acc.push((i, c)),
+        };
+        for t in &s.reactants {
+            if let Sym::Species(i) = t.sym {
+                put(i, -t.coefficient);
+            }
+        }
+        for t in &s.products {
+            if let Sym::Species(i) = t.sym {
+                put(i, t.coefficient);
+            }
+        }
+        acc.retain(|(_, c)| !c.is_zero());
+        acc.sort_by_key(|(i, _)| *i);
+        acc
+    }
+
+    /// Stoichiometric matrix (species × steps) as a dense exact matrix.
+    pub fn stoichiometry(&self) -> Vec<Vec<Coef>> {
+        let mut n = vec![vec![Coef::zero(); self.steps.len()]; self.species.len()];
+        for j in 0..self.steps.len() {
+            for (i, c) in self.net_change(j) {
+                n[i][j] = c;
+            }
+        }
+        n
+    }
+
+    /// The net forward rate of a step as an expression: for mass action
+    /// `kf * prod(reactants^coef) - kr * prod(products^coef)`; for a law, the law.
+    pub fn step_rate(&self, step: usize) -> Expr {
+        let s = &self.steps[step];
+        match &s.rate {
+            Rate::Law(e) => e.clone(),
+            Rate::MassAction { forward, reverse } => {
+                let fwd = mass_action_term(forward, &s.reactants);
+                match reverse {
+                    Some(r) => Expr::bin(BinOp::Sub, fwd, mass_action_term(r, &s.products)),
+                    None => fwd,
+                }
+            }
+        }
+    }
+
+    /// The forward and (if reversible mass action) reverse rate separately.
+    pub fn step_rate_parts(&self, step: usize) -> (Expr, Option<Expr>) {
+        let s = &self.steps[step];
+        match &s.rate {
+            Rate::Law(e) => (e.clone(), None),
+            Rate::MassAction { forward, reverse } => (
+                mass_action_term(forward, &s.reactants),
+                reverse.as_ref().map(|r| mass_action_term(r, &s.products)),
+            ),
+        }
+    }
+
+    /// Total reactant order of a side (dynamic and fixed species count).
+    pub fn order(terms: &[Term]) -> Coef {
+        terms.iter().map(|t| t.coefficient).fold(Coef::zero(), |a, b| a + b)
+    }
+
+    /// Right-hand side d(species)/dt as one expression per species
+    /// (sum over steps of coefficient × step rate), unsimplified.
+    pub fn rhs_exprs(&self) -> Vec<Expr> {
+        let rates: Vec<Expr> = (0..self.steps.len()).map(|j| self.step_rate(j)).collect();
+        let mut rhs: Vec<Option<Expr>> = vec![None; self.species.len()];
+        for (j, rate) in rates.iter().enumerate() {
+            for (i, c) in self.net_change(j) {
+                let term = if c == Coef::one() {
+                    rate.clone()
+                } else if c == -Coef::one() {
+                    Expr::Neg(Box::new(rate.clone()))
+                } else {
+                    Expr::mul(Expr::Number(coef_f64(c)), rate.clone())
+                };
+                rhs[i] = Some(match rhs[i].take() {
+                    None => term,
+                    Some(acc) => match term {
+                        Expr::Neg(inner) => Expr::sub(acc, *inner),
+                        t => Expr::add(acc, t),
+                    },
+                });
+            }
+        }
+        rhs.into_iter().map(|e| e.unwrap_or(Expr::Number(0.0))).collect()
+    }
+
+    /// Returns a copy with values replaced by name (params, species initial
+    /// values, fixed species, total values), re-evaluating derived params and
+    /// recomputing totals and the initial values that follow from them.
+    /// Values are in default units.
+    pub fn with_overrides(&self, overrides: &[(String, f64)]) -> Result<Model, String> {
+        let mut m = self.clone();
+        let mut set_totals = Vec::new();
+        for (name, value) in overrides {
+            if !value.is_finite() {
+                return Err(format!("value for `{name}` is not finite"));
+            }
+            match m.lookup(name) {
+                Some(Sym::Param(i)) => m.params[i].definition = ParamDef::Value(*value),
+                Some(Sym::Species(i)) => {
+                    if *value < 0.0 {
+                        return Err(format!("initial value of `{name}` must not be negative"));
+                    }
+                    m.species[i].initial = *value;
+                    m.species[i].initial_given = true;
+                }
+                Some(Sym::Fixed(i)) => m.fixed[i].value = *value,
+                Some(Sym::Total(i)) => set_totals.push((i, *value)),
+                Some(Sym::Observable(_)) => return Err(format!("`{name}` is an observable and cannot be set")),
+                None => {
+                    let names = m.all_names();
+                    let hint = crate::diagnostics::did_you_mean(name, names.iter().map(|s| s.as_str()))
+                        .map(|s| format!(" (did you mean `{s}`?)"))
+                        .unwrap_or_default();
+                    return Err(format!("no param, species, fixed species or total named `{name}`{hint}"));
+                }
+            }
+        }
+        m.evaluate_params()?;
+        for (i, v) in set_totals {
+            m.totals[i].value = v;
+            m.totals[i].value_given = true;
+            m.apply_total_value(i)?;
+        }
+        for i in 0..m.totals.len() {
+            if !m.totals[i].value_given {
+                m.totals[i].value = m.total_from_initial(i);
+            }
+        }
+        Ok(m)
+    }
+
+    /// Re-evaluates every param in `param_order`.
+    pub fn evaluate_params(&mut self) -> Result<(), String> {
+        for &i in &self.param_order.clone() {
+            let v = match &self.params[i].definition {
+                ParamDef::Value(v) => *v,
+                ParamDef::Expr(e) => e.eval(&|s| self.initial_value(s), 0.0),
+            };
+            if !v.is_finite() {
+                return Err(format!("param `{}` evaluates to {v}", self.params[i].name));
+            }
+            self.params[i].value = v;
+        }
+        Ok(())
+    }
+
+    /// The value of a total computed from the species' initial values.
+    pub fn total_from_initial(&self, total: usize) -> f64 {
+        self.totals[total].terms.iter().map(|(i, c)| coef_f64(*c) * self.species[*i].initial).sum()
+    }
+
+    /// Makes the initial values agree with a total's given value by adjusting
+    /// the total's dependent species (see [`Model::total_adjusted_species`]).
+    pub fn apply_total_value(&mut self, total: usize) -> Result<(), String> {
+        let t = &self.totals[total];
+        let Some(k) = self.total_adjusted_species(total) else {
+            return Err(format!("total `{}` has no species whose start value could follow from it", t.name));
+        };
+        let ck = t.terms.iter().find(|(i, _)| *i == k).map(|(_, c)| coef_f64(*c)).unwrap_or(1.0);
+        let others: f64 = t.terms.iter().filter(|(i, _)| *i != k).map(|(i, c)| coef_f64(*c) * self.species[*i].initial).sum();
+        let v = (t.value - others) / ck;
+        if v < -1e-12 * t.value.abs().max(1.0) {
+            return Err(format!(
+                "total `{}` = {} is less than the other species in it already hold; `{}` would start at {v}",
+                t.name, t.value, self.species[k].name
+            ));
+        }
+        self.species[k].initial = v.max(0.0);
+        Ok(())
+    }
+
+    /// The species of a total whose start value follows from the total's
+    /// value: the first with no written initial value, else the first.
+    pub fn total_adjusted_species(&self, total: usize) -> Option<usize> {
+        let t = &self.totals[total];
+        t.terms
+            .iter()
+            .find(|(i, c)| !self.species[*i].initial_given && !c.is_zero())
+            .or_else(|| t.terms.first())
+            .map(|(i, _)| *i)
+    }
+
+    /// Every declared name (all kinds).
+    pub fn all_names(&self) -> Vec<String> {
+        let mut v: Vec<String> = Vec::new();
+        v.extend(self.species.iter().map(|s| s.name.clone()));
+        v.extend(self.fixed.iter().map(|s| s.name.clone()));
+        v.extend(self.params.iter().map(|s| s.name.clone()));
+        v.extend(self.totals.iter().map(|s| s.name.clone()));
+        v.extend(self.observables.iter().map(|s| s.name.clone()));
+        v
+    }
+}
+
+fn mass_action_term(constant: &Expr, terms: &[Term]) -> Expr {
+    let mut e = constant.clone();
+    for t in terms {
+        let base = Expr::Name(t.sym);
+        let factor = if t.coefficient == Coef::one() { base } else { Expr::pow(base, Expr::Number(coef_f64(t.coefficient))) };
+        e = Expr::mul(e, factor);
+    }
+    e
+}
+
+/// A coefficient as a float.
+pub fn coef_f64(c: Coef) -> f64 {
+    c.to_f64().unwrap_or(f64::NAN)
+}

@@ -1,0 +1,17 @@
+//! The model stage: resolves names, converts units once, checks dimensions
+//! and model rules, and lowers the syntax tree into the [`Model`] IR.
+//!
+//! Invariants: see [`ir`]. Nothing here prints; problems come back as
+//! [`crate::diagnostics::Diagnostic`]s with spans into the right file.
+
+pub mod expr;
+pub mod ir;
+pub mod units;
+
+pub use expr::{BinOp, Expr, Func};
+pub use ir::*;
+pub use units::{ConcUnit, Dim, TimeUnit, Units};
+pub mod load;
+mod lower;
+
+pub use load::{Loaded, load_path, load_str};

@@ -1,0 +1,303 @@
+//! Units of concentration and time, and dimensions (powers of concentration
+//! and time). Conversion to the model's default units happens once, in
+//! `model/`; later stages see plain numbers in default units.
+//!
+//! Scale factors are the SI definitions: 1 M = 1 mol/L, prefixes m = 1e-3,
+//! u (µ) = 1e-6, n = 1e-9, p = 1e-12; 1 min = 60 s, 1 h = 3600 s, 1 ms = 1e-3 s.
+
+use std::fmt;
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize)]
+pub enum ConcUnit {
+    M,
+    MilliM,
+    MicroM,
+    NanoM,
+    PicoM,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize)]
+pub enum TimeUnit {
+    S,
+    Ms,
+    Min,
+    H,
+}
+
+impl ConcUnit {
+    /// Size of one unit in mol/L.
+    pub fn molar(self) -> f64 {
+        match self {
+            ConcUnit::M => 1.0,
+            ConcUnit::MilliM => 1e-3,
+            ConcUnit::MicroM => 1e-6,
+            ConcUnit::NanoM => 1e-9,
+            ConcUnit::PicoM => 1e-12,
+        }
+    }
+    pub fn symbol(self) -> &'static str {
+        match self {
+            ConcUnit::M => "M",
+            ConcUnit::MilliM => "mM",
+            ConcUnit::MicroM => "uM",
+            ConcUnit::NanoM => "nM",
+            ConcUnit::PicoM => "pM",
+        }
+    }
+    pub fn parse(word: &str) -> Option<ConcUnit> {
+        Some(match word {
+            "M" => ConcUnit::M,
+            "mM" => ConcUnit::MilliM,
+            "uM" | "µM" | "μM" => ConcUnit::MicroM,
+            "nM" => ConcUnit::NanoM,
+            "pM" => ConcUnit::PicoM,
+            _ => return None,
+        })
+    }
+}
+
+impl TimeUnit {
+    /// Size of one unit in seconds.
+    pub fn seconds(self) -> f64 {
+        match self {
+            TimeUnit::S => 1.0,
+            TimeUnit::Ms => 1e-3,
+            TimeUnit::Min => 60.0,
+            TimeUnit::H => 3600.0,
+        }
+    }
+    pub fn symbol(self) -> &'static str {
+        match self {
+            TimeUnit::S => "s",
+            TimeUnit::Ms => "ms",
+            TimeUnit::Min => "min",
+            TimeUnit::H => "h",
+        }
+    }
+    pub fn parse(word: &str) -> Option<TimeUnit> {
+        Some(match word {
+            "s" => TimeUnit::S,
+            "ms" => TimeUnit::Ms,
+            "min" => TimeUnit::Min,
+            "h" => TimeUnit::H,
+            _ => return None,
+        })
+    }
+}
+
+/// The model's default units.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+pub struct Units {
+    pub concentration: ConcUnit,
+    pub time: TimeUnit,
+}
+
+impl Default for Units {
+    fn default() -> Self {
+        Units { concentration: ConcUnit::MicroM, time: TimeUnit::S }
+    }
+}
+
+/// A dimension: concentration^conc · time^time.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, serde::Serialize)]
+pub struct Dim {
+    pub conc: i32,
+    pub time: i32,
+}
+
+impl Dim {
+    pub const NONE: Dim = Dim { conc: 0, time: 0 };
+    pub const CONC: Dim = Dim { conc: 1, time: 0 };
+    pub const TIME: Dim = Dim { conc: 0, time: 1 };
+    pub fn new(conc: i32, time: i32) -> Dim {
+        Dim { conc, time }
+    }
+    pub fn mul(self, o: Dim) -> Dim {
+        Dim { conc: self.conc + o.conc, time: self.time + o.time }
+    }
+    pub fn div(self, o: Dim) -> Dim {
+        Dim { conc: self.conc - o.conc, time: self.time - o.time }
+    }
+    pub fn powi(self, n: i32) -> Dim {
+        Dim { conc: self.conc * n, time: self.time * n }
+    }
+    /// The dimension a mass-action constant of total order `n` must have:
+    /// concentration^(1-n) / time.
+    pub fn mass_action_constant(order: i32) -> Dim {
+        Dim { conc: 1 - order, time: -1 }
+    }
+    /// Concentration per time: the dimension of a rate.
+    pub const RATE: Dim = Dim { conc: 1, time: -1 };
+
+    /// Written in the given units, e.g. `/uM/s`, `uM`, `uM/s`, `1` for none.
+    pub fn display_in(self, units: Units) -> String {
+        let mut num = Vec::new();
+        let mut den = Vec::new();
+        let mut put = |sym: &str, p: i32| {
+            let part = |p: i32| if p.abs() == 1 { sym.to_string() } else { format!("{sym}^{}", p.abs()) };
+            if p > 0 {
+                num.push(part(p));
+            } else if p < 0 {
+                den.push(part(p));
+            }
+        };
+        put(units.concentration.symbol(), self.conc);
+        put(units.time.symbol(), self.time);
+        let mut out = num.join("*");
+        for d in den {
+            out.push('/');
+            out.push_str(&d);
+        }
+        if out.is_empty() { "1 (dimensionless)".into() } else { out }
+    }
+}
+
+impl fmt::Display for Dim {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}", self.display_in(Units::default()))
+    }
+}
+
+/// A unit written after a number: a product of powers of one concentration
+/// unit and one time unit (e.g. `/uM/s` = uM^-1 s^-1).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct UnitExpr {
+    /// Factor to the base (mol/L and s) per unit, times the powers.
+    pub conc: Option<(ConcUnit, i32)>,
+    pub time: Option<(TimeUnit, i32)>,
+}
+
+impl UnitExpr {
+    pub fn dim(&self) -> Dim {
+        Dim { conc: self.conc.map(|c| c.1).unwrap_or(0), time: self.time.map(|t| t.1).unwrap_or(0) }
+    }
+    /// The factor that converts a value in this unit to the default units.
+    pub fn factor_to(&self, units: Units) -> f64 {
+        let mut f = 1.0;
+        if let Some((c, p)) = self.conc {
+            f *= (c.molar() / units.concentration.molar()).powi(p);
+        }
+        if let Some((t, p)) = self.time {
+            f *= (t.seconds() / units.time.seconds()).powi(p);
+        }
+        f
+    }
+}
+
+/// Parses a unit such as `uM`, `/uM/s`, `1/s`, `uM*s`, `uM^-1`, `/M^2/s`.
+/// Errors name the offending word.
+pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
+    let text = text.trim();
+    let mut out = UnitExpr::default();
+    let mut rest = text;
+    let mut sign = 1;
+    if let Some(r) = rest.strip_prefix("1/") {
+        rest = r;
+        sign = -1;
+    } else if let Some(r) = rest.strip_prefix('/') {
+        rest = r;
+        sign = -1;
+    }
+    loop {
+        let rest_trim = rest.trim_start();
+        let end = rest_trim.find(['/', '*', '·', ' ']).unwrap_or(rest_trim.len());
+        let word_pow = &rest_trim[..end];
+        if word_pow.is_empty() {
+            return Err(format!("missing unit in `{text}`"));
+        }
+        let (word, power) = match word_pow.split_once('^') {
+            Some((w, p)) => (w, p.parse::<i32>().map_err(|_| format!("bad power `{p}` in `{text}`"))?),
+            None => (word_pow, 1),
+        };
+        let power = power * sign;
+        if let Some(c) = ConcUnit::parse(word) {
+            match &mut out.conc {
+                Some((u, p)) if *u == c => *p += power,
+                Some(_) => return Err(format!("two different concentration units in `{text}`")),
+                None => out.conc = Some((c, power)),
+            }
+        } else if let Some(t) = TimeUnit::parse(word) {
+            match &mut out.time {
+                Some((u, p)) if *u == t => *p += power,
+                Some(_) => return Err(format!("two different time units in `{text}`")),
+                None => out.time = Some((t, power)),
+            }
+        } else {
+            return Err(format!("unknown unit `{word}`"));
+        }
+        let after = rest_trim[end..].trim_start();
+        if after.is_empty() {
+            break;
+        }
+        let (sep, tail) = after.split_at(after.chars().next().map(char::len_utf8).unwrap_or(1));
+        sign = match sep {
+            "/" => -1,
+            "*" | "·" => 1,
+            _ => return Err(format!("unexpected `{sep}` in unit `{text}`")),
+        };
+        rest = tail;
+    }
+    Ok(out)
+}
+
+/// A number with an optional unit, as written on the command line
+/// (`20`, `5mM`, `20 min`, `1e6 /M/s`), converted to the default units.
+/// Returns the value and the dimension of the unit, if one was written.
+pub fn parse_quantity(text: &str, units: Units) -> Result<(f64, Option<Dim>), String> {
+    let text = text.trim();
+    let split = text
+        .char_indices()
+        .find(|&(i, c)| {
+            !(c.is_ascii_digit() || c == '.' || c == '+' || c == '-' || ((c == 'e' || c == 'E') && i > 0 && text[i + 1..].starts_with(|d: char| d.is_ascii_digit() || d == '-' || d == '+')))
+        })
+        .map(|(i, _)| i)
+        .unwrap_or(text.len());
+    let (num, unit) = text.split_at(split);
+    let value: f64 = num.trim().parse().map_err(|_| format!("`{text}` is not a number with an optional unit"))?;
+    if !value.is_finite() {
+        return Err(format!("`{text}` is not a finite number"));
+    }
+    let unit = unit.trim();
+    if unit.is_empty() {
+        return Ok((value, None));
+    }
+    let u = parse_unit(unit)?;
+    Ok((value * u.factor_to(units), Some(u.dim())))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn close(a: f64, b: f64) -> bool {
+        (a - b).abs() <= 1e-12 * b.abs().max(1.0)
+    }
+
+    // Check values: SI definitions of the units (BIPM SI Brochure, 9th ed.,
+    // prefixes m = 1e-3, µ = 1e-6; minute = 60 s, hour = 3600 s; the molar is
+    // mol/L).
+    #[test]
+    fn si_conversions() {
+        let u = Units::default();
+        assert!(close(parse_quantity("1 mM", u).unwrap().0, 1000.0));
+        assert!(close(parse_quantity("300 nM", u).unwrap().0, 0.3));
+        assert!(close(parse_quantity("1 min", u).unwrap().0, 60.0));
+        assert!(close(parse_quantity("1 h", u).unwrap().0, 3600.0));
+        assert!(close(parse_quantity("1e6 /M/s", u).unwrap().0, 1.0));
+        assert!(close(parse_quantity("0.5 /min", u).unwrap().0, 0.5 / 60.0));
+        assert!(close(parse_quantity("5mM", u).unwrap().0, 5000.0));
+        let mm = Units { concentration: ConcUnit::MilliM, time: TimeUnit::Min };
+        assert!(close(parse_quantity("1 uM", mm).unwrap().0, 1e-3));
+        assert!(close(parse_quantity("2 /uM/s", mm).unwrap().0, 2.0 * 1000.0 * 60.0));
+    }
+
+    #[test]
+    fn dimensions_of_units() {
+        assert_eq!(parse_unit("/uM/s").unwrap().dim(), Dim::new(-1, -1));
+        assert_eq!(parse_unit("uM").unwrap().dim(), Dim::CONC);
+        assert_eq!(parse_unit("1/s").unwrap().dim(), Dim::new(0, -1));
+        assert_eq!(parse_unit("uM^2/s").unwrap().dim(), Dim::new(2, -1));
+        assert!(parse_unit("furlong").is_err());
+        assert_eq!(Dim::mass_action_constant(2), Dim::new(-1, -1));
+    }
+}
