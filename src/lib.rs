@@ -4,6 +4,14 @@
 //! `syntax` → `model` → {`network`, `algebra` → `ratelaw`, `numeric` → `sim`,
 //! `emit`, `compare`} → `cli`. `diagnostics` is shared by all.
 
-pub mod diagnostics;
-pub mod model;
+pub mod algebra;
 pub mod cli;
+pub mod compare;
+pub mod diagnostics;
+pub mod emit;
+pub mod model;
+pub mod network;
+pub mod numeric;
+pub mod ratelaw;
+pub mod sim;
+pub mod syntax;

@@ -1,0 +1,1 @@
+//! Simplification and symbolic differentiation of IR expressions (being built).

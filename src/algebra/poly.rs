@@ -1,0 +1,1 @@
+//! Exact multivariate polynomials and rational functions (being built).

@@ -1,0 +1,1 @@
+//! Printing expressions in each target syntax from one precedence table (being built).

@@ -1,0 +1,1 @@
+//! Meaning-level comparison of two models (being built).

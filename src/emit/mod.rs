@@ -1,0 +1,1 @@
+//! Code emission, one module per target behind one trait (being built).

@@ -1,0 +1,1 @@
+//! Stoichiometry, rank, conservation laws, reduction and network structure (being built).

@@ -1,0 +1,1 @@
+//! Compiled right-hand sides and Jacobians (being built).

@@ -1,0 +1,1 @@
+//! Rate-law derivation: King–Altman / matrix-tree and rapid equilibrium (being built).

@@ -1,0 +1,1 @@
+//! Time courses, events, steady states and scans on diffsol (being built).

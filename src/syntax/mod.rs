@@ -1,0 +1,1 @@
+//! Grammar and syntax tree of the mechanism language (being built).

@@ -1,0 +1,81 @@
+//! Helpers shared by the end-to-end tests: the built binary, the demo
+//! models, and Python with the reference libraries (SciPy, SymPy, libSBML)
+//! for cross-checks. Missing Python packages are installed on first use, so
+//! `cargo test` works on a fresh machine with Python 3 and pip.
+#![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+use std::sync::OnceLock;
+
+/// The path of the built `ratewright` binary.
+pub fn bin() -> PathBuf {
+    PathBuf::from(env!("CARGO_BIN_EXE_ratewright"))
+}
+
+/// Runs the binary with arguments from the crate root.
+pub fn ratewright(args: &[&str]) -> Output {
+    Command::new(bin())
+        .args(args)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("the ratewright binary runs")
+}
+
+pub fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// Every `.mech` file in models/, sorted.
+pub fn models() -> Vec<PathBuf> {
+    let mut v: Vec<PathBuf> = std::fs::read_dir(root().join("models"))
+        .expect("models/ exists")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|x| x == "mech"))
+        .collect();
+    v.sort();
+    v
+}
+
+static PYTHON_READY: OnceLock<Result<(), String>> = OnceLock::new();
+
+/// Makes sure `python3` can import numpy, scipy, sympy and libsbml,
+/// installing them with pip if needed. Panics with the pip output if that
+/// fails: a cross-check that cannot run is a failed test, not a skipped one.
+pub fn ensure_python() {
+    let ready = PYTHON_READY.get_or_init(|| {
+        let probe = |py: &str| {
+            Command::new("python3").args(["-c", py]).output().map(|o| o.status.success()).unwrap_or(false)
+        };
+        if probe("import numpy, scipy, sympy, libsbml") {
+            return Ok(());
+        }
+        let out = Command::new("python3")
+            .args(["-m", "pip", "install", "--quiet", "numpy", "scipy", "sympy", "python-libsbml"])
+            .output()
+            .map_err(|e| format!("cannot run pip: {e}"))?;
+        if !out.status.success() || !probe("import numpy, scipy, sympy, libsbml") {
+            return Err(format!(
+                "installing numpy scipy sympy python-libsbml failed:\n{}\n{}",
+                String::from_utf8_lossy(&out.stdout),
+                String::from_utf8_lossy(&out.stderr)
+            ));
+        }
+        Ok(())
+    });
+    if let Err(e) = ready {
+        panic!("{e}");
+    }
+}
+
+/// Runs a Python script (file under tests/python/) with arguments; returns
+/// its output. Panics if Python is unavailable.
+pub fn python(script: &Path, args: &[&str]) -> Output {
+    ensure_python();
+    Command::new("python3")
+        .arg(script)
+        .args(args)
+        .current_dir(root())
+        .output()
+        .expect("python3 runs")
+}
