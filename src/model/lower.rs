@@ -1,4 +1,1128 @@
+//! Lowering: syntax trees of a main file and its `use`d files → one Model.
+//!
+//! Order of work: read and parse every file (following `use`, refusing
+//! cycles), declare every name in one namespace, resolve and convert params
+//! (in dependency order), steps, totals, observables, events and
+//! assumptions, then lint. Errors are collected, not stopped at, so a user
+//! sees every problem of a file at once.
+
+use super::expr::{BinOp, Expr, Func};
+use super::ir::*;
 use super::load::Loaded;
-use std::path::Path;
-pub fn load_path(_path: &Path) -> Loaded { unimplemented!("front end lands next") }
-pub fn load_str(_text: &str, _path: &Path) -> Loaded { unimplemented!("front end lands next") }
+use super::units::{ConcUnit, Dim, TimeUnit, UnitExpr, Units, parse_unit};
+use crate::diagnostics::{Code, Diagnostic, FileId, SourceMap, Span, did_you_mean};
+use crate::syntax::{self, AstBinOp, AstExpr, Ident, ParamValue, Quantity, RateAst, Side, StatementKind, StepTerm, UnitKey};
+use num_traits::{CheckedDiv, One, Signed, ToPrimitive, Zero};
+use std::collections::{HashMap, HashSet};
+use std::path::{Path, PathBuf};
+
+pub fn load_path(path: &Path) -> Loaded {
+    let mut sources = SourceMap::new();
+    match read_source(path) {
+        Ok(text) => {
+            let id = sources.add(path.to_path_buf(), text);
+            lower_from(sources, id)
+        }
+        Err(d) => Loaded { sources, model: None, diagnostics: vec![d] },
+    }
+}
+
+pub fn load_str(text: &str, path: &Path) -> Loaded {
+    let mut sources = SourceMap::new();
+    let text = text.strip_prefix('\u{FEFF}').unwrap_or(text).to_string();
+    let id = sources.add(path.to_path_buf(), text);
+    lower_from(sources, id)
+}
+
+/// Reads a file as UTF-8 text, dropping a byte-order mark.
+fn read_source(path: &Path) -> Result<String, Diagnostic> {
+    let bytes = std::fs::read(path).map_err(|e| {
+        Diagnostic::error(Code::FileRead, format!("cannot read {}: {e}", path.display())).with_help("check the path and the file's permissions")
+    })?;
+    if bytes.len() > syntax::parse::MAX_FILE_BYTES {
+        return Err(Diagnostic::error(Code::InputTooLarge, format!("{} is {} bytes; the limit is {}", path.display(), bytes.len(), syntax::parse::MAX_FILE_BYTES)));
+    }
+    match String::from_utf8(bytes) {
+        Ok(s) => Ok(s.strip_prefix('\u{FEFF}').map(str::to_string).unwrap_or(s)),
+        Err(e) => {
+            let at = e.utf8_error().valid_up_to();
+            let before = &e.as_bytes()[..at];
+            let line = before.iter().filter(|&&b| b == b'\n').count() + 1;
+            let col = at - before.iter().rposition(|&b| b == b'\n').map(|p| p + 1).unwrap_or(0) + 1;
+            Err(Diagnostic::error(Code::NotUtf8, format!("{} is not UTF-8 text: invalid byte at line {line}, column {col} (byte {at})", path.display()))
+                .with_help("save the file as UTF-8"))
+        }
+    }
+}
+
+struct FileUnits {
+    units: Units,
+}
+
+/// A statement with the units of the file it came from.
+struct Item<'a> {
+    kind: &'a StatementKind,
+    span: Span,
+    units: Units,
+}
+
+fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
+    let mut diags = Vec::new();
+    let mut trees: Vec<(FileId, syntax::File)> = Vec::new();
+    let mut stack = Vec::new();
+    collect_files(&mut sources, main, &mut stack, &mut trees, &mut diags);
+    if diags.iter().any(Diagnostic::is_error) {
+        return Loaded { sources, model: None, diagnostics: diags };
+    }
+    let main_units = file_units(trees.iter().find(|(f, _)| *f == main).map(|(_, t)| t), &mut diags).units;
+    let mut items = Vec::new();
+    for (_, tree) in &trees {
+        let units = file_units(Some(tree), &mut Vec::new()).units;
+        for st in tree.statements() {
+            items.push(Item { kind: &st.kind, span: st.span, units });
+        }
+    }
+    let mut lowerer = Lowerer::new(main_units, &sources);
+    lowerer.lower(&items, main);
+    diags.extend(lowerer.diags);
+    let model = if diags.iter().any(Diagnostic::is_error) { None } else { Some(lowerer.model) };
+    Loaded { sources, model, diagnostics: diags }
+}
+
+/// Parses `file` and, depth first, every file it `use`s. `trees` gets each
+/// file once; a file reached again through the current chain is a cycle.
+fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<PathBuf>, trees: &mut Vec<(FileId, syntax::File)>, diags: &mut Vec<Diagnostic>) {
+    let Some(src) = sources.get(file) else { return };
+    let path = src.path.clone();
+    let canonical = path.canonicalize().unwrap_or_else(|_| path.clone());
+    let tree = match syntax::parse(&src.text, file) {
+        Ok(t) => t,
+        Err(errs) => {
+            diags.extend(errs);
+            return;
+        }
+    };
+    stack.push(canonical);
+    let uses: Vec<(String, Span)> = tree
+        .statements()
+        .filter_map(|s| match &s.kind {
+            StatementKind::Use { path, span } => Some((path.clone(), *span)),
+            _ => None,
+        })
+        .collect();
+    trees.push((file, tree));
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    for (rel, span) in uses {
+        let target = base.join(&rel);
+        let canonical = target.canonicalize().unwrap_or_else(|_| target.clone());
+        if stack.contains(&canonical) {
+            diags.push(
+                Diagnostic::error(Code::UseCycle, format!("`use \"{rel}\"` makes a cycle: the file includes itself"))
+                    .with_label(span, "this file is already being included")
+                    .with_help(format!("chain: {}", stack.iter().chain([&canonical]).map(|p| p.display().to_string()).collect::<Vec<_>>().join(" → "))),
+            );
+            continue;
+        }
+        if trees.iter().any(|(f, _)| sources.get(*f).map(|s| s.path.canonicalize().unwrap_or_else(|_| s.path.clone())) == Some(canonical.clone())) {
+            continue; // already included through another path: declarations once
+        }
+        match read_source(&target) {
+            Ok(text) => {
+                let id = sources.add(target, text);
+                collect_files(sources, id, stack, trees, diags);
+            }
+            Err(mut d) => {
+                d.code = if d.code == Code::FileRead { Code::FileRead } else { d.code };
+                d.labels.push(crate::diagnostics::Label { span, message: "included here".into() });
+                // A missing included file is a model error, not a usage error.
+                d.code = if d.code == Code::FileRead { Code::UnknownName } else { d.code };
+                d.message = format!("cannot include \"{rel}\": {}", d.message);
+                diags.push(d);
+            }
+        }
+    }
+    stack.pop();
+}
+
+fn file_units(tree: Option<&syntax::File>, diags: &mut Vec<Diagnostic>) -> FileUnits {
+    let mut units = Units::default();
+    let Some(tree) = tree else { return FileUnits { units } };
+    let mut seen = false;
+    for st in tree.statements() {
+        if let StatementKind::Units(settings) = &st.kind {
+            if seen {
+                diags.push(Diagnostic::error(Code::DuplicateStatement, "`units` is given more than once").with_label(st.span, "second `units`").with_help("give each default unit once, in one `units` line"));
+            }
+            seen = true;
+            for (key, text, span) in settings {
+                match key {
+                    UnitKey::Concentration => match ConcUnit::parse(text) {
+                        Some(u) => units.concentration = u,
+                        None => diags.push(unknown_unit(text, *span, "a concentration unit", &["M", "mM", "uM", "nM", "pM"])),
+                    },
+                    UnitKey::Time => match TimeUnit::parse(text) {
+                        Some(u) => units.time = u,
+                        None => diags.push(unknown_unit(text, *span, "a time unit", &["s", "ms", "min", "h"])),
+                    },
+                }
+            }
+        }
+    }
+    FileUnits { units }
+}
+
+fn unknown_unit(text: &str, span: Span, what: &str, choices: &[&str]) -> Diagnostic {
+    let hint = did_you_mean(text, choices.iter().copied()).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
+    Diagnostic::error(Code::UnknownUnit, format!("`{text}` is not {what}"))
+        .with_label(span, "unknown unit")
+        .with_help(format!("{hint}{what} is one of: {}", choices.join(", ")))
+}
+
+const RESERVED: [&str; 2] = ["t", "pi"];
+
+/// What a declared name is, with where it was declared.
+#[derive(Clone, Copy)]
+enum Decl {
+    Sym(Sym),
+    Step(usize),
+}
+
+struct Lowerer<'s> {
+    model: Model,
+    names: HashMap<String, (Decl, Span)>,
+    diags: Vec<Diagnostic>,
+    /// Per param: its AST value and file units, for resolution in order.
+    param_sources: Vec<(ParamValue, Units)>,
+    used: HashSet<Sym>,
+    sources: &'s SourceMap,
+}
+
+impl<'s> Lowerer<'s> {
+    fn new(units: Units, sources: &'s SourceMap) -> Self {
+        Lowerer { model: Model { units, ..Model::default() }, names: HashMap::new(), diags: Vec::new(), param_sources: Vec::new(), used: HashSet::new(), sources }
+    }
+
+    fn error(&mut self, d: Diagnostic) {
+        self.diags.push(d);
+    }
+
+    fn declare(&mut self, ident: &Ident, decl: Decl) -> bool {
+        if RESERVED.contains(&ident.name.as_str()) {
+            self.error(
+                Diagnostic::error(Code::ReservedName, format!("`{}` is a reserved name", ident.name))
+                    .with_label(ident.span, "reserved")
+                    .with_help("`t` is time and `pi` is the constant π in expressions; choose another name"),
+            );
+            return false;
+        }
+        if let Some((_, first)) = self.names.get(&ident.name) {
+            let first = *first;
+            self.error(
+                Diagnostic::error(Code::DuplicateName, format!("`{}` is declared more than once", ident.name))
+                    .with_label(ident.span, "declared again here")
+                    .with_label(first, "first declared here")
+                    .with_help("every species, fixed species, param, step, total and observable needs its own name"),
+            );
+            return false;
+        }
+        self.names.insert(ident.name.clone(), (decl, ident.span));
+        true
+    }
+
+    fn lower(&mut self, items: &[Item], main: FileId) {
+        self.declare_all(items, main);
+        self.resolve_params();
+        for item in items {
+            match item.kind {
+                StatementKind::Step { .. } => self.lower_step(item),
+                StatementKind::Observe { .. } => self.lower_observable(item),
+                _ => {}
+            }
+        }
+        self.check_observable_cycles();
+        for item in items {
+            match item.kind {
+                StatementKind::Total { .. } => self.lower_total(item),
+                StatementKind::Event { .. } | StatementKind::Set { .. } => self.lower_event(item),
+                StatementKind::AssumeSteady(_) | StatementKind::AssumeEquilibrium(_) => self.lower_assumption(item),
+                _ => {}
+            }
+        }
+        if !self.diags.iter().any(Diagnostic::is_error) {
+            self.apply_total_values();
+        }
+        self.lint();
+    }
+
+    /// First pass: every name, with values that need no other names.
+    fn declare_all(&mut self, items: &[Item], main: FileId) {
+        let mut mechanism_seen: Option<Span> = None;
+        for item in items {
+            match item.kind {
+                StatementKind::Mechanism { name, description } => {
+                    if item.span.file != main {
+                        continue; // an included file's name does not rename the model
+                    }
+                    if let Some(first) = mechanism_seen {
+                        self.error(Diagnostic::error(Code::DuplicateStatement, "`mechanism` is given more than once").with_label(item.span, "second name").with_label(first, "first name").with_help("a file names its mechanism at most once"));
+                    }
+                    mechanism_seen = Some(item.span);
+                    self.model.name = Some(name.name.clone());
+                    self.model.description = description.clone();
+                }
+                StatementKind::Species(decls) => {
+                    for d in decls {
+                        let idx = self.model.species.len();
+                        if !self.declare(&d.name, Decl::Sym(Sym::Species(idx))) {
+                            continue;
+                        }
+                        let (initial, given) = match &d.value {
+                            Some(q) => (self.concentration(q, item.units, "an initial value").unwrap_or(0.0), true),
+                            None => (0.0, false),
+                        };
+                        if initial < 0.0 {
+                            self.negative_value(&d.name, d.value.as_ref().map(|q| q.span).unwrap_or(d.name.span));
+                        }
+                        self.model.species.push(Species { name: d.name.name.clone(), initial, initial_given: given, description: d.description.clone(), span: item.span });
+                    }
+                }
+                StatementKind::Fixed(d) => {
+                    let idx = self.model.fixed.len();
+                    if !self.declare(&d.name, Decl::Sym(Sym::Fixed(idx))) {
+                        continue;
+                    }
+                    let value = d.value.as_ref().and_then(|q| self.concentration(q, item.units, "a fixed concentration")).unwrap_or(0.0);
+                    if value < 0.0 {
+                        self.negative_value(&d.name, d.value.as_ref().map(|q| q.span).unwrap_or(d.name.span));
+                    }
+                    self.model.fixed.push(Fixed { name: d.name.name.clone(), value, description: d.description.clone(), span: item.span });
+                }
+                StatementKind::Param { name, value, description } => {
+                    let idx = self.model.params.len();
+                    if !self.declare(name, Decl::Sym(Sym::Param(idx))) {
+                        continue;
+                    }
+                    self.model.params.push(Param { name: name.name.clone(), definition: ParamDef::Value(0.0), value: 0.0, dim: None, description: description.clone(), span: item.span });
+                    self.param_sources.push((value.clone(), item.units));
+                }
+                StatementKind::Step { name, .. } => {
+                    let idx = self.model.steps.len();
+                    if self.declare(name, Decl::Step(idx)) {
+                        // Placeholder entry keeps indices aligned; filled by lower_step.
+                        self.model.steps.push(Step { name: name.name.clone(), reactants: vec![], products: vec![], reversible: false, rate: Rate::Law(Expr::Number(0.0)), description: None, span: item.span, rate_span: item.span });
+                    }
+                }
+                StatementKind::Total { name, .. } => {
+                    let idx = self.model.totals.len();
+                    if self.declare(name, Decl::Sym(Sym::Total(idx))) {
+                        self.model.totals.push(Total { name: name.name.clone(), terms: vec![], value: 0.0, value_given: false, span: item.span });
+                    }
+                }
+                StatementKind::Observe { name, .. } => {
+                    let idx = self.model.observables.len();
+                    if self.declare(name, Decl::Sym(Sym::Observable(idx))) {
+                        self.model.observables.push(Observable { name: name.name.clone(), expr: Expr::Number(0.0), span: item.span });
+                    }
+                }
+                _ => {}
+            }
+        }
+    }
+
+    fn negative_value(&mut self, name: &Ident, span: Span) {
+        self.error(
+            Diagnostic::error(Code::NegativeInitial, format!("`{}` cannot start at a negative concentration", name.name))
+                .with_label(span, "negative value")
+                .with_help("concentrations are zero or positive; to take material away during a run use `remove ... at TIME`"),
+        );
+    }
+
+    /// A number as written, checked finite.
+    fn number(&mut self, text: &str, span: Span) -> Option<f64> {
+        match text.parse::<f64>() {
+            Ok(v) if v.is_finite() => Some(v),
+            _ => {
+                self.error(Diagnostic::error(Code::BadNumber, format!("`{text}` is not a finite number")).with_label(span, "out of range").with_help("numbers must lie within about ±1.8e308"));
+                None
+            }
+        }
+    }
+
+    /// A quantity converted to default units, with its unit's dimension (if a unit was written).
+    fn quantity(&mut self, q: &Quantity, file_units: Units) -> Option<(f64, Option<Dim>)> {
+        let value = self.number(&q.number, q.number_span)?;
+        // Numbers without a unit are in the writing file's default units; the
+        // conversion to the model's units depends on the dimension, known
+        // only from context, so callers convert them (see `in_model_units`).
+        match &q.unit {
+            None => Some((value, None)),
+            Some((text, span)) => match parse_unit(text) {
+                Ok(u) => {
+                    let v = value * u.factor_to(self.model.units);
+                    if !v.is_finite() {
+                        self.error(Diagnostic::error(Code::BadNumber, "value overflows after unit conversion").with_label(q.span, "too large"));
+                        return None;
+                    }
+                    Some((v, Some(u.dim())))
+                }
+                Err(msg) => {
+                    let word = text.trim_start_matches(['1', '/']).split(['/', '*', '^', '·']).next().unwrap_or(text);
+                    let all = ["M", "mM", "uM", "nM", "pM", "s", "ms", "min", "h"];
+                    let hint = did_you_mean(word, all).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
+                    let _ = file_units;
+                    self.error(Diagnostic::error(Code::UnknownUnit, msg).with_label(*span, "not a unit").with_help(format!(
+                        "{hint}units are products of concentration (M, mM, uM, nM, pM) and time (s, ms, min, h) powers, e.g. `/uM/s`"
+                    )));
+                    None
+                }
+            },
+        }
+    }
+
+    /// Converts a unitless number written in `file_units` for a quantity of
+    /// dimension `dim` to the model's units.
+    fn in_model_units(&self, value: f64, dim: Dim, file_units: Units) -> f64 {
+        let u = UnitExpr { conc: Some((file_units.concentration, dim.conc)), time: Some((file_units.time, dim.time)) };
+        value * u.factor_to(self.model.units)
+    }
+
+    fn concentration(&mut self, q: &Quantity, file_units: Units, what: &str) -> Option<f64> {
+        self.quantity_of(q, file_units, Dim::CONC, what)
+    }
+
+    fn time(&mut self, q: &Quantity, file_units: Units) -> Option<f64> {
+        self.quantity_of(q, file_units, Dim::TIME, "a time")
+    }
+
+    fn quantity_of(&mut self, q: &Quantity, file_units: Units, dim: Dim, what: &str) -> Option<f64> {
+        let (v, d) = self.quantity(q, file_units)?;
+        match d {
+            None => Some(self.in_model_units(v, dim, file_units)),
+            Some(d) if d == dim => Some(v),
+            Some(d) => {
+                let units = self.model.units;
+                self.error(
+                    Diagnostic::error(Code::DimensionMismatch, format!("{what} needs a unit of dimension {}, but `{}` has dimension {}", dim.display_in(units), q.unit.as_ref().map(|u| u.0.as_str()).unwrap_or(""), d.display_in(units)))
+                        .with_label(q.span, "wrong dimension")
+                        .with_help(format!("write it in {} (or leave the unit out to use the default)", dim.display_in(units))),
+                );
+                None
+            }
+        }
+    }
+
+    fn lookup(&self, name: &str) -> Option<Decl> {
+        self.names.get(name).map(|(d, _)| *d)
+    }
+
+    fn unknown_name(&mut self, ident: &Ident, what: &str) {
+        let candidates: Vec<&str> = self.names.keys().map(String::as_str).collect();
+        let hint = did_you_mean(&ident.name, candidates.iter().copied()).map(str::to_string);
+        let mut d = Diagnostic::error(Code::UnknownName, format!("unknown name `{}`", ident.name)).with_label(ident.span, format!("not declared as {what}"));
+        d = match hint {
+            Some(h) => d.with_help(format!("did you mean `{h}`?")),
+            None if ConcUnit::parse(&ident.name).is_some() || TimeUnit::parse(&ident.name).is_some() => {
+                d.with_help(format!("units appear only right after a number (e.g. `2 /{}`), never inside expressions", ident.name))
+            }
+            None => d.with_help(format!("declare it, e.g. `param {} = ...` or `species {}`", ident.name, ident.name)),
+        };
+        self.error(d);
+    }
+
+    /// Resolves an expression. `allowed` filters which kinds may appear.
+    fn resolve(&mut self, e: &AstExpr, allowed: &dyn Fn(Sym) -> bool, context: &str) -> Option<Expr> {
+        Some(match e {
+            AstExpr::Number(text, span) => Expr::Number(self.number(text, *span)?),
+            AstExpr::Paren(inner, _) => self.resolve(inner, allowed, context)?,
+            AstExpr::Neg(inner, _) => Expr::Neg(Box::new(self.resolve(inner, allowed, context)?)),
+            AstExpr::Binary(op, a, b, _) => {
+                let a = self.resolve(a, allowed, context);
+                let b = self.resolve(b, allowed, context);
+                let op = match op {
+                    AstBinOp::Add => BinOp::Add,
+                    AstBinOp::Sub => BinOp::Sub,
+                    AstBinOp::Mul => BinOp::Mul,
+                    AstBinOp::Div => BinOp::Div,
+                    AstBinOp::Pow => BinOp::Pow,
+                };
+                Expr::bin(op, a?, b?)
+            }
+            AstExpr::Call(name, args, span) => {
+                let resolved: Vec<Option<Expr>> = args.iter().map(|a| self.resolve(a, allowed, context)).collect();
+                let Some(func) = Func::from_name(&name.name) else {
+                    let all = ["exp", "ln", "log10", "sqrt", "abs", "min", "max", "pow"];
+                    let hint = did_you_mean(&name.name, all).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
+                    self.error(Diagnostic::error(Code::UnknownFunction, format!("unknown function `{}`", name.name)).with_label(name.span, "not a function").with_help(format!("{hint}the functions are {}", all.join(", "))));
+                    return None;
+                };
+                if args.len() != func.arity() {
+                    self.error(
+                        Diagnostic::error(Code::WrongArity, format!("`{}` takes {} argument(s), not {}", func.name(), func.arity(), args.len()))
+                            .with_label(*span, "here")
+                            .with_help(format!("write `{}({})`", func.name(), if func.arity() == 1 { "x" } else { "x, y" })),
+                    );
+                    return None;
+                }
+                Expr::Call(func, resolved.into_iter().collect::<Option<Vec<_>>>()?)
+            }
+            AstExpr::Name(ident) => match ident.name.as_str() {
+                "t" => Expr::Time,
+                "pi" => Expr::Number(std::f64::consts::PI),
+                name => match self.lookup(name) {
+                    Some(Decl::Sym(sym)) if allowed(sym) => {
+                        self.used.insert(sym);
+                        Expr::Name(sym)
+                    }
+                    Some(Decl::Sym(sym)) => {
+                        self.error(
+                            Diagnostic::error(Code::WrongKind, format!("`{name}` is {} and cannot appear in {context}", kind_word(sym)))
+                                .with_label(ident.span, "not allowed here")
+                                .with_help(context_help(context)),
+                        );
+                        return None;
+                    }
+                    Some(Decl::Step(_)) => {
+                        self.error(Diagnostic::error(Code::WrongKind, format!("`{name}` is a step, not a value")).with_label(ident.span, "a step name").with_help("expressions use species, fixed species, params, totals and observables"));
+                        return None;
+                    }
+                    None => {
+                        self.unknown_name(ident, "anything");
+                        return None;
+                    }
+                },
+            },
+        })
+    }
+
+    fn resolve_params(&mut self) {
+        let n = self.model.params.len();
+        let mut exprs: Vec<Option<Expr>> = vec![None; n];
+        let sources = std::mem::take(&mut self.param_sources);
+        for (i, (value, units)) in sources.iter().enumerate() {
+            match value {
+                ParamValue::Quantity(q) => {
+                    self.check_quantity_ambiguity(q);
+                    if let Some((v, dim)) = self.quantity(q, *units) {
+                        // A unitless number is taken in the default units; its
+                        // dimension stays unknown.
+                        self.model.params[i].definition = ParamDef::Value(v);
+                        self.model.params[i].value = v;
+                        self.model.params[i].dim = dim;
+                    }
+                }
+                ParamValue::Expr(e) => {
+                    exprs[i] = self.resolve(e, &|s| matches!(s, Sym::Param(_)), "a param's value");
+                }
+            }
+        }
+        self.param_sources = sources;
+        // Topological order (depth-first), reporting cycles once.
+        let deps: Vec<Vec<usize>> = exprs
+            .iter()
+            .map(|e| e.as_ref().map(|e| e.names().into_iter().filter_map(|s| if let Sym::Param(j) = s { Some(j) } else { None }).collect()).unwrap_or_default())
+            .collect();
+        let mut state = vec![0u8; n]; // 0 new, 1 on stack, 2 done
+        let mut order = Vec::with_capacity(n);
+        let mut reported = false;
+        for start in 0..n {
+            if state[start] != 0 {
+                continue;
+            }
+            let mut stack: Vec<(usize, usize)> = vec![(start, 0)];
+            state[start] = 1;
+            while let Some(&mut (node, ref mut next)) = stack.last_mut() {
+                if *next < deps[node].len() {
+                    let d = deps[node][*next];
+                    *next += 1;
+                    match state[d] {
+                        0 => {
+                            state[d] = 1;
+                            stack.push((d, 0));
+                        }
+                        1 if !reported => {
+                            reported = true;
+                            let from = stack.iter().position(|(x, _)| *x == d).unwrap_or(0);
+                            let cycle: Vec<usize> = stack[from..].iter().map(|(x, _)| *x).collect();
+                            let names: Vec<&str> = cycle.iter().chain([&d]).map(|&k| self.model.params[k].name.as_str()).collect();
+                            let mut diag = Diagnostic::error(Code::ParamCycle, format!("params are defined in a cycle: {}", names.join(" → ")));
+                            for &k in &cycle {
+                                diag = diag.with_label(self.model.params[k].span, format!("`{}` depends on the next", self.model.params[k].name));
+                            }
+                            self.error(diag.with_help("give one of them a number instead of an expression"));
+                        }
+                        _ => {}
+                    }
+                } else {
+                    state[node] = 2;
+                    order.push(node);
+                    stack.pop();
+                }
+            }
+        }
+        self.model.param_order = order;
+        if reported {
+            return;
+        }
+        for &i in &self.model.param_order.clone() {
+            if let Some(e) = exprs[i].take() {
+                let v = e.eval(&|s| self.model.initial_value(s), 0.0);
+                let dim = self.infer_dim(&e);
+                if !v.is_finite() {
+                    self.error(Diagnostic::error(Code::BadParamValue, format!("param `{}` evaluates to {v}", self.model.params[i].name)).with_label(self.model.params[i].span, "not a finite number").with_help("check for division by zero or overflow"));
+                }
+                let p = &mut self.model.params[i];
+                p.value = v;
+                p.dim = dim;
+                p.definition = ParamDef::Expr(e);
+            }
+        }
+    }
+
+    /// `param K = 1 /h` where `h` is also a declared name: the text reads as
+    /// a quantity and as an expression.
+    fn check_quantity_ambiguity(&mut self, q: &Quantity) {
+        let Some((unit, span)) = &q.unit else { return };
+        let words: Vec<&str> = unit.split(['/', '*', '·']).map(|w| w.split('^').next().unwrap_or(w)).filter(|w| !w.is_empty() && *w != "1").collect();
+        if let Some(w) = words.iter().find(|w| self.names.contains_key(**w)) {
+            self.error(
+                Diagnostic::error(Code::AmbiguousQuantity, format!("`{} {unit}` reads both as a quantity in `{w}` units and as an expression over the name `{w}`", q.number))
+                    .with_label(*span, "unit or name?")
+                    .with_help(format!("for the expression write `({} {})`; for the unit rename the `{w}` you declared", q.number, unit.replace('/', "/ "))),
+            );
+        }
+    }
+
+    /// The dimension of an expression where it follows from its parts.
+    fn infer_dim(&self, e: &Expr) -> Option<Dim> {
+        match e {
+            Expr::Number(_) => Some(Dim::NONE),
+            Expr::Time => Some(Dim::TIME),
+            Expr::Name(Sym::Param(i)) => self.model.params[*i].dim,
+            Expr::Name(Sym::Species(_) | Sym::Fixed(_) | Sym::Total(_)) => Some(Dim::CONC),
+            Expr::Name(Sym::Observable(_)) => None,
+            Expr::Neg(a) => self.infer_dim(a),
+            Expr::Binary(op, a, b) => {
+                let (da, db) = (self.infer_dim(a), self.infer_dim(b));
+                match op {
+                    BinOp::Add | BinOp::Sub => match (da, db) {
+                        (Some(x), Some(y)) if x == y => Some(x),
+                        // A bare number added to a dimensioned term: the
+                        // number is taken in that dimension's default units.
+                        (Some(x), Some(y)) if x == Dim::NONE && is_plain_number(a) => Some(y),
+                        (Some(x), Some(y)) if y == Dim::NONE && is_plain_number(b) => Some(x),
+                        _ => None,
+                    },
+                    BinOp::Mul => Some(da?.mul(db?)),
+                    BinOp::Div => Some(da?.div(db?)),
+                    BinOp::Pow => match (**b).clone() {
+                        Expr::Number(p) if p == p.trunc() && p.abs() < 100.0 => Some(da?.powi(p as i32)),
+                        _ if da == Some(Dim::NONE) => Some(Dim::NONE),
+                        _ => None,
+                    },
+                }
+            }
+            Expr::Call(f, args) => match f {
+                Func::Abs | Func::Min | Func::Max => {
+                    let d = self.infer_dim(args.first()?)?;
+                    if args.iter().skip(1).all(|a| self.infer_dim(a) == Some(d)) { Some(d) } else { None }
+                }
+                Func::Sqrt => {
+                    let d = self.infer_dim(args.first()?)?;
+                    if d.conc % 2 == 0 && d.time % 2 == 0 { Some(Dim::new(d.conc / 2, d.time / 2)) } else { None }
+                }
+                _ => {
+                    if args.iter().all(|a| self.infer_dim(a) == Some(Dim::NONE)) {
+                        Some(Dim::NONE)
+                    } else {
+                        None
+                    }
+                }
+            },
+        }
+    }
+
+    fn lower_terms(&mut self, side: &Side) -> Vec<Term> {
+        let mut terms: Vec<Term> = Vec::new();
+        for t in &side.terms {
+            let Some(sym) = self.participant(&t.name, "a step's species") else { continue };
+            let Some(c) = self.coefficient(t) else { continue };
+            self.used.insert(sym);
+            match terms.iter_mut().find(|x| x.sym == sym) {
+                Some(x) => x.coefficient += c,
+                None => terms.push(Term { sym, coefficient: c, span: t.span }),
+            }
+        }
+        terms
+    }
+
+    fn participant(&mut self, ident: &Ident, what: &str) -> Option<Sym> {
+        match self.lookup(&ident.name) {
+            Some(Decl::Sym(s @ (Sym::Species(_) | Sym::Fixed(_)))) => Some(s),
+            Some(Decl::Sym(s)) => {
+                self.error(
+                    Diagnostic::error(Code::WrongKind, format!("`{}` is {}, not a species", ident.name, kind_word(s)))
+                        .with_label(ident.span, format!("used as {what}"))
+                        .with_help("only `species` and `fixed` names take part in steps"),
+                );
+                None
+            }
+            Some(Decl::Step(_)) => {
+                self.error(Diagnostic::error(Code::WrongKind, format!("`{}` is a step, not a species", ident.name)).with_label(ident.span, "a step name").with_help("only `species` and `fixed` names take part in steps"));
+                None
+            }
+            None => {
+                self.unknown_name(ident, "a species");
+                None
+            }
+        }
+    }
+
+    fn coefficient(&mut self, t: &StepTerm) -> Option<Coef> {
+        let Some((text, span)) = &t.coefficient else { return Some(Coef::one()) };
+        let bad = |msg: String| Diagnostic::error(Code::BadCoefficient, msg).with_label(*span, "this coefficient").with_help("coefficients are positive whole numbers, decimals or fractions such as `2`, `0.5`, `1/2`, at most 18 digits");
+        let parsed = parse_coefficient(text);
+        match parsed {
+            Some(c) if c.is_positive() => Some(c),
+            Some(_) => {
+                self.error(bad(format!("coefficient `{text}` must be positive")));
+                None
+            }
+            None => {
+                self.error(bad(format!("coefficient `{text}` is not a number this tool can hold exactly")));
+                None
+            }
+        }
+    }
+
+    fn lower_step(&mut self, item: &Item) {
+        let StatementKind::Step { name, lhs, reversible, arrow_span, rhs, rate, rate_span, description, .. } = item.kind else { return };
+        let Some(Decl::Step(idx)) = self.lookup(&name.name) else { return };
+        if self.model.steps[idx].span != item.span {
+            return; // a duplicate name, already reported
+        }
+        let reactants = self.lower_terms(lhs);
+        let products = self.lower_terms(rhs);
+        let rate = match rate {
+            RateAst::Law(e) => {
+                let resolved = self.resolve(e, &|s| !matches!(s, Sym::Observable(_)), "a rate law");
+                Rate::Law(resolved.unwrap_or(Expr::Number(0.0)))
+            }
+            RateAst::MassAction(constants) => {
+                let resolved: Vec<Option<Expr>> = constants.iter().map(|c| self.resolve(c, &|s| matches!(s, Sym::Param(_) | Sym::Fixed(_) | Sym::Total(_)), "a rate constant")).collect();
+                match (*reversible, constants.len()) {
+                    (true, 1) => self.error(
+                        Diagnostic::error(Code::MissingReverseConstant, format!("reversible step `{}` has no reverse rate constant", name.name))
+                            .with_label(*arrow_span, "reversible")
+                            .with_label(*rate_span, "only a forward constant")
+                            .with_help("write `with KF, KR`, or use `->` for an irreversible step"),
+                    ),
+                    (false, 2) => self.error(
+                        Diagnostic::error(Code::ExtraReverseConstant, format!("irreversible step `{}` has two rate constants", name.name))
+                            .with_label(*arrow_span, "irreversible")
+                            .with_label(constants[1].span(), "a reverse constant")
+                            .with_help("use `<=>` for a reversible step, or drop the second constant"),
+                    ),
+                    (_, n) if n > 2 => self.error(
+                        Diagnostic::error(Code::ExtraReverseConstant, format!("step `{}` has {n} rate constants", name.name))
+                            .with_label(constants[2].span(), "one too many")
+                            .with_help("a step takes one constant (`->`) or two (`<=>`)"),
+                    ),
+                    _ => {}
+                }
+                let forward = resolved.first().cloned().flatten().unwrap_or(Expr::Number(0.0));
+                let reverse = if *reversible { resolved.get(1).cloned().flatten().or(Some(Expr::Number(0.0))) } else { None };
+                // Dimension check per direction.
+                let units = self.model.units;
+                let directions = [(0usize, &reactants, "forward"), (1, &products, "reverse")];
+                for (k, side, dir) in directions {
+                    let Some(Some(expr)) = resolved.get(k) else { continue };
+                    if k == 1 && !*reversible {
+                        continue;
+                    }
+                    let order = Model::order(side);
+                    if !order.is_integer() {
+                        continue;
+                    }
+                    let Some(order) = order.to_integer().to_i32() else { continue };
+                    let want = Dim::mass_action_constant(order);
+                    if let Some(have) = self.infer_dim(expr)
+                        && have != want
+                        && !(have == Dim::NONE && matches!(expr, Expr::Number(_)))
+                    {
+                        let mut d = Diagnostic::error(
+                            Code::DimensionMismatch,
+                            format!("the {dir} constant of step `{}` has dimension {}, but a step of order {order} needs {}", name.name, have.display_in(units), want.display_in(units)),
+                        )
+                        .with_label(constants[k].span(), format!("{dir} constant: {}", have.display_in(units)));
+                        if let Expr::Name(Sym::Param(p)) = expr {
+                            let span = self.model.params[*p].span;
+                            d = d.with_label(span, "declared here");
+                        }
+                        let side_span = if k == 0 { lhs.span } else { rhs.span };
+                        d = d.with_label(side_span, format!("order {order} ({dir})"));
+                        self.error(d.with_help(format!("a mass-action constant for order {order} is in concentration^{} per time, e.g. `{}`", 1 - order, want.display_in(units))));
+                    }
+                }
+                Rate::MassAction { forward, reverse }
+            }
+        };
+        if let Rate::Law(e) = &rate {
+            match self.infer_dim(e) {
+                Some(d) if d == Dim::RATE => {}
+                Some(d) => self.diags.push(
+                    Diagnostic::warning(Code::LawDimensionMismatch, format!("the law of step `{}` has dimension {}, not concentration per time", name.name, d.display_in(self.model.units)))
+                        .with_label(*rate_span, "this law")
+                        .with_help(format!("a rate is in {}", Dim::RATE.display_in(self.model.units))),
+                ),
+                None => self.diags.push(
+                    Diagnostic::warning(Code::LawDimensionUnknown, format!("the dimension of the law of step `{}` cannot be inferred", name.name))
+                        .with_label(*rate_span, "this law")
+                        .with_help("give its params units (e.g. `param Vmax = 3 uM/s`) so the law can be checked"),
+                ),
+            }
+        }
+        let step = &mut self.model.steps[idx];
+        step.reactants = reactants;
+        step.products = products;
+        step.reversible = *reversible;
+        step.rate = rate;
+        step.description = description.clone();
+        step.rate_span = *rate_span;
+    }
+
+    fn lower_observable(&mut self, item: &Item) {
+        let StatementKind::Observe { name, expr } = item.kind else { return };
+        let Some(Decl::Sym(Sym::Observable(i))) = self.lookup(&name.name) else { return };
+        if self.model.observables[i].span != item.span {
+            return;
+        }
+        if let Some(e) = self.resolve(expr, &|_| true, "an observable") {
+            self.model.observables[i].expr = e;
+        }
+    }
+
+    fn check_observable_cycles(&mut self) {
+        let n = self.model.observables.len();
+        for start in 0..n {
+            // Follow observable references; a path back to `start` is a cycle.
+            let mut seen = vec![false; n];
+            let mut todo = vec![start];
+            while let Some(k) = todo.pop() {
+                for s in self.model.observables[k].expr.names() {
+                    if let Sym::Observable(j) = s {
+                        if j == start {
+                            let o = &self.model.observables[start];
+                            let d = Diagnostic::error(Code::ParamCycle, format!("observable `{}` depends on itself", o.name)).with_label(o.span, "part of a cycle").with_help("an observable may use other observables, but not in a circle");
+                            self.error(d);
+                            return;
+                        }
+                        if !seen[j] {
+                            seen[j] = true;
+                            todo.push(j);
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    fn lower_total(&mut self, item: &Item) {
+        let StatementKind::Total { name, terms, value } = item.kind else { return };
+        let Some(Decl::Sym(Sym::Total(i))) = self.lookup(&name.name) else { return };
+        if self.model.totals[i].span != item.span {
+            return;
+        }
+        let mut lowered: Vec<(usize, Coef)> = Vec::new();
+        for t in terms {
+            let Some(sym) = self.participant(&t.name, "a term of a total") else { continue };
+            let Sym::Species(k) = sym else {
+                self.error(Diagnostic::error(Code::WrongKind, format!("`{}` is a fixed species; totals sum dynamic species", t.name.name)).with_label(t.name.span, "fixed").with_help("a fixed species never changes, so it needs no total"));
+                continue;
+            };
+            let Some(mut c) = self.coefficient(t) else { continue };
+            if t.negative {
+                c = -c;
+            }
+            match lowered.iter_mut().find(|(j, _)| *j == k) {
+                Some((_, x)) => *x += c,
+                None => lowered.push((k, c)),
+            }
+        }
+        lowered.retain(|(_, c)| !c.is_zero());
+        if lowered.is_empty() {
+            self.error(Diagnostic::error(Code::TotalEmpty, format!("total `{}` sums no species", name.name)).with_label(item.span, "empty").with_help("write the species it sums, e.g. `total E_t = E + ES`"));
+            return;
+        }
+        // Conserved by every step?
+        for (j, step) in self.model.steps.iter().enumerate() {
+            let change: Coef = self.model.net_change(j).iter().map(|(k, c)| lowered.iter().find(|(x, _)| x == k).map(|(_, w)| *w * *c).unwrap_or_else(Coef::zero)).fold(Coef::zero(), |a, b| a + b);
+            if !change.is_zero() {
+                let d = Diagnostic::error(Code::TotalNotConserved, format!("total `{}` is not conserved: step `{}` changes it by {} per firing", name.name, step.name, change))
+                    .with_label(item.span, "this total")
+                    .with_label(step.span, "changes the total")
+                    .with_help("a total must sum species whose amounts the steps only move between each other; check the coefficients or drop the total");
+                self.diags.push(d);
+                break;
+            }
+        }
+        let mut given = None;
+        if let Some(q) = value {
+            if let Some(v) = self.concentration(q, item.units, "a total") {
+                if v < 0.0 {
+                    self.negative_value(name, q.span);
+                }
+                given = Some(v);
+            }
+        }
+        let t = &mut self.model.totals[i];
+        t.terms = lowered;
+        t.value_given = given.is_some();
+        t.value = given.unwrap_or(0.0);
+    }
+
+    /// Sets the start value of each valued total's adjusted species, then
+    /// checks every total against the initial values.
+    fn apply_total_values(&mut self) {
+        let mut adjusted: HashMap<usize, usize> = HashMap::new();
+        for i in 0..self.model.totals.len() {
+            if !self.model.totals[i].value_given {
+                continue;
+            }
+            let Some(k) = self.model.total_adjusted_species(i) else { continue };
+            if self.model.species[k].initial_given || adjusted.contains_key(&k) {
+                continue; // all given: only checked below
+            }
+            match self.model.apply_total_value(i) {
+                Ok(()) => {
+                    adjusted.insert(k, i);
+                    self.model.species[k].initial_given = true;
+                }
+                Err(msg) => {
+                    let span = self.model.totals[i].span;
+                    self.error(Diagnostic::error(Code::TotalInconsistent, msg).with_label(span, "this total").with_help("raise the total or lower the initial values of its species"));
+                }
+            }
+        }
+        for i in 0..self.model.totals.len() {
+            let t = &self.model.totals[i];
+            let from_initial = self.model.total_from_initial(i);
+            if !t.value_given {
+                self.model.totals[i].value = from_initial;
+                continue;
+            }
+            let scale = t.value.abs().max(from_initial.abs()).max(1e-300);
+            if (t.value - from_initial).abs() > 1e-9 * scale {
+                let mut d = Diagnostic::error(Code::TotalInconsistent, format!("total `{}` is given as {} but its species start at a sum of {}", t.name, fmt_num(t.value), fmt_num(from_initial)))
+                    .with_label(t.span, "this total");
+                for (k, _) in &t.terms {
+                    let s = &self.model.species[*k];
+                    if s.initial_given {
+                        d = d.with_label(s.span, format!("`{}` starts at {}", s.name, fmt_num(s.initial)));
+                    }
+                }
+                self.diags.push(d.with_help("leave out one species' initial value so it follows from the total, or correct the numbers"));
+            }
+        }
+    }
+
+    fn lower_event(&mut self, item: &Item) {
+        let (kind, target, amount, time) = match item.kind {
+            StatementKind::Event { kind, amount, target, time } => (
+                match kind {
+                    syntax::EventKindAst::Add => EventKind::Add,
+                    syntax::EventKindAst::Remove => EventKind::Remove,
+                },
+                target,
+                amount,
+                time,
+            ),
+            StatementKind::Set { target, value, time } => (EventKind::Set, target, value, time),
+            _ => return,
+        };
+        let species = match self.lookup(&target.name) {
+            Some(Decl::Sym(Sym::Species(k))) => Some(k),
+            Some(Decl::Sym(s)) => {
+                self.error(
+                    Diagnostic::error(Code::EventTarget, format!("`{}` is {}; events change species only", target.name, kind_word(s)))
+                        .with_label(target.span, "not a species")
+                        .with_help("timed additions, withdrawals and resets act on `species`; to change a param use `--set` or a scan"),
+                );
+                None
+            }
+            Some(Decl::Step(_)) => {
+                self.error(Diagnostic::error(Code::EventTarget, format!("`{}` is a step; events change species only", target.name)).with_label(target.span, "not a species").with_help("name a species"));
+                None
+            }
+            None => {
+                self.unknown_name(target, "a species");
+                None
+            }
+        };
+        let amount_v = self.concentration(amount, item.units, "an amount");
+        let time_v = self.time(time, item.units);
+        if let Some(v) = amount_v
+            && v < 0.0
+        {
+            self.error(Diagnostic::error(Code::BadEvent, "event amounts cannot be negative").with_label(amount.span, "negative").with_help("use `remove` to take material away"));
+        }
+        if let Some(t) = time_v
+            && t < 0.0
+        {
+            self.error(Diagnostic::error(Code::BadEvent, "events cannot happen before time 0").with_label(time.span, "negative time").with_help("runs start at t = 0"));
+        }
+        if let (Some(species), Some(amount), Some(time)) = (species, amount_v, time_v) {
+            self.model.events.push(Event { kind, species, amount, time, span: item.span });
+        }
+    }
+
+    fn lower_assumption(&mut self, item: &Item) {
+        match item.kind {
+            StatementKind::AssumeSteady(names) => {
+                for n in names {
+                    match self.lookup(&n.name) {
+                        Some(Decl::Sym(Sym::Species(k))) => self.model.assumptions.steady.push((k, n.span)),
+                        Some(_) => self.error(Diagnostic::error(Code::BadAssumption, format!("`{}` is not a species", n.name)).with_label(n.span, "not a species").with_help("`assume steady` names the species (usually enzyme forms) held at quasi-steady state")),
+                        None => self.unknown_name(n, "a species"),
+                    }
+                }
+            }
+            StatementKind::AssumeEquilibrium(names) => {
+                for n in names {
+                    match self.lookup(&n.name) {
+                        Some(Decl::Step(k)) => self.model.assumptions.equilibrium.push((k, n.span)),
+                        Some(_) => self.error(Diagnostic::error(Code::BadAssumption, format!("`{}` is not a step", n.name)).with_label(n.span, "not a step").with_help("`assume equilibrium` names the steps at rapid equilibrium")),
+                        None => {
+                            let steps: Vec<&str> = self.model.steps.iter().map(|s| s.name.as_str()).collect();
+                            let hint = did_you_mean(&n.name, steps.iter().copied()).map(|h| format!("did you mean `{h}`?")).unwrap_or_else(|| "name a declared step".into());
+                            self.error(Diagnostic::error(Code::UnknownName, format!("unknown step `{}`", n.name)).with_label(n.span, "not a step").with_help(hint));
+                        }
+                    }
+                }
+            }
+            _ => {}
+        }
+    }
+
+    fn lint(&mut self) {
+        // Params used by totals' values? Totals carry numbers only; params
+        // count as used when any expression mentions them.
+        for (i, p) in self.model.params.iter().enumerate() {
+            if !self.used.contains(&Sym::Param(i)) {
+                self.diags.push(
+                    Diagnostic::warning(Code::UnusedParam, format!("param `{}` is never used", p.name))
+                        .with_label(p.span, "unused")
+                        .with_help("use it in a rate, law, observable or another param, or remove it"),
+                );
+            }
+        }
+        let mut touched = vec![false; self.model.species.len()];
+        let mut produced = vec![false; self.model.species.len()];
+        let mut consumed = vec![false; self.model.species.len()];
+        for (j, step) in self.model.steps.iter().enumerate() {
+            for t in step.reactants.iter().chain(&step.products) {
+                if let Sym::Species(k) = t.sym {
+                    touched[k] = true;
+                }
+            }
+            if let Rate::Law(e) = &step.rate {
+                for s in e.names() {
+                    if let Sym::Species(k) = s {
+                        touched[k] = true;
+                    }
+                }
+            }
+            for (k, c) in self.model.net_change(j) {
+                if c.is_positive() || step.reversible {
+                    produced[k] = true;
+                }
+                if c.is_negative() || step.reversible {
+                    consumed[k] = true;
+                }
+            }
+            let sorted = |ts: &[Term]| {
+                let mut v: Vec<(Sym, Coef)> = ts.iter().map(|t| (t.sym, t.coefficient)).collect();
+                v.sort_by_key(|x| x.0);
+                v
+            };
+            if sorted(&step.reactants) == sorted(&step.products) {
+                self.diags.push(
+                    Diagnostic::warning(Code::NoOpStep, format!("step `{}` has the same species on both sides", step.name))
+                        .with_label(step.span, "changes nothing")
+                        .with_help("a step whose sides are equal never changes any concentration; remove it or fix a side"),
+                );
+            }
+        }
+        for e in &self.model.events {
+            produced[e.species] = true;
+        }
+        for (k, s) in self.model.species.iter().enumerate() {
+            if !touched[k] {
+                self.diags.push(
+                    Diagnostic::warning(Code::UntouchedSpecies, format!("species `{}` takes part in no step", s.name))
+                        .with_label(s.span, "never changes")
+                        .with_help("use it in a step, declare it `fixed` if it is a constant, or remove it"),
+                );
+            } else if consumed[k] && !produced[k] && s.initial == 0.0 {
+                self.diags.push(
+                    Diagnostic::warning(Code::ConsumedOnly, format!("species `{}` is consumed but starts at 0 and nothing produces it", s.name))
+                        .with_label(s.span, "no source")
+                        .with_help("give it an initial value, an `add` event, or a step that produces it"),
+                );
+            }
+        }
+        let _ = self.sources;
+    }
+}
+
+fn is_plain_number(e: &Expr) -> bool {
+    matches!(e, Expr::Number(_)) || matches!(e, Expr::Neg(x) if matches!(**x, Expr::Number(_)))
+}
+
+fn kind_word(s: Sym) -> &'static str {
+    match s {
+        Sym::Species(_) => "a species",
+        Sym::Fixed(_) => "a fixed species",
+        Sym::Param(_) => "a param",
+        Sym::Total(_) => "a total",
+        Sym::Observable(_) => "an observable",
+    }
+}
+
+fn context_help(context: &str) -> String {
+    match context {
+        "a param's value" => "a param's expression may use only other params and numbers (it is a constant)".into(),
+        "a rate constant" => "a mass-action constant uses params, fixed species and totals; for rates that depend on species write `law EXPR`".into(),
+        "a rate law" => "a law uses species, fixed species, params, totals and `t`".into(),
+        _ => format!("check what {context} may use in docs/language.md"),
+    }
+}
+
+/// Parses `2`, `0.5`, `1/2` exactly; None on overflow or malformed text.
+pub(crate) fn parse_coefficient(text: &str) -> Option<Coef> {
+    let (num, den) = match text.split_once('/') {
+        Some((a, b)) => (a, Some(b)),
+        None => (text, None),
+    };
+    let mut value = match num.split_once('.') {
+        Some((int, frac)) => {
+            let digits = format!("{int}{frac}");
+            let n: i64 = digits.parse().ok()?;
+            let d = 10i64.checked_pow(frac.len() as u32)?;
+            Coef::new(n, d)
+        }
+        None => Coef::from_integer(num.parse().ok()?),
+    };
+    if let Some(d) = den {
+        let d: i64 = d.parse().ok()?;
+        if d == 0 {
+            return Some(Coef::zero());
+        }
+        value = value.checked_div(&Coef::from_integer(d))?;
+    }
+    Some(value)
+}
+
+fn fmt_num(v: f64) -> String {
+    let s = format!("{v}");
+    if s.len() > 12 { format!("{v:.6e}") } else { s }
+}
