@@ -1,1 +1,214 @@
-//! Time courses, events, steady states and scans on diffsol (being built).
+//! Simulation: time courses with events (`integrate`), steady states with
+//! stability (`steady`), and parameter scans (`scan`), all on a model
+//! compiled by `numeric`.
+//!
+//! Why a separate stage: the numerical methods (diffsol's BDF and ESDIRK,
+//! Newton with line search) and their failure modes live here, behind plain
+//! data in and out; the command line only formats. Invariants: results are
+//! in the model's default units; a failed run returns an error naming the
+//! time and the species that went bad, never a partial result; nothing here
+//! prints.
+
+pub mod integrate;
+pub mod scan;
+pub mod steady;
+
+pub use integrate::{Trajectory, simulate};
+
+use crate::model::{Expr, Model};
+use crate::numeric::{CompileError, CompiledSystem, StateLayout};
+use std::fmt;
+
+/// The integration method.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Method {
+    /// Variable-order backward differentiation formulas (stiff, the default).
+    #[default]
+    Bdf,
+    /// Explicit-first-stage singly diagonally implicit Runge–Kutta, order 3(4).
+    Esdirk,
+}
+
+/// Tolerances and limits of a run.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Settings {
+    pub method: Method,
+    pub rtol: f64,
+    pub atol: f64,
+    /// Steps allowed per segment between events.
+    pub max_steps: usize,
+}
+
+impl Default for Settings {
+    fn default() -> Self {
+        Settings { method: Method::Bdf, rtol: 1e-6, atol: 1e-10, max_steps: 500_000 }
+    }
+}
+
+/// A failed simulation, steady-state search or scan point.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SimError {
+    pub kind: SimErrorKind,
+    pub message: String,
+    /// When the failure happened (model time), if during integration.
+    pub time: Option<f64>,
+    /// The species that went bad (model index) and its last value.
+    pub species: Option<(usize, f64)>,
+    /// The species' name, filled in where the model is known.
+    pub species_name: Option<String>,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SimErrorKind {
+    /// Bad input to a run (times, values).
+    Input,
+    /// The problem could not be set up.
+    Setup,
+    /// Integration failed (step size underflow, NaN, blow-up, step limit).
+    Integration,
+    /// No steady state found.
+    NoSteadyState,
+}
+
+impl SimError {
+    pub fn input(message: impl Into<String>) -> Self {
+        SimError { kind: SimErrorKind::Input, message: message.into(), time: None, species: None, species_name: None }
+    }
+    pub fn setup(message: impl Into<String>) -> Self {
+        SimError { kind: SimErrorKind::Setup, message: message.into(), time: None, species: None, species_name: None }
+    }
+    pub fn failed(time: f64, species: Option<usize>, value: f64, message: &str) -> Self {
+        SimError {
+            kind: SimErrorKind::Integration,
+            message: message.to_string(),
+            time: Some(time),
+            species: species.map(|i| (i, value)),
+            species_name: None,
+        }
+    }
+    pub fn no_steady_state(message: impl Into<String>) -> Self {
+        SimError { kind: SimErrorKind::NoSteadyState, message: message.into(), time: None, species: None, species_name: None }
+    }
+    /// Fills in the species name from the model.
+    pub fn named(mut self, model: &Model) -> Self {
+        if let Some((i, _)) = self.species {
+            self.species_name = model.species.get(i).map(|s| s.name.clone());
+        }
+        self
+    }
+    /// The stable diagnostic code for this failure.
+    pub fn code(&self) -> crate::diagnostics::Code {
+        use crate::diagnostics::Code;
+        match self.kind {
+            SimErrorKind::Input => Code::BadNumericInput,
+            SimErrorKind::Setup | SimErrorKind::Integration => Code::SolverFailed,
+            SimErrorKind::NoSteadyState => Code::NoSteadyState,
+        }
+    }
+}
+
+impl fmt::Display for SimError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self.time {
+            Some(t) => write!(f, "integration failed at t = {t:e}: {}", self.message)?,
+            None => write!(f, "{}", self.message)?,
+        }
+        if let Some((i, v)) = self.species {
+            let name = self.species_name.clone().unwrap_or_else(|| format!("species #{i}"));
+            write!(f, "; species `{name}` = {v:e}")?;
+        }
+        Ok(())
+    }
+}
+
+impl std::error::Error for SimError {}
+
+impl From<CompileError> for SimError {
+    fn from(e: CompileError) -> Self {
+        SimError::setup(format!("the model could not be compiled: {}", e.0))
+    }
+}
+
+/// A model ready to simulate: the model whose constants, totals and events
+/// apply, and its compiled system.
+#[derive(Debug, Clone)]
+pub struct Prepared {
+    pub model: Model,
+    pub system: CompiledSystem,
+    /// Whether the state is the reduced one (independent species only).
+    pub reduced: bool,
+}
+
+impl Prepared {
+    /// Every species is integrated.
+    pub fn full(model: &Model) -> Result<Prepared, SimError> {
+        Ok(Prepared { model: model.clone(), system: CompiledSystem::full(model)?, reduced: false })
+    }
+
+    pub fn simulate(&self, settings: &Settings, times: &[f64]) -> Result<Trajectory, SimError> {
+        simulate(&self.model, &self.system, settings, times).map_err(|e| e.named(&self.model))
+    }
+}
+
+/// Column names of a trajectory row: species in declaration order, then
+/// observables.
+pub fn column_names(model: &Model) -> Vec<String> {
+    model.species.iter().map(|s| s.name.clone()).chain(model.observables.iter().map(|o| o.name.clone())).collect()
+}
+
+/// The default end time: the last event plus five times the slowest time
+/// scale of the linearised system at the start (1/|Re λ| of the smallest
+/// non-zero eigenvalue), rounded up to 1, 2 or 5 × 10^k. Without any
+/// dynamics the fallback is 100 time units.
+pub fn default_until(model: &Model, system: &CompiledSystem) -> f64 {
+    let last_event = model.events.iter().map(|e| e.time).fold(0.0, f64::max);
+    let tau = slowest_time_scale(model, system).unwrap_or(20.0);
+    nice_ceiling(last_event + 5.0 * tau)
+}
+
+fn slowest_time_scale(model: &Model, system: &CompiledSystem) -> Option<f64> {
+    let n = system.nstates;
+    if n == 0 || n > 400 {
+        return None;
+    }
+    let y = system.state_from_species(&model.initial_state());
+    let mut w = system.workspace(&crate::numeric::constants_of(model));
+    let j = system.dense_jacobian(&mut w, &y, 0.0);
+    let m = nalgebra::DMatrix::from_fn(n, n, |r, c| j[r][c]);
+    let eig = m.complex_eigenvalues();
+    let largest = eig.iter().map(|z| z.norm()).fold(0.0, f64::max);
+    if !(largest.is_finite() && largest > 0.0) {
+        return None;
+    }
+    let slowest = eig.iter().map(|z| z.re.abs()).filter(|&r| r > 1e-9 * largest).fold(f64::INFINITY, f64::min);
+    (slowest.is_finite() && slowest > 0.0).then(|| 1.0 / slowest)
+}
+
+/// Rounds up to 1, 2 or 5 × 10^k.
+pub fn nice_ceiling(x: f64) -> f64 {
+    if !(x.is_finite() && x > 0.0) {
+        return 100.0;
+    }
+    let p = 10f64.powf(x.log10().floor());
+    for m in [1.0, 2.0, 5.0, 10.0] {
+        if m * p >= x * (1.0 - 1e-12) {
+            return m * p;
+        }
+    }
+    10.0 * p
+}
+
+/// `n` evenly spaced times from 0 to `until` inclusive.
+pub fn linear_times(until: f64, n: usize) -> Vec<f64> {
+    if n <= 1 {
+        return vec![until];
+    }
+    (0..n).map(|i| until * i as f64 / (n - 1) as f64).collect()
+}
+
+/// Evaluates an expression over species, observables and constants at each
+/// row of a trajectory.
+pub fn measure(model: &Model, expr: &Expr, time: f64, row: &[f64]) -> f64 {
+    let nsp = model.species.len();
+    model.eval_at(expr, &row[..nsp], time)
+}
