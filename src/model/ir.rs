@@ -445,3 +445,26 @@ fn mass_action_term(constant: &Expr, terms: &[Term]) -> Expr {
 pub fn coef_f64(c: Coef) -> f64 {
     c.to_f64().unwrap_or(f64::NAN)
 }
+
+impl Model {
+    /// A copy with every span cleared: two models that mean the same and
+    /// differ only in layout compare equal after this.
+    pub fn without_spans(&self) -> Model {
+        let mut m = self.clone();
+        let none = Span::default();
+        m.species.iter_mut().for_each(|s| s.span = none);
+        m.fixed.iter_mut().for_each(|s| s.span = none);
+        m.params.iter_mut().for_each(|s| s.span = none);
+        for s in &mut m.steps {
+            s.span = none;
+            s.rate_span = none;
+            s.reactants.iter_mut().chain(s.products.iter_mut()).for_each(|t| t.span = none);
+        }
+        m.totals.iter_mut().for_each(|s| s.span = none);
+        m.observables.iter_mut().for_each(|s| s.span = none);
+        m.events.iter_mut().for_each(|s| s.span = none);
+        m.assumptions.steady.iter_mut().for_each(|s| s.1 = none);
+        m.assumptions.equilibrium.iter_mut().for_each(|s| s.1 = none);
+        m
+    }
+}

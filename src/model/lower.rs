@@ -91,7 +91,7 @@ fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
 
 /// Parses `file` and, depth first, every file it `use`s. `trees` gets each
 /// file once; a file reached again through the current chain is a cycle.
-fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<PathBuf>, trees: &mut Vec<(FileId, syntax::File)>, diags: &mut Vec<Diagnostic>) {
+fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<(PathBuf, PathBuf)>, trees: &mut Vec<(FileId, syntax::File)>, diags: &mut Vec<Diagnostic>) {
     let Some(src) = sources.get(file) else { return };
     let path = src.path.clone();
     let canonical = path.canonicalize().unwrap_or_else(|_| path.clone());
@@ -102,7 +102,7 @@ fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<PathBuf>
             return;
         }
     };
-    stack.push(canonical);
+    stack.push((canonical, path.clone()));
     let uses: Vec<(String, Span)> = tree
         .statements()
         .filter_map(|s| match &s.kind {
@@ -115,11 +115,15 @@ fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<PathBuf>
     for (rel, span) in uses {
         let target = base.join(&rel);
         let canonical = target.canonicalize().unwrap_or_else(|_| target.clone());
-        if stack.contains(&canonical) {
+        if let Some(pos) = stack.iter().position(|(c, _)| *c == canonical) {
             diags.push(
                 Diagnostic::error(Code::UseCycle, format!("`use \"{rel}\"` makes a cycle: the file includes itself"))
                     .with_label(span, "this file is already being included")
-                    .with_help(format!("chain: {}", stack.iter().chain([&canonical]).map(|p| p.display().to_string()).collect::<Vec<_>>().join(" → "))),
+                    .with_help(format!(
+                        "chain: {} → {}",
+                        stack[pos..].iter().map(|(_, shown)| shown.display().to_string()).collect::<Vec<_>>().join(" → "),
+                        stack[pos].1.display()
+                    )),
             );
             continue;
         }
@@ -283,7 +287,9 @@ impl<'s> Lowerer<'s> {
                         if initial < 0.0 {
                             self.negative_value(&d.name, d.value.as_ref().map(|q| q.span).unwrap_or(d.name.span));
                         }
-                        self.model.species.push(Species { name: d.name.name.clone(), initial, initial_given: given, description: d.description.clone(), span: item.span });
+                        let span = d.value.as_ref().map(|q| d.name.span.join(q.span)).unwrap_or(d.name.span);
+                        let span = if decls.len() == 1 { item.span } else { span };
+                        self.model.species.push(Species { name: d.name.name.clone(), initial, initial_given: given, description: d.description.clone(), span });
                     }
                 }
                 StatementKind::Fixed(d) => {
@@ -583,13 +589,19 @@ impl<'s> Lowerer<'s> {
     fn check_quantity_ambiguity(&mut self, q: &Quantity) {
         let Some((unit, span)) = &q.unit else { return };
         let words: Vec<&str> = unit.split(['/', '*', '·']).map(|w| w.split('^').next().unwrap_or(w)).filter(|w| !w.is_empty() && *w != "1").collect();
-        if let Some(w) = words.iter().find(|w| self.names.contains_key(**w)) {
-            self.error(
-                Diagnostic::error(Code::AmbiguousQuantity, format!("`{} {unit}` reads both as a quantity in `{w}` units and as an expression over the name `{w}`", q.number))
-                    .with_label(*span, "unit or name?")
-                    .with_help(format!("for the expression write `({} {})`; for the unit rename the `{w}` you declared", q.number, unit.replace('/', "/ "))),
-            );
+        // The expression reading is valid only if every word is a param
+        // (a param's expression may use params only).
+        let is_param = |w: &str| matches!(self.names.get(w), Some((Decl::Sym(Sym::Param(_)), _)));
+        if words.is_empty() || !words.iter().all(|w| is_param(w)) {
+            return;
         }
+        let w = words[0];
+        let as_expr = format!("({} / {})", q.number, unit.trim_start_matches('/').replace('/', " / "));
+        self.error(
+            Diagnostic::error(Code::AmbiguousQuantity, format!("`{} {unit}` reads both as a quantity with unit `{unit}` and as an expression over the param `{w}`", q.number))
+                .with_label(*span, "unit or name?")
+                .with_help(format!("for the expression write `{as_expr}`; for the unit rename the param `{w}`")),
+        );
     }
 
     /// The dimension of an expression where it follows from its parts.
