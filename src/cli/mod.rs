@@ -13,6 +13,7 @@ mod derive;
 mod diff;
 mod emit;
 mod fmt;
+mod plot;
 mod run;
 mod scan;
 mod steady;

@@ -1,5 +1,12 @@
-//! `ratewright scan` (being built; see the issue that owns it).
+//! `ratewright scan FILE`: vary one or two names over grids and measure an
+//! expression at a time point or at the steady state. CSV out: one column
+//! per varied name, then the measured value; a failed point leaves its value
+//! empty and is reported on stderr.
 
+use super::common::{self, run_error, usage_error, write_atomic};
+use crate::sim::scan::{Axis, MeasureAt, Scan, check_axes, parse_axis, run_scan};
+use crate::sim::{Method, Settings};
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -7,8 +14,230 @@ use std::process::ExitCode;
 pub struct Args {
     /// Mechanism file.
     pub file: PathBuf,
+    /// A name to vary: `NAME=LO..HI[:N][:log]` (units allowed; N defaults to 21); give once or twice.
+    #[arg(long, value_name = "NAME=LO..HI[:N][:log]", required = true)]
+    pub vary: Vec<String>,
+    /// What to measure: an expression over species, observables, params and totals.
+    #[arg(long, value_name = "EXPR")]
+    pub measure: String,
+    /// Measure at this time (units allowed).
+    #[arg(long, value_name = "TIME", conflicts_with = "steady", required_unless_present = "steady")]
+    pub at: Option<String>,
+    /// Measure at the steady state.
+    #[arg(long)]
+    pub steady: bool,
+    /// Override a param, initial value, fixed species or total for every point; repeatable.
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    pub set: Vec<String>,
+    /// Write the results as CSV (default: print them).
+    #[arg(short = 'o', long = "output", value_name = "PATH")]
+    pub output: Option<PathBuf>,
+    /// Draw a line (one name varied) or heat map (two) to .svg or .png.
+    #[arg(long, value_name = "PATH")]
+    pub plot: Option<PathBuf>,
+    /// Worker threads (default: one per core).
+    #[arg(long, value_name = "N")]
+    pub jobs: Option<usize>,
+    /// Relative tolerance.
+    #[arg(long, default_value_t = 1e-6)]
+    pub rtol: f64,
+    /// Absolute tolerance.
+    #[arg(long, default_value_t = 1e-10)]
+    pub atol: f64,
 }
 
-pub fn run(_args: &Args) -> ExitCode {
-    super::common::usage_error("`scan` is not built yet")
+/// A name for the measured observable that the model does not use.
+fn fresh_name(text: &str) -> String {
+    let mut k = 0;
+    loop {
+        let name = if k == 0 { "scan_measure".to_string() } else { format!("scan_measure_{k}") };
+        if !text.contains(&name) {
+            return name;
+        }
+        k += 1;
+    }
+}
+
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
+}
+
+pub fn run(args: &Args) -> ExitCode {
+    if args.vary.len() > 2 {
+        return usage_error("--vary: give one or two names (a line or a heat map)");
+    }
+    if args.measure.contains(['\n', '#']) {
+        return usage_error("--measure: give one expression on one line");
+    }
+    if !(args.rtol > 0.0 && args.rtol < 1.0) || !(args.atol > 0.0) {
+        return usage_error("--rtol must lie in (0, 1) and --atol must be positive");
+    }
+    // The measured expression is parsed and resolved by the front end as an
+    // observable appended to the model, so it follows the language exactly.
+    let text = match std::fs::read_to_string(&args.file) {
+        Ok(t) => t,
+        Err(e) => return usage_error(format!("cannot read {}: {e}", args.file.display())),
+    };
+    let measure_name = fresh_name(&text);
+    let extended = format!("{text}\nobserve {measure_name} = {}\n", args.measure);
+    let loaded = crate::model::load_str(&extended, &args.file);
+    let Some(base) = loaded.model.filter(|_| !loaded.diagnostics.iter().any(|d| d.is_error())) else {
+        common::print_diagnostics(&loaded.diagnostics, &loaded.sources);
+        return ExitCode::from(common::EXIT_MODEL);
+    };
+    let mut model = base;
+    if !args.set.is_empty() {
+        let mut overrides = Vec::new();
+        for s in &args.set {
+            match common::parse_assignment(s, model.units) {
+                Ok(p) => overrides.push(p),
+                Err(e) => return usage_error(format!("--set {s}: {e}")),
+            }
+        }
+        model = match model.with_overrides(&overrides) {
+            Ok(m) => m,
+            Err(e) => return usage_error(format!("--set: {e}")),
+        };
+    }
+    let Some(obs) = model.observables.iter().position(|o| o.name == measure_name) else {
+        return run_error("the measured expression was lost while loading");
+    };
+    let column = model.species.len() + obs;
+    let mut axes: Vec<Axis> = Vec::new();
+    for v in &args.vary {
+        match parse_axis(v, model.units) {
+            Ok(a) => axes.push(a),
+            Err(e) => return usage_error(format!("--vary {v}: {e}")),
+        }
+    }
+    if let Err(e) = check_axes(&model, &axes) {
+        return usage_error(format!("--vary: {e}"));
+    }
+    if axes.len() == 2 && axes[0].name == axes[1].name {
+        return usage_error("--vary: the two names must differ");
+    }
+    let at = if args.steady {
+        MeasureAt::Steady
+    } else {
+        match args.at.as_deref().map(|a| common::parse_time(a, model.units)) {
+            Some(Ok(t)) if t >= 0.0 => MeasureAt::Time(t),
+            Some(Ok(_)) => return usage_error("--at: the time must not be negative"),
+            Some(Err(e)) => return usage_error(format!("--at: {e}")),
+            None => return usage_error("give --at TIME or --steady"),
+        }
+    };
+    let settings = Settings { method: Method::Bdf, rtol: args.rtol, atol: args.atol, ..Settings::default() };
+    let total: usize = axes.iter().map(|a| a.values.len()).product();
+    let bar = if std::io::stderr().is_terminal() {
+        let b = indicatif::ProgressBar::new(total as u64);
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} points, {eta} left").unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b
+    } else {
+        indicatif::ProgressBar::hidden()
+    };
+    let scan = Scan { model: &model, axes: &axes, column, at, settings };
+    let pool = match rayon::ThreadPoolBuilder::new().num_threads(args.jobs.unwrap_or(0)).build() {
+        Ok(p) => p,
+        Err(e) => return usage_error(format!("--jobs: {e}")),
+    };
+    let result = pool.install(|| run_scan(&scan, &|| bar.inc(1)));
+    bar.finish_and_clear();
+    let result = match result {
+        Ok(r) => r,
+        Err(e) => return super::run::sim_failure(&e),
+    };
+
+    let failures: Vec<&crate::sim::SimError> = result.values.iter().filter_map(|v| v.as_ref().err()).collect();
+    if failures.len() == result.values.len() {
+        return super::run::sim_failure(failures[0]);
+    }
+    let mut csv = String::new();
+    let header: Vec<String> = axes.iter().map(|a| csv_field(&a.name)).chain([csv_field(args.measure.trim())]).collect();
+    csv.push_str(&header.join(","));
+    csv.push('\n');
+    for (p, v) in result.points.iter().zip(&result.values) {
+        let mut fields: Vec<String> = p.iter().map(|x| format!("{x:?}")).collect();
+        fields.push(match v {
+            Ok(x) => format!("{x:?}"),
+            Err(_) => String::new(),
+        });
+        csv.push_str(&fields.join(","));
+        csv.push('\n');
+    }
+    let inputs = vec![args.file.clone()];
+    if let Some(plot) = &args.plot {
+        if let Err(e) = common::refuse_input_overwrite(plot, &inputs) {
+            return usage_error(e);
+        }
+        let value = |v: &Result<f64, crate::sim::SimError>| v.as_ref().copied().unwrap_or(f64::NAN);
+        let where_ = match at {
+            MeasureAt::Steady => "at steady state".to_string(),
+            MeasureAt::Time(t) => format!("at t = {t} {}", model.units.time.symbol()),
+        };
+        let label = |a: &Axis| axis_label(&model, &a.name);
+        let drawn = if axes.len() == 1 {
+            super::plot::draw_lines(
+                plot,
+                &super::plot::LinePlot {
+                    title: format!("{} {where_}", args.measure.trim()),
+                    x_label: label(&axes[0]),
+                    y_label: args.measure.trim().to_string(),
+                    x: axes[0].values.clone(),
+                    series: vec![(args.measure.trim().to_string(), result.values.iter().map(value).collect())],
+                    log_x: axes[0].log,
+                    log_y: false,
+                },
+            )
+        } else {
+            let ny = axes[1].values.len();
+            let values: Vec<Vec<f64>> = result.values.chunks(ny).map(|row| row.iter().map(value).collect()).collect();
+            super::plot::draw_heat_map(
+                plot,
+                &super::plot::HeatMap {
+                    title: format!("{} {where_}", args.measure.trim()),
+                    x_label: label(&axes[0]),
+                    y_label: label(&axes[1]),
+                    value_label: args.measure.trim().to_string(),
+                    x: axes[0].values.clone(),
+                    y: axes[1].values.clone(),
+                    values,
+                    log_x: axes[0].log,
+                    log_y: axes[1].log,
+                },
+            )
+        };
+        if let Err(e) = drawn {
+            return run_error(format!("[E0803] {e}"));
+        }
+    }
+    match &args.output {
+        Some(path) => {
+            if let Err(e) = write_atomic(path, csv.as_bytes(), &inputs) {
+                return run_error(format!("[E0803] {e}"));
+            }
+            eprintln!("wrote {} points to {}", result.points.len(), path.display());
+        }
+        None => print!("{csv}"),
+    }
+    if let Some(first) = failures.first() {
+        eprintln!("warning: {} of {} points failed (left empty); the first: {first}", failures.len(), result.values.len());
+    }
+    ExitCode::SUCCESS
+}
+
+/// An axis label with the unit of what is varied, where known.
+fn axis_label(model: &crate::model::Model, name: &str) -> String {
+    use crate::model::Sym;
+    let conc = model.units.concentration.symbol();
+    match model.lookup(name) {
+        Some(Sym::Species(_)) => format!("initial {name} ({conc})"),
+        Some(Sym::Fixed(_) | Sym::Total(_)) => format!("{name} ({conc})"),
+        Some(Sym::Param(i)) => match model.params[i].dim {
+            Some(d) if d != crate::model::Dim::NONE => format!("{name} ({})", d.display_in(model.units)),
+            _ => name.to_string(),
+        },
+        _ => name.to_string(),
+    }
 }

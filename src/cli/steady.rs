@@ -1,5 +1,14 @@
-//! `ratewright steady` (being built; see the issue that owns it).
+//! `ratewright steady FILE`: the steady state in the stoichiometric class of
+//! the initial state, the eigenvalues of the reduced Jacobian there, and
+//! stability. JSON shape (CLI.md): `state` (species → value), `eigenvalues`
+//! ([real, imaginary] pairs), `stable`; also `observables`, `stability`,
+//! `units`.
 
+use super::Format;
+use super::common::run_error;
+use super::run::{model_with_overrides, sim_failure};
+use crate::sim::steady::{Stability, steady_state};
+use crate::sim::{Prepared, Settings};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -7,8 +16,79 @@ use std::process::ExitCode;
 pub struct Args {
     /// Mechanism file.
     pub file: PathBuf,
+    /// Override a param, initial value, fixed species or total (`S=5mM`); repeatable.
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    pub set: Vec<String>,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Human)]
+    pub format: Format,
 }
 
-pub fn run(_args: &Args) -> ExitCode {
-    super::common::usage_error("`steady` is not built yet")
+pub fn run(args: &Args) -> ExitCode {
+    let model = match model_with_overrides(&args.file, &args.set) {
+        Ok(m) => m,
+        Err(code) => return code,
+    };
+    let prepared = match Prepared::reduced(&model) {
+        Ok(p) => p,
+        Err(d) => return run_error(format!("[{}] {}", d.code.as_str(), d.message)),
+    };
+    let result = match steady_state(&prepared, &Settings::default()) {
+        Ok(s) => s,
+        Err(e) => return sim_failure(&e),
+    };
+    let m = &prepared.model;
+    let nsp = m.species.len();
+    let stability = match result.stability {
+        Stability::Stable => "stable",
+        Stability::Unstable => "unstable",
+        Stability::Marginal => "marginal",
+    };
+    match args.format {
+        Format::Json => {
+            let state: serde_json::Map<String, serde_json::Value> =
+                m.species.iter().zip(&result.values).map(|(s, v)| (s.name.clone(), serde_json::json!(v))).collect();
+            let observables: serde_json::Map<String, serde_json::Value> =
+                m.observables.iter().zip(&result.values[nsp..]).map(|(o, v)| (o.name.clone(), serde_json::json!(v))).collect();
+            let eig: Vec<[f64; 2]> = result.eigenvalues.iter().map(|(re, im)| [*re, *im]).collect();
+            let v = serde_json::json!({
+                "state": state,
+                "observables": observables,
+                "eigenvalues": eig,
+                "stable": result.stability == Stability::Stable,
+                "stability": stability,
+                "units": { "concentration": m.units.concentration.symbol(), "time": m.units.time.symbol() },
+                "residual": result.residual,
+            });
+            println!("{}", serde_json::to_string_pretty(&v).unwrap_or_default());
+        }
+        Format::Human => {
+            let conc = m.units.concentration.symbol();
+            let width = m.species.iter().map(|s| s.name.len()).chain(m.observables.iter().map(|o| o.name.len())).max().unwrap_or(1);
+            println!("steady state ({conc}):");
+            for (s, v) in m.species.iter().zip(&result.values) {
+                println!("  {:<width$}  {v:.6e}", s.name);
+            }
+            if !m.observables.is_empty() {
+                println!("observables:");
+                for (o, v) in m.observables.iter().zip(&result.values[nsp..]) {
+                    println!("  {:<width$}  {v:.6e}", o.name);
+                }
+            }
+            let time = m.units.time.symbol();
+            println!("eigenvalues of the reduced Jacobian (1/{time}):");
+            for (re, im) in &result.eigenvalues {
+                if *im == 0.0 {
+                    println!("  {re:.6e}");
+                } else {
+                    println!("  {re:.6e} {} {:.6e}i", if *im < 0.0 { "-" } else { "+" }, im.abs());
+                }
+            }
+            if result.eigenvalues.is_empty() {
+                println!("  (none: every species is fixed by a conservation law)");
+            }
+            println!("{stability} (max |dy/dt| = {:.2e} {conc}/{time})", result.residual);
+        }
+    }
+    ExitCode::SUCCESS
 }

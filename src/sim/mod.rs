@@ -145,6 +145,21 @@ impl Prepared {
         Ok(Prepared { model: model.clone(), system: CompiledSystem::full(model)?, reduced: false })
     }
 
+    /// Only the independent species are integrated; the dependent ones follow
+    /// from the conservation laws (their totals are constants that events
+    /// update).
+    pub fn reduced(model: &Model) -> Result<Prepared, crate::diagnostics::Diagnostic> {
+        let reduced = crate::network::reduce(model)?;
+        let layout = StateLayout {
+            state_species: reduced.independent.clone(),
+            dependent: reduced.dependent.iter().map(|d| (d.species, d.formula.clone())).collect(),
+        };
+        let system = CompiledSystem::compile(&reduced.model, &layout).map_err(|e| {
+            crate::diagnostics::Diagnostic::error(crate::diagnostics::Code::SolverFailed, format!("the reduced model could not be compiled: {}", e.0))
+        })?;
+        Ok(Prepared { model: reduced.model, system, reduced: true })
+    }
+
     pub fn simulate(&self, settings: &Settings, times: &[f64]) -> Result<Trajectory, SimError> {
         simulate(&self.model, &self.system, settings, times).map_err(|e| e.named(&self.model))
     }

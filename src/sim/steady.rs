@@ -1,0 +1,161 @@
+//! Steady states: Newton's method with a backtracking line search on the
+//! (reduced) system, started from an integrated state, integrating further
+//! when Newton fails; then the eigenvalues of the Jacobian for stability.
+//!
+//! Why reduced: every conservation law adds a zero eigenvalue and makes the
+//! full Jacobian singular; on the independent species (totals held at their
+//! initial values) the steady state lies in the stoichiometric class of the
+//! initial state and Newton's linear systems are regular. Timed events are
+//! not part of a steady state and are ignored here.
+
+use super::{Prepared, Settings, SimError, default_until, simulate};
+use crate::model::Model;
+use crate::numeric::CompiledSystem;
+use nalgebra::{DMatrix, DVector};
+
+/// Stability from the eigenvalues of the Jacobian at the steady state.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Stability {
+    /// Every eigenvalue has a negative real part.
+    Stable,
+    /// Some eigenvalue has a positive real part.
+    Unstable,
+    /// The largest real part is zero within rounding: linearisation cannot tell.
+    Marginal,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct SteadyState {
+    /// Every species (model order), then every observable.
+    pub values: Vec<f64>,
+    /// Eigenvalues of the reduced Jacobian as (real, imaginary), sorted by
+    /// real part, largest first.
+    pub eigenvalues: Vec<(f64, f64)>,
+    pub stability: Stability,
+    /// max |dy/dt| at the reported state.
+    pub residual: f64,
+    /// The model time integrated to before Newton converged.
+    pub integrated_to: f64,
+    pub newton_iterations: usize,
+}
+
+/// Finds the steady state of `prepared` from its initial state.
+pub fn steady_state(prepared: &Prepared, settings: &Settings) -> Result<SteadyState, SimError> {
+    steady_state_of(&prepared.model, &prepared.system, settings)
+}
+
+/// Finds the steady state of `model` compiled as `system` (constants and
+/// the initial state from `model`).
+pub fn steady_state_of(model: &Model, system: &CompiledSystem, settings: &Settings) -> Result<SteadyState, SimError> {
+    let mut model = model.clone();
+    model.events.clear();
+    let constants = crate::numeric::constants_of(&model);
+    let mut w = system.workspace(&constants);
+    let tight = Settings { rtol: settings.rtol.min(1e-8), atol: settings.atol.min(1e-12), ..*settings };
+    let mut until = default_until(&model, system);
+    let mut last_reason = String::new();
+    for _attempt in 0..10 {
+        let tr = simulate(&model, system, &tight, &[until]).map_err(|e| e.named(&model))?;
+        let Some(row) = tr.rows.last() else {
+            return Err(SimError::no_steady_state("the integration produced no state"));
+        };
+        let x0 = system.state_from_species(&row[..system.species_count()]);
+        match newton(system, &mut w, x0) {
+            Ok((x, iterations)) => {
+                let mut values = Vec::new();
+                system.outputs(&mut w, &x, until, &mut values);
+                let scale = values[..system.species_count()].iter().fold(0.0f64, |a, v| a.max(v.abs())).max(1e-300);
+                if let Some(i) = (0..system.species_count()).find(|&i| values[i] < -1e-8 * scale) {
+                    last_reason = format!("Newton's method reached a state with negative `{}` = {:e}", model.species[i].name, values[i]);
+                } else {
+                    let mut f = vec![0.0; system.nstates];
+                    system.rhs(&mut w, &x, until, &mut f);
+                    let residual = f.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+                    let (eigenvalues, stability) = eigen(system, &mut w, &x, until);
+                    return Ok(SteadyState { values, eigenvalues, stability, residual, integrated_to: until, newton_iterations: iterations });
+                }
+            }
+            Err(reason) => last_reason = reason,
+        }
+        until *= 10.0;
+    }
+    Err(SimError::no_steady_state(format!(
+        "no steady state found: integrated to t = {:e} without Newton's method converging ({last_reason}); the system may oscillate, grow without bound, or approach its steady state too slowly",
+        until / 10.0
+    )))
+}
+
+/// Newton with backtracking on ||F||²; returns the state and iteration count.
+fn newton(system: &CompiledSystem, w: &mut crate::numeric::Workspace, mut x: Vec<f64>) -> Result<(Vec<f64>, usize), String> {
+    let n = system.nstates;
+    if n == 0 {
+        return Ok((x, 0));
+    }
+    let mut f = vec![0.0; n];
+    let norm2 = |v: &[f64]| v.iter().map(|a| a * a).sum::<f64>();
+    system.rhs(w, &x, 0.0, &mut f);
+    let mut fnorm = norm2(&f);
+    let xscale = x.iter().fold(0.0f64, |a, v| a.max(v.abs())).max(1e-300);
+    for it in 0..100 {
+        if !fnorm.is_finite() {
+            return Err("the rates became non-finite".into());
+        }
+        let j = system.dense_jacobian(w, &x, 0.0);
+        let jm = DMatrix::from_fn(n, n, |r, c| j[r][c]);
+        let rhs = DVector::from_iterator(n, f.iter().map(|v| -v));
+        let Some(dx) = jm.lu().solve(&rhs) else {
+            return Err("the Jacobian is singular at the iterate".into());
+        };
+        // Converged: the full Newton step is far below the state's size.
+        let step_small = dx.iter().zip(&x).all(|(d, xi)| d.abs() <= 1e-10 * xi.abs() + 1e-14 * xscale);
+        if step_small {
+            return Ok((x, it));
+        }
+        let mut lambda = 1.0;
+        let mut trial = vec![0.0; n];
+        let mut ftrial = vec![0.0; n];
+        loop {
+            for k in 0..n {
+                trial[k] = x[k] + lambda * dx[k];
+            }
+            system.rhs(w, &trial, 0.0, &mut ftrial);
+            let tn = norm2(&ftrial);
+            if tn.is_finite() && tn <= (1.0 - 1e-4 * lambda) * fnorm {
+                break;
+            }
+            lambda *= 0.5;
+            if lambda < 1e-6 {
+                return Err("the line search could not reduce the residual".into());
+            }
+        }
+        std::mem::swap(&mut x, &mut trial);
+        std::mem::swap(&mut f, &mut ftrial);
+        fnorm = norm2(&f);
+        if fnorm == 0.0 {
+            return Ok((x, it + 1));
+        }
+    }
+    Err("no convergence in 100 iterations".into())
+}
+
+fn eigen(system: &CompiledSystem, w: &mut crate::numeric::Workspace, x: &[f64], t: f64) -> (Vec<(f64, f64)>, Stability) {
+    let n = system.nstates;
+    if n == 0 {
+        return (Vec::new(), Stability::Stable);
+    }
+    let j = system.dense_jacobian(w, x, t);
+    let m = DMatrix::from_fn(n, n, |r, c| j[r][c]);
+    let mut eig: Vec<(f64, f64)> = m.complex_eigenvalues().iter().map(|z| (z.re, z.im)).collect();
+    eig.sort_by(|a, b| b.0.total_cmp(&a.0).then(b.1.total_cmp(&a.1)));
+    let largest = eig.iter().map(|(re, im)| re.hypot(*im)).fold(0.0, f64::max);
+    let tol = 1e-9 * largest.max(1e-300);
+    let max_re = eig.iter().map(|e| e.0).fold(f64::NEG_INFINITY, f64::max);
+    let stability = if max_re > tol {
+        Stability::Unstable
+    } else if max_re >= -tol {
+        Stability::Marginal
+    } else {
+        Stability::Stable
+    };
+    (eig, stability)
+}
