@@ -6,3 +6,4 @@
 pub mod calculus;
 pub mod poly;
 pub mod print;
+pub mod rational;

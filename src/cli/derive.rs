@@ -1,14 +1,142 @@
-//! `ratewright derive` (being built; see the issue that owns it).
+//! `ratewright derive`: steady-state / rapid-equilibrium rate laws.
+//!
+//! Options override the file's `assume` lines; the output is a readable
+//! report, LaTeX, JSON (schema in docs/derive.md) or a new mechanism file.
 
+use super::common::{self, EXIT_MODEL, EXIT_USAGE, load_model, print_diagnostics, usage_error, write_atomic};
+use crate::diagnostics::{Code, render_json};
+use crate::ratelaw::{self, Progress, Request, Target, output};
+use clap::ValueEnum;
+use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
+use std::time::Instant;
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum, Default)]
+pub enum DeriveFormat {
+    #[default]
+    Human,
+    Latex,
+    Json,
+    Mech,
+}
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
     /// Mechanism file.
     pub file: PathBuf,
+    /// Species at quasi-steady state (overrides `assume steady`).
+    #[arg(long, value_delimiter = ',', value_name = "A,B,..")]
+    pub steady: Option<Vec<String>>,
+    /// Steps at rapid equilibrium (overrides `assume equilibrium`); `--equilibrium ""` for none.
+    #[arg(long, value_delimiter = ',', value_name = "STEP,..")]
+    pub equilibrium: Option<Vec<String>>,
+    /// Rate of change of one species instead of the overall reaction.
+    #[arg(long, value_name = "SPECIES", conflicts_with = "flux")]
+    pub species: Option<String>,
+    /// Net rate of one step instead of the overall reaction.
+    #[arg(long, value_name = "STEP")]
+    pub flux: Option<String>,
+    /// Output form.
+    #[arg(long, value_enum, default_value_t = DeriveFormat::Human)]
+    pub format: DeriveFormat,
+    /// Largest number of spanning-tree terms to expand.
+    #[arg(long, value_name = "N", default_value_t = ratelaw::DEFAULT_MAX_TERMS)]
+    pub max_terms: u64,
+    /// Write the output to a file instead of standard output.
+    #[arg(short = 'o', long, value_name = "PATH")]
+    pub output: Option<PathBuf>,
+    /// Report the time spent loading and deriving on standard error.
+    #[arg(long)]
+    pub timing: bool,
 }
 
-pub fn run(_args: &Args) -> ExitCode {
-    super::common::usage_error("`derive` is not built yet")
+pub fn run(args: &Args) -> ExitCode {
+    let json = args.format == DeriveFormat::Json;
+    let start = Instant::now();
+    let (model, sources) = match load_model(&args.file, json) {
+        Ok(x) => x,
+        Err(code) => return code,
+    };
+    let loaded = start.elapsed();
+    let clean = |v: &Option<Vec<String>>| {
+        v.as_ref().map(|names| names.iter().map(|s| s.trim().to_string()).filter(|s| !s.is_empty()).collect::<Vec<_>>())
+    };
+    let request = Request {
+        steady: clean(&args.steady),
+        equilibrium: clean(&args.equilibrium),
+        target: match (&args.species, &args.flux) {
+            (Some(s), _) => Target::Species(s.clone()),
+            (_, Some(f)) => Target::Flux(f.clone()),
+            _ => Target::Overall,
+        },
+        max_terms: args.max_terms,
+    };
+    // A progress line on stderr for long enumerations only.
+    let mut shown = false;
+    let mut total = 0.0;
+    let mut on_progress = |p: Progress| match p {
+        Progress::Start { estimated_trees } => total = estimated_trees,
+        Progress::Trees(n) => {
+            if total > 1e6 {
+                shown = true;
+                eprint!("\rderive: {n} of about {total:.0} spanning-tree terms ({:.0}%)", 100.0 * n as f64 / total);
+            }
+        }
+    };
+    let derive_start = Instant::now();
+    let result = ratelaw::derive_with_progress(&model, &request, &mut on_progress);
+    if shown {
+        eprintln!();
+    }
+    let derived_in = derive_start.elapsed();
+    let derivation = match result {
+        Ok(d) => d,
+        Err(diag) => {
+            let from_options = diag.labels.is_empty() && diag.code == Code::BadDerivationRequest;
+            if json {
+                println!("{}", render_json(std::slice::from_ref(&diag), &sources));
+            } else {
+                print_diagnostics(std::slice::from_ref(&diag), &sources);
+            }
+            return ExitCode::from(if from_options { EXIT_USAGE } else { EXIT_MODEL });
+        }
+    };
+    let text = match args.format {
+        DeriveFormat::Human => output::human(&derivation, &model),
+        DeriveFormat::Latex => output::latex(&derivation, &model),
+        DeriveFormat::Json => {
+            let mut s = serde_json::to_string_pretty(&output::json(&derivation, &model)).unwrap_or_default();
+            s.push('\n');
+            s
+        }
+        DeriveFormat::Mech => {
+            let source = args.file.file_name().map(|s| s.to_string_lossy().to_string()).unwrap_or_default();
+            match output::mechanism(&derivation, &model, &source) {
+                Ok(s) => s,
+                Err(e) => return usage_error(e),
+            }
+        }
+    };
+    if args.timing {
+        eprintln!(
+            "timing: load {:.3} ms, derive {:.3} ms, {} spanning-tree terms",
+            loaded.as_secs_f64() * 1e3,
+            derived_in.as_secs_f64() * 1e3,
+            derivation.trees
+        );
+    }
+    match &args.output {
+        Some(path) => {
+            let inputs: Vec<PathBuf> = sources.files().iter().map(|f| f.path.clone()).collect();
+            if let Err(e) = write_atomic(path, text.as_bytes(), &inputs) {
+                return common::run_error(e);
+            }
+        }
+        None => {
+            let mut out = std::io::stdout().lock();
+            let _ = out.write_all(text.as_bytes());
+        }
+    }
+    ExitCode::SUCCESS
 }

@@ -1,0 +1,253 @@
+//! Named kinetic constants read off the coefficient form.
+//!
+//! With the rate written `E_t * N / D` and N, D collected by concentrations,
+//! the constants practitioners fit are ratios of coefficients (Cleland
+//! 1963): with the products and modifiers absent and the substrates'
+//! saturating monomial `m*`, `kcat = n(m*) / d(m*)`; the Michaelis constant
+//! of substrate X is `d(m*/X) / d(m*)`; for two substrates the first one's
+//! inhibition constant is `d(1) / d(A)`; the reverse direction likewise; a
+//! dead-end modifier I has a competitive (slope) constant `d(1) / d(I)` and
+//! an uncompetitive (intercept) constant `d(m*) / d(m* I)`; `Keq` is the
+//! ratio of the numerator's two coefficients. Each is kept exact and in
+//! lowest terms, so it prints in rate constants.
+//!
+//! Invariant: a constant is named only when the terms that define it are
+//! present; otherwise a note says why it is missing.
+
+use super::{Constant, Derivation, Derived, Relation};
+use crate::algebra::poly::{Monomial, Poly, Var};
+use crate::algebra::rational::RationalFunction;
+use crate::model::Model;
+use std::collections::BTreeMap;
+
+/// Fills in the derivation's constants, relations and notes.
+pub fn name_constants(d: &mut Derivation, model: &Model) {
+    let Derived::Overall(overall) = &d.derived else { return };
+    let overall = overall.clone();
+    if d.totals.len() != 1 {
+        d.notes.push("kinetic constants are named only for a mechanism with one enzyme (one total of intermediates)".into());
+        return;
+    }
+    let Some(tvar) = d.vars.get(&d.totals[0].name) else { return };
+    let t_mono = Monomial::var(tvar);
+    let Some(num) = d.rate.num.div_monomial(&t_mono).filter(|n| n.degree_in(tvar) == 0 && d.rate.den.degree_in(tvar) == 0)
+    else {
+        d.notes.push(format!(
+            "the rate is not proportional to {}, so no kinetic constants are named (is there a step that bypasses the enzyme?)",
+            d.totals[0].name
+        ));
+        return;
+    };
+    let den = d.rate.den.clone();
+    let var_of = |i: usize| d.vars.get(&model.species[i].name);
+    let first_step = |i: usize| {
+        model
+            .steps
+            .iter()
+            .position(|s| s.reactants.iter().chain(&s.products).any(|t| t.sym == crate::model::Sym::Species(i)))
+            .unwrap_or(usize::MAX)
+    };
+    let last_step = |i: usize| {
+        model
+            .steps
+            .iter()
+            .rposition(|s| s.reactants.iter().chain(&s.products).any(|t| t.sym == crate::model::Sym::Species(i)))
+            .unwrap_or(0)
+    };
+    let mut substrates: Vec<(Var, String, usize)> =
+        overall.reactants.iter().filter_map(|(i, _)| var_of(*i).map(|v| (v, model.species[*i].name.clone(), first_step(*i)))).collect();
+    substrates.sort_by_key(|s| s.2);
+    // Reverse direction: the product released last binds free enzyme first.
+    let mut products: Vec<(Var, String, usize)> = overall
+        .products
+        .iter()
+        .filter_map(|(i, _)| var_of(*i).map(|v| (v, model.species[*i].name.clone(), usize::MAX - last_step(*i))))
+        .collect();
+    products.sort_by_key(|s| s.2);
+    let in_reaction: Vec<Var> = substrates.iter().chain(&products).map(|s| s.0).collect();
+    let mut modifiers: Vec<Var> = num
+        .vars()
+        .union(&den.vars())
+        .copied()
+        .filter(|v| d.is_concentration(*v) && !in_reaction.contains(v))
+        .collect();
+    modifiers.sort_unstable();
+    let conc = |v: Var| d.is_concentration(v);
+
+    let mut constants: Vec<Constant> = Vec::new();
+    let mut relations: Vec<Relation> = Vec::new();
+    let mut notes: Vec<String> = Vec::new();
+    let ratio = |a: &Poly, b: &Poly| RationalFunction::new(a.clone(), b.clone());
+
+    let mut directions = Vec::new();
+    for (forward, side, other) in [(true, &substrates, &products), (false, &products, &substrates)] {
+        let absent: Vec<Var> = other.iter().map(|s| s.0).chain(modifiers.iter().copied()).collect();
+        let zero = |v: Var| absent.contains(&v);
+        let n = num.set_zero(&zero);
+        let n = if forward { n } else { n.neg() };
+        let nc = n.collect(&conc);
+        let dc = den.set_zero(&zero).collect(&conc);
+        let dir = Direction::read(&nc, &dc, side);
+        let (kcat_name, label) = if forward { ("kcat", "forward") } else { ("kcat_r", "reverse") };
+        match &dir {
+            None if forward || !nc.is_empty() => notes.push(format!(
+                "no {label} turnover number: the {label} numerator has no single saturating term in {}",
+                side.iter().map(|s| s.1.as_str()).collect::<Vec<_>>().join(", ")
+            )),
+            None => {}
+            Some(dir) => {
+                if let Some(k) = ratio(&dir.n, &dir.d(&dir.top)) {
+                    constants.push(Constant {
+                        name: kcat_name.into(),
+                        value: k,
+                        meaning: format!("{label} turnover number: maximal {label} rate per unit of {}", d.totals[0].name),
+                    });
+                }
+                for (v, name, _) in side.iter() {
+                    if dir.top.exponent(*v) != 1 {
+                        continue;
+                    }
+                    let below = dir.top.div(&Monomial::var(*v)).unwrap_or_default();
+                    if let Some(k) = dir.get(&below).and_then(|b| ratio(b, &dir.d(&dir.top))) {
+                        constants.push(Constant {
+                            name: format!("Km_{name}"),
+                            value: k,
+                            meaning: format!("Michaelis constant of {name} (others saturating)"),
+                        });
+                    }
+                    let above = dir.top.mul(&Monomial::var(*v));
+                    if let Some(k) = dir.get(&above).and_then(|a| ratio(&dir.d(&dir.top), a)) {
+                        constants.push(Constant {
+                            name: format!("Ksi_{name}"),
+                            value: k,
+                            meaning: format!("substrate-inhibition constant of {name}"),
+                        });
+                    }
+                }
+                if side.len() == 2 && dir.top.degree() == 2 {
+                    let (a, name) = (side[0].0, &side[0].1);
+                    let one = Monomial::one();
+                    if let (Some(d1), Some(da)) = (dir.get(&one), dir.get(&Monomial::var(a))) {
+                        if let Some(k) = ratio(d1, da) {
+                            constants.push(Constant {
+                                name: format!("Ki_{name}"),
+                                value: k,
+                                meaning: format!("inhibition (dissociation) constant of {name}, the first to bind, from the constant term"),
+                            });
+                        }
+                    }
+                }
+            }
+        }
+        directions.push(dir);
+    }
+
+    // Keq and the Haldane relation.
+    if let (Some(f), Some(r)) = (&directions[0], &directions[1]) {
+        if let Some(keq) = ratio(&f.n, &r.n) {
+            constants.push(Constant {
+                name: "Keq".into(),
+                value: keq.clone(),
+                meaning: "equilibrium constant of the overall reaction (products over substrates)".into(),
+            });
+            let find = |name: &str| constants.iter().find(|c| c.name == name).map(|c| c.value.clone());
+            let k_side = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
+                match side {
+                    [(_, a, _)] => Some((format!("Km_{a}"), find(&format!("Km_{a}"))?)),
+                    [(_, a, _), (_, b, _)] => {
+                        let v = find(&format!("Ki_{a}"))?.mul(&find(&format!("Km_{b}"))?);
+                        Some((format!("Ki_{a}*Km_{b}"), v))
+                    }
+                    _ => None,
+                }
+            };
+            if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) =
+                (k_side(&substrates), k_side(&products), find("kcat"), find("kcat_r"))
+            {
+                let rhs = kf.mul(&kp_v).div(&kr.mul(&ks_v));
+                let holds = rhs.is_some_and(|r| r.equals(&keq));
+                relations.push(Relation {
+                    name: "Haldane".into(),
+                    lhs: "Keq".into(),
+                    rhs: format!("kcat*{kp}/(kcat_r*{ks})"),
+                    holds,
+                });
+            }
+        }
+    }
+
+    // Dead-end modifiers (inhibitors): slope and intercept constants.
+    if let Some(f) = &directions[0] {
+        for &i in &modifiers {
+            let name = d.vars.name(i).to_string();
+            let absent: Vec<Var> = products.iter().map(|s| s.0).chain(modifiers.iter().copied().filter(|&m| m != i)).collect();
+            let zero = |v: Var| absent.contains(&v);
+            let dc = den.set_zero(&zero).collect(&conc);
+            let nc = num.set_zero(&zero).collect(&conc);
+            let get = |m: &Monomial| dc.get(m).filter(|p| !p.is_zero());
+            let mut named = false;
+            if let (Some(d1), Some(di)) = (get(&Monomial::one()), get(&Monomial::var(i))) {
+                if let Some(k) = ratio(d1, di) {
+                    constants.push(Constant {
+                        name: format!("Ki_{name}"),
+                        value: k,
+                        meaning: format!("competitive (slope) inhibition constant of {name}"),
+                    });
+                    named = true;
+                }
+            }
+            let top_i = f.top.mul(&Monomial::var(i));
+            if let (Some(dt), Some(dti)) = (get(&f.top), get(&top_i)) {
+                if let Some(k) = ratio(dt, dti) {
+                    constants.push(Constant {
+                        name: format!("Kii_{name}"),
+                        value: k,
+                        meaning: format!("uncompetitive (intercept) inhibition constant of {name}"),
+                    });
+                    named = true;
+                }
+            }
+            if nc.keys().any(|m| m.exponent(i) > 0) {
+                notes.push(format!("{name} also appears in the numerator (partial inhibition or activation); its constants describe the denominator only"));
+            } else if !named {
+                notes.push(format!("{name} enters the rate in a way that has no standard inhibition constant"));
+            }
+        }
+    }
+    d.constants = constants;
+    d.relations = relations;
+    d.notes.extend(notes);
+}
+
+/// One direction's coefficient form: the numerator's single saturating
+/// monomial `top` with its coefficient `n`, and the denominator's
+/// coefficients by concentration monomial.
+struct Direction {
+    top: Monomial,
+    n: Poly,
+    den: BTreeMap<Monomial, Poly>,
+}
+
+impl Direction {
+    fn read(nc: &BTreeMap<Monomial, Poly>, dc: &BTreeMap<Monomial, Poly>, side: &[(Var, String, usize)]) -> Option<Direction> {
+        let mut it = nc.iter().filter(|(_, p)| !p.is_zero());
+        let (top, n) = it.next()?;
+        if it.next().is_some() || top.is_one() {
+            return None;
+        }
+        // The numerator's monomial must be made of this direction's species.
+        if !top.pairs().iter().all(|(v, _)| side.iter().any(|s| s.0 == *v)) {
+            return None;
+        }
+        if !dc.contains_key(top) {
+            return None;
+        }
+        Some(Direction { top: top.clone(), n: n.clone(), den: dc.clone() })
+    }
+    fn get(&self, m: &Monomial) -> Option<&Poly> {
+        self.den.get(m).filter(|p| !p.is_zero())
+    }
+    fn d(&self, m: &Monomial) -> Poly {
+        self.den.get(m).cloned().unwrap_or_default()
+    }
+}

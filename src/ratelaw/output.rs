@@ -1,0 +1,384 @@
+//! The derivation in its output forms: a readable report, LaTeX, the JSON
+//! document other tools read (schema in docs/derive.md), and a new
+//! mechanism file whose single step carries the derived law.
+//!
+//! Invariant: every expression in the JSON and mechanism forms is in the
+//! mechanism language's syntax over params, totals and non-intermediate
+//! species, so it parses back with the same meaning.
+
+use super::{Derivation, Derived, VarKind};
+use crate::algebra::poly::{Monomial, Poly, Printer, Syntax, Var};
+use crate::algebra::print::{self, plain_literal};
+use crate::algebra::rational::RationalFunction;
+use crate::model::{EventKind, Model, ParamDef, Sym};
+use serde_json::{Value, json};
+use std::collections::BTreeSet;
+
+fn printer<'a>(d: &'a Derivation, syntax: Syntax, conc: &'a dyn Fn(Var) -> bool) -> Printer<'a> {
+    Printer { vars: &d.vars, syntax, is_concentration: conc }
+}
+
+/// The numerator with the total pulled out: `E_t*(k1*k2*S - ...)`, and
+/// whether that text is a product (needs no parentheses before `/`).
+fn numerator_text(d: &Derivation, p: &Printer, keys: &dyn Fn(Var) -> bool) -> (String, bool) {
+    let num = &d.rate.num;
+    let times = match p.syntax {
+        Syntax::Latex => " ",
+        Syntax::Plain => "·",
+        Syntax::Mech => "*",
+    };
+    for t in d.totals.iter().filter_map(|t| d.vars.get(&t.name)) {
+        let Some(rest) = num.div_monomial(&Monomial::var(t)).filter(|r| r.degree_in(t) == 0) else { continue };
+        let name = p.var(t);
+        if rest.is_one() {
+            return (name, true);
+        }
+        let body = p.collected(&rest, keys);
+        let single = rest.collect(keys).len() == 1 && !body.starts_with('-') && !body.contains(" + ") && !body.contains(" - ");
+        let text = if single {
+            format!("{name}{times}{body}")
+        } else if p.syntax == Syntax::Latex {
+            format!("{name}\\left({body}\\right)")
+        } else {
+            format!("{name}{times}({body})")
+        };
+        return (text, true);
+    }
+    let text = p.collected(num, keys);
+    let product = num.len() == 1 && !text.starts_with('-');
+    (text, product)
+}
+
+/// The rate as one expression.
+fn rate_text(d: &Derivation, p: &Printer, keys: &dyn Fn(Var) -> bool) -> String {
+    let (num, product) = numerator_text(d, p, keys);
+    if d.rate.den.is_one() {
+        return num;
+    }
+    let den = p.collected(&d.rate.den, keys);
+    if p.syntax == Syntax::Latex {
+        return format!("\\frac{{{num}}}{{{den}}}");
+    }
+    let num = if product { num } else { format!("({num})") };
+    format!("{num}/({den})")
+}
+
+/// A constant's definition as one expression.
+fn rational_text(r: &RationalFunction, p: &Printer) -> String {
+    let num = p.factor(&r.num);
+    if r.den.is_one() {
+        return p.factored(&r.num);
+    }
+    if p.syntax == Syntax::Latex {
+        return format!("\\frac{{{}}}{{{}}}", p.factored(&r.num), p.factored(&r.den));
+    }
+    let den = p.factored(&r.den);
+    let den_atomic = r.den.len() == 1
+        && r.den.terms().all(|(m, c)| num_traits::One::is_one(c) && m.pairs().len() == 1 && m.pairs()[0].1 == 1);
+    if den_atomic { format!("{num}/{den}") } else { format!("{num}/({})", den) }
+}
+
+fn keys_for<'a>(d: &'a Derivation) -> impl Fn(Var) -> bool + 'a {
+    move |v| d.is_concentration(v)
+}
+
+/// What the rate is the rate of, in words and as a reaction.
+pub fn target_text(d: &Derivation, model: &Model) -> String {
+    match &d.derived {
+        Derived::Overall(o) => {
+            let side = |terms: &[(usize, num_bigint::BigInt)]| {
+                if terms.is_empty() {
+                    return "0".to_string();
+                }
+                terms
+                    .iter()
+                    .map(|(i, c)| {
+                        let name = &model.species[*i].name;
+                        if *c == num_bigint::BigInt::from(1) { name.clone() } else { format!("{c} {name}") }
+                    })
+                    .collect::<Vec<_>>()
+                    .join(" + ")
+            };
+            let arrow = if reversible(d, o) { "<=>" } else { "->" };
+            format!("{} {arrow} {}", side(&o.reactants), side(&o.products))
+        }
+        Derived::Species(i) => format!("d{}/dt", model.species[*i].name),
+        Derived::Flux(j) => format!("net rate of step {}", model.steps[*j].name),
+    }
+}
+
+/// Whether the overall rate can run backwards (its numerator has a
+/// product term).
+fn reversible(d: &Derivation, o: &super::Overall) -> bool {
+    let products: BTreeSet<Var> = o.products.iter().filter_map(|(i, _)| d.vars.get(&d_name(d, *i))).collect();
+    d.rate.num.terms().any(|(m, _)| m.pairs().iter().any(|(v, _)| products.contains(v)))
+}
+
+fn d_name(d: &Derivation, species: usize) -> String {
+    d.kinds
+        .iter()
+        .position(|k| *k == VarKind::Species(species))
+        .map(|v| d.vars.name(v as Var).to_string())
+        .unwrap_or_default()
+}
+
+fn method_text(d: &Derivation, model: &Model) -> String {
+    let forms: Vec<&str> = d.steady.iter().map(|&i| model.species[i].name.as_str()).collect();
+    let mut s = format!("quasi-steady state of {} (King–Altman)", forms.join(", "));
+    if !d.equilibrium.is_empty() {
+        let steps: Vec<&str> = d.equilibrium.iter().map(|&j| model.steps[j].name.as_str()).collect();
+        s.push_str(&format!("; rapid equilibrium of {} (Cha)", steps.join(", ")));
+    }
+    s
+}
+
+/// The readable report.
+pub fn human(d: &Derivation, model: &Model) -> String {
+    let keys = keys_for(d);
+    let p = printer(d, Syntax::Plain, &keys);
+    let mut out = String::new();
+    let name = model.name.clone().unwrap_or_else(|| "mechanism".into());
+    out.push_str(&format!("{name}: {}\n", method_text(d, model)));
+    out.push_str(&format!("rate of: {}\n\n", target_text(d, model)));
+    out.push_str(&format!("  v = {}\n\n", rate_text(d, &p, &keys)));
+    out.push_str("coefficient form (collected by concentration):\n");
+    out.push_str(&format!("  numerator   = {}\n", numerator_text(d, &p, &keys).0));
+    out.push_str(&format!("  denominator = {}\n", p.collected(&d.rate.den, &keys)));
+    for t in &d.totals {
+        let forms: Vec<&str> = t.forms.iter().map(|&i| model.species[i].name.as_str()).collect();
+        let how = if t.declared.is_some() { "declared" } else { "named here" };
+        out.push_str(&format!("  {} = {} ({how})\n", t.name, forms.join(" + ")));
+    }
+    if !d.constants.is_empty() {
+        out.push_str("\nkinetic constants:\n");
+        let width = d.constants.iter().map(|c| c.name.len()).max().unwrap_or(0);
+        for c in &d.constants {
+            out.push_str(&format!("  {:width$} = {}    ({})\n", c.name, rational_text(&c.value, &p), c.meaning));
+        }
+    }
+    for r in &d.relations {
+        let status = if r.holds { "holds identically" } else { "DOES NOT HOLD" };
+        out.push_str(&format!("\n{} relation: {} = {}  ({status})\n", r.name, r.lhs, r.rhs));
+    }
+    if !d.notes.is_empty() {
+        out.push('\n');
+        for n in &d.notes {
+            out.push_str(&format!("note: {n}\n"));
+        }
+    }
+    out
+}
+
+/// LaTeX: the rate and the constants in an `align*` environment.
+pub fn latex(d: &Derivation, model: &Model) -> String {
+    let keys = keys_for(d);
+    let p = printer(d, Syntax::Latex, &keys);
+    let mut out = String::new();
+    out.push_str(&format!("% {}\n% rate of: {}\n", method_text(d, model), target_text(d, model)));
+    out.push_str("\\begin{align*}\n");
+    out.push_str(&format!("  v &= {}", rate_text(d, &p, &keys)));
+    for c in &d.constants {
+        out.push_str(&format!(" \\\\\n  {} &= {}", latex_constant_name(&c.name), rational_text(&c.value, &p)));
+    }
+    for r in &d.relations {
+        out.push_str(&format!(" \\\\\n  % {} relation: {} = {}", r.name, r.lhs, r.rhs));
+    }
+    out.push_str("\n\\end{align*}\n");
+    out
+}
+
+fn latex_constant_name(name: &str) -> String {
+    match name {
+        "kcat" => "k_{\\mathrm{cat}}".into(),
+        "kcat_r" => "k_{\\mathrm{cat},r}".into(),
+        "Keq" => "K_{\\mathrm{eq}}".into(),
+        _ => match name.split_once('_') {
+            Some((head, species)) => {
+                let sub = head.trim_start_matches('K');
+                format!("K_{{\\mathrm{{{}}},\\mathrm{{{}}}}}", print::latex_escape(sub), print::latex_escape(species))
+            }
+            None => print::latex_name(name),
+        },
+    }
+}
+
+/// The JSON document (schema in docs/derive.md).
+pub fn json(d: &Derivation, model: &Model) -> Value {
+    let keys = keys_for(d);
+    let p = printer(d, Syntax::Mech, &keys);
+    let coefficients = |poly: &Poly| -> Value {
+        let groups = poly.collect(&keys);
+        let mut list: Vec<(&Monomial, &Poly)> = groups.iter().collect();
+        list.sort_by(|a, b| a.0.degree().cmp(&b.0.degree()).then_with(|| b.0.grlex_cmp(a.0)));
+        Value::Array(
+            list.into_iter()
+                .map(|(m, c)| json!({ "concentrations": if m.is_one() { "1".to_string() } else { p.monomial(m) }, "coefficient": p.factored(c) }))
+                .collect(),
+        )
+    };
+    let rate_of = match &d.derived {
+        Derived::Overall(o) => {
+            let map = |terms: &[(usize, num_bigint::BigInt)]| -> Value {
+                Value::Object(terms.iter().map(|(i, c)| (model.species[*i].name.clone(), json!(c.to_string().parse::<i64>().unwrap_or(0)))).collect())
+            };
+            json!({ "kind": "overall", "reaction": target_text(d, model), "reactants": map(&o.reactants), "products": map(&o.products) })
+        }
+        Derived::Species(i) => json!({ "kind": "species", "species": model.species[*i].name }),
+        Derived::Flux(j) => json!({ "kind": "flux", "step": model.steps[*j].name }),
+    };
+    json!({
+        "model": model.name,
+        "method": method_text(d, model),
+        "steady": d.steady.iter().map(|&i| model.species[i].name.clone()).collect::<Vec<_>>(),
+        "equilibrium": d.equilibrium.iter().map(|&j| model.steps[j].name.clone()).collect::<Vec<_>>(),
+        "rate_of": rate_of,
+        "rate": rate_text(d, &p, &keys),
+        "numerator": p.poly(&d.rate.num),
+        "denominator": p.poly(&d.rate.den),
+        "coefficients": { "numerator": coefficients(&d.rate.num), "denominator": coefficients(&d.rate.den) },
+        "totals": d.totals.iter().map(|t| json!({
+            "name": t.name,
+            "forms": t.forms.iter().map(|&i| model.species[i].name.clone()).collect::<Vec<_>>(),
+            "declared": t.declared.is_some(),
+            "value": t.value,
+        })).collect::<Vec<_>>(),
+        "constants": Value::Object(d.constants.iter().map(|c| (c.name.clone(), json!(rational_text(&c.value, &p)))).collect()),
+        "constant_meanings": Value::Object(d.constants.iter().map(|c| (c.name.clone(), json!(c.meaning))).collect()),
+        "relations": d.relations.iter().map(|r| json!({ "name": r.name, "lhs": r.lhs, "rhs": r.rhs, "holds": r.holds })).collect::<Vec<_>>(),
+        "intermediates": Value::Object(d.forms.iter().map(|(i, r)| {
+            let s = match RationalFunction::new(r.num.clone(), r.den.clone()) { Some(c) => c, None => r.clone() };
+            (model.species[*i].name.clone(), json!(rational_text(&s, &p)))
+        }).collect()),
+        "notes": d.notes,
+        "spanning_tree_terms": d.trees,
+    })
+}
+
+/// A new mechanism: the non-intermediate species, the params the law
+/// needs, each total as a param, and one step carrying the derived law.
+pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, String> {
+    let Derived::Overall(o) = &d.derived else {
+        return Err("`--format mech` writes the overall reaction; it cannot be combined with --species or --flux".into());
+    };
+    let keys = keys_for(d);
+    let p = printer(d, Syntax::Mech, &keys);
+    let mut out = String::new();
+    out.push_str(&format!("# Derived by `ratewright derive` from {source}:\n# {}.\n", method_text(d, model)));
+    out.push_str("# The intermediates are eliminated; their totals are params here.\n");
+    let name = model.name.clone().unwrap_or_else(|| "mechanism".into());
+    let desc = model.description.clone().map(|s| format!("{s}, ")).unwrap_or_default();
+    out.push_str(&format!("mechanism {name}_derived \"{}derived rate law\"\n\n", desc.replace('"', "'")));
+    out.push_str(&format!(
+        "units concentration {}, time {}\n\n",
+        model.units.concentration.symbol(),
+        model.units.time.symbol()
+    ));
+    let used: BTreeSet<Var> = d.rate.num.vars().union(&d.rate.den.vars()).copied().collect();
+    let is_form = |i: usize| d.steady.contains(&i);
+    for (i, s) in model.species.iter().enumerate() {
+        if is_form(i) {
+            continue;
+        }
+        let touched = o.reactants.iter().chain(&o.products).any(|(k, _)| *k == i)
+            || used.iter().any(|v| d.kind(*v) == Some(VarKind::Species(i)));
+        if !touched {
+            continue;
+        }
+        let value = if s.initial != 0.0 { format!(" = {}", plain_literal(s.initial)) } else { String::new() };
+        out.push_str(&format!("species {}{value}{}\n", s.name, describe(&s.description)));
+    }
+    for f in &model.fixed {
+        if used.iter().any(|v| d.vars.name(*v) == f.name) {
+            out.push_str(&format!("fixed {} = {}{}\n", f.name, plain_literal(f.value), describe(&f.description)));
+        }
+    }
+    out.push('\n');
+    // Params the law uses, and the params their definitions use.
+    let mut needed: BTreeSet<usize> = used
+        .iter()
+        .filter_map(|v| match d.kind(*v) {
+            Some(VarKind::Param(i)) => Some(i),
+            _ => None,
+        })
+        .collect();
+    loop {
+        let mut more = Vec::new();
+        for &i in &needed {
+            if let ParamDef::Expr(e) = &model.params[i].definition {
+                for s in e.names() {
+                    if let Sym::Param(k) = s {
+                        if !needed.contains(&k) {
+                            more.push(k);
+                        }
+                    }
+                }
+            }
+        }
+        if more.is_empty() {
+            break;
+        }
+        needed.extend(more);
+    }
+    let name_of = |s: Sym| model.name_of(s).to_string();
+    for &i in &model.param_order {
+        if !needed.contains(&i) {
+            continue;
+        }
+        let prm = &model.params[i];
+        let def = match &prm.definition {
+            ParamDef::Value(v) => plain_literal(*v),
+            ParamDef::Expr(e) => print::print_expr(e, &name_of, print::Syntax::Mech),
+        };
+        out.push_str(&format!("param {} = {def}{}\n", prm.name, describe(&prm.description)));
+    }
+    for t in &d.totals {
+        let forms: Vec<&str> = t.forms.iter().map(|&i| model.species[i].name.as_str()).collect();
+        out.push_str(&format!("param {} = {} \"total of {}\"\n", t.name, plain_literal(t.value), forms.join(" + ")));
+    }
+    let side = |terms: &[(usize, num_bigint::BigInt)]| {
+        if terms.is_empty() {
+            return "0".to_string();
+        }
+        terms
+            .iter()
+            .map(|(i, c)| {
+                let n = &model.species[*i].name;
+                if *c == num_bigint::BigInt::from(1) { n.clone() } else { format!("{c} {n}") }
+            })
+            .collect::<Vec<_>>()
+            .join(" + ")
+    };
+    let arrow = if reversible(d, o) { "<=>" } else { "->" };
+    out.push_str(&format!(
+        "\nstep overall {} {arrow} {} law {}\n",
+        side(&o.reactants),
+        side(&o.products),
+        rate_text(d, &p, &keys)
+    ));
+    let kept = |i: usize| !is_form(i);
+    let mut events = String::new();
+    for e in &model.events {
+        if !kept(e.species) {
+            continue;
+        }
+        let n = &model.species[e.species].name;
+        let (a, t) = (plain_literal(e.amount), plain_literal(e.time));
+        events.push_str(&match e.kind {
+            EventKind::Add => format!("add {a} {n} at {t}\n"),
+            EventKind::Remove => format!("remove {a} {n} at {t}\n"),
+            EventKind::Set => format!("set {n} = {a} at {t}\n"),
+        });
+    }
+    if !events.is_empty() {
+        out.push('\n');
+        out.push_str(&events);
+    }
+    Ok(out)
+}
+
+fn describe(d: &Option<String>) -> String {
+    match d {
+        Some(s) => format!(" \"{}\"", s.replace('"', "'")),
+        None => String::new(),
+    }
+}
