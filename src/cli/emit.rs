@@ -1,14 +1,149 @@
-//! `ratewright emit` (being built; see the issue that owns it).
+//! `ratewright emit FILE --target T [--reduced] [-o PATH]`: simulation-ready
+//! code and exchange files.
+//!
+//! Output: without `-o`, a single-file target prints to standard output.
+//! With `-o PATH`, a single-file target writes PATH. The C target writes a
+//! header and a source, so it needs `-o`: an existing directory (or a path
+//! ending in `/`) receives `<model stem>.h` and `<model stem>.c`; any other
+//! PATH is a stem (`-o out/decay` writes `out/decay.h` and `out/decay.c`; a
+//! trailing `.c` or `.h` is dropped). Every file is written atomically.
 
-use std::path::PathBuf;
+use super::common::{load_model, run_error, usage_error, write_atomic};
+use crate::emit::{EmitOptions, TARGETS, emit, find_target};
+use std::io::Write;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
     /// Mechanism file.
     pub file: PathBuf,
+    /// Target: python, julia, c, rust, octave, r, sbml, latex, json or dot.
+    #[arg(long, short = 't', value_name = "T")]
+    pub target: String,
+    /// Emit the reduced system (conservation laws eliminated; totals become parameters).
+    #[arg(long)]
+    pub reduced: bool,
+    /// Output file (or, for the c target, a directory or a stem).
+    #[arg(long, short = 'o', value_name = "PATH")]
+    pub output: Option<PathBuf>,
 }
 
-pub fn run(_args: &Args) -> ExitCode {
-    super::common::usage_error("`emit` is not built yet")
+pub fn run(args: &Args) -> ExitCode {
+    let Some(target) = find_target(&args.target) else {
+        let all: Vec<&str> = TARGETS.iter().map(|t| t.name()).collect();
+        let hint = crate::diagnostics::did_you_mean(&args.target, all.iter().copied())
+            .map(|s| format!(" (did you mean `{s}`?)"))
+            .unwrap_or_default();
+        return usage_error(format!(
+            "unknown target `{}`{hint}; targets: {}",
+            args.target,
+            all.join(", ")
+        ));
+    };
+    if args.reduced && !target.supports_reduced() {
+        return usage_error(format!(
+            "the `{}` target describes the reactions themselves; `--reduced` does not apply to it",
+            target.name()
+        ));
+    }
+    if target.multi_file() && args.output.is_none() {
+        return usage_error(format!(
+            "the `{}` target writes more than one file: give `-o DIR` or `-o STEM`",
+            target.name()
+        ));
+    }
+    let (model, _sources) = match load_model(&args.file, false) {
+        Ok(x) => x,
+        Err(code) => return code,
+    };
+    let model_stem = file_stem(&args.file);
+    let (dir, stem) = match &args.output {
+        None => (None, model_stem),
+        Some(out) if target.multi_file() => {
+            let is_dir = out.is_dir() || out.as_os_str().to_string_lossy().ends_with('/');
+            if is_dir {
+                (Some(out.clone()), model_stem)
+            } else {
+                let parent = out.parent().map(Path::to_path_buf).unwrap_or_default();
+                let name = out
+                    .file_name()
+                    .map(|n| n.to_string_lossy().to_string())
+                    .unwrap_or_default();
+                let name = name
+                    .strip_suffix(".c")
+                    .or_else(|| name.strip_suffix(".h"))
+                    .unwrap_or(&name)
+                    .to_string();
+                (Some(parent), name)
+            }
+        }
+        Some(out) => (out.parent().map(Path::to_path_buf), file_stem(out)),
+    };
+    if !crate::emit::names::is_identifier(&stem) && matches!(target.name(), "octave" | "c") {
+        return usage_error(format!(
+            "`{stem}` cannot name a {} {}: use a name of letters, digits and `_` (give `-o` another name)",
+            target.name(),
+            if target.name() == "octave" {
+                "function"
+            } else {
+                "prefix"
+            }
+        ));
+    }
+    let options = EmitOptions {
+        reduced: args.reduced,
+        stem,
+        source_name: args
+            .file
+            .file_name()
+            .map(|n| n.to_string_lossy().to_string())
+            .unwrap_or_default(),
+    };
+    let files = match emit(&model, target, &options) {
+        Ok(f) => f,
+        Err(d) => {
+            super::common::print_diagnostics(&[d], &_sources);
+            return ExitCode::from(super::common::EXIT_MODEL);
+        }
+    };
+    let inputs: Vec<PathBuf> = _sources.files().iter().map(|f| f.path.clone()).collect();
+    match (&args.output, target.multi_file()) {
+        (None, _) => {
+            let mut out = std::io::stdout().lock();
+            for f in &files {
+                if out.write_all(f.contents.as_bytes()).is_err() {
+                    return run_error("cannot write to standard output");
+                }
+            }
+            ExitCode::SUCCESS
+        }
+        (Some(path), false) => match files.first() {
+            Some(f) => match write_atomic(path, f.contents.as_bytes(), &inputs) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => run_error(e),
+            },
+            None => run_error("nothing to write"),
+        },
+        (Some(_), true) => {
+            let dir = dir.unwrap_or_default();
+            for f in &files {
+                let path = if dir.as_os_str().is_empty() {
+                    PathBuf::from(&f.name)
+                } else {
+                    dir.join(&f.name)
+                };
+                if let Err(e) = write_atomic(&path, f.contents.as_bytes(), &inputs) {
+                    return run_error(e);
+                }
+            }
+            ExitCode::SUCCESS
+        }
+    }
+}
+
+fn file_stem(path: &Path) -> String {
+    path.file_stem()
+        .map(|s| s.to_string_lossy().to_string())
+        .unwrap_or_else(|| "model".into())
 }

@@ -1,0 +1,468 @@
+//! Python target: a self-contained module (numpy only) with parameter and
+//! initial-value dicts, `rhs(t, y, p)`, `jac(t, y, p)`, the names, the
+//! protocol's events, and a `__main__` that integrates with SciPy's BDF and
+//! the analytic Jacobian and writes CSV shaped like `ratewright run -o`.
+
+use super::names::{Names, PYTHON_RESERVED, quoted};
+use super::system::{ConstantKind, Needs, System};
+use super::{EmitOptions, EmittedFile, Target, banner};
+use crate::algebra::print::{Syntax, float_literal, plain_literal, print_expr};
+use crate::diagnostics::Diagnostic;
+use crate::model::{Coef, EventKind, Expr, Sym, coef_f64};
+use std::fmt::Write;
+
+pub struct Python;
+
+impl Target for Python {
+    fn name(&self) -> &'static str {
+        "python"
+    }
+    fn extension(&self) -> &'static str {
+        "py"
+    }
+    fn emit(&self, sys: &System, options: &EmitOptions) -> Result<Vec<EmittedFile>, Diagnostic> {
+        let contents = module(sys, options);
+        Ok(vec![EmittedFile {
+            name: format!("{}.py", options.stem),
+            contents,
+        }])
+    }
+}
+
+fn module(sys: &System, options: &EmitOptions) -> String {
+    let m = &sys.model;
+    let names = Names::new(m, PYTHON_RESERVED);
+    let name = |s: Sym| names.get(s);
+    let ex = |e: &Expr| print_expr(e, &name, Syntax::Python);
+    let mut o = String::new();
+    let units = format!(
+        "concentration {}, time {}",
+        m.units.concentration.symbol(),
+        m.units.time.symbol()
+    );
+
+    // Docstring.
+    o.push_str("\"\"\"");
+    o.push_str(&banner(sys, options, "python").replace('\\', "/"));
+    o.push_str("\n\n");
+    if let Some(d) = &m.description {
+        let _ = writeln!(o, "{}\n", d.replace("\"\"\"", "'''").replace('\\', "/"));
+    }
+    let _ = writeln!(
+        o,
+        "Units: {units}. State y (in STATE order): {}.",
+        state_names(sys).join(", ")
+    );
+    if sys.reduced {
+        o.push_str("Reduced system: the dependent species follow from the totals (see\nDEPENDENT and full_state); totals are parameters.\n");
+    }
+    o.push_str(
+        "\nrhs(t, y, p) and jac(t, y, p) take p as a dict like PARAMS; y0(p) is the\n\
+         initial state. Run as a script to integrate with SciPy (BDF with the\n\
+         analytic Jacobian) and write CSV: t, every species, every observable.\n\
+         \"\"\"\n\nimport numpy as np\n\n",
+    );
+
+    // Names and defaults.
+    let list = |v: Vec<String>| v.iter().map(|s| quoted(s)).collect::<Vec<_>>().join(", ");
+    let _ = writeln!(
+        o,
+        "SPECIES = [{}]",
+        list(m.species.iter().map(|s| s.name.clone()).collect())
+    );
+    let _ = writeln!(o, "STATE = [{}]", list(state_names(sys)));
+    let _ = writeln!(
+        o,
+        "OBSERVABLES = [{}]",
+        list(m.observables.iter().map(|s| s.name.clone()).collect())
+    );
+    let _ = writeln!(
+        o,
+        "STEPS = [{}]",
+        list(m.steps.iter().map(|s| s.name.clone()).collect())
+    );
+    o.push_str("\n# Parameters: params with a value, fixed species and totals (default units).\nPARAMS = {\n");
+    for c in &sys.constants {
+        let what = match c.kind {
+            ConstantKind::Param => "param",
+            ConstantKind::Fixed => "fixed species",
+            ConstantKind::Total => "total",
+        };
+        let desc = match c.sym {
+            Sym::Param(i) => m.params[i].description.clone(),
+            Sym::Fixed(i) => m.fixed[i].description.clone(),
+            _ => None,
+        };
+        let note = desc
+            .map(|d| format!(": {}", d.replace('\n', " ")))
+            .unwrap_or_default();
+        let _ = writeln!(
+            o,
+            "    {}: {},  # {what}{note}",
+            quoted(m.name_of(c.sym)),
+            float_literal(c.value)
+        );
+    }
+    o.push_str("}\n\n# Initial values of the state variables.\nINITIAL = {\n");
+    for (&i, v) in sys.state.iter().zip(sys.initial_state()) {
+        let _ = writeln!(
+            o,
+            "    {}: {},",
+            quoted(&m.species[i].name),
+            float_literal(v)
+        );
+    }
+    o.push_str(
+        "}\n\n# Timed events: (time, kind, species, amount), applied in order.\nEVENTS = [\n",
+    );
+    for e in &sys.events {
+        let kind = match e.kind {
+            EventKind::Add => "add",
+            EventKind::Remove => "remove",
+            EventKind::Set => "set",
+        };
+        let _ = writeln!(
+            o,
+            "    ({}, {}, {}, {}),",
+            float_literal(e.time),
+            quoted(kind),
+            quoted(&m.species[e.species].name),
+            float_literal(e.amount)
+        );
+    }
+    o.push_str("]\n\n# Conserved totals: name -> {species: coefficient}.\nTOTALS = {\n");
+    for t in &m.totals {
+        let terms: Vec<String> = t
+            .terms
+            .iter()
+            .map(|(i, c)| {
+                format!(
+                    "{}: {}",
+                    quoted(&m.species[*i].name),
+                    plain_literal(coef_f64(*c))
+                )
+            })
+            .collect();
+        let _ = writeln!(o, "    {}: {{{}}},", quoted(&t.name), terms.join(", "));
+    }
+    o.push_str("}\n");
+    if sys.reduced {
+        o.push_str(
+            "\n# Dependent species: name -> (total it follows from, formula).\nDEPENDENT = {\n",
+        );
+        for d in &sys.dependent {
+            let _ = writeln!(
+                o,
+                "    {}: ({}, {}),",
+                quoted(&m.species[d.species].name),
+                quoted(&m.totals[d.total].name),
+                quoted(&print_expr(
+                    &d.formula,
+                    &|s| m.name_of(s).to_string(),
+                    Syntax::Mech
+                ))
+            );
+        }
+        o.push_str("}\n");
+    }
+
+    // y0
+    o.push_str("\n\ndef y0(p=None):\n    \"\"\"The initial state vector (STATE order).\"\"\"\n    return np.array([INITIAL[name] for name in STATE], dtype=float)\n");
+
+    // rhs
+    let steps = sys.used_steps();
+    let rate_refs: Vec<&Expr> = steps.iter().map(|&j| &sys.rates[j]).collect();
+    let needs = sys.needs(rate_refs.iter().copied());
+    o.push_str(
+        "\n\ndef rhs(t, y, p):\n    \"\"\"d(state)/dt at time t, state y and parameters p.\"\"\"\n",
+    );
+    prelude(&mut o, sys, &names, &needs);
+    let _ = writeln!(o, "    v = np.zeros({})", m.steps.len().max(1));
+    for &j in &steps {
+        let _ = writeln!(
+            o,
+            "    v[{j}] = {}  # {}",
+            ex(&sys.rates[j]),
+            m.steps[j].name
+        );
+    }
+    let _ = writeln!(o, "    dy = np.zeros({})", sys.n());
+    for (r, terms) in sys.rhs_terms.iter().enumerate() {
+        if !terms.is_empty() {
+            let _ = writeln!(
+                o,
+                "    dy[{r}] = {}  # {}",
+                combination(terms, |j| format!("v[{j}]")),
+                m.species[sys.state[r]].name
+            );
+        }
+    }
+    o.push_str("    return dy\n");
+
+    // jac
+    let needs = sys.needs(sys.jac.iter().map(|e| &e.expr));
+    o.push_str("\n\ndef jac(t, y, p):\n    \"\"\"The analytic Jacobian d rhs[i] / d y[j] as a dense matrix.\"\"\"\n");
+    prelude(&mut o, sys, &names, &needs);
+    let _ = writeln!(o, "    J = np.zeros(({n}, {n}))", n = sys.n());
+    for e in &sys.jac {
+        let _ = writeln!(o, "    J[{}, {}] = {}", e.row, e.col, ex(&e.expr));
+    }
+    o.push_str("    return J\n");
+
+    // full_state and observables
+    o.push_str(
+        "\n\ndef full_state(y, p):\n    \"\"\"Every species (SPECIES order) from the state vector",
+    );
+    if sys.reduced {
+        o.push_str(": dependent species from the totals in p.\"\"\"\n");
+        let deps: Vec<&Expr> = sys.dependent.iter().map(|d| &d.formula).collect();
+        let needs = sys.needs(deps);
+        let needs = Needs {
+            dependent: (0..sys.dependent.len()).collect(),
+            ..needs
+        };
+        prelude(
+            &mut o,
+            sys,
+            &names,
+            &Needs {
+                state: (0..sys.n()).collect(),
+                ..needs
+            },
+        );
+    } else {
+        o.push_str(" (the full system: the state itself).\"\"\"\n");
+        prelude(
+            &mut o,
+            sys,
+            &names,
+            &Needs {
+                state: (0..sys.n()).collect(),
+                ..Needs::default()
+            },
+        );
+    }
+    let all: Vec<String> = (0..m.species.len())
+        .map(|i| name(Sym::Species(i)))
+        .collect();
+    let _ = writeln!(o, "    return np.array([{}], dtype=float)", all.join(", "));
+
+    o.push_str("\n\ndef observables(t, x, p):\n    \"\"\"Every observable (OBSERVABLES order) from the full species vector x.\"\"\"\n");
+    let needs = full_needs(sys.observables.iter());
+    for i in 0..m.species.len() {
+        if needs.contains(&Sym::Species(i)) {
+            let _ = writeln!(o, "    {} = x[{i}]", name(Sym::Species(i)));
+        }
+    }
+    prelude(
+        &mut o,
+        sys,
+        &names,
+        &sys.needs_over_full(sys.observables.iter()),
+    );
+    let obs: Vec<String> = sys.observables.iter().map(ex).collect();
+    let _ = writeln!(o, "    return np.array([{}], dtype=float)", obs.join(", "));
+
+    if sys.reduced {
+        o.push_str(REDUCE_STATE_REDUCED);
+    } else {
+        o.push_str(REDUCE_STATE_FULL);
+    }
+    o.push_str(SIMULATE);
+    o
+}
+
+fn state_names(sys: &System) -> Vec<String> {
+    sys.state
+        .iter()
+        .map(|&i| sys.model.species[i].name.clone())
+        .collect()
+}
+
+/// Symbols mentioned (with derived params' and dependents' inputs).
+fn full_needs<'a>(exprs: impl Iterator<Item = &'a Expr>) -> std::collections::BTreeSet<Sym> {
+    let mut set = std::collections::BTreeSet::new();
+    for e in exprs {
+        e.visit_names(&mut |s| {
+            set.insert(s);
+        });
+    }
+    set
+}
+
+/// Assignments that define the names `needs` lists, in dependency order.
+fn prelude(o: &mut String, sys: &System, names: &Names, needs: &Needs) {
+    let m = &sys.model;
+    for &r in &needs.state {
+        let _ = writeln!(o, "    {} = y[{r}]", names.get(Sym::Species(sys.state[r])));
+    }
+    for &k in &needs.constants {
+        let sym = sys.constants[k].sym;
+        let _ = writeln!(o, "    {} = p[{}]", names.get(sym), quoted(m.name_of(sym)));
+    }
+    for &i in &needs.derived {
+        if let Some(e) = sys.derived_expr(i) {
+            let _ = writeln!(
+                o,
+                "    {} = {}",
+                names.get(Sym::Param(i)),
+                print_expr(e, &|s| names.get(s), Syntax::Python)
+            );
+        }
+    }
+    for &k in &needs.dependent {
+        let d = &sys.dependent[k];
+        let _ = writeln!(
+            o,
+            "    {} = {}",
+            names.get(Sym::Species(d.species)),
+            print_expr(&d.formula, &|s| names.get(s), Syntax::Python)
+        );
+    }
+}
+
+/// `-v[0] + 2 * v[3]`: a stoichiometric combination of step rates.
+pub(crate) fn combination(terms: &[(usize, Coef)], item: impl Fn(usize) -> String) -> String {
+    let mut out = String::new();
+    for (k, (j, c)) in terms.iter().enumerate() {
+        let v = coef_f64(*c);
+        let mag = v.abs();
+        let body = if mag == 1.0 {
+            item(*j)
+        } else {
+            format!("{} * {}", plain_literal(mag), item(*j))
+        };
+        match (k, v < 0.0) {
+            (0, true) => {
+                out.push('-');
+                out.push_str(&body)
+            }
+            (0, false) => out.push_str(&body),
+            (_, true) => {
+                out.push_str(" - ");
+                out.push_str(&body)
+            }
+            (_, false) => {
+                out.push_str(" + ");
+                out.push_str(&body)
+            }
+        }
+    }
+    out
+}
+
+const REDUCE_STATE_FULL: &str = r#"
+
+def state_from_full(x, p):
+    """The state vector and parameters from a full species vector (after an event)."""
+    return np.array(x, dtype=float), p
+"#;
+
+const REDUCE_STATE_REDUCED: &str = r#"
+
+def state_from_full(x, p):
+    """The state vector and parameters from a full species vector: the
+    independent species, and totals recomputed (an event changes them)."""
+    p = dict(p)
+    index = {name: i for i, name in enumerate(SPECIES)}
+    for total, terms in TOTALS.items():
+        if total in p:
+            p[total] = sum(c * x[index[s]] for s, c in terms.items())
+    return np.array([x[index[name]] for name in STATE], dtype=float), p
+"#;
+
+const SIMULATE: &str = r#"
+
+def simulate(times, p=None, rtol=1e-8, atol=1e-12):
+    """Integrates from t = 0 through EVENTS with SciPy's BDF method and the
+    analytic Jacobian. Returns an array with one row per output time: every
+    species (SPECIES order), then every observable. At an event's time the
+    row shows the state after the event."""
+    from scipy.integrate import solve_ivp
+
+    p = dict(PARAMS if p is None else p)
+    times = np.asarray(times, dtype=float)
+    rows = np.empty((len(times), len(SPECIES) + len(OBSERVABLES)))
+    y = y0(p)
+    t = 0.0
+    end = float(times.max()) if len(times) else 0.0
+    pending = sorted((e for e in EVENTS if e[0] <= end), key=lambda e: e[0])
+    boundaries = sorted({e[0] for e in pending} | {end})
+    index = {name: i for i, name in enumerate(SPECIES)}
+
+    def record(mask, states, p):
+        for k, state in zip(np.flatnonzero(mask), states):
+            x = full_state(state, p)
+            rows[k, : len(SPECIES)] = x
+            rows[k, len(SPECIES):] = observables(times[k], x, p)
+
+    for b in boundaries:
+        at_start = times == t
+        if b > t:
+            inside = (times >= t) & (times < b) if b < end else (times >= t) & (times <= b)
+            wanted = times[inside]
+            t_eval = wanted if len(wanted) and wanted[-1] == b else np.append(wanted, b)
+            sol = solve_ivp(rhs, (t, b), y, method="BDF", jac=jac, args=(p,),
+                            t_eval=t_eval, rtol=rtol, atol=atol)
+            if not sol.success:
+                raise RuntimeError(f"integration failed at t = {sol.t[-1]}: {sol.message}")
+            record(inside, sol.y[:, : len(wanted)].T, p)
+            y, t = sol.y[:, -1], b
+        elif at_start.any():
+            record(at_start, [y] * int(at_start.sum()), p)
+        fired = [e for e in pending if e[0] == b]
+        if fired:
+            x = full_state(y, p)
+            for _, kind, name, amount in fired:
+                i = index[name]
+                if kind == "add":
+                    x[i] += amount
+                elif kind == "remove":
+                    x[i] = max(x[i] - amount, 0.0)
+                else:
+                    x[i] = amount
+            y, p = state_from_full(x, p)
+            here = times == b
+            if here.any():
+                record(here, [y] * int(here.sum()), p)
+    return rows
+
+
+def main(argv=None):
+    import argparse
+    import csv
+    import sys
+
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--until", type=float, required=True, help="end time (model time unit)")
+    parser.add_argument("--points", type=int, default=101, help="number of equally spaced output times")
+    parser.add_argument("--rtol", type=float, default=1e-8)
+    parser.add_argument("--atol", type=float, default=1e-12)
+    parser.add_argument("--set", action="append", default=[], metavar="NAME=VALUE",
+                        help="override a parameter or an initial value (default units)")
+    parser.add_argument("-o", "--output", help="CSV file (default: standard output)")
+    args = parser.parse_args(argv)
+    p = dict(PARAMS)
+    for item in args.set:
+        key, _, value = item.partition("=")
+        key = key.strip()
+        if key in p:
+            p[key] = float(value)
+        elif key in INITIAL:
+            INITIAL[key] = float(value)
+        else:
+            parser.error(f"no parameter or state variable named {key!r}")
+    times = np.linspace(0.0, args.until, args.points)
+    rows = simulate(times, p, rtol=args.rtol, atol=args.atol)
+    out = open(args.output, "w", newline="") if args.output else sys.stdout
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(["t"] + SPECIES + OBSERVABLES)
+    for t, row in zip(times, rows):
+        writer.writerow([repr(float(t))] + [repr(float(v)) for v in row])
+    if args.output:
+        out.close()
+
+
+if __name__ == "__main__":
+    main()
+"#;

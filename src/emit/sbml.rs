@@ -1,0 +1,369 @@
+//! SBML target: SBML Level 3 Version 2 core. One compartment of size 1 in
+//! the model's volume unit; species in concentrations (fixed species are
+//! boundary conditions and constant); params with values are constant
+//! parameters, derived params get initial assignments, observables
+//! assignment rules; reactions carry the reversible flag and content-MathML
+//! kinetic laws (the rate times the compartment size, so the law is in
+//! substance per time as SBML requires); the timed additions, withdrawals
+//! and resets become SBML events.
+//!
+//! The reduced system has no meaning for an exchange file of reactions, so
+//! `--reduced` is refused here (see `Target::supports_reduced`).
+
+use super::names::{Names, identifier};
+use super::system::System;
+use super::{EmitOptions, EmittedFile, Target};
+use crate::algebra::print::{Syntax, plain_literal, print_expr, xml_escape};
+use crate::diagnostics::Diagnostic;
+use crate::model::{Dim, EventKind, Expr, ParamDef, Rate, Sym, Units, coef_f64};
+use std::collections::BTreeSet;
+use std::fmt::Write;
+
+pub struct Sbml;
+
+/// Identifiers the document uses itself.
+const RESERVED: &[&str] = &[
+    "compartment",
+    "time",
+    "pi",
+    "exponentiale",
+    "true",
+    "false",
+    "infinity",
+    "notanumber",
+    "avogadro",
+];
+const COMPARTMENT: &str = "compartment";
+
+impl Target for Sbml {
+    fn name(&self) -> &'static str {
+        "sbml"
+    }
+    fn extension(&self) -> &'static str {
+        "xml"
+    }
+    fn supports_reduced(&self) -> bool {
+        false
+    }
+    fn emit(&self, sys: &System, options: &EmitOptions) -> Result<Vec<EmittedFile>, Diagnostic> {
+        Ok(vec![EmittedFile {
+            name: format!("{}.xml", options.stem),
+            contents: document(sys, options),
+        }])
+    }
+}
+
+fn unit_id(d: Dim, units: Units) -> String {
+    let part = |sym: &str, p: i32| match p {
+        0 => String::new(),
+        1 => sym.to_string(),
+        -1 => format!("per_{sym}"),
+        p if p > 0 => format!("{sym}{p}"),
+        p => format!("per_{sym}{}", -p),
+    };
+    let parts: Vec<String> = [
+        part(units.concentration.symbol(), d.conc),
+        part(units.time.symbol(), d.time),
+    ]
+    .into_iter()
+    .filter(|s| !s.is_empty())
+    .collect();
+    if parts.is_empty() {
+        "dimensionless".into()
+    } else {
+        identifier(&format!("u_{}", parts.join("_")))
+    }
+}
+
+/// `<unit>` elements for concentration^conc · time^time in the model's units.
+fn unit_elements(d: Dim, units: Units, o: &mut String) {
+    let scale = units.concentration.molar().log10().round() as i32;
+    if d.conc != 0 {
+        let _ = writeln!(
+            o,
+            "          <unit kind=\"mole\" exponent=\"{}\" scale=\"{scale}\" multiplier=\"1\"/>",
+            d.conc
+        );
+        let _ = writeln!(
+            o,
+            "          <unit kind=\"litre\" exponent=\"{}\" scale=\"0\" multiplier=\"1\"/>",
+            -d.conc
+        );
+    }
+    if d.time != 0 {
+        let (scale, mult) = match units.time.symbol() {
+            "ms" => (-3, 1.0),
+            _ => (0, units.time.seconds()),
+        };
+        let _ = writeln!(
+            o,
+            "          <unit kind=\"second\" exponent=\"{}\" scale=\"{scale}\" multiplier=\"{}\"/>",
+            d.time,
+            plain_literal(mult)
+        );
+    }
+}
+
+fn document(sys: &System, options: &EmitOptions) -> String {
+    let m = &sys.model;
+    let units = m.units;
+    let names = Names::new(m, RESERVED);
+    let id = |s: Sym| names.get(s);
+    let math = |e: &Expr| print_expr(e, &id, Syntax::MathML);
+    let model_id = identifier(m.name.as_deref().unwrap_or(&options.stem));
+    let mut o = String::new();
+    o.push_str("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n");
+    o.push_str("<sbml xmlns=\"http://www.sbml.org/sbml/level3/version2/core\" level=\"3\" version=\"2\">\n");
+    let title = m
+        .description
+        .clone()
+        .unwrap_or_else(|| m.name.clone().unwrap_or_default());
+    let _ = writeln!(
+        o,
+        "  <model id=\"{model_id}\" name=\"{}\" substanceUnits=\"substance\" timeUnits=\"time_unit\" volumeUnits=\"litre\" extentUnits=\"substance\">",
+        xml_escape(&title)
+    );
+    let _ = writeln!(
+        o,
+        "    <notes>\n      <body xmlns=\"http://www.w3.org/1999/xhtml\"><p>{}</p></body>\n    </notes>",
+        xml_escape(&super::banner(sys, options, "sbml"))
+    );
+
+    // Unit definitions: substance, time, concentration, and every param dimension.
+    let mut dims: BTreeSet<(i32, i32)> = BTreeSet::new();
+    dims.insert((1, 0));
+    for p in &m.params {
+        if let Some(d) = p.dim {
+            if d != Dim::NONE {
+                dims.insert((d.conc, d.time));
+            }
+        }
+    }
+    o.push_str("    <listOfUnitDefinitions>\n");
+    o.push_str("      <unitDefinition id=\"substance\">\n        <listOfUnits>\n");
+    let scale = units.concentration.molar().log10().round() as i32;
+    let _ = writeln!(
+        o,
+        "          <unit kind=\"mole\" exponent=\"1\" scale=\"{scale}\" multiplier=\"1\"/>"
+    );
+    o.push_str("        </listOfUnits>\n      </unitDefinition>\n");
+    o.push_str("      <unitDefinition id=\"time_unit\">\n        <listOfUnits>\n");
+    unit_elements(Dim::TIME, units, &mut o);
+    o.push_str("        </listOfUnits>\n      </unitDefinition>\n");
+    for (c, t) in &dims {
+        let d = Dim::new(*c, *t);
+        let _ = writeln!(
+            o,
+            "      <unitDefinition id=\"{}\">\n        <listOfUnits>",
+            unit_id(d, units)
+        );
+        unit_elements(d, units, &mut o);
+        o.push_str("        </listOfUnits>\n      </unitDefinition>\n");
+    }
+    o.push_str("    </listOfUnitDefinitions>\n");
+
+    let _ = writeln!(
+        o,
+        "    <listOfCompartments>\n      <compartment id=\"{COMPARTMENT}\" spatialDimensions=\"3\" size=\"1\" units=\"litre\" constant=\"true\"/>\n    </listOfCompartments>"
+    );
+
+    o.push_str("    <listOfSpecies>\n");
+    for (i, s) in m.species.iter().enumerate() {
+        let _ = writeln!(
+            o,
+            "      <species id=\"{}\"{} compartment=\"{COMPARTMENT}\" initialConcentration=\"{}\" substanceUnits=\"substance\" hasOnlySubstanceUnits=\"false\" boundaryCondition=\"false\" constant=\"false\"/>",
+            id(Sym::Species(i)),
+            name_attr(&s.name, s.description.as_deref()),
+            plain_literal(s.initial)
+        );
+    }
+    for (i, f) in m.fixed.iter().enumerate() {
+        let _ = writeln!(
+            o,
+            "      <species id=\"{}\"{} compartment=\"{COMPARTMENT}\" initialConcentration=\"{}\" substanceUnits=\"substance\" hasOnlySubstanceUnits=\"false\" boundaryCondition=\"true\" constant=\"true\"/>",
+            id(Sym::Fixed(i)),
+            name_attr(&f.name, f.description.as_deref()),
+            plain_literal(f.value)
+        );
+    }
+    o.push_str("    </listOfSpecies>\n");
+
+    let conc = unit_id(Dim::CONC, units);
+    o.push_str("    <listOfParameters>\n");
+    for (i, p) in m.params.iter().enumerate() {
+        let unit = match p.dim {
+            Some(d) if d == Dim::NONE => " units=\"dimensionless\"".to_string(),
+            Some(d) => format!(" units=\"{}\"", unit_id(d, units)),
+            None => String::new(),
+        };
+        let value = match p.definition {
+            ParamDef::Value(v) => format!(" value=\"{}\"", plain_literal(v)),
+            ParamDef::Expr(_) => String::new(),
+        };
+        let _ = writeln!(
+            o,
+            "      <parameter id=\"{}\"{}{value}{unit} constant=\"true\"/>",
+            id(Sym::Param(i)),
+            name_attr(&p.name, p.description.as_deref())
+        );
+    }
+    for (i, t) in m.totals.iter().enumerate() {
+        let _ = writeln!(
+            o,
+            "      <parameter id=\"{}\" name=\"{}\" value=\"{}\" units=\"{conc}\" constant=\"true\"/>",
+            id(Sym::Total(i)),
+            xml_escape(&t.name),
+            plain_literal(t.value)
+        );
+    }
+    for (i, ob) in m.observables.iter().enumerate() {
+        let _ = writeln!(
+            o,
+            "      <parameter id=\"{}\" name=\"{}\" constant=\"false\"/>",
+            id(Sym::Observable(i)),
+            xml_escape(&ob.name)
+        );
+    }
+    o.push_str("    </listOfParameters>\n");
+
+    if !sys.derived.is_empty() {
+        o.push_str("    <listOfInitialAssignments>\n");
+        for &i in &sys.derived {
+            if let Some(e) = sys.derived_expr(i) {
+                let _ = writeln!(
+                    o,
+                    "      <initialAssignment symbol=\"{}\">\n        <math xmlns=\"http://www.w3.org/1998/Math/MathML\">{}</math>\n      </initialAssignment>",
+                    id(Sym::Param(i)),
+                    math(e)
+                );
+            }
+        }
+        o.push_str("    </listOfInitialAssignments>\n");
+    }
+
+    if !m.observables.is_empty() {
+        o.push_str("    <listOfRules>\n");
+        for (i, ob) in m.observables.iter().enumerate() {
+            let _ = writeln!(
+                o,
+                "      <assignmentRule variable=\"{}\">\n        <math xmlns=\"http://www.w3.org/1998/Math/MathML\">{}</math>\n      </assignmentRule>",
+                id(Sym::Observable(i)),
+                math(&ob.expr)
+            );
+        }
+        o.push_str("    </listOfRules>\n");
+    }
+
+    if !m.steps.is_empty() {
+        o.push_str("    <listOfReactions>\n");
+        for (j, s) in m.steps.iter().enumerate() {
+            let _ = writeln!(
+                o,
+                "      <reaction id=\"{}\"{} reversible=\"{}\">",
+                identifier(&format!("step_{}", s.name)),
+                name_attr(&s.name, s.description.as_deref()),
+                s.reversible
+            );
+            let refs = |terms: &[crate::model::Term], tag: &str, o: &mut String| {
+                if terms.is_empty() {
+                    return;
+                }
+                let _ = writeln!(o, "        <listOf{tag}>");
+                for t in terms {
+                    let _ = writeln!(
+                        o,
+                        "          <speciesReference species=\"{}\" stoichiometry=\"{}\" constant=\"true\"/>",
+                        id(t.sym),
+                        plain_literal(coef_f64(t.coefficient))
+                    );
+                }
+                let _ = writeln!(o, "        </listOf{tag}>");
+            };
+            refs(&s.reactants, "Reactants", &mut o);
+            refs(&s.products, "Products", &mut o);
+            // Species a law reads but the step does not change: modifiers.
+            if let Rate::Law(law) = &s.rate {
+                let on_sides: BTreeSet<Sym> = s
+                    .reactants
+                    .iter()
+                    .chain(&s.products)
+                    .map(|t| t.sym)
+                    .collect();
+                let mods: Vec<Sym> = law
+                    .names()
+                    .into_iter()
+                    .filter(|n| {
+                        matches!(n, Sym::Species(_) | Sym::Fixed(_)) && !on_sides.contains(n)
+                    })
+                    .collect();
+                if !mods.is_empty() {
+                    o.push_str("        <listOfModifiers>\n");
+                    for sym in mods {
+                        let _ = writeln!(
+                            o,
+                            "          <modifierSpeciesReference species=\"{}\"/>",
+                            id(sym)
+                        );
+                    }
+                    o.push_str("        </listOfModifiers>\n");
+                }
+            }
+            let rate = m.step_rate(j);
+            let _ = writeln!(
+                o,
+                "        <kineticLaw>\n          <math xmlns=\"http://www.w3.org/1998/Math/MathML\"><apply><times/><ci> {COMPARTMENT} </ci>{}</apply></math>\n        </kineticLaw>",
+                math(&rate)
+            );
+            o.push_str("      </reaction>\n");
+        }
+        o.push_str("    </listOfReactions>\n");
+    }
+
+    if !m.events.is_empty() {
+        o.push_str("    <listOfEvents>\n");
+        for (k, e) in m.events.iter().enumerate() {
+            let sp = id(Sym::Species(e.species));
+            let amount = plain_literal(e.amount);
+            let value = match e.kind {
+                EventKind::Add => {
+                    format!("<apply><plus/><ci> {sp} </ci><cn> {amount} </cn></apply>")
+                }
+                EventKind::Remove => format!(
+                    "<apply><max/><apply><minus/><ci> {sp} </ci><cn> {amount} </cn></apply><cn type=\"integer\"> 0 </cn></apply>"
+                ),
+                EventKind::Set => format!("<cn> {amount} </cn>"),
+            };
+            let kind = match e.kind {
+                EventKind::Add => "add",
+                EventKind::Remove => "remove",
+                EventKind::Set => "set",
+            };
+            let _ = writeln!(
+                o,
+                "      <event id=\"event_{k}\" name=\"{kind} {} at {}\" useValuesFromTriggerTime=\"true\">",
+                xml_escape(&m.species[e.species].name),
+                plain_literal(e.time)
+            );
+            let _ = writeln!(
+                o,
+                "        <trigger initialValue=\"false\" persistent=\"true\">\n          <math xmlns=\"http://www.w3.org/1998/Math/MathML\"><apply><geq/>{}<cn> {} </cn></apply></math>\n        </trigger>",
+                print_expr(&Expr::Time, &id, Syntax::MathML),
+                plain_literal(e.time)
+            );
+            let _ = writeln!(
+                o,
+                "        <listOfEventAssignments>\n          <eventAssignment variable=\"{sp}\">\n            <math xmlns=\"http://www.w3.org/1998/Math/MathML\">{value}</math>\n          </eventAssignment>\n        </listOfEventAssignments>\n      </event>"
+            );
+        }
+        o.push_str("    </listOfEvents>\n");
+    }
+    o.push_str("  </model>\n</sbml>\n");
+    o
+}
+
+fn name_attr(name: &str, description: Option<&str>) -> String {
+    match description {
+        Some(d) => format!(" name=\"{} ({})\"", xml_escape(name), xml_escape(d)),
+        None => format!(" name=\"{}\"", xml_escape(name)),
+    }
+}
