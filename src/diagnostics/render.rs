@@ -2,7 +2,7 @@
 //! colour so output is stable) and for programs (JSON).
 
 use super::{Diagnostic, Severity, SourceMap};
-use miette::{GraphicalReportHandler, GraphicalTheme, LabeledSpan, MietteDiagnostic, NamedSource};
+use miette::{GraphicalReportHandler, GraphicalTheme, LabeledSpan, MietteDiagnostic, MietteError, MietteSpanContents, SourceCode, SourceSpan, SpanContents};
 
 /// Renders one diagnostic as a user sees it in a terminal (no colour).
 pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
@@ -38,7 +38,7 @@ pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
     let mut out = String::new();
     let result = match primary_file.and_then(|f| sources.get(f)) {
         Some(file) => {
-            let source = NamedSource::new(file.path.display().to_string(), file.text.clone());
+            let source = WindowSource::around(&file.path.display().to_string(), &file.text, &diag.labels);
             let report = miette::Report::new(report).with_source_code(source);
             handler.render_report(&mut out, report.as_ref())
         }
@@ -101,4 +101,61 @@ pub fn to_json_value(diag: &Diagnostic, sources: &SourceMap) -> serde_json::Valu
 pub fn render_json(diags: &[Diagnostic], sources: &SourceMap) -> String {
     let values: Vec<_> = diags.iter().map(|d| to_json_value(d, sources)).collect();
     serde_json::to_string_pretty(&values).unwrap_or_else(|_| "[]".into())
+}
+
+/// The lines of a file around a diagnostic's labels, with their true line
+/// numbers: rendering reads only this window, so a diagnostic costs the size
+/// of its context, not of the file (a large generated file with many
+/// warnings would otherwise render in quadratic time).
+struct WindowSource {
+    name: String,
+    text: String,
+    base_offset: usize,
+    base_line: usize,
+}
+
+impl WindowSource {
+    const CONTEXT_LINES: usize = 3;
+
+    fn around(name: &str, text: &str, labels: &[super::Label]) -> WindowSource {
+        let first = labels.iter().map(|l| l.span.start).min().unwrap_or(0).min(text.len());
+        let last = labels.iter().map(|l| l.span.end).max().unwrap_or(0).min(text.len());
+        let line_start = |pos: usize| text[..pos].rfind('\n').map(|i| i + 1).unwrap_or(0);
+        let mut start = line_start(super::floor_char_boundary(text, first));
+        for _ in 0..Self::CONTEXT_LINES {
+            if start == 0 {
+                break;
+            }
+            start = line_start(start - 1);
+        }
+        let mut end = super::floor_char_boundary(text, last);
+        for _ in 0..=Self::CONTEXT_LINES {
+            match text[end..].find('\n') {
+                Some(i) => end += i + 1,
+                None => {
+                    end = text.len();
+                    break;
+                }
+            }
+        }
+        let base_line = text.as_bytes()[..start].iter().filter(|&&b| b == b'\n').count();
+        WindowSource { name: name.to_string(), text: text[start..end].to_string(), base_offset: start, base_line }
+    }
+}
+
+impl SourceCode for WindowSource {
+    fn read_span<'a>(&'a self, span: &SourceSpan, before: usize, after: usize) -> Result<Box<dyn SpanContents<'a> + 'a>, MietteError> {
+        let local_offset = span.offset().saturating_sub(self.base_offset).min(self.text.len());
+        let local = SourceSpan::new(local_offset.into(), span.len().min(self.text.len() - local_offset));
+        let inner = self.text.as_str().read_span(&local, before, after)?;
+        let shifted = SourceSpan::new((inner.span().offset() + self.base_offset).into(), inner.span().len());
+        Ok(Box::new(MietteSpanContents::new_named(
+            self.name.clone(),
+            inner.data(),
+            shifted,
+            inner.line() + self.base_line,
+            inner.column(),
+            inner.line_count(),
+        )))
+    }
 }
