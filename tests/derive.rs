@@ -1,0 +1,783 @@
+//! `ratewright derive` end to end, checked against outside references:
+//! published rate equations and kinetic constants (compared symbolically,
+//! as exact rational functions), the numerical steady state that `steady`
+//! finds for the full mechanism, and SymPy's solution of the same linear
+//! steady-state system.
+
+mod common;
+
+use common::{models, python, ratewright, root};
+use ratewright::algebra::poly::Vars;
+use ratewright::algebra::rational::RationalFunction;
+use ratewright::model::{Model, ParamDef, Rate, Sym, load_path};
+use serde_json::Value;
+use std::path::{Path, PathBuf};
+
+// ---------------------------------------------------------------------------
+// Published mechanisms (invented parameter values; the formulas are the
+// published ones).
+
+const BRIGGS_HALDANE: &str = r#"
+mechanism briggs_haldane "one substrate, irreversible product release"
+species S = 10 uM
+species P
+species E = 0.01 uM
+species ES
+param k1 = 1 /uM/s
+param km1 = 5 /s
+param k2 = 2 /s
+step bind E + S <=> ES with k1, km1
+step cat  ES -> E + P  with k2
+total Et = E + ES
+assume steady E, ES
+"#;
+
+const REVERSIBLE: &str = r#"
+mechanism reversible_one_substrate
+species S = 10 uM
+species P = 1 uM
+species E = 0.01 uM
+species ES
+param k1 = 1 /uM/s
+param km1 = 5 /s
+param k2 = 2 /s
+param km2 = 0.5 /uM/s
+step bind    E + S <=> ES with k1, km1
+step release ES <=> E + P with k2, km2
+total Et = E + ES
+assume steady E, ES
+"#;
+
+fn inhibited(extra_species: &str, extra_steps: &str, forms: &str) -> String {
+    format!(
+        r#"
+mechanism inhibited
+species S = 10 uM
+species P
+species I = 3 uM
+species E = 0.01 uM
+species ES
+{extra_species}
+param k1 = 1 /uM/s
+param km1 = 5 /s
+param k2 = 2 /s
+param ki = 2 /uM/s
+param kmi = 4 /s
+param kiu = 0.5 /uM/s
+param kmiu = 3 /s
+step bind E + S <=> ES with k1, km1
+step cat  ES -> E + P  with k2
+{extra_steps}
+total Et = E + ES + {forms}
+assume steady E, ES, {forms}
+"#
+    )
+}
+
+const SUBSTRATE_INHIBITION: &str = r#"
+mechanism substrate_inhibition
+species S = 10 uM
+species P
+species E = 0.01 uM
+species ES
+species SES
+param k1 = 1 /uM/s
+param km1 = 5 /s
+param k2 = 2 /s
+param k3 = 0.1 /uM/s
+param km3 = 7 /s
+step bind   E + S <=> ES with k1, km1
+step cat    ES -> E + P  with k2
+step second ES + S <=> SES with k3, km3
+total Et = E + ES + SES
+assume steady E, ES, SES
+"#;
+
+const ORDERED_BI_BI: &str = r#"
+mechanism ordered_bi_bi
+species A = 1 uM
+species B = 1 uM
+species P = 0.1 uM
+species Q = 0.1 uM
+species E = 0.01 uM
+species EA
+species EAB
+species EQ
+param k1 = 1 /uM/s
+param k2 = 2 /s
+param k3 = 3 /uM/s
+param k4 = 4 /s
+param k5 = 5 /s
+param k6 = 6 /uM/s
+param k7 = 7 /s
+param k8 = 8 /uM/s
+step s1 E + A <=> EA with k1, k2
+step s2 EA + B <=> EAB with k3, k4
+step s3 EAB <=> EQ + P with k5, k6
+step s4 EQ <=> E + Q with k7, k8
+total Et = E + EA + EAB + EQ
+assume steady E, EA, EAB, EQ
+"#;
+
+const PING_PONG: &str = r#"
+mechanism ping_pong_bi_bi
+species A = 1 uM
+species B = 1 uM
+species P = 0.1 uM
+species Q = 0.1 uM
+species E = 0.01 uM
+species EA
+species F
+species FB
+param k1 = 1 /uM/s
+param k2 = 2 /s
+param k3 = 3 /s
+param k4 = 4 /uM/s
+param k5 = 5 /uM/s
+param k6 = 6 /s
+param k7 = 7 /s
+param k8 = 8 /uM/s
+step s1 E + A <=> EA with k1, k2
+step s2 EA <=> F + P with k3, k4
+step s3 F + B <=> FB with k5, k6
+step s4 FB <=> E + Q with k7, k8
+total Et = E + EA + F + FB
+assume steady E, EA, F, FB
+"#;
+
+const THEORELL_CHANCE: &str = r#"
+mechanism theorell_chance
+species A = 1 uM
+species B = 1 uM
+species P = 0.1 uM
+species Q = 0.1 uM
+species E = 0.01 uM
+species EA
+species EQ
+param k1 = 1 /uM/s
+param k2 = 2 /s
+param k3 = 3 /uM/s
+param k4 = 4 /uM/s
+param k5 = 5 /s
+param k6 = 6 /uM/s
+step s1 E + A <=> EA with k1, k2
+step s2 EA + B <=> EQ + P with k3, k4
+step s3 EQ <=> E + Q with k5, k6
+total Et = E + EA + EQ
+assume steady E, EA, EQ
+"#;
+
+const RAPID_EQUILIBRIUM_RANDOM_BI_BI: &str = r#"
+mechanism rapid_equilibrium_random_bi_bi
+species A = 1 uM
+species B = 1 uM
+species P
+species Q
+species E = 0.01 uM
+species EA
+species EB
+species EAB
+param k1 = 1 /uM/s
+param km1 = 2 /s
+param k2 = 3 /uM/s
+param km2 = 4 /s
+param k3 = 5 /uM/s
+param km3 = 6 /s
+param k4 = 7 /uM/s
+param km4 = 8 /s
+param kcat = 9 /s
+step a_first  E + A <=> EA with k1, km1
+step b_first  E + B <=> EB with k2, km2
+step b_second EA + B <=> EAB with k3, km3
+step a_second EB + A <=> EAB with k4, km4
+step cat      EAB -> E + P + Q with kcat
+total Et = E + EA + EB + EAB
+assume steady E, EA, EB, EAB
+assume equilibrium a_first, b_first, b_second, a_second
+"#;
+
+// ---------------------------------------------------------------------------
+// Helpers.
+
+struct Written {
+    _dir: tempfile::TempDir,
+    path: PathBuf,
+}
+
+fn write(name: &str, text: &str) -> Written {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let path = dir.path().join(format!("{name}.mech"));
+    std::fs::write(&path, text).expect("write model");
+    Written { _dir: dir, path }
+}
+
+fn derive_json(path: &Path, extra: &[&str]) -> Value {
+    let p = path.to_string_lossy().to_string();
+    let mut args = vec!["derive", p.as_str(), "--format", "json"];
+    args.extend_from_slice(extra);
+    let out = ratewright(&args);
+    assert!(
+        out.status.success(),
+        "derive failed on {}:\n{}\n{}",
+        path.display(),
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("derive prints JSON")
+}
+
+fn rational(text: &str, vars: &mut Vars) -> RationalFunction {
+    RationalFunction::parse(text, vars).unwrap_or_else(|e| panic!("cannot parse `{text}`: {e}"))
+}
+
+/// Asserts that two expressions are the same rational function.
+fn assert_same(what: &str, derived: &str, published: &str) {
+    let mut vars = Vars::new();
+    let a = rational(derived, &mut vars);
+    let b = rational(published, &mut vars);
+    assert!(a.equals(&b), "{what}: derived `{derived}` differs from the published `{published}`");
+}
+
+fn constant<'a>(json: &'a Value, name: &str) -> &'a str {
+    json["constants"][name].as_str().unwrap_or_else(|| panic!("no constant `{name}` in {}", json["constants"]))
+}
+
+fn numerator_denominator(json: &Value) -> String {
+    format!("({})/({})", json["numerator"].as_str().unwrap(), json["denominator"].as_str().unwrap())
+}
+
+// ---------------------------------------------------------------------------
+// Published forms, compared symbolically.
+
+#[test]
+fn briggs_haldane_1925() {
+    let m = write("bh", BRIGGS_HALDANE);
+    let j = derive_json(&m.path, &[]);
+    // Briggs & Haldane (1925): v = V S / (Km + S), V = k2 E_t, Km = (k-1 + k2)/k1.
+    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1 + S)");
+    assert_same("numerator/denominator", &numerator_denominator(&j), "k2*Et*S/((km1 + k2)/k1 + S)");
+    assert_same("kcat", constant(&j, "kcat"), "k2");
+    assert_same("Km", constant(&j, "Km_S"), "(km1 + k2)/k1");
+    assert_eq!(j["rate_of"]["reaction"], "S -> P");
+}
+
+#[test]
+fn reversible_michaelis_menten_and_haldane_1930() {
+    let m = write("rev", REVERSIBLE);
+    let j = derive_json(&m.path, &[]);
+    // Haldane (1930): v = (Vf S/KS - Vr P/KP) / (1 + S/KS + P/KP) with
+    // Vf = k2 E_t, Vr = k-1 E_t, KS = (k-1 + k2)/k1, KP = (k-1 + k2)/k-2,
+    // and the Haldane relation Keq = Vf KP / (Vr KS) = k1 k2 / (k-1 k-2).
+    let ks = "((km1 + k2)/k1)";
+    let kp = "((km1 + k2)/km2)";
+    let published = format!("(k2*Et*S/{ks} - km1*Et*P/{kp}) / (1 + S/{ks} + P/{kp})");
+    assert_same("rate", j["rate"].as_str().unwrap(), &published);
+    assert_same("kcat", constant(&j, "kcat"), "k2");
+    assert_same("kcat_r", constant(&j, "kcat_r"), "km1");
+    assert_same("Km_S", constant(&j, "Km_S"), ks);
+    assert_same("Km_P", constant(&j, "Km_P"), kp);
+    assert_same("Keq", constant(&j, "Keq"), "k1*k2/(km1*km2)");
+    let haldane = &j["relations"][0];
+    assert_eq!(haldane["name"], "Haldane");
+    assert_eq!(haldane["holds"], true);
+    // The relation as printed, evaluated from the constants' definitions.
+    let mut vars = Vars::new();
+    let rhs = haldane["rhs"].as_str().unwrap();
+    let mut text = rhs.to_string();
+    for name in ["kcat_r", "kcat", "Km_S", "Km_P"] {
+        text = text.replace(name, &format!("({})", constant(&j, name)));
+    }
+    let lhs = rational(constant(&j, "Keq"), &mut vars);
+    assert!(lhs.equals(&rational(&text, &mut vars)), "Haldane relation {rhs} does not reproduce Keq");
+    assert_eq!(j["rate_of"]["reaction"], "S <=> P");
+}
+
+#[test]
+fn competitive_inhibition_segel_1975() {
+    let m = write("comp", &inhibited("species EI", "step block E + I <=> EI with ki, kmi", "EI"));
+    let j = derive_json(&m.path, &[]);
+    // Segel (1975), Enzyme Kinetics, ch. 3: v = V S / (Km (1 + I/Ki) + S), Ki = k-i/ki.
+    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1*(1 + I/(kmi/ki)) + S)");
+    assert_same("Ki", constant(&j, "Ki_I"), "kmi/ki");
+    assert!(j["constants"].get("Kii_I").is_none(), "a competitive inhibitor has no intercept constant");
+}
+
+#[test]
+fn uncompetitive_inhibition_segel_1975() {
+    let m = write("uncomp", &inhibited("species ESI", "step block ES + I <=> ESI with kiu, kmiu", "ESI"));
+    let j = derive_json(&m.path, &[]);
+    // Segel (1975), ch. 3: v = V S / (Km + S (1 + I/Ki')), Ki' = k-i/ki for ESI.
+    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1 + S*(1 + I/(kmiu/kiu)))");
+    assert_same("Kii", constant(&j, "Kii_I"), "kmiu/kiu");
+    assert!(j["constants"].get("Ki_I").is_none());
+}
+
+#[test]
+fn mixed_inhibition_segel_1975() {
+    let m = write(
+        "mixed",
+        &inhibited(
+            "species EI\nspecies ESI",
+            "step block_e E + I <=> EI with ki, kmi\nstep block_es ES + I <=> ESI with kiu, kmiu",
+            "EI + ESI",
+        )
+        .replace("assume steady E, ES, EI + ESI", "assume steady E, ES, EI, ESI"),
+    );
+    let j = derive_json(&m.path, &[]);
+    // Segel (1975), ch. 3 (mixed-type, dead-end EI and ESI):
+    // v = V S / (Km (1 + I/Ki) + S (1 + I/(alpha Ki))).
+    let published = "k2*Et*S/((km1 + k2)/k1*(1 + I/(kmi/ki)) + S*(1 + I/(kmiu/kiu)))";
+    assert_same("rate", j["rate"].as_str().unwrap(), published);
+    assert_same("Ki", constant(&j, "Ki_I"), "kmi/ki");
+    assert_same("Kii", constant(&j, "Kii_I"), "kmiu/kiu");
+}
+
+#[test]
+fn substrate_inhibition_haldane_1930_segel_1975() {
+    let m = write("subinh", SUBSTRATE_INHIBITION);
+    let j = derive_json(&m.path, &[]);
+    // Segel (1975), ch. 3 (after Haldane 1930): v = V S / (Km + S + S^2/KSi),
+    // KSi = k-3/k3 for the dead-end SES complex.
+    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1 + S + S^2/(km3/k3))");
+    assert_same("KSi", constant(&j, "Ksi_S"), "km3/k3");
+    assert_same("Km", constant(&j, "Km_S"), "(km1 + k2)/k1");
+}
+
+/// Cleland (1963) coefficient form of the ordered bi-bi mechanism, as
+/// tabulated in Segel (1975), ch. 9 (from memory).
+#[test]
+fn ordered_bi_bi_cleland_1963() {
+    let m = write("ordered", ORDERED_BI_BI);
+    let j = derive_json(&m.path, &[]);
+    let num = "Et*(k1*k3*k5*k7*A*B - k2*k4*k6*k8*P*Q)";
+    let den = "k2*k7*(k4 + k5) + k1*k7*(k4 + k5)*A + k3*k5*k7*B + k2*k4*k6*P + k2*k8*(k4 + k5)*Q \
+               + k1*k3*(k5 + k7)*A*B + k6*k8*(k2 + k4)*P*Q + k1*k4*k6*A*P + k3*k5*k8*B*Q \
+               + k1*k3*k6*A*B*P + k3*k6*k8*B*P*Q";
+    assert_same("numerator", j["numerator"].as_str().unwrap(), num);
+    assert_same("denominator", j["denominator"].as_str().unwrap(), den);
+    // Cleland's kinetic constants in rate constants (Segel 1975, ch. 9, from memory).
+    assert_same("V1/Et", constant(&j, "kcat"), "k5*k7/(k5 + k7)");
+    assert_same("V2/Et", constant(&j, "kcat_r"), "k2*k4/(k2 + k4)");
+    assert_same("Ka", constant(&j, "Km_A"), "k5*k7/(k1*(k5 + k7))");
+    assert_same("Kb", constant(&j, "Km_B"), "k7*(k4 + k5)/(k3*(k5 + k7))");
+    assert_same("Kp", constant(&j, "Km_P"), "k2*(k4 + k5)/(k6*(k2 + k4))");
+    assert_same("Kq", constant(&j, "Km_Q"), "k2*k4/(k8*(k2 + k4))");
+    assert_same("Kia", constant(&j, "Ki_A"), "k2/k1");
+    assert_same("Kiq", constant(&j, "Ki_Q"), "k7/k8");
+    assert_same("Keq", constant(&j, "Keq"), "k1*k3*k5*k7/(k2*k4*k6*k8)");
+    // Cleland's Haldane relation Keq = V1 Kp Kiq / (V2 Kia Kb), checked
+    // inside derive and reported.
+    assert_eq!(j["relations"][0]["holds"], true);
+}
+
+/// Ping-pong bi-bi in Cleland's (1963) coefficient form: no constant term
+/// and no A·B·P or B·P·Q terms (Segel 1975, ch. 9, from memory).
+#[test]
+fn ping_pong_bi_bi_cleland_1963() {
+    let m = write("pingpong", PING_PONG);
+    let j = derive_json(&m.path, &[]);
+    let num = "Et*(k1*k3*k5*k7*A*B - k2*k4*k6*k8*P*Q)";
+    let den = "k1*k3*(k6 + k7)*A + k5*k7*(k2 + k3)*B + k2*k4*(k6 + k7)*P + k6*k8*(k2 + k3)*Q \
+               + k1*k5*(k3 + k7)*A*B + k1*k4*(k6 + k7)*A*P + k5*k8*(k2 + k3)*B*Q + k4*k8*(k2 + k6)*P*Q";
+    assert_same("numerator", j["numerator"].as_str().unwrap(), num);
+    assert_same("denominator", j["denominator"].as_str().unwrap(), den);
+    assert_same("V1/Et", constant(&j, "kcat"), "k3*k7/(k3 + k7)");
+    assert_same("Ka", constant(&j, "Km_A"), "k7*(k2 + k3)/(k1*(k3 + k7))");
+    assert_same("Kb", constant(&j, "Km_B"), "k3*(k6 + k7)/(k5*(k3 + k7))");
+}
+
+/// Theorell & Chance (1951): ordered bi-bi without a kinetically significant
+/// ternary complex; coefficient form as in Segel (1975), ch. 9 (from memory).
+#[test]
+fn theorell_chance_1951() {
+    let m = write("tc", THEORELL_CHANCE);
+    let j = derive_json(&m.path, &[]);
+    let published = "Et*(k1*k3*k5*A*B - k2*k4*k6*P*Q) / (k2*k5 + k1*k5*A + k3*k5*B + k2*k4*P + k2*k6*Q \
+                     + k1*k3*A*B + k4*k6*P*Q + k1*k4*A*P + k3*k6*B*Q)";
+    assert_same("rate", j["rate"].as_str().unwrap(), published);
+    assert_same("Kia", constant(&j, "Ki_A"), "k2/k1");
+}
+
+/// Rapid-equilibrium random bi-bi (Segel 1975, ch. 6): with KA = k-1/k1,
+/// KB = k-2/k2 and alpha*KB = k-3/k3 (B leaving EAB),
+/// v = kcat Et A B / (KA alphaKB + alphaKB A + (KA alphaKB / KB) B + A B);
+/// the last coefficient is alpha*KA under detailed balance.
+#[test]
+fn rapid_equilibrium_random_bi_bi_segel_1975() {
+    let m = write("rerandom", RAPID_EQUILIBRIUM_RANDOM_BI_BI);
+    let j = derive_json(&m.path, &[]);
+    let (ka, kb, akb) = ("(km1/k1)", "(km2/k2)", "(km3/k3)");
+    let published = format!("kcat*Et*A*B/({ka}*{akb} + {akb}*A + {ka}*{akb}/{kb}*B + A*B)");
+    assert_same("rate", j["rate"].as_str().unwrap(), &published);
+    assert_same("kcat", constant(&j, "kcat"), "kcat");
+    assert_same("Kia", constant(&j, "Ki_A"), ka);
+    assert_same("Km_B (alpha KB)", constant(&j, "Km_B"), akb);
+    let notes = j["notes"].to_string();
+    assert!(notes.contains("cycle") && notes.contains("a_second"), "the closed cycle of equilibria is reported: {notes}");
+}
+
+/// Michaelis & Menten (1913): with the binding step at rapid equilibrium
+/// the Michaelis constant is the dissociation constant k-1/k1.
+#[test]
+fn options_override_assumptions_michaelis_menten_1913() {
+    let protease = root().join("models/protease_assay.mech");
+    let p = protease.to_string_lossy().to_string();
+    let j = derive_json(&protease, &["--equilibrium", "bind"]);
+    assert_same("Km", constant(&j, "Km_S"), "k_off/k_on");
+    assert_same("rate", j["rate"].as_str().unwrap(), "k_cat*E_t*S/(k_off/k_on + S)");
+    // --steady names the forms explicitly; an unknown name is a usage error.
+    let j2 = derive_json(&protease, &["--steady", "E,ES"]);
+    assert_same("Km", constant(&j2, "Km_S"), "(k_off + k_cat)/k_on");
+    let bad = ratewright(&["derive", &p, "--steady", "E,ESS"]);
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("ES"), "suggests the close name");
+}
+
+// ---------------------------------------------------------------------------
+// Diagnostics and the other rate targets.
+
+#[test]
+fn nonlinear_steady_state_is_a_located_error() {
+    let text = r#"
+species S = 1 uM
+species P
+species E = 0.1 uM
+species E2
+species E2S
+param kd = 1 /uM/s
+param kmd = 1 /s
+param k1 = 1 /uM/s
+param km1 = 1 /s
+param k2 = 1 /s
+step dimerise E + E <=> E2 with kd, kmd
+step bind E2 + S <=> E2S with k1, km1
+step cat E2S -> E2 + P with k2
+assume steady E, E2, E2S
+"#;
+    let m = write("dimer", text);
+    let p = m.path.to_string_lossy().to_string();
+    let out = ratewright(&["derive", &p]);
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("E0601") && err.contains("dimerise") && err.contains("nonlinear"), "{err}");
+    assert!(err.contains("E + E"), "points at the step text: {err}");
+    let json = ratewright(&["derive", &p, "--format", "json"]);
+    let v: Value = serde_json::from_slice(&json.stdout).expect("diagnostics as JSON");
+    assert!(v.to_string().contains("E0601"));
+}
+
+/// A branched mechanism (one complex, two products; common practice): no
+/// single overall reaction, so the user picks a species or a step.
+#[test]
+fn branched_mechanism_rates_per_species_and_per_step() {
+    let text = r#"
+species S = 10 uM
+species P
+species Q
+species E = 0.01 uM
+species ES
+param k1 = 1 /uM/s
+param km1 = 5 /s
+param k2 = 2 /s
+param k3 = 3 /s
+step bind E + S <=> ES with k1, km1
+step to_p ES -> E + P with k2
+step to_q ES -> E + Q with k3
+total Et = E + ES
+assume steady E, ES
+"#;
+    let m = write("branched", text);
+    let p = m.path.to_string_lossy().to_string();
+    let out = ratewright(&["derive", &p]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("E0602"));
+    // Both branches share Km = (k-1 + k2 + k3)/k1 (common practice).
+    let km = "((km1 + k2 + k3)/k1)";
+    let jp = derive_json(&m.path, &["--species", "P"]);
+    assert_same("dP/dt", jp["rate"].as_str().unwrap(), &format!("k2*Et*S/({km} + S)"));
+    let jq = derive_json(&m.path, &["--flux", "to_q"]);
+    assert_same("to_q", jq["rate"].as_str().unwrap(), &format!("k3*Et*S/({km} + S)"));
+    let js = derive_json(&m.path, &["--species", "S"]);
+    assert_same("dS/dt", js["rate"].as_str().unwrap(), &format!("-(k2 + k3)*Et*S/({km} + S)"));
+}
+
+#[test]
+fn size_limit_is_reported_and_can_be_raised() {
+    let m = write("rerandom", RAPID_EQUILIBRIUM_RANDOM_BI_BI);
+    let p = m.path.to_string_lossy().to_string();
+    // Without the rapid-equilibrium lumping, four forms in a square with a
+    // diagonal-free ring have 4 trees per root (16 terms) and more with the
+    // product step: a limit of 5 is exceeded.
+    let out = ratewright(&["derive", &p, "--equilibrium", "", "--max-terms", "5"]);
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("E0603") && err.contains("--max-terms"), "{err}");
+    let ok = ratewright(&["derive", &p, "--equilibrium", "", "--max-terms", "1000"]);
+    assert!(ok.status.success(), "{}", String::from_utf8_lossy(&ok.stderr));
+}
+
+#[test]
+fn mech_output_is_a_runnable_mechanism() {
+    let dir = tempfile::tempdir().unwrap();
+    for model in ["protease_assay", "dehydrogenase_ordered"] {
+        let src = root().join(format!("models/{model}.mech"));
+        let out = dir.path().join(format!("{model}_rate.mech"));
+        let (s, o) = (src.to_string_lossy().to_string(), out.to_string_lossy().to_string());
+        let r = ratewright(&["derive", &s, "--format", "mech", "-o", &o]);
+        assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+        let check = ratewright(&["check", &o]);
+        assert!(check.status.success(), "check rejects the derived mechanism:\n{}\n{}", std::fs::read_to_string(&out).unwrap(), String::from_utf8_lossy(&check.stderr));
+        let csv = dir.path().join(format!("{model}.csv"));
+        let run = ratewright(&["run", &o, "--until", "10", "-o", &csv.to_string_lossy()]);
+        assert!(run.status.success(), "{}", String::from_utf8_lossy(&run.stderr));
+        // The derived law, loaded by the front end, gives the same rate as
+        // the JSON form at the file's initial state.
+        let loaded = load_path(&out);
+        let dm = loaded.model.expect("derived mechanism loads");
+        let law = dm.step_rate(0);
+        let v_mech = dm.eval_at(&law, &dm.initial_state(), 0.0);
+        let j = derive_json(&src, &[]);
+        let v_json = eval_rate(j["rate"].as_str().unwrap(), &dm);
+        assert!((v_mech - v_json).abs() <= 1e-12 * v_json.abs(), "{v_mech} vs {v_json}");
+    }
+    // The latex form is a math environment.
+    let s = root().join("models/protease_assay.mech").to_string_lossy().to_string();
+    let tex = ratewright(&["derive", &s, "--format", "latex"]);
+    assert!(String::from_utf8_lossy(&tex.stdout).contains("\\frac{"));
+}
+
+/// Evaluates a rate string at a model's values (params, fixed, initial
+/// species values).
+fn eval_rate(text: &str, m: &Model) -> f64 {
+    let mut vars = Vars::new();
+    let r = rational(text, &mut vars);
+    let values: Vec<f64> = (0..vars.len())
+        .map(|v| {
+            let name = vars.name(v as u32);
+            let sym = m.lookup(name).unwrap_or_else(|| panic!("`{name}` is not in the model"));
+            m.initial_value(sym)
+        })
+        .collect();
+    r.eval(&|v| values[v as usize])
+}
+
+// ---------------------------------------------------------------------------
+// Numerical check against `steady` on the full mechanism.
+
+/// The file with every non-intermediate species clamped (`fixed`), so the
+/// full mechanism has the steady state the derivation assumes; events are
+/// dropped (they act on species that are now fixed).
+fn clamped(text: &str, forms: &[String]) -> String {
+    let mut out = String::new();
+    for line in text.lines() {
+        let t = line.trim_start();
+        if t.starts_with("add ") || t.starts_with("remove ") || t.starts_with("set ") {
+            continue;
+        }
+        if let Some(rest) = t.strip_prefix("species ") {
+            let name: String = rest.trim_start().chars().take_while(|c| c.is_alphanumeric() || *c == '_').collect();
+            let before_comment = rest.split('#').next().unwrap_or("");
+            assert!(!before_comment.split('"').next().unwrap_or("").contains(','), "one species a line expected: {line}");
+            if !forms.contains(&name) {
+                let has_value = before_comment.split('"').next().unwrap_or("").contains('=');
+                let body = if has_value { rest.to_string() } else { rest.replacen(&name, &format!("{name} = 1"), 1) };
+                out.push_str(&format!("fixed {body}\n"));
+                continue;
+            }
+        }
+        out.push_str(line);
+        out.push('\n');
+    }
+    out
+}
+
+/// A small deterministic generator (splitmix64), so failures reproduce.
+struct Rng(u64);
+impl Rng {
+    fn next(&mut self) -> f64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
+    }
+    /// Log-uniform factor in [1/10, 10].
+    fn factor(&mut self) -> f64 {
+        10f64.powf(2.0 * self.next() - 1.0)
+    }
+}
+
+fn steady_check(path: &Path, points: usize) {
+    let model = load_path(path).model.unwrap_or_else(|| panic!("{} loads", path.display()));
+    let forms: Vec<String> = model.assumptions.steady.iter().map(|(i, _)| model.species[*i].name.clone()).collect();
+    let text = std::fs::read_to_string(path).unwrap();
+    let variant = write("clamped", &clamped(&text, &forms));
+    let j = derive_json(path, &[]);
+    let rate_text = j["rate"].as_str().unwrap().to_string();
+    let product = j["rate_of"]["products"].as_object().and_then(|m| m.iter().next()).map(|(k, v)| (k.clone(), v.as_f64().unwrap()));
+    let (product, nu) = product.expect("an overall reaction with a product");
+    let product_index = model.species.iter().position(|s| s.name == product).unwrap();
+    let mut rng = Rng(0x5EED ^ path.to_string_lossy().len() as u64);
+    for point in 0..points {
+        let mut sets: Vec<(String, f64)> = Vec::new();
+        for p in &model.params {
+            if let ParamDef::Value(v) = p.definition {
+                sets.push((p.name.clone(), v * rng.factor()));
+            }
+        }
+        for (i, s) in model.species.iter().enumerate() {
+            if !forms.contains(&s.name) && touched(&model, i) {
+                sets.push((s.name.clone(), s.initial.max(1.0) * rng.factor()));
+            }
+        }
+        for f in &model.fixed {
+            sets.push((f.name.clone(), f.value * rng.factor()));
+        }
+        let vp = variant.path.to_string_lossy().to_string();
+        let mut args: Vec<String> = vec!["steady".into(), vp, "--format".into(), "json".into()];
+        for (n, v) in &sets {
+            args.push("--set".into());
+            args.push(format!("{n}={v:e}"));
+        }
+        let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+        let out = ratewright(&argv);
+        assert!(out.status.success(), "steady failed at point {point}: {}", String::from_utf8_lossy(&out.stderr));
+        let sj: Value = serde_json::from_slice(&out.stdout).unwrap();
+        // Full-mechanism flux from the numerical steady state.
+        let m = model.with_overrides(&sets).unwrap();
+        let y: Vec<f64> = m
+            .species
+            .iter()
+            .map(|s| if forms.contains(&s.name) { sj["state"][&s.name].as_f64().unwrap() } else { s.initial })
+            .collect();
+        let numeric: f64 = (0..m.steps.len())
+            .flat_map(|k| m.net_change(k).into_iter().map(move |(i, c)| (k, i, c)))
+            .filter(|(_, i, _)| *i == product_index)
+            .map(|(k, _, c)| ratewright::model::coef_f64(c) * m.eval_at(&m.step_rate(k), &y, 0.0))
+            .sum::<f64>()
+            / nu;
+        // The derived rate at the same values; the total is the forms' sum.
+        let mut vars = Vars::new();
+        let r = rational(&rate_text, &mut vars);
+        let values: Vec<f64> = (0..vars.len())
+            .map(|v| {
+                let name = vars.name(v as u32);
+                match m.lookup(name) {
+                    Some(Sym::Total(t)) => m.totals[t].terms.iter().map(|(i, c)| ratewright::model::coef_f64(*c) * y[*i]).sum(),
+                    Some(s) => m.value_at(s, &y, 0.0),
+                    None => panic!("`{name}` unknown"),
+                }
+            })
+            .collect();
+        let derived = r.eval(&|v| values[v as usize]);
+        let rel = (derived - numeric).abs() / numeric.abs().max(1e-300);
+        assert!(rel <= 1e-8, "{}: point {point}: derived {derived} vs steady {numeric} (rel {rel:e})", path.display());
+    }
+}
+
+fn touched(m: &Model, i: usize) -> bool {
+    m.steps.iter().any(|s| s.reactants.iter().chain(&s.products).any(|t| t.sym == Sym::Species(i)))
+}
+
+fn models_with_assumptions() -> Vec<PathBuf> {
+    models()
+        .into_iter()
+        .filter(|p| std::fs::read_to_string(p).map(|t| t.lines().any(|l| l.trim_start().starts_with("assume"))).unwrap_or(false))
+        .collect()
+}
+
+#[test]
+fn derived_rates_equal_numerical_steady_state_fluxes() {
+    let list = models_with_assumptions();
+    assert!(list.len() >= 3, "demo models with `assume` lines: {list:?}");
+    for path in list {
+        let model = load_path(&path).model.unwrap();
+        if !model.assumptions.equilibrium.is_empty() {
+            // Rapid equilibrium is a different approximation from the full
+            // steady state; its check is the SymPy one below.
+            continue;
+        }
+        steady_check(&path, 20);
+    }
+    for (name, text) in [("bh", BRIGGS_HALDANE), ("pp", PING_PONG), ("tc", THEORELL_CHANCE), ("si", SUBSTRATE_INHIBITION)] {
+        let m = write(name, text);
+        steady_check(&m.path, 20);
+    }
+}
+
+// ---------------------------------------------------------------------------
+// SymPy cross-check.
+
+fn sympy_spec(path: &Path) -> Option<Value> {
+    let model = load_path(path).model?;
+    let j = derive_json(path, &[]);
+    let name = |s: Sym| model.name_of(s).to_string();
+    let mut steps = Vec::new();
+    for st in &model.steps {
+        let side = |terms: &[ratewright::model::Term]| -> Value {
+            Value::Object(
+                terms
+                    .iter()
+                    .filter(|t| matches!(t.sym, Sym::Species(_) | Sym::Fixed(_)))
+                    .map(|t| (name(t.sym), serde_json::json!(ratewright::model::coef_f64(t.coefficient) as i64)))
+                    .collect(),
+            )
+        };
+        let Rate::MassAction { forward, reverse } = &st.rate else { return None };
+        let print = |e: &ratewright::model::Expr| ratewright::algebra::print::print_expr(e, &name, ratewright::algebra::print::Syntax::Mech);
+        steps.push(serde_json::json!({
+            "name": st.name,
+            "reactants": side(&st.reactants),
+            "products": side(&st.products),
+            "kf": print(forward),
+            "kr": reverse.as_ref().map(print),
+        }));
+    }
+    let (product, nu) = j["rate_of"]["products"].as_object()?.iter().next().map(|(k, v)| (k.clone(), v.clone()))?;
+    Some(serde_json::json!({
+        "forms": model.assumptions.steady.iter().map(|(i, _)| model.species[*i].name.clone()).collect::<Vec<_>>(),
+        "total": j["totals"][0]["name"],
+        "steps": steps,
+        "fast": model.assumptions.equilibrium.iter().map(|(k, _)| model.steps[*k].name.clone()).collect::<Vec<_>>(),
+        "rate_species": product,
+        "nu": nu,
+        "derived": j["rate"],
+    }))
+}
+
+#[test]
+fn sympy_solution_of_the_same_linear_system_agrees() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut paths: Vec<PathBuf> = models_with_assumptions();
+    let mut keep = Vec::new();
+    for (name, text) in [
+        ("bh", BRIGGS_HALDANE.to_string()),
+        ("rev", REVERSIBLE.to_string()),
+        ("si", SUBSTRATE_INHIBITION.to_string()),
+        ("ordered", ORDERED_BI_BI.to_string()),
+        ("pp", PING_PONG.to_string()),
+        ("tc", THEORELL_CHANCE.to_string()),
+        ("rerandom", RAPID_EQUILIBRIUM_RANDOM_BI_BI.to_string()),
+        ("mixed", inhibited("species EI\nspecies ESI", "step b1 E + I <=> EI with ki, kmi\nstep b2 ES + I <=> ESI with kiu, kmiu", "EI, ESI")
+            .replace("total Et = E + ES + EI, ESI", "total Et = E + ES + EI + ESI")),
+    ] {
+        let w = write(name, &text);
+        paths.push(w.path.clone());
+        keep.push(w);
+    }
+    let script = root().join("tests/python/derive_sympy.py");
+    let mut failures = Vec::new();
+    for (k, path) in paths.iter().enumerate() {
+        let spec = sympy_spec(path).unwrap_or_else(|| panic!("{}: mass-action model with an overall product", path.display()));
+        let spec_path = dir.path().join(format!("spec{k}.json"));
+        std::fs::write(&spec_path, spec.to_string()).unwrap();
+        let out = python(&script, &[&spec_path.to_string_lossy()]);
+        let stdout = String::from_utf8_lossy(&out.stdout);
+        assert!(out.status.success(), "SymPy script failed on {}:\n{}", path.display(), String::from_utf8_lossy(&out.stderr));
+        let v: Value = serde_json::from_str(stdout.trim()).unwrap();
+        if v["ok"] != true {
+            failures.push(format!("{}: {}", path.display(), v["difference"]));
+        }
+    }
+    assert!(failures.is_empty(), "SymPy disagrees:\n{}", failures.join("\n"));
+}
