@@ -46,6 +46,7 @@ pub fn run(args: &Args) -> ExitCode {
     let failed = errors > 0 || (args.deny_warnings && warnings > 0);
     match args.format {
         Format::Json => {
+            // One report over all files; each diagnostic names its file.
             let out = serde_json::json!({
                 "ok": !failed,
                 "errors": errors,

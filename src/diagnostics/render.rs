@@ -97,10 +97,18 @@ pub fn to_json_value(diag: &Diagnostic, sources: &SourceMap) -> serde_json::Valu
     })
 }
 
-/// A JSON array of diagnostics, pretty-printed.
+/// The JSON report of a set of diagnostics, the one shape every command
+/// uses: `{"ok", "errors", "warnings", "diagnostics": [...]}`, pretty-printed.
 pub fn render_json(diags: &[Diagnostic], sources: &SourceMap) -> String {
+    let errors = diags.iter().filter(|d| d.is_error()).count();
     let values: Vec<_> = diags.iter().map(|d| to_json_value(d, sources)).collect();
-    serde_json::to_string_pretty(&values).unwrap_or_else(|_| "[]".into())
+    let report = serde_json::json!({
+        "ok": errors == 0,
+        "errors": errors,
+        "warnings": diags.len() - errors,
+        "diagnostics": values,
+    });
+    serde_json::to_string_pretty(&report).unwrap_or_else(|_| "{}".into())
 }
 
 /// The lines of a file around a diagnostic's labels, with their true line
