@@ -1,14 +1,93 @@
-//! `ratewright diff` (being built; see the issue that owns it).
+//! `ratewright diff OLD NEW [--format human|json]`: what changed in meaning
+//! between two versions of a mechanism. Either side may be `REV:PATH`, read
+//! from git. Exit 0 when nothing changed in meaning, 1 when something did,
+//! 2 on errors (as line-diff tools do).
 
-use std::path::PathBuf;
+use super::Format;
+use super::common::{EXIT_MODEL, EXIT_OK, EXIT_USAGE, print_diagnostics};
+use crate::compare::{self, git};
+use crate::diagnostics::to_json_value;
+use crate::model::{self, Loaded, Model};
 use std::process::ExitCode;
 
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Mechanism file.
-    pub file: PathBuf,
+    /// The old version: a mechanism file, or REV:PATH read from git (e.g. HEAD~1:models/x.mech).
+    pub old: String,
+    /// The new version: a mechanism file, or REV:PATH.
+    pub new: String,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Human)]
+    pub format: Format,
 }
 
-pub fn run(_args: &Args) -> ExitCode {
-    super::common::usage_error("`diff` is not built yet")
+fn load(arg: &str) -> Loaded {
+    match git::classify(arg) {
+        git::Source::File(path) => model::load_path(&path),
+        git::Source::Revision { rev, path } => {
+            let cwd = std::env::current_dir().unwrap_or_default();
+            match git::load_revision(&rev, &path, &cwd) {
+                Ok(loaded) => loaded,
+                Err(d) => Loaded {
+                    sources: Default::default(),
+                    model: None,
+                    diagnostics: vec![d],
+                },
+            }
+        }
+    }
+}
+
+pub fn run(args: &Args) -> ExitCode {
+    let json = args.format == Format::Json;
+    let sides = [load(&args.old), load(&args.new)];
+    let failed = sides
+        .iter()
+        .any(|l| l.model.is_none() || l.diagnostics.iter().any(|d| d.is_error()));
+    if failed {
+        if json {
+            let errors: Vec<_> = sides
+                .iter()
+                .flat_map(|l| {
+                    l.diagnostics
+                        .iter()
+                        .filter(|d| d.is_error())
+                        .map(|d| to_json_value(d, &l.sources))
+                })
+                .collect();
+            println!(
+                "{}",
+                serde_json::to_string_pretty(&serde_json::json!({ "errors": errors }))
+                    .unwrap_or_default()
+            );
+        } else {
+            for l in &sides {
+                let errors: Vec<_> = l
+                    .diagnostics
+                    .iter()
+                    .filter(|d| d.is_error())
+                    .cloned()
+                    .collect();
+                print_diagnostics(&errors, &l.sources);
+            }
+        }
+        return ExitCode::from(EXIT_USAGE);
+    }
+    // Warnings are the business of `check`; a diff reports meaning only.
+    let [old, new] = sides.map(|l| l.model.unwrap_or_else(Model::default));
+    let comparison = compare::compare(&old, &new);
+    if json {
+        let doc = compare::report::json(&comparison, &args.old, &args.new);
+        println!("{}", serde_json::to_string_pretty(&doc).unwrap_or_default());
+    } else {
+        print!(
+            "{}",
+            compare::report::human(&comparison, &args.old, &args.new)
+        );
+    }
+    ExitCode::from(if comparison.changed() {
+        EXIT_MODEL
+    } else {
+        EXIT_OK
+    })
 }

@@ -1,0 +1,720 @@
+//! The changes of individual items, given the pairing: additions,
+//! removals, renames and, for paired items, which aspects differ.
+
+use super::pairing::all_syms;
+use super::sameness::{Context, Key, Side};
+use super::{Change, ChangeKind, Detail, ItemKind, Shown};
+use crate::algebra::print::{Syntax, plain_literal, print_expr};
+use crate::model::{Dim, Event, EventKind, Expr, Model, ParamDef, Rate, Sym, Term};
+
+/// Every change between the two models.
+pub fn changes(ctx: &Context) -> Vec<Change> {
+    let mut out = Vec::new();
+    named_changes(ctx, &mut out);
+    step_changes(ctx, &mut out);
+    event_changes(ctx, &mut out);
+    assumption_changes(ctx, &mut out);
+    out
+}
+
+fn item_kind(sym: Sym) -> ItemKind {
+    match sym {
+        Sym::Species(_) => ItemKind::Species,
+        Sym::Fixed(_) => ItemKind::Fixed,
+        Sym::Param(_) => ItemKind::Param,
+        Sym::Total(_) => ItemKind::Total,
+        Sym::Observable(_) => ItemKind::Observable,
+    }
+}
+
+/// A number in mechanism text.
+pub fn number(v: f64) -> String {
+    plain_literal(v)
+}
+
+/// A value with its unit, in the model's default units.
+fn quantity(model: &Model, value: f64, dim: Option<Dim>) -> Shown {
+    let unit = dim
+        .filter(|d| *d != Dim::NONE)
+        .map(|d| d.display_in(model.units));
+    Shown::Quantity { value, unit }
+}
+
+/// A quantity as mechanism text: `20 uM`, `2 /uM/s`, `3`.
+pub fn quantity_text(model: &Model, value: f64, dim: Option<Dim>) -> String {
+    match dim.filter(|d| *d != Dim::NONE) {
+        Some(d) => format!("{} {}", number(value), d.display_in(model.units)),
+        None => number(value),
+    }
+}
+
+pub fn expr_text(model: &Model, e: &Expr) -> String {
+    print_expr(e, &|s| model.name_of(s).to_string(), Syntax::Mech)
+}
+
+fn side_text(model: &Model, terms: &[Term]) -> String {
+    if terms.is_empty() {
+        return "0".into();
+    }
+    terms
+        .iter()
+        .map(|t| {
+            let name = model.name_of(t.sym);
+            if t.coefficient == num_traits::One::one() {
+                name.to_string()
+            } else {
+                format!("{} {name}", t.coefficient)
+            }
+        })
+        .collect::<Vec<_>>()
+        .join(" + ")
+}
+
+fn rate_text(model: &Model, rate: &Rate) -> String {
+    match rate {
+        Rate::MassAction {
+            forward,
+            reverse: None,
+        } => format!("with {}", expr_text(model, forward)),
+        Rate::MassAction {
+            forward,
+            reverse: Some(r),
+        } => format!(
+            "with {}, {}",
+            expr_text(model, forward),
+            expr_text(model, r)
+        ),
+        Rate::Law(e) => format!("law {}", expr_text(model, e)),
+    }
+}
+
+fn reaction_text(model: &Model, step: usize) -> String {
+    let s = &model.steps[step];
+    let arrow = if s.reversible { "<=>" } else { "->" };
+    format!(
+        "{} {arrow} {}",
+        side_text(model, &s.reactants),
+        side_text(model, &s.products)
+    )
+}
+
+pub fn step_text(model: &Model, step: usize) -> String {
+    let s = &model.steps[step];
+    format!(
+        "step {} {} {}",
+        s.name,
+        reaction_text(model, step),
+        rate_text(model, &s.rate)
+    )
+}
+
+fn param_dim(ctx: &Context, side: Side, i: usize) -> Option<Dim> {
+    ctx.dims(side).params[i]
+}
+
+/// A named item as one line of mechanism text.
+fn item_text(ctx: &Context, side: Side, sym: Sym) -> String {
+    let m = ctx.model(side);
+    let conc = Some(Dim::CONC);
+    match sym {
+        Sym::Species(i) => format!(
+            "species {} = {}",
+            m.species[i].name,
+            quantity_text(m, m.species[i].initial, conc)
+        ),
+        Sym::Fixed(i) => format!(
+            "fixed {} = {}",
+            m.fixed[i].name,
+            quantity_text(m, m.fixed[i].value, conc)
+        ),
+        Sym::Param(i) => {
+            let p = &m.params[i];
+            match &p.definition {
+                ParamDef::Value(v) => format!(
+                    "param {} = {}",
+                    p.name,
+                    quantity_text(m, *v, param_dim(ctx, side, i))
+                ),
+                ParamDef::Expr(e) => format!("param {} = {}", p.name, expr_text(m, e)),
+            }
+        }
+        Sym::Total(i) => {
+            let t = &m.totals[i];
+            let terms = t
+                .terms
+                .iter()
+                .map(|(s, c)| {
+                    if *c == num_traits::One::one() {
+                        m.species[*s].name.clone()
+                    } else {
+                        format!("{c} {}", m.species[*s].name)
+                    }
+                })
+                .collect::<Vec<_>>()
+                .join(" + ");
+            if t.value_given {
+                format!(
+                    "total {} = {terms} = {}",
+                    t.name,
+                    quantity_text(m, t.value, conc)
+                )
+            } else {
+                format!("total {} = {terms}", t.name)
+            }
+        }
+        Sym::Observable(i) => format!(
+            "observe {} = {}",
+            m.observables[i].name,
+            expr_text(m, &m.observables[i].expr)
+        ),
+    }
+}
+
+fn kind_word(sym: Sym) -> &'static str {
+    match sym {
+        Sym::Species(_) => "species",
+        Sym::Fixed(_) => "fixed",
+        Sym::Param(_) => "param",
+        Sym::Total(_) => "total",
+        Sym::Observable(_) => "observe",
+    }
+}
+
+fn named_changes(ctx: &Context, out: &mut Vec<Change>) {
+    let (old, new) = (ctx.old, ctx.new);
+    for sym in all_syms(old) {
+        match ctx.pairing.named.get(&sym) {
+            None => out.push(Change {
+                item: item_kind(sym),
+                kind: ChangeKind::Removed,
+                old_name: Some(old.name_of(sym).to_string()),
+                new_name: None,
+                old_text: Some(item_text(ctx, Side::Old, sym)),
+                new_text: None,
+                details: vec![],
+            }),
+            Some(&paired) => {
+                let (on, nn) = (old.name_of(sym), new.name_of(paired));
+                let details = named_details(ctx, sym, paired);
+                let base = |kind| Change {
+                    item: item_kind(sym),
+                    kind,
+                    old_name: Some(on.to_string()),
+                    new_name: Some(nn.to_string()),
+                    old_text: Some(item_text(ctx, Side::Old, sym)),
+                    new_text: Some(item_text(ctx, Side::New, paired)),
+                    details: vec![],
+                };
+                if on != nn {
+                    out.push(base(ChangeKind::Renamed));
+                }
+                if !details.is_empty() {
+                    out.push(Change {
+                        details,
+                        ..base(ChangeKind::Changed)
+                    });
+                }
+            }
+        }
+    }
+    for sym in all_syms(new) {
+        if !ctx.pairing.named_back.contains_key(&sym) {
+            out.push(Change {
+                item: item_kind(sym),
+                kind: ChangeKind::Added,
+                old_name: None,
+                new_name: Some(new.name_of(sym).to_string()),
+                old_text: None,
+                new_text: Some(item_text(ctx, Side::New, sym)),
+                details: vec![],
+            });
+        }
+    }
+}
+
+/// What differs between two paired named items.
+fn named_details(ctx: &Context, a: Sym, b: Sym) -> Vec<Detail> {
+    let (old, new) = (ctx.old, ctx.new);
+    let conc = Some(Dim::CONC);
+    let mut d = Vec::new();
+    let value_of = |m: &Model, s: Sym| match s {
+        Sym::Species(i) => Some(m.species[i].initial),
+        Sym::Fixed(i) => Some(m.fixed[i].value),
+        _ => None,
+    };
+    match (a, b) {
+        (Sym::Species(i), Sym::Species(k)) => {
+            if !ctx.same_value(old.species[i].initial, new.species[k].initial, conc) {
+                d.push(Detail {
+                    aspect: "initial",
+                    old: quantity(old, old.species[i].initial, conc),
+                    new: quantity(new, new.species[k].initial, conc),
+                });
+            }
+        }
+        (Sym::Fixed(i), Sym::Fixed(k)) => {
+            if !ctx.same_value(old.fixed[i].value, new.fixed[k].value, conc) {
+                d.push(Detail {
+                    aspect: "value",
+                    old: quantity(old, old.fixed[i].value, conc),
+                    new: quantity(new, new.fixed[k].value, conc),
+                });
+            }
+        }
+        (Sym::Param(i), Sym::Param(k)) => {
+            let (p, q) = (&old.params[i], &new.params[k]);
+            let (dp, dq) = (param_dim(ctx, Side::Old, i), param_dim(ctx, Side::New, k));
+            match (&p.definition, &q.definition) {
+                (ParamDef::Value(x), ParamDef::Value(y)) => {
+                    if !ctx.same_value(*x, *y, dp.or(dq)) {
+                        d.push(Detail {
+                            aspect: "value",
+                            old: quantity(old, *x, dp),
+                            new: quantity(new, *y, dq),
+                        });
+                    }
+                    if let (Some(x), Some(y)) = (dp, dq) {
+                        if x != y {
+                            d.push(Detail {
+                                aspect: "dimension",
+                                old: Shown::Text(x.to_string()),
+                                new: Shown::Text(y.to_string()),
+                            });
+                        }
+                    }
+                }
+                _ => {
+                    if !ctx.same_param_definition(i, k) {
+                        let text = |m: &Model, def: &ParamDef, dim| match def {
+                            ParamDef::Value(v) => quantity_text(m, *v, dim),
+                            ParamDef::Expr(e) => expr_text(m, e),
+                        };
+                        d.push(Detail {
+                            aspect: "definition",
+                            old: Shown::Text(text(old, &p.definition, dp)),
+                            new: Shown::Text(text(new, &q.definition, dq)),
+                        });
+                    }
+                    // A derived value can change through its parts; say so here too.
+                    if !ctx.same_value(p.value, q.value, dp.or(dq)) {
+                        d.push(Detail {
+                            aspect: "value",
+                            old: quantity(old, p.value, dp),
+                            new: quantity(new, q.value, dq),
+                        });
+                    }
+                }
+            }
+        }
+        (Sym::Total(i), Sym::Total(k)) => {
+            let (t, u) = (&old.totals[i], &new.totals[k]);
+            let terms = |side: Side,
+                         tt: &crate::model::Total|
+             -> std::collections::BTreeMap<Key, crate::model::Coef> {
+                tt.terms
+                    .iter()
+                    .map(|(s, c)| (ctx.key(side, Sym::Species(*s)), *c))
+                    .collect()
+            };
+            if terms(Side::Old, t) != terms(Side::New, u) {
+                let text = |m: &Model, tt: &crate::model::Total| {
+                    tt.terms
+                        .iter()
+                        .map(|(s, c)| {
+                            if *c == num_traits::One::one() {
+                                m.species[*s].name.clone()
+                            } else {
+                                format!("{c} {}", m.species[*s].name)
+                            }
+                        })
+                        .collect::<Vec<_>>()
+                        .join(" + ")
+                };
+                d.push(Detail {
+                    aspect: "terms",
+                    old: Shown::Text(text(old, t)),
+                    new: Shown::Text(text(new, u)),
+                });
+            }
+            if (t.value_given || u.value_given)
+                && (t.value_given != u.value_given || !ctx.same_value(t.value, u.value, conc))
+            {
+                let shown = |m: &Model, tt: &crate::model::Total| {
+                    if tt.value_given {
+                        quantity(m, tt.value, conc)
+                    } else {
+                        Shown::Absent
+                    }
+                };
+                d.push(Detail {
+                    aspect: "value",
+                    old: shown(old, t),
+                    new: shown(new, u),
+                });
+            }
+        }
+        (Sym::Observable(i), Sym::Observable(k)) => {
+            if !ctx.same_observable(i, k) {
+                d.push(Detail {
+                    aspect: "expression",
+                    old: Shown::Text(expr_text(old, &old.observables[i].expr)),
+                    new: Shown::Text(expr_text(new, &new.observables[k].expr)),
+                });
+            }
+        }
+        _ => {
+            // The name now stands for another kind of item (a species that
+            // became fixed, a param that became a species, ...).
+            d.push(Detail {
+                aspect: "kind",
+                old: Shown::Text(kind_word(a).into()),
+                new: Shown::Text(kind_word(b).into()),
+            });
+            if let (Some(x), Some(y)) = (value_of(old, a), value_of(new, b)) {
+                if !ctx.same_value(x, y, conc) {
+                    d.push(Detail {
+                        aspect: "value",
+                        old: quantity(old, x, conc),
+                        new: quantity(new, y, conc),
+                    });
+                }
+            }
+        }
+    }
+    d
+}
+
+fn step_changes(ctx: &Context, out: &mut Vec<Change>) {
+    let (old, new) = (ctx.old, ctx.new);
+    for j in 0..old.steps.len() {
+        match ctx.pairing.steps.get(&j) {
+            None => out.push(Change {
+                item: ItemKind::Step,
+                kind: ChangeKind::Removed,
+                old_name: Some(old.steps[j].name.clone()),
+                new_name: None,
+                old_text: Some(step_text(old, j)),
+                new_text: None,
+                details: vec![],
+            }),
+            Some(&k) => {
+                let (on, nn) = (&old.steps[j].name, &new.steps[k].name);
+                let base = |kind| Change {
+                    item: ItemKind::Step,
+                    kind,
+                    old_name: Some(on.clone()),
+                    new_name: Some(nn.clone()),
+                    old_text: Some(step_text(old, j)),
+                    new_text: Some(step_text(new, k)),
+                    details: vec![],
+                };
+                if on != nn {
+                    out.push(base(ChangeKind::Renamed));
+                }
+                let details = step_details(ctx, j, k);
+                if !details.is_empty() {
+                    out.push(Change {
+                        details,
+                        ..base(ChangeKind::Changed)
+                    });
+                }
+            }
+        }
+    }
+    for k in 0..new.steps.len() {
+        if !ctx.pairing.steps_back.contains_key(&k) {
+            out.push(Change {
+                item: ItemKind::Step,
+                kind: ChangeKind::Added,
+                old_name: None,
+                new_name: Some(new.steps[k].name.clone()),
+                old_text: None,
+                new_text: Some(step_text(new, k)),
+                details: vec![],
+            });
+        }
+    }
+}
+
+fn step_details(ctx: &Context, j: usize, k: usize) -> Vec<Detail> {
+    let (old, new) = (ctx.old, ctx.new);
+    let (a, b) = (&old.steps[j], &new.steps[k]);
+    let mut d = Vec::new();
+    let reactants_same =
+        ctx.side_keys(Side::Old, &a.reactants) == ctx.side_keys(Side::New, &b.reactants);
+    let products_same =
+        ctx.side_keys(Side::Old, &a.products) == ctx.side_keys(Side::New, &b.products);
+    let swapped = ctx.side_keys(Side::Old, &a.reactants) == ctx.side_keys(Side::New, &b.products)
+        && ctx.side_keys(Side::Old, &a.products) == ctx.side_keys(Side::New, &b.reactants);
+    if !reactants_same
+        && !products_same
+        && swapped
+        && a.reversible == b.reversible
+        && ctx.opposite_rate(j, k)
+    {
+        // Same dynamics; only the direction in which the net rate counts changed.
+        d.push(Detail {
+            aspect: "direction",
+            old: Shown::Text(reaction_text(old, j)),
+            new: Shown::Text(reaction_text(new, k)),
+        });
+        return d;
+    }
+    if !reactants_same {
+        d.push(Detail {
+            aspect: "reactants",
+            old: Shown::Text(side_text(old, &a.reactants)),
+            new: Shown::Text(side_text(new, &b.reactants)),
+        });
+    }
+    if !products_same {
+        d.push(Detail {
+            aspect: "products",
+            old: Shown::Text(side_text(old, &a.products)),
+            new: Shown::Text(side_text(new, &b.products)),
+        });
+    }
+    if a.reversible != b.reversible {
+        d.push(Detail {
+            aspect: "reversible",
+            old: Shown::Flag(a.reversible),
+            new: Shown::Flag(b.reversible),
+        });
+    }
+    // With the same sides the net rates compare directly. With other sides a
+    // mass-action rate differs by construction, so compare the constants.
+    let rate_same = if reactants_same && products_same {
+        ctx.same_rate(j, k)
+    } else {
+        match (&a.rate, &b.rate) {
+            (
+                Rate::MassAction {
+                    forward: fa,
+                    reverse: ra,
+                },
+                Rate::MassAction {
+                    forward: fb,
+                    reverse: rb,
+                },
+            ) => {
+                let dims = |side: Side, e: &Expr| ctx.expr_dim(side, e);
+                ctx.same_expr(fa, fb, (dims(Side::Old, fa), dims(Side::New, fb)))
+                    && match (ra, rb) {
+                        (Some(x), Some(y)) => {
+                            ctx.same_expr(x, y, (dims(Side::Old, x), dims(Side::New, y)))
+                        }
+                        (None, None) => true,
+                        _ => false,
+                    }
+            }
+            _ => ctx.same_rate(j, k),
+        }
+    };
+    if !rate_same {
+        d.push(Detail {
+            aspect: "rate",
+            old: Shown::Text(rate_text(old, &a.rate)),
+            new: Shown::Text(rate_text(new, &b.rate)),
+        });
+    }
+    d
+}
+
+fn event_kind_word(k: EventKind) -> &'static str {
+    match k {
+        EventKind::Add => "add",
+        EventKind::Remove => "remove",
+        EventKind::Set => "set",
+    }
+}
+
+pub fn event_text(model: &Model, e: &Event) -> String {
+    let conc = Some(Dim::CONC);
+    let name = &model.species[e.species].name;
+    let amount = quantity_text(model, e.amount, conc);
+    let time = quantity_text(model, e.time, Some(Dim::TIME));
+    match e.kind {
+        EventKind::Set => format!("set {name} = {amount} at {time}"),
+        k => format!("{} {amount} {name} at {time}", event_kind_word(k)),
+    }
+}
+
+fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
+    let (old, new) = (ctx.old, ctx.new);
+    let conc = Some(Dim::CONC);
+    let time = Some(Dim::TIME);
+    let species = |side: Side, e: &Event| ctx.key(side, Sym::Species(e.species));
+    let mut old_left: Vec<usize> = (0..old.events.len()).collect();
+    let mut new_left: Vec<usize> = (0..new.events.len()).collect();
+    // Identical events first, then the same event at another amount, then at another time.
+    let passes: [&dyn Fn(&Event, &Event) -> bool; 3] = [
+        &|a, b| ctx.same_value(a.amount, b.amount, conc) && ctx.same_value(a.time, b.time, time),
+        &|a, b| ctx.same_value(a.time, b.time, time),
+        &|a, b| ctx.same_value(a.amount, b.amount, conc),
+    ];
+    for (pass, fits) in passes.iter().enumerate() {
+        let mut i = 0;
+        while i < old_left.len() {
+            let a = &old.events[old_left[i]];
+            let found = new_left.iter().position(|&k| {
+                let b = &new.events[k];
+                a.kind == b.kind && species(Side::Old, a) == species(Side::New, b) && fits(a, b)
+            });
+            match found {
+                Some(p) => {
+                    let b = &new.events[new_left.remove(p)];
+                    old_left.remove(i);
+                    if pass > 0 {
+                        let mut details = Vec::new();
+                        if !ctx.same_value(a.amount, b.amount, conc) {
+                            details.push(Detail {
+                                aspect: "amount",
+                                old: quantity(old, a.amount, conc),
+                                new: quantity(new, b.amount, conc),
+                            });
+                        }
+                        if !ctx.same_value(a.time, b.time, time) {
+                            details.push(Detail {
+                                aspect: "time",
+                                old: quantity(old, a.time, time),
+                                new: quantity(new, b.time, time),
+                            });
+                        }
+                        out.push(Change {
+                            item: ItemKind::Event,
+                            kind: ChangeKind::Changed,
+                            old_name: Some(event_text(old, a)),
+                            new_name: Some(event_text(new, b)),
+                            old_text: Some(event_text(old, a)),
+                            new_text: Some(event_text(new, b)),
+                            details,
+                        });
+                    }
+                }
+                None => i += 1,
+            }
+        }
+    }
+    for i in old_left {
+        let t = event_text(old, &old.events[i]);
+        out.push(Change {
+            item: ItemKind::Event,
+            kind: ChangeKind::Removed,
+            old_name: Some(t.clone()),
+            new_name: None,
+            old_text: Some(t),
+            new_text: None,
+            details: vec![],
+        });
+    }
+    for k in new_left {
+        let t = event_text(new, &new.events[k]);
+        out.push(Change {
+            item: ItemKind::Event,
+            kind: ChangeKind::Added,
+            old_name: None,
+            new_name: Some(t.clone()),
+            old_text: None,
+            new_text: Some(t),
+            details: vec![],
+        });
+    }
+}
+
+fn assumption_changes(ctx: &Context, out: &mut Vec<Change>) {
+    let (old, new) = (ctx.old, ctx.new);
+    let mut details = Vec::new();
+    let steady = |side: Side, m: &Model| -> std::collections::BTreeSet<Key> {
+        m.assumptions
+            .steady
+            .iter()
+            .map(|(i, _)| ctx.key(side, Sym::Species(*i)))
+            .collect()
+    };
+    if steady(Side::Old, old) != steady(Side::New, new) {
+        let names = |m: &Model| {
+            Shown::Names(
+                m.assumptions
+                    .steady
+                    .iter()
+                    .map(|(i, _)| m.species[*i].name.clone())
+                    .collect(),
+            )
+        };
+        details.push(Detail {
+            aspect: "steady",
+            old: names(old),
+            new: names(new),
+        });
+    }
+    // Steps are identified through the step pairing.
+    let eq_old: std::collections::BTreeSet<Option<usize>> = old
+        .assumptions
+        .equilibrium
+        .iter()
+        .map(|(j, _)| ctx.pairing.steps.get(j).copied())
+        .collect();
+    let eq_new: std::collections::BTreeSet<Option<usize>> = new
+        .assumptions
+        .equilibrium
+        .iter()
+        .map(|(k, _)| Some(*k))
+        .collect();
+    if eq_old != eq_new || eq_old.contains(&None) {
+        let names = |m: &Model| {
+            Shown::Names(
+                m.assumptions
+                    .equilibrium
+                    .iter()
+                    .map(|(j, _)| m.steps[*j].name.clone())
+                    .collect(),
+            )
+        };
+        details.push(Detail {
+            aspect: "equilibrium",
+            old: names(old),
+            new: names(new),
+        });
+    }
+    if !details.is_empty() {
+        let text = |m: &Model| {
+            let mut parts = Vec::new();
+            if !m.assumptions.steady.is_empty() {
+                parts.push(format!(
+                    "assume steady {}",
+                    m.assumptions
+                        .steady
+                        .iter()
+                        .map(|(i, _)| m.species[*i].name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ));
+            }
+            if !m.assumptions.equilibrium.is_empty() {
+                parts.push(format!(
+                    "assume equilibrium {}",
+                    m.assumptions
+                        .equilibrium
+                        .iter()
+                        .map(|(j, _)| m.steps[*j].name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ));
+            }
+            if parts.is_empty() {
+                None
+            } else {
+                Some(parts.join("; "))
+            }
+        };
+        out.push(Change {
+            item: ItemKind::Assumption,
+            kind: ChangeKind::Changed,
+            old_name: Some("assume".into()),
+            new_name: Some("assume".into()),
+            old_text: text(old),
+            new_text: text(new),
+            details,
+        });
+    }
+}
