@@ -59,10 +59,23 @@ pub fn simulate(model: &Model, system: &CompiledSystem, settings: &Settings, tim
     if times.windows(2).any(|w| w[1] < w[0]) {
         return Err(SimError::input("output times must be in increasing order"));
     }
-    if system.nstates > crate::numeric::SPARSE_THRESHOLD {
-        simulate_sparse(model, system, settings, times)
-    } else {
-        simulate_dense(model, system, settings, times)
+    let algebra = if system.nstates > crate::numeric::SPARSE_THRESHOLD { LinearAlgebra::Sparse } else { LinearAlgebra::Dense };
+    simulate_with(model, system, settings, times, algebra)
+}
+
+/// Dense (nalgebra LU) or sparse (faer sparse LU) Newton systems.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LinearAlgebra {
+    Dense,
+    Sparse,
+}
+
+/// [`simulate`] with the linear algebra chosen by the caller (benchmarks
+/// use it to measure where sparse starts to pay).
+pub fn simulate_with(model: &Model, system: &CompiledSystem, settings: &Settings, times: &[f64], algebra: LinearAlgebra) -> Result<Trajectory, SimError> {
+    match algebra {
+        LinearAlgebra::Sparse => simulate_sparse(model, system, settings, times),
+        LinearAlgebra::Dense => simulate_dense(model, system, settings, times),
     }
 }
 

@@ -1,0 +1,52 @@
+#!/usr/bin/env bash
+# Reproduces the simulation benchmarks of docs/benchmarks.md (section
+# "Simulation"). Builds release binaries once, then measures side by side in
+# one run:
+#  (a) Robertson to 1e11: the tool in process and as a whole process, against
+#      SciPy solve_ivp LSODA and BDF with the analytic Jacobian (in process
+#      and whole process);
+#  (b) a generated 1,000-species, 3,000-step network against SciPy BDF with
+#      a sparse analytic Jacobian;
+#  (c) the compiled model against a hand-written Rust RHS and Jacobian
+#      handed to diffsol.
+# Usage: bench/run_sim_bench.sh [REPS]   (from the repository root)
+set -euo pipefail
+cd "$(dirname "$0")/.."
+REPS=${1:-30}
+cargo build --release --bin ratewright --example sim_bench >&2
+BIN=target/release/ratewright
+BENCH=target/release/examples/sim_bench
+OUT=target/sim-bench
+mkdir -p "$OUT"
+
+echo "# (a) Robertson to t = 1e11, rtol 1e-8, atol 1e-12"
+$BENCH robertson "$REPS"
+python3 bench/sim_robertson_scipy.py "$REPS"
+
+# Whole processes: median wall time of REPS runs each.
+python3 - "$REPS" "$BIN" <<'PY'
+import statistics, subprocess, sys, time
+reps, binary = int(sys.argv[1]), sys.argv[2]
+def wall(cmd):
+    ts = []
+    for _ in range(reps):
+        t0 = time.perf_counter()
+        subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
+        ts.append(time.perf_counter() - t0)
+    return statistics.median(ts)
+print(f"process_tool_seconds {wall([binary, 'run', 'models/robertson.mech', '--times', '1e11', '--rtol', '1e-8', '--atol', '1e-12']):.6e}")
+print(f"process_scipy_lsoda_seconds {wall(['python3', 'bench/sim_robertson_scipy.py', 'once', 'LSODA']):.6e}")
+print(f"process_scipy_bdf_seconds {wall(['python3', 'bench/sim_robertson_scipy.py', 'once', 'BDF']):.6e}")
+PY
+
+echo "# (b) generated network: 1,000 species, 3,000 steps, to t = 10, rtol 1e-6, atol 1e-10"
+$BENCH network "$OUT"
+$BENCH network-run "$OUT" 5
+python3 - "$BIN" "$OUT" <<'PY'
+import subprocess, sys, time
+binary, out = sys.argv[1], sys.argv[2]
+t0 = time.perf_counter()
+subprocess.run([binary, 'run', f'{out}/network.mech', '--times', '10', '-o', f'{out}/network.csv'], check=True, stderr=subprocess.DEVNULL)
+print(f"process_tool_network_seconds {time.perf_counter() - t0:.6e}")
+PY
+python3 bench/sim_network_scipy.py "$OUT"
