@@ -27,9 +27,15 @@ fn item_kind(sym: Sym) -> ItemKind {
     }
 }
 
-/// A number in mechanism text.
+/// A number for people: 12 significant digits, so that a value converted
+/// between units (0.44999999999999996) shows as written (0.45). The JSON
+/// output keeps the full value.
 pub fn number(v: f64) -> String {
-    plain_literal(v)
+    if !v.is_finite() {
+        return plain_literal(v);
+    }
+    let rounded: f64 = format!("{v:.11e}").parse().unwrap_or(v);
+    plain_literal(rounded)
 }
 
 /// A value with its unit, in the model's default units.
@@ -298,7 +304,7 @@ fn named_details(ctx: &Context, a: Sym, b: Sym) -> Vec<Detail> {
                     // A derived value can change through its parts; say so here too.
                     if !ctx.same_value(p.value, q.value, dp.or(dq)) {
                         d.push(Detail {
-                            aspect: "value",
+                            aspect: "evaluated",
                             old: quantity(old, p.value, dp),
                             new: quantity(new, q.value, dq),
                         });

@@ -102,7 +102,7 @@ pub enum Shown {
 /// One aspect of a changed item, old and new.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Detail {
-    /// `initial`, `value`, `definition`, `kind`, `reactants`, `products`,
+    /// `initial`, `value`, `evaluated` (a derived param's value), `definition`, `dimension`, `kind`, `reactants`, `products`,
     /// `reversible`, `rate`, `direction`, `terms`, `expression`, `amount`,
     /// `time`, `steady`, `equilibrium`.
     pub aspect: &'static str,

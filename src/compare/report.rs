@@ -3,8 +3,8 @@
 //! returned as strings; the command prints them.
 
 use super::consequences::{Both, RateLawStatus};
+use super::items::number;
 use super::{ChangeKind, Comparison, Detail, ItemKind, Shown};
-use crate::algebra::print::plain_literal;
 use serde_json::{Value, json};
 
 /// Bumped only when a field changes meaning or disappears; new fields may
@@ -16,8 +16,8 @@ fn shown_text(s: &Shown) -> String {
         Shown::Quantity {
             value,
             unit: Some(u),
-        } => format!("{} {u}", plain_literal(*value)),
-        Shown::Quantity { value, unit: None } => plain_literal(*value),
+        } => format!("{} {u}", number(*value)),
+        Shown::Quantity { value, unit: None } => number(*value),
         Shown::Text(t) => t.clone(),
         Shown::Flag(true) => "yes".into(),
         Shown::Flag(false) => "no".into(),
@@ -40,6 +40,7 @@ fn shown_json(s: &Shown) -> Value {
 fn aspect_words(d: &Detail) -> &'static str {
     match d.aspect {
         "initial" => "initial value",
+        "evaluated" => "value (from its definition)",
         "reversible" => "reversible",
         "direction" => "written the other way round (same dynamics)",
         other => other,
