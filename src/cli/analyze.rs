@@ -45,7 +45,11 @@ pub fn run(args: &Args) -> ExitCode {
         Err(d) => return report(d, &sources, json),
     };
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());
-    let written = if json { write_json(&mut out, &model, &analysis) } else { write_human(&mut out, &model, &analysis) };
+    let written = if json {
+        write_json(&mut out, &model, &analysis)
+    } else {
+        write_human(&mut out, &model, &analysis)
+    };
     match written.and_then(|_| out.flush()) {
         Ok(()) => ExitCode::SUCCESS,
         // A closed pipe (e.g. `| head`) is not the model's fault.
@@ -64,11 +68,19 @@ fn report(d: crate::diagnostics::Diagnostic, sources: &SourceMap, json: bool) ->
 }
 
 fn coef_text(c: &Coef) -> String {
-    if c.is_integer() { c.numer().to_string() } else { format!("{}/{}", c.numer(), c.denom()) }
+    if c.is_integer() {
+        c.numer().to_string()
+    } else {
+        format!("{}/{}", c.numer(), c.denom())
+    }
 }
 
 fn coef_json(c: &Coef) -> Value {
-    if c.is_integer() { json!(c.numer()) } else { json!(format!("{}/{}", c.numer(), c.denom())) }
+    if c.is_integer() {
+        json!(c.numer())
+    } else {
+        json!(format!("{}/{}", c.numer(), c.denom()))
+    }
 }
 
 fn big_json(c: &BigRational) -> Value {
@@ -87,7 +99,11 @@ fn combination(terms: impl IntoIterator<Item = (String, BigInt)>) -> String {
     let mut s = String::new();
     for (name, c) in terms {
         let magnitude = c.abs();
-        let body = if magnitude.is_one() { name } else { format!("{magnitude} {name}") };
+        let body = if magnitude.is_one() {
+            name
+        } else {
+            format!("{magnitude} {name}")
+        };
         if s.is_empty() {
             if c.is_negative() {
                 s.push('-');
@@ -106,13 +122,24 @@ fn complex_text(model: &Model, c: &network::Complex) -> String {
         return "0".into();
     }
     c.iter()
-        .map(|(i, v)| if v.is_one() { model.species[*i].name.clone() } else { format!("{} {}", coef_text(v), model.species[*i].name) })
+        .map(|(i, v)| {
+            if v.is_one() {
+                model.species[*i].name.clone()
+            } else {
+                format!("{} {}", coef_text(v), model.species[*i].name)
+            }
+        })
         .collect::<Vec<_>>()
         .join(" + ")
 }
 
-fn law_terms<'a>(model: &'a Model, law: &'a network::ConservationLaw) -> impl Iterator<Item = (String, BigInt)> + 'a {
-    law.coefficients.iter().map(|(i, c)| (model.species[*i].name.clone(), c.clone()))
+fn law_terms<'a>(
+    model: &'a Model,
+    law: &'a network::ConservationLaw,
+) -> impl Iterator<Item = (String, BigInt)> + 'a {
+    law.coefficients
+        .iter()
+        .map(|(i, c)| (model.species[*i].name.clone(), c.clone()))
 }
 
 fn formula_text(analysis: &Analysis, d: &network::DependentSpecies) -> String {
@@ -148,9 +175,16 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
     let r = &a.reduced;
     let species: Vec<&str> = model.species.iter().map(|s| s.name.as_str()).collect();
     let steps: Vec<&str> = model.steps.iter().map(|s| s.name.as_str()).collect();
-    let field = |out: &mut dyn Write, key: &str, value: &Value, first: bool| -> std::io::Result<()> {
-        write!(out, "{}\n  {}: {}", if first { "{" } else { "," }, json!(key), value)
-    };
+    let field =
+        |out: &mut dyn Write, key: &str, value: &Value, first: bool| -> std::io::Result<()> {
+            write!(
+                out,
+                "{}\n  {}: {}",
+                if first { "{" } else { "," },
+                json!(key),
+                value
+            )
+        };
     field(out, "model", &json!(model.name), true)?;
     field(out, "species", &json!(species), false)?;
     field(out, "steps", &json!(steps), false)?;
@@ -168,7 +202,12 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
         for (j, c) in entries {
             row[*j] = coef_json(c);
         }
-        write!(out, "{}{}", if i == 0 { "" } else { "," }, Value::Array(std::mem::take(&mut row)))?;
+        write!(
+            out,
+            "{}{}",
+            if i == 0 { "" } else { "," },
+            Value::Array(std::mem::take(&mut row))
+        )?;
         row = vec![json!(0); model.steps.len()];
     }
     write!(out, "]")?;
@@ -181,7 +220,9 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
                 .coefficients
                 .iter()
                 .map(|(i, c)| {
-                    let v = i64::try_from(c).map(|v| json!(v)).unwrap_or_else(|_| json!(c.to_string()));
+                    let v = i64::try_from(c)
+                        .map(|v| json!(v))
+                        .unwrap_or_else(|_| json!(c.to_string()));
                     (model.species[*i].name.clone(), v)
                 })
                 .collect();
@@ -195,14 +236,36 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
         })
         .collect();
     field(out, "conservation_laws", &Value::Array(laws), false)?;
-    field(out, "nonnegative_basis", &json!(nonnegative_text(a.nonnegative)), false)?;
-    let redundant: Vec<&str> = a.redundant_totals.iter().map(|t| model.totals[*t].name.as_str()).collect();
+    field(
+        out,
+        "nonnegative_basis",
+        &json!(nonnegative_text(a.nonnegative)),
+        false,
+    )?;
+    let redundant: Vec<&str> = a
+        .redundant_totals
+        .iter()
+        .map(|t| model.totals[*t].name.as_str())
+        .collect();
     field(out, "redundant_totals", &json!(redundant), false)?;
-    field(out, "independent", &json!(names(model, &r.independent)), false)?;
+    field(
+        out,
+        "independent",
+        &json!(names(model, &r.independent)),
+        false,
+    )?;
     let dependent: Vec<usize> = r.dependent.iter().map(|d| d.species).collect();
     field(out, "dependent", &json!(names(model, &dependent)), false)?;
-    let formulas: serde_json::Map<String, Value> =
-        r.dependent.iter().map(|d| (model.species[d.species].name.clone(), json!(formula_text(a, d)))).collect();
+    let formulas: serde_json::Map<String, Value> = r
+        .dependent
+        .iter()
+        .map(|d| {
+            (
+                model.species[d.species].name.clone(),
+                json!(formula_text(a, d)),
+            )
+        })
+        .collect();
     field(out, "dependent_formulas", &Value::Object(formulas), false)?;
     write!(out, ",\n  \"link_matrix\": [")?;
     for (i, entries) in r.link_matrix.iter().enumerate() {
@@ -210,7 +273,12 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
         for (p, v) in entries {
             dense[*p] = big_json(v);
         }
-        write!(out, "{}{}", if i == 0 { "" } else { "," }, Value::Array(dense))?;
+        write!(
+            out,
+            "{}{}",
+            if i == 0 { "" } else { "," },
+            Value::Array(dense)
+        )?;
     }
     write!(out, "]")?;
     write!(out, ",\n  \"reduced_stoichiometry\": [")?;
@@ -219,34 +287,77 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
         for (j, c) in entries {
             dense[*j] = coef_json(c);
         }
-        write!(out, "{}{}", if p == 0 { "" } else { "," }, Value::Array(dense))?;
+        write!(
+            out,
+            "{}{}",
+            if p == 0 { "" } else { "," },
+            Value::Array(dense)
+        )?;
     }
     write!(out, "]")?;
     let s = &a.structure;
     let complexes: Vec<String> = s.complexes.iter().map(|c| complex_text(model, c)).collect();
     field(out, "complexes", &json!(complexes), false)?;
-    let reactions: Vec<Value> =
-        s.edges.iter().map(|(from, to, j)| json!({"from": from, "to": to, "step": model.steps[*j].name})).collect();
+    let reactions: Vec<Value> = s
+        .edges
+        .iter()
+        .map(|(from, to, j)| json!({"from": from, "to": to, "step": model.steps[*j].name}))
+        .collect();
     field(out, "reactions", &Value::Array(reactions), false)?;
     field(out, "linkage_classes", &json!(s.linkage_classes), false)?;
-    field(out, "terminal_strong_linkage_classes", &json!(s.terminal_classes), false)?;
+    field(
+        out,
+        "terminal_strong_linkage_classes",
+        &json!(s.terminal_classes),
+        false,
+    )?;
     field(out, "deficiency", &json!(s.deficiency), false)?;
     field(out, "reversible", &json!(s.reversible), false)?;
     field(out, "weakly_reversible", &json!(s.weakly_reversible), false)?;
     field(out, "mass_action", &json!(s.mass_action), false)?;
     field(out, "deficiency_note", &json!(s.deficiency_note()), false)?;
-    field(out, "never_produced", &json!(names(model, &s.never_produced)), false)?;
-    field(out, "never_consumed", &json!(names(model, &s.never_consumed)), false)?;
-    let never_fire: Vec<&str> = s.never_fire.iter().map(|j| model.steps[*j].name.as_str()).collect();
+    field(
+        out,
+        "never_produced",
+        &json!(names(model, &s.never_produced)),
+        false,
+    )?;
+    field(
+        out,
+        "never_consumed",
+        &json!(names(model, &s.never_consumed)),
+        false,
+    )?;
+    let never_fire: Vec<&str> = s
+        .never_fire
+        .iter()
+        .map(|j| model.steps[*j].name.as_str())
+        .collect();
     field(out, "never_fire", &json!(never_fire), false)?;
     writeln!(out, "\n}}")
 }
 
 /// A right-aligned table with a header row and a first column of labels.
-fn table(out: &mut impl Write, corner: &str, columns: &[String], rows: &[(String, Vec<String>)]) -> std::io::Result<()> {
-    let label_width = rows.iter().map(|r| r.0.chars().count()).chain([corner.chars().count()]).max().unwrap_or(0);
+fn table(
+    out: &mut impl Write,
+    corner: &str,
+    columns: &[String],
+    rows: &[(String, Vec<String>)],
+) -> std::io::Result<()> {
+    let label_width = rows
+        .iter()
+        .map(|r| r.0.chars().count())
+        .chain([corner.chars().count()])
+        .max()
+        .unwrap_or(0);
     let widths: Vec<usize> = (0..columns.len())
-        .map(|j| rows.iter().map(|r| r.1[j].chars().count()).chain([columns[j].chars().count()]).max().unwrap_or(1))
+        .map(|j| {
+            rows.iter()
+                .map(|r| r.1[j].chars().count())
+                .chain([columns[j].chars().count()])
+                .max()
+                .unwrap_or(1)
+        })
         .collect();
     write!(out, "  {corner:<label_width$}")?;
     for (c, w) in columns.iter().zip(&widths) {
@@ -280,26 +391,47 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
         if r.laws.len() == 1 { "" } else { "s" }
     )?;
 
-    writeln!(out, "\nStoichiometric matrix N (rows: species, columns: steps; fixed species excluded)")?;
+    writeln!(
+        out,
+        "\nStoichiometric matrix N (rows: species, columns: steps; fixed species excluded)"
+    )?;
     if n <= MAX_HUMAN_ROWS && model.steps.len() <= MAX_HUMAN_COLUMNS {
         let columns: Vec<String> = model.steps.iter().map(|s| s.name.clone()).collect();
         let rows: Vec<(String, Vec<String>)> = (0..n)
-            .map(|i| (model.species[i].name.clone(), (0..model.steps.len()).map(|j| coef_text(&a.coefficient(i, j))).collect()))
+            .map(|i| {
+                (
+                    model.species[i].name.clone(),
+                    (0..model.steps.len())
+                        .map(|j| coef_text(&a.coefficient(i, j)))
+                        .collect(),
+                )
+            })
             .collect();
         table(out, "", &columns, &rows)?;
     } else {
-        writeln!(out, "  ({n} × {}: too large to print here; use --format json)", model.steps.len())?;
+        writeln!(
+            out,
+            "  ({n} × {}: too large to print here; use --format json)",
+            model.steps.len()
+        )?;
     }
 
     let unit = model.units.concentration.symbol();
-    writeln!(out, "\nConservation laws ({} = {n} species − rank {})", r.laws.len(), a.rank)?;
+    writeln!(
+        out,
+        "\nConservation laws ({} = {n} species − rank {})",
+        r.laws.len(),
+        a.rank
+    )?;
     if r.laws.is_empty() {
         writeln!(out, "  none: every species can change independently")?;
     }
     for law in &r.laws {
         let origin = match law.user_total {
             Some(_) => "your total",
-            None if law.coefficients.iter().all(|(_, c)| c.is_positive()) => "found: conserved moiety",
+            None if law.coefficients.iter().all(|(_, c)| c.is_positive()) => {
+                "found: conserved moiety"
+            }
             None => "found",
         };
         writeln!(
@@ -311,13 +443,21 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
         )?;
     }
     for t in &a.redundant_totals {
-        writeln!(out, "  note: your total `{}` is a combination of earlier laws, so it adds no law", model.totals[*t].name)?;
+        writeln!(
+            out,
+            "  note: your total `{}` is a combination of earlier laws, so it adds no law",
+            model.totals[*t].name
+        )?;
     }
     match a.nonnegative {
-        NonNegativeBasis::Partial => {
-            writeln!(out, "  note: the non-negative laws (moieties) do not span every law; the rest have mixed signs")?
-        }
-        NonNegativeBasis::NoneExist => writeln!(out, "  note: no law with only non-negative coefficients exists")?,
+        NonNegativeBasis::Partial => writeln!(
+            out,
+            "  note: the non-negative laws (moieties) do not span every law; the rest have mixed signs"
+        )?,
+        NonNegativeBasis::NoneExist => writeln!(
+            out,
+            "  note: no law with only non-negative coefficients exists"
+        )?,
         NonNegativeBasis::GaveUp { blocks } => writeln!(
             out,
             "  note: the search for non-negative laws was too large in {blocks} group(s) of species; those laws are an integer basis"
@@ -327,21 +467,42 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
 
     writeln!(out, "\nReduced system (Reder 1988: N = L · N_R)")?;
     let indep = names(model, &r.independent);
-    writeln!(out, "  independent ({}): {}", indep.len(), if indep.is_empty() { "none".into() } else { indep.join(", ") })?;
+    writeln!(
+        out,
+        "  independent ({}): {}",
+        indep.len(),
+        if indep.is_empty() {
+            "none".into()
+        } else {
+            indep.join(", ")
+        }
+    )?;
     if r.dependent.is_empty() {
         writeln!(out, "  dependent: none")?;
     } else {
         writeln!(out, "  dependent ({}):", r.dependent.len())?;
         for d in &r.dependent {
-            writeln!(out, "    {} = {}", model.species[d.species].name, formula_text(a, d))?;
+            writeln!(
+                out,
+                "    {} = {}",
+                model.species[d.species].name,
+                formula_text(a, d)
+            )?;
         }
         if n <= MAX_HUMAN_ROWS && r.independent.len() <= MAX_HUMAN_COLUMNS {
-            writeln!(out, "  link matrix L (rows: species, columns: independent species)")?;
+            writeln!(
+                out,
+                "  link matrix L (rows: species, columns: independent species)"
+            )?;
             let rows: Vec<(String, Vec<String>)> = (0..n)
                 .map(|i| {
                     let mut cells = vec!["0".to_string(); r.independent.len()];
                     for (p, v) in &r.link_matrix[i] {
-                        cells[*p] = if v.is_integer() { v.numer().to_string() } else { format!("{}/{}", v.numer(), v.denom()) };
+                        cells[*p] = if v.is_integer() {
+                            v.numer().to_string()
+                        } else {
+                            format!("{}/{}", v.numer(), v.denom())
+                        };
                     }
                     (model.species[i].name.clone(), cells)
                 })
@@ -351,7 +512,10 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
     }
 
     let s = &a.structure;
-    writeln!(out, "\nNetwork structure (fixed species left out of complexes)")?;
+    writeln!(
+        out,
+        "\nNetwork structure (fixed species left out of complexes)"
+    )?;
     if s.complexes.len() <= MAX_HUMAN_ROWS {
         let texts: Vec<String> = s.complexes.iter().map(|c| complex_text(model, c)).collect();
         writeln!(out, "  complexes ({}): {}", texts.len(), texts.join(", "))?;
@@ -371,18 +535,37 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
         a.rank,
         s.deficiency
     )?;
-    writeln!(out, "  reversible: {}; weakly reversible: {}", yes(s.reversible), yes(s.weakly_reversible))?;
+    writeln!(
+        out,
+        "  reversible: {}; weakly reversible: {}",
+        yes(s.reversible),
+        yes(s.weakly_reversible)
+    )?;
     writeln!(out, "  {}", s.deficiency_note())?;
 
-    let list = |v: &[usize]| if v.is_empty() { "none".to_string() } else { names(model, v).join(", ") };
+    let list = |v: &[usize]| {
+        if v.is_empty() {
+            "none".to_string()
+        } else {
+            names(model, v).join(", ")
+        }
+    };
     writeln!(out, "\nSpecies and steps")?;
     writeln!(out, "  never produced: {}", list(&s.never_produced))?;
     writeln!(out, "  never consumed: {}", list(&s.never_consumed))?;
-    let never: Vec<&str> = s.never_fire.iter().map(|j| model.steps[*j].name.as_str()).collect();
+    let never: Vec<&str> = s
+        .never_fire
+        .iter()
+        .map(|j| model.steps[*j].name.as_str())
+        .collect();
     writeln!(
         out,
         "  steps that can never fire from the initial state: {}",
-        if never.is_empty() { "none".to_string() } else { never.join(", ") }
+        if never.is_empty() {
+            "none".to_string()
+        } else {
+            never.join(", ")
+        }
     )?;
     Ok(())
 }

@@ -28,7 +28,10 @@ pub(crate) fn integer_columns(model: &Model) -> Vec<Vec<(usize, BigInt)>> {
         .map(|j| {
             let change = model.net_change(j);
             let lcm = change.iter().fold(1i64, |l, (_, c)| l.lcm(c.denom()));
-            change.into_iter().map(|(i, c)| (i, BigInt::from(c.numer() * (lcm / c.denom())))).collect()
+            change
+                .into_iter()
+                .map(|(i, c)| (i, BigInt::from(c.numer() * (lcm / c.denom()))))
+                .collect()
         })
         .collect()
 }
@@ -45,7 +48,11 @@ pub(crate) struct Found {
 /// `vector = s · terms`.
 fn total_vector(total: &Total) -> (Row<BigInt>, BigRational) {
     let lcm = total.terms.iter().fold(1i64, |l, (_, c)| l.lcm(c.denom()));
-    let mut v: Row<BigInt> = total.terms.iter().map(|(i, c)| (*i as u32, BigInt::from(c.numer() * (lcm / c.denom())))).collect();
+    let mut v: Row<BigInt> = total
+        .terms
+        .iter()
+        .map(|(i, c)| (*i as u32, BigInt::from(c.numer() * (lcm / c.denom()))))
+        .collect();
     v.sort_by_key(|e| e.0);
     v.retain(|e| !Zero::is_zero(&e.1));
     let g = v.iter().fold(BigInt::zero(), |g, (_, x)| g.gcd(x));
@@ -94,7 +101,10 @@ impl Echelon {
 
 fn dot_is_zero(y: &Row<BigInt>, columns: &[Vec<(usize, BigInt)>]) -> Option<usize> {
     for (j, col) in columns.iter().enumerate() {
-        let s: BigInt = col.iter().filter_map(|(i, c)| get(y, *i as u32).map(|v| v * c)).sum();
+        let s: BigInt = col
+            .iter()
+            .filter_map(|(i, c)| get(y, *i as u32).map(|v| v * c))
+            .sum();
         if !Zero::is_zero(&s) {
             return Some(j);
         }
@@ -169,14 +179,20 @@ pub(crate) fn find(model: &Model) -> Result<Found, Diagnostic> {
     for (t, total) in model.totals.iter().enumerate() {
         let (v, _) = total_vector(total);
         if v.is_empty() {
-            return Err(Diagnostic::error(Code::TotalEmpty, format!("total `{}` has no species", total.name))
-                .with_label(total.span, "this total"));
+            return Err(Diagnostic::error(
+                Code::TotalEmpty,
+                format!("total `{}` has no species", total.name),
+            )
+            .with_label(total.span, "this total"));
         }
         if let Some(j) = dot_is_zero(&v, &columns) {
             let step = &model.steps[j];
             return Err(Diagnostic::error(
                 Code::TotalNotConserved,
-                format!("total `{}` is not conserved: step `{}` changes it", total.name, step.name),
+                format!(
+                    "total `{}` is not conserved: step `{}` changes it",
+                    total.name, step.name
+                ),
             )
             .with_label(total.span, "this total")
             .with_label(step.span, "changes the total"));
@@ -197,7 +213,11 @@ pub(crate) fn find(model: &Model) -> Result<Found, Diagnostic> {
             BlockRays::TooLarge => abandoned_blocks += 1,
         }
     }
-    nonneg_rays.sort_by(|a, b| a.len().cmp(&b.len()).then_with(|| a.iter().map(|e| e.0).cmp(b.iter().map(|e| e.0))));
+    nonneg_rays.sort_by(|a, b| {
+        a.len()
+            .cmp(&b.len())
+            .then_with(|| a.iter().map(|e| e.0).cmp(b.iter().map(|e| e.0)))
+    });
     for ray in &nonneg_rays {
         if chosen.len() == k {
             break;
@@ -215,9 +235,13 @@ pub(crate) fn find(model: &Model) -> Result<Found, Diagnostic> {
         }
     }
     debug_assert_eq!(chosen.len(), k);
-    let all_nonneg = chosen.iter().all(|(v, _)| v.iter().all(|(_, c)| !c.is_negative()));
+    let all_nonneg = chosen
+        .iter()
+        .all(|(v, _)| v.iter().all(|(_, c)| !c.is_negative()));
     let nonnegative = if abandoned_blocks > 0 {
-        NonNegativeBasis::GaveUp { blocks: abandoned_blocks }
+        NonNegativeBasis::GaveUp {
+            blocks: abandoned_blocks,
+        }
     } else if k == 0 {
         NonNegativeBasis::NoLaws
     } else if all_nonneg {
@@ -229,7 +253,12 @@ pub(crate) fn find(model: &Model) -> Result<Found, Diagnostic> {
     };
 
     let reduced = build_reduced(model, chosen, &columns)?;
-    Ok(Found { rank, reduced, redundant_totals, nonnegative })
+    Ok(Found {
+        rank,
+        reduced,
+        redundant_totals,
+        nonnegative,
+    })
 }
 
 /// A readable name for an automatic law that clashes with no other name.
@@ -242,7 +271,9 @@ fn law_name(model: &Model, v: &Row<BigInt>, used: &mut Vec<String>, counter: &mu
         *counter += 1;
         format!("conserved_{counter}")
     };
-    let taken = |name: &str, used: &Vec<String>| model.lookup(name).is_some() || used.iter().any(|u| u == name);
+    let taken = |name: &str, used: &Vec<String>| {
+        model.lookup(name).is_some() || used.iter().any(|u| u == name)
+    };
     let mut name = base.clone();
     let mut suffix = 2;
     while taken(&name, used) {
@@ -267,11 +298,19 @@ pub(crate) fn linear_expr(terms: &[(Sym, BigRational)]) -> Expr {
     let one = |sym: Sym, c: &BigRational| -> Expr {
         let c = c.abs();
         let numer = c.numer().to_f64().unwrap_or(f64::NAN);
-        let base = if c.numer().is_one() { Expr::Name(sym) } else { Expr::mul(Expr::Number(numer), Expr::Name(sym)) };
+        let base = if c.numer().is_one() {
+            Expr::Name(sym)
+        } else {
+            Expr::mul(Expr::Number(numer), Expr::Name(sym))
+        };
         if c.denom().is_one() {
             base
         } else {
-            Expr::bin(crate::model::BinOp::Div, base, Expr::Number(c.denom().to_f64().unwrap_or(f64::NAN)))
+            Expr::bin(
+                crate::model::BinOp::Div,
+                base,
+                Expr::Number(c.denom().to_f64().unwrap_or(f64::NAN)),
+            )
         }
     };
     let mut acc: Option<Expr> = None;
@@ -316,17 +355,35 @@ fn build_reduced(
             _ => {
                 normalize_sign(&mut v).expect("BigInt");
                 let name = law_name(model, &v, &mut used, &mut counter);
-                let value: f64 =
-                    v.iter().map(|(i, c)| c.to_f64().unwrap_or(f64::NAN) * model.species[*i as usize].initial).sum();
-                let Some(terms) = v.iter().map(|(i, c)| big_to_coef(c).map(|c| (*i as usize, c))).collect::<Option<Vec<_>>>()
+                let value: f64 = v
+                    .iter()
+                    .map(|(i, c)| {
+                        c.to_f64().unwrap_or(f64::NAN) * model.species[*i as usize].initial
+                    })
+                    .sum();
+                let Some(terms) = v
+                    .iter()
+                    .map(|(i, c)| big_to_coef(c).map(|c| (*i as usize, c)))
+                    .collect::<Option<Vec<_>>>()
                 else {
                     return Err(Diagnostic::error(
                         Code::InputTooLarge,
-                        format!("conservation law `{name}` has a coefficient too large to represent"),
+                        format!(
+                            "conservation law `{name}` has a coefficient too large to represent"
+                        ),
                     ));
                 };
-                let span = terms.first().map(|(i, _)| model.species[*i].span).unwrap_or_else(Span::default);
-                out_model.totals.push(Total { name: name.clone(), terms, value, value_given: false, span });
+                let span = terms
+                    .first()
+                    .map(|(i, _)| model.species[*i].span)
+                    .unwrap_or_else(Span::default);
+                out_model.totals.push(Total {
+                    name: name.clone(),
+                    terms,
+                    value,
+                    value_given: false,
+                    span,
+                });
                 law_total.push((out_model.totals.len() - 1, BigRational::one()));
                 laws.push(ConservationLaw {
                     name,
@@ -348,7 +405,11 @@ fn build_reduced(
     let mut rref: Vec<RrefRow> = Vec::new();
     let mut is_dependent = vec![false; n];
     for (l, law) in laws.iter().enumerate() {
-        let mut row: Row<BigInt> = law.coefficients.iter().map(|(i, c)| (*i as u32, c.clone())).collect();
+        let mut row: Row<BigInt> = law
+            .coefficients
+            .iter()
+            .map(|(i, c)| (*i as u32, c.clone()))
+            .collect();
         let mut tag: Row<BigInt> = vec![(l as u32, BigInt::one())];
         for r in &rref {
             if let Some(a) = get(&row, r.pivot).cloned() {
@@ -361,12 +422,18 @@ fn build_reduced(
             }
         }
         let preferred = match law.user_total {
-            Some(t) => model.total_adjusted_species(t).filter(|s| get(&row, *s as u32).is_some()),
+            Some(t) => model
+                .total_adjusted_species(t)
+                .filter(|s| get(&row, *s as u32).is_some()),
             None => None,
         };
         let pivot = preferred
             .map(|s| s as u32)
-            .or_else(|| row.iter().find(|(i, _)| !model.species[*i as usize].initial_given).map(|e| e.0))
+            .or_else(|| {
+                row.iter()
+                    .find(|(i, _)| !model.species[*i as usize].initial_given)
+                    .map(|e| e.0)
+            })
             .or_else(|| row.first().map(|e| e.0))
             .expect("chosen laws are independent, so the reduced row is not zero");
         if get(&row, pivot).is_some_and(|v| v.is_negative()) {
@@ -407,7 +474,10 @@ fn build_reduced(
         let mut terms: Vec<(Sym, BigRational)> = Vec::new();
         for (law, m) in &r.tag {
             let (t, scale) = &law_total[*law as usize];
-            terms.push((Sym::Total(*t), BigRational::new(m.clone(), p.clone()) * scale));
+            terms.push((
+                Sym::Total(*t),
+                BigRational::new(m.clone(), p.clone()) * scale,
+            ));
         }
         for (i, a) in r.row.iter().filter(|(i, _)| *i != r.pivot) {
             let c = -BigRational::new(a.clone(), p.clone());
@@ -415,7 +485,11 @@ fn build_reduced(
             terms.push((Sym::Species(*i as usize), c));
         }
         link[d].sort_by_key(|e| e.0);
-        dependent.push(DependentSpecies { species: d, total: law_total[l].0, formula: linear_expr(&terms) });
+        dependent.push(DependentSpecies {
+            species: d,
+            total: law_total[l].0,
+            formula: linear_expr(&terms),
+        });
     }
     dependent.sort_by_key(|d| d.species);
 
@@ -431,5 +505,12 @@ fn build_reduced(
         rows
     };
     let _ = columns;
-    Ok(Reduced { model: out_model, laws, independent, dependent, link_matrix: link, reduced_stoichiometry })
+    Ok(Reduced {
+        model: out_model,
+        laws,
+        independent,
+        dependent,
+        link_matrix: link,
+        reduced_stoichiometry,
+    })
 }

@@ -95,11 +95,18 @@ impl Reduced {
             }
             let expanded = expand(e, observables);
             expanded.substitute(&|s| match s {
-                Sym::Species(i) => self.dependent.iter().find(|d| d.species == i).map(|d| d.formula.clone()),
+                Sym::Species(i) => self
+                    .dependent
+                    .iter()
+                    .find(|d| d.species == i)
+                    .map(|d| d.formula.clone()),
                 _ => None,
             })
         };
-        self.independent.iter().map(|&i| substitute_dependent(&full[i])).collect()
+        self.independent
+            .iter()
+            .map(|&i| substitute_dependent(&full[i]))
+            .collect()
     }
 
     /// The full state from an independent state (rebuilds dependents from
@@ -177,7 +184,11 @@ pub struct Analysis {
 impl Analysis {
     /// The stoichiometric coefficient of species `i` in step `j`.
     pub fn coefficient(&self, i: usize, j: usize) -> Coef {
-        self.columns[j].iter().find(|(s, _)| *s == i).map(|(_, c)| *c).unwrap_or_default()
+        self.columns[j]
+            .iter()
+            .find(|(s, _)| *s == i)
+            .map(|(_, c)| *c)
+            .unwrap_or_default()
     }
 }
 
@@ -189,7 +200,9 @@ pub fn reduce(model: &Model) -> Result<Reduced, Diagnostic> {
 /// Everything `analyze` reports.
 pub fn analyze(model: &Model) -> Result<Analysis, Diagnostic> {
     let found = laws::find(model)?;
-    let columns: Vec<Vec<(usize, Coef)>> = (0..model.steps.len()).map(|j| model.net_change(j)).collect();
+    let columns: Vec<Vec<(usize, Coef)>> = (0..model.steps.len())
+        .map(|j| model.net_change(j))
+        .collect();
     let structure = structure::analyze(model, found.rank);
     Ok(Analysis {
         columns,

@@ -48,7 +48,9 @@ pub fn extreme_rays(species: &[usize], columns: &[Vec<(usize, BigInt)>]) -> Bloc
         let mut entries = Vec::new();
         for (s, v) in col {
             if let Some(p) = position(*s) {
-                let Some(v) = i64::from_big(v) else { return BlockRays::TooLarge };
+                let Some(v) = i64::from_big(v) else {
+                    return BlockRays::TooLarge;
+                };
                 entries.push((p, v as i128));
             }
         }
@@ -72,7 +74,11 @@ pub fn extreme_rays(species: &[usize], columns: &[Vec<(usize, BigInt)>]) -> Bloc
             y[i] = 1;
             let mut support = vec![0u64; words];
             support[i / 64] |= 1 << (i % 64);
-            Tableau { constraint, y, support }
+            Tableau {
+                constraint,
+                y,
+                support,
+            }
         })
         .collect();
     let mut done = vec![false; ncon];
@@ -87,12 +93,21 @@ pub fn extreme_rays(species: &[usize], columns: &[Vec<(usize, BigInt)>]) -> Bloc
             break;
         };
         done[j] = true;
-        let pos: Vec<usize> = (0..rows.len()).filter(|&r| rows[r].constraint[j] > 0).collect();
-        let neg: Vec<usize> = (0..rows.len()).filter(|&r| rows[r].constraint[j] < 0).collect();
+        let pos: Vec<usize> = (0..rows.len())
+            .filter(|&r| rows[r].constraint[j] > 0)
+            .collect();
+        let neg: Vec<usize> = (0..rows.len())
+            .filter(|&r| rows[r].constraint[j] < 0)
+            .collect();
         let mut next: Vec<Tableau> = Vec::new();
         for &a in &pos {
             for &b in &neg {
-                let union: Vec<u64> = rows[a].support.iter().zip(&rows[b].support).map(|(x, y)| x | y).collect();
+                let union: Vec<u64> = rows[a]
+                    .support
+                    .iter()
+                    .zip(&rows[b].support)
+                    .map(|(x, y)| x | y)
+                    .collect();
                 checks += rows.len() as u64;
                 if checks > MAX_CHECKS {
                     return BlockRays::TooLarge;
@@ -106,18 +121,31 @@ pub fn extreme_rays(species: &[usize], columns: &[Vec<(usize, BigInt)>]) -> Bloc
                 let ca = -rows[b].constraint[j];
                 let cb = rows[a].constraint[j];
                 let lin = |x: &[i128], y: &[i128]| -> Option<Vec<i128>> {
-                    x.iter().zip(y).map(|(p, q)| p.checked_mul(ca)?.checked_add(q.checked_mul(cb)?)).collect()
+                    x.iter()
+                        .zip(y)
+                        .map(|(p, q)| p.checked_mul(ca)?.checked_add(q.checked_mul(cb)?))
+                        .collect()
                 };
-                let (Some(mut constraint), Some(mut y)) =
-                    (lin(&rows[a].constraint, &rows[b].constraint), lin(&rows[a].y, &rows[b].y))
-                else {
+                let (Some(mut constraint), Some(mut y)) = (
+                    lin(&rows[a].constraint, &rows[b].constraint),
+                    lin(&rows[a].y, &rows[b].y),
+                ) else {
                     return BlockRays::TooLarge;
                 };
-                let g = y.iter().chain(constraint.iter()).fold(0i128, |g, v| num_integer::Integer::gcd(&g, v));
+                let g = y
+                    .iter()
+                    .chain(constraint.iter())
+                    .fold(0i128, |g, v| num_integer::Integer::gcd(&g, v));
                 if g > 1 {
-                    y.iter_mut().chain(constraint.iter_mut()).for_each(|v| *v /= g);
+                    y.iter_mut()
+                        .chain(constraint.iter_mut())
+                        .for_each(|v| *v /= g);
                 }
-                next.push(Tableau { constraint, y, support: union });
+                next.push(Tableau {
+                    constraint,
+                    y,
+                    support: union,
+                });
                 if next.len() + rows.len() > MAX_ROWS {
                     return BlockRays::TooLarge;
                 }
@@ -131,12 +159,20 @@ pub fn extreme_rays(species: &[usize], columns: &[Vec<(usize, BigInt)>]) -> Bloc
         .into_iter()
         .map(|r| {
             let mut v: Row<BigInt> =
-                r.y.iter().enumerate().filter(|(_, v)| **v != 0).map(|(p, v)| (species[p] as u32, BigInt::from(*v))).collect();
+                r.y.iter()
+                    .enumerate()
+                    .filter(|(_, v)| **v != 0)
+                    .map(|(p, v)| (species[p] as u32, BigInt::from(*v)))
+                    .collect();
             divide_content(&mut [&mut v]);
             v
         })
         .collect();
-    rays.sort_by(|a, b| a.len().cmp(&b.len()).then_with(|| a.iter().map(|e| e.0).cmp(b.iter().map(|e| e.0))));
+    rays.sort_by(|a, b| {
+        a.len()
+            .cmp(&b.len())
+            .then_with(|| a.iter().map(|e| e.0).cmp(b.iter().map(|e| e.0)))
+    });
     rays.dedup();
     BlockRays::Rays(rays)
 }
@@ -146,7 +182,9 @@ mod tests {
     use super::*;
 
     fn cols(v: &[&[(usize, i64)]]) -> Vec<Vec<(usize, BigInt)>> {
-        v.iter().map(|c| c.iter().map(|(s, x)| (*s, BigInt::from(*x))).collect()).collect()
+        v.iter()
+            .map(|c| c.iter().map(|(s, x)| (*s, BigInt::from(*x))).collect())
+            .collect()
     }
 
     #[test]
@@ -154,17 +192,30 @@ mod tests {
         // Species S=0, P=1, E=2, ES=3. Textbook result (common practice in
         // enzyme kinetics): E + ES and S + ES + P are conserved.
         let c = cols(&[&[(0, -1), (2, -1), (3, 1)], &[(3, -1), (2, 1), (1, 1)]]);
-        let BlockRays::Rays(rays) = extreme_rays(&[0, 1, 2, 3], &c) else { panic!("small block") };
-        let as_pairs: Vec<Vec<(u32, i64)>> =
-            rays.iter().map(|r| r.iter().map(|(s, v)| (*s, i64::from_big(v).unwrap())).collect()).collect();
-        assert_eq!(as_pairs, vec![vec![(2, 1), (3, 1)], vec![(0, 1), (1, 1), (3, 1)]]);
+        let BlockRays::Rays(rays) = extreme_rays(&[0, 1, 2, 3], &c) else {
+            panic!("small block")
+        };
+        let as_pairs: Vec<Vec<(u32, i64)>> = rays
+            .iter()
+            .map(|r| {
+                r.iter()
+                    .map(|(s, v)| (*s, i64::from_big(v).unwrap()))
+                    .collect()
+            })
+            .collect();
+        assert_eq!(
+            as_pairs,
+            vec![vec![(2, 1), (3, 1)], vec![(0, 1), (1, 1), (3, 1)]]
+        );
     }
 
     #[test]
     fn dimerisation_conserves_monomer_plus_twice_dimer() {
         // 2 M <=> D (M=0, D=1): M + 2 D is conserved (mass balance, common practice).
         let c = cols(&[&[(0, -2), (1, 1)]]);
-        let BlockRays::Rays(rays) = extreme_rays(&[0, 1], &c) else { panic!() };
+        let BlockRays::Rays(rays) = extreme_rays(&[0, 1], &c) else {
+            panic!()
+        };
         assert_eq!(rays, vec![vec![(0, BigInt::from(1)), (1, BigInt::from(2))]]);
     }
 
@@ -173,7 +224,9 @@ mod tests {
         // A + B <=> C + D (A=0..D=3): rays A+C, A+D, B+C, B+D span a
         // 3-dimensional space (Schuster & Höfer 1991 discuss such cases).
         let c = cols(&[&[(0, -1), (1, -1), (2, 1), (3, 1)]]);
-        let BlockRays::Rays(rays) = extreme_rays(&[0, 1, 2, 3], &c) else { panic!() };
+        let BlockRays::Rays(rays) = extreme_rays(&[0, 1, 2, 3], &c) else {
+            panic!()
+        };
         assert_eq!(rays.len(), 4);
     }
 }

@@ -139,7 +139,9 @@ pub fn combine<T: Int>(a: &Row<T>, ca: &T, b: &Row<T>, cb: &T) -> Option<Row<T>>
 
 /// The value at a column, if present.
 pub fn get<T>(row: &Row<T>, col: u32) -> Option<&T> {
-    row.binary_search_by_key(&col, |(c, _)| *c).ok().map(|k| &row[k].1)
+    row.binary_search_by_key(&col, |(c, _)| *c)
+        .ok()
+        .map(|k| &row[k].1)
 }
 
 /// Divides every entry of the rows by their joint content (gcd).
@@ -247,7 +249,11 @@ pub fn eliminate<T: Int>(mut rows: Vec<Row<T>>, ncols: usize) -> Option<Eliminat
             .iter()
             .min_by_key(|&&i| {
                 let r = &rows[i as usize];
-                (r.len(), get(r, c32).map(Int::magnitude).unwrap_or(u64::MAX), i)
+                (
+                    r.len(),
+                    get(r, c32).map(Int::magnitude).unwrap_or(u64::MAX),
+                    i,
+                )
             })
             .expect("a column with a positive count has a live row");
         let p = pivot_row as usize;
@@ -296,13 +302,23 @@ pub fn eliminate<T: Int>(mut rows: Vec<Row<T>>, ncols: usize) -> Option<Eliminat
         normalize_sign(&mut v)?;
         null_vectors.push(v);
     }
-    Some(Elimination { pivots, null_vectors, null_rows })
+    Some(Elimination {
+        pivots,
+        null_vectors,
+        null_rows,
+    })
 }
 
 /// Eliminates in `i64`, repeating in `BigInt` if a value would overflow.
 pub fn eliminate_exact(rows: &[Row<BigInt>], ncols: usize) -> Elimination<BigInt> {
-    let small: Option<Vec<Row<i64>>> =
-        rows.iter().map(|r| r.iter().map(|(c, v)| i64::from_big(v).map(|v| (*c, v))).collect()).collect();
+    let small: Option<Vec<Row<i64>>> = rows
+        .iter()
+        .map(|r| {
+            r.iter()
+                .map(|(c, v)| i64::from_big(v).map(|v| (*c, v)))
+                .collect()
+        })
+        .collect();
     if let Some(small) = small
         && let Some(e) = eliminate(small, ncols)
     {
@@ -364,7 +380,10 @@ mod tests {
         assert_eq!(e.null_vectors.len(), 1);
         let y = &e.null_vectors[0];
         for col in 0..2u32 {
-            let s: BigInt = y.iter().map(|(i, c)| c * get(&rows[*i as usize], col).cloned().unwrap_or_default()).sum();
+            let s: BigInt = y
+                .iter()
+                .map(|(i, c)| c * get(&rows[*i as usize], col).cloned().unwrap_or_default())
+                .sum();
             assert!(Zero::is_zero(&s));
         }
     }

@@ -198,7 +198,10 @@ pub(crate) fn analyze(model: &Model, rank: usize) -> Structure {
     }
     let reversible = edges.iter().all(|&(a, b, _)| edge_set.contains(&(b, a)));
     let deficiency = nc as i64 - classes.len() as i64 - rank as i64;
-    let mass_action = model.steps.iter().all(|s| matches!(s.rate, Rate::MassAction { .. }));
+    let mass_action = model
+        .steps
+        .iter()
+        .all(|s| matches!(s.rate, Rate::MassAction { .. }));
 
     let n = model.species.len();
     let mut produced = vec![false; n];
@@ -265,7 +268,11 @@ fn never_fire(model: &Model) -> Vec<usize> {
     let mut users: Vec<Vec<usize>> = vec![Vec::new(); n + nf];
     let sides = |d: usize| {
         let s = &model.steps[d / 2];
-        if d % 2 == 0 { (&s.reactants, &s.products) } else { (&s.products, &s.reactants) }
+        if d % 2 == 0 {
+            (&s.reactants, &s.products)
+        } else {
+            (&s.products, &s.reactants)
+        }
     };
     let mut queue = Vec::new();
     for d in 0..ndir {
@@ -274,7 +281,11 @@ fn never_fire(model: &Model) -> Vec<usize> {
             continue;
         }
         let (input, _) = sides(d);
-        let mut needed: Vec<usize> = input.iter().filter_map(|t| key(t.sym)).filter(|&k| !present[k]).collect();
+        let mut needed: Vec<usize> = input
+            .iter()
+            .filter_map(|t| key(t.sym))
+            .filter(|&k| !present[k])
+            .collect();
         needed.sort_unstable();
         needed.dedup();
         missing[d] = needed.len();
@@ -306,5 +317,7 @@ fn never_fire(model: &Model) -> Vec<usize> {
             }
         }
     }
-    (0..model.steps.len()).filter(|j| !fires[2 * j] && !fires[2 * j + 1]).collect()
+    (0..model.steps.len())
+        .filter(|j| !fires[2 * j] && !fires[2 * j + 1])
+        .collect()
 }

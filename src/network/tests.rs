@@ -8,7 +8,11 @@ use num_rational::BigRational;
 /// Parses `2 M + D` into terms over `model`'s species (created on first use).
 fn side(model: &mut Model, text: &str) -> Vec<Term> {
     let mut terms = Vec::new();
-    for part in text.split('+').map(str::trim).filter(|p| !p.is_empty() && *p != "0") {
+    for part in text
+        .split('+')
+        .map(str::trim)
+        .filter(|p| !p.is_empty() && *p != "0")
+    {
         let (coef, name) = match part.split_once(' ') {
             Some((c, n)) => (c.parse::<i64>().expect("coefficient"), n.trim()),
             None => (1, part),
@@ -26,7 +30,11 @@ fn side(model: &mut Model, text: &str) -> Vec<Term> {
                 model.species.len() - 1
             }
         };
-        terms.push(Term { sym: Sym::Species(i), coefficient: Coef::from_integer(coef), span: Default::default() });
+        terms.push(Term {
+            sym: Sym::Species(i),
+            coefficient: Coef::from_integer(coef),
+            span: Default::default(),
+        });
     }
     terms
 }
@@ -56,7 +64,10 @@ fn network(steps: &[&str]) -> Model {
             reactants,
             products,
             reversible,
-            rate: Rate::MassAction { forward: k.clone(), reverse: reversible.then_some(k) },
+            rate: Rate::MassAction {
+                forward: k.clone(),
+                reverse: reversible.then_some(k),
+            },
             description: None,
             span: Default::default(),
             rate_span: Default::default(),
@@ -77,7 +88,13 @@ fn law_strings(m: &Model, r: &Reduced) -> Vec<String> {
         .map(|l| {
             l.coefficients
                 .iter()
-                .map(|(i, c)| if *c == BigInt::from(1) { m.species[*i].name.clone() } else { format!("{c} {}", m.species[*i].name) })
+                .map(|(i, c)| {
+                    if *c == BigInt::from(1) {
+                        m.species[*i].name.clone()
+                    } else {
+                        format!("{c} {}", m.species[*i].name)
+                    }
+                })
                 .collect::<Vec<_>>()
                 .join(" + ")
         })
@@ -92,9 +109,17 @@ fn check_invariants(m: &Model, a: &Analysis) {
             let s: BigRational = law
                 .coefficients
                 .iter()
-                .map(|(i, c)| BigRational::from_integer(c.clone()) * BigRational::new((*n[*i][j].numer()).into(), (*n[*i][j].denom()).into()))
+                .map(|(i, c)| {
+                    BigRational::from_integer(c.clone())
+                        * BigRational::new((*n[*i][j].numer()).into(), (*n[*i][j].denom()).into())
+                })
                 .sum();
-            assert_eq!(s, BigRational::from_integer(0.into()), "law {} not conserved by step {j}", law.name);
+            assert_eq!(
+                s,
+                BigRational::from_integer(0.into()),
+                "law {} not conserved by step {j}",
+                law.name
+            );
         }
     }
     assert_eq!(a.reduced.laws.len(), m.species.len() - a.rank);
@@ -287,7 +312,11 @@ fn never_fire_and_never_produced() {
     let mut m = network(&["A -> B", "X -> Y", "B + Y -> Z"]);
     set_initial(&mut m, "A", 1.0);
     let a = analyze(&m).unwrap();
-    let names = |v: &[usize]| v.iter().map(|i| m.species[*i].name.clone()).collect::<Vec<_>>();
+    let names = |v: &[usize]| {
+        v.iter()
+            .map(|i| m.species[*i].name.clone())
+            .collect::<Vec<_>>()
+    };
     assert_eq!(a.structure.never_fire, vec![1, 2]);
     assert_eq!(names(&a.structure.never_produced), vec!["A", "X"]);
     assert_eq!(names(&a.structure.never_consumed), vec!["Z"]);
