@@ -23,7 +23,11 @@ const ROBERTSON_RTOL: f64 = 1e-8;
 const ROBERTSON_ATOL: f64 = 1e-12;
 // Bari IVP test set (Mazzia & Magherini), problem ROBER at t = 1e11, from
 // memory; cross-checked against SciPy Radau at rtol 1e-12 in tests/sim.rs.
-const ROBERTSON_REF: [f64; 3] = [0.2083340149701255e-7, 0.8333360770334713e-13, 0.9999999791665050];
+const ROBERTSON_REF: [f64; 3] = [
+    0.2083340149701255e-7,
+    0.8333360770334713e-13,
+    0.9999999791665050,
+];
 
 fn median(mut v: Vec<f64>) -> f64 {
     v.sort_by(f64::total_cmp);
@@ -31,12 +35,21 @@ fn median(mut v: Vec<f64>) -> f64 {
 }
 
 fn max_rel_error(y: &[f64], reference: &[f64]) -> f64 {
-    y.iter().zip(reference).map(|(a, b)| (a - b).abs() / b.abs()).fold(0.0, f64::max)
+    y.iter()
+        .zip(reference)
+        .map(|(a, b)| (a - b).abs() / b.abs())
+        .fold(0.0, f64::max)
 }
 
 fn robertson(reps: usize) {
-    let model = load_path(Path::new("models/robertson.mech")).model.expect("models/robertson.mech loads");
-    let settings = Settings { rtol: ROBERTSON_RTOL, atol: ROBERTSON_ATOL, ..Settings::default() };
+    let model = load_path(Path::new("models/robertson.mech"))
+        .model
+        .expect("models/robertson.mech loads");
+    let settings = Settings {
+        rtol: ROBERTSON_RTOL,
+        atol: ROBERTSON_ATOL,
+        ..Settings::default()
+    };
     let prepared = Prepared::full(&model).expect("compiles");
     let mut times = Vec::new();
     let mut last = Vec::new();
@@ -47,7 +60,10 @@ fn robertson(reps: usize) {
         last = tr.rows[0][..3].to_vec();
     }
     println!("compiled_seconds {:.6e}", median(times));
-    println!("compiled_error {:.3e}", max_rel_error(&last, &ROBERTSON_REF));
+    println!(
+        "compiled_error {:.3e}",
+        max_rel_error(&last, &ROBERTSON_REF)
+    );
 
     // Compile + solve, as a fitting loop that rebuilds the model would pay.
     let start = Instant::now();
@@ -55,7 +71,10 @@ fn robertson(reps: usize) {
         let p = Prepared::full(&model).expect("compiles");
         let _ = p.simulate(&settings, &[1e11]).expect("solves");
     }
-    println!("compiled_with_compile_seconds {:.6e}", start.elapsed().as_secs_f64() / reps as f64);
+    println!(
+        "compiled_with_compile_seconds {:.6e}",
+        start.elapsed().as_secs_f64() / reps as f64
+    );
 
     // The limit: the same equations written by hand for diffsol.
     let mut times = Vec::new();
@@ -95,7 +114,10 @@ fn hand_written_robertson() -> Vec<f64> {
                 y[2] = d_fast;
             },
         )
-        .init(|_p: &[f64], _t: f64, y: &mut [f64]| y.copy_from_slice(&[1.0, 0.0, 0.0]), 3)
+        .init(
+            |_p: &[f64], _t: f64, y: &mut [f64]| y.copy_from_slice(&[1.0, 0.0, 0.0]),
+            3,
+        )
         .build()
         .expect("builds");
     let mut problem = problem;
@@ -107,7 +129,10 @@ fn hand_written_robertson() -> Vec<f64> {
             break;
         }
     }
-    solver.interpolate(1e11).expect("interpolates").clone_as_vec()
+    solver
+        .interpolate(1e11)
+        .expect("interpolates")
+        .clone_as_vec()
 }
 
 /// A small deterministic generator (SplitMix64), so the network is the same on every machine.
@@ -144,9 +169,12 @@ fn generate(dir: &Path, n_species: usize, n_steps: usize) {
     let mut rng = Rng(20241);
     // Weights 1..4 so that bindings can conserve weight: C's weight = A's + B's.
     let weight: Vec<usize> = (0..n_species).map(|i| 1 + i % 4).collect();
-    let by_weight = |w: usize| -> Vec<usize> { (0..n_species).filter(|&i| weight[i] == w).collect() };
+    let by_weight =
+        |w: usize| -> Vec<usize> { (0..n_species).filter(|&i| weight[i] == w).collect() };
     let groups: Vec<Vec<usize>> = (0..=4).map(by_weight).collect();
-    let mut mech = String::from("# Generated benchmark network (bench/sim_bench.rs).\nmechanism generated_network\nunits concentration uM, time s\n");
+    let mut mech = String::from(
+        "# Generated benchmark network (bench/sim_bench.rs).\nmechanism generated_network\nunits concentration uM, time s\n",
+    );
     let mut initial = Vec::new();
     for i in 0..n_species {
         let v = 0.1 + rng.unit();
@@ -194,9 +222,23 @@ fn generate(dir: &Path, n_species: usize, n_steps: usize) {
         if reversible {
             mech.push_str(&format!("param kr{k} = {kr:.6} /s\n"));
         }
-        let side = |v: &[usize]| v.iter().map(|i| format!("X{i}")).collect::<Vec<_>>().join(" + ");
-        let rate = if reversible { format!("with kf{k}, kr{k}") } else { format!("with kf{k}") };
-        mech.push_str(&format!("step r{k} {} {} {} {rate}\n", side(&reactants), if reversible { "<=>" } else { "->" }, side(&products)));
+        let side = |v: &[usize]| {
+            v.iter()
+                .map(|i| format!("X{i}"))
+                .collect::<Vec<_>>()
+                .join(" + ")
+        };
+        let rate = if reversible {
+            format!("with kf{k}, kr{k}")
+        } else {
+            format!("with kf{k}")
+        };
+        mech.push_str(&format!(
+            "step r{k} {} {} {} {rate}\n",
+            side(&reactants),
+            if reversible { "<=>" } else { "->" },
+            side(&products)
+        ));
         let kf_r = (kf * 1e6).round() / 1e6;
         let kr_r = (kr * 1e6).round() / 1e6;
         steps_json.push(serde_json::json!({
@@ -207,7 +249,11 @@ fn generate(dir: &Path, n_species: usize, n_steps: usize) {
     std::fs::create_dir_all(dir).expect("bench dir");
     std::fs::write(dir.join("network.mech"), mech).expect("writes network.mech");
     let json = serde_json::json!({ "n": n_species, "initial": initial_r, "steps": steps_json, "until": 10.0 });
-    std::fs::write(dir.join("network.json"), serde_json::to_vec(&json).expect("json")).expect("writes network.json");
+    std::fs::write(
+        dir.join("network.json"),
+        serde_json::to_vec(&json).expect("json"),
+    )
+    .expect("writes network.json");
     if n_species == 1000 {
         println!("network_written {}", dir.display());
     }
@@ -216,11 +262,24 @@ fn generate(dir: &Path, n_species: usize, n_steps: usize) {
 fn network_run(dir: &Path, reps: usize) {
     let path = dir.join("network.mech");
     let loaded = load_path(&path);
-    let model = loaded.model.unwrap_or_else(|| panic!("{} loads: {:?}", path.display(), loaded.diagnostics.first().map(|d| &d.message)));
+    let model = loaded.model.unwrap_or_else(|| {
+        panic!(
+            "{} loads: {:?}",
+            path.display(),
+            loaded.diagnostics.first().map(|d| &d.message)
+        )
+    });
     let start = Instant::now();
     let prepared = Prepared::full(&model).expect("compiles");
-    println!("network_compile_seconds {:.6e}", start.elapsed().as_secs_f64());
-    let settings = Settings { rtol: 1e-6, atol: 1e-10, ..Settings::default() };
+    println!(
+        "network_compile_seconds {:.6e}",
+        start.elapsed().as_secs_f64()
+    );
+    let settings = Settings {
+        rtol: 1e-6,
+        atol: 1e-10,
+        ..Settings::default()
+    };
     let mut times = Vec::new();
     let mut last = Vec::new();
     for _ in 0..reps {
@@ -230,9 +289,21 @@ fn network_run(dir: &Path, reps: usize) {
         last = tr.rows[0][..model.species.len()].to_vec();
     }
     println!("network_seconds {:.6e}", median(times));
-    let tight = Settings { rtol: 1e-11, atol: 1e-15, ..Settings::default() };
-    let reference = prepared.simulate(&tight, &[10.0]).expect("solves tightly").rows[0][..model.species.len()].to_vec();
-    let err = last.iter().zip(&reference).map(|(a, b)| (a - b).abs() / b.abs().max(1e-6)).fold(0.0, f64::max);
+    let tight = Settings {
+        rtol: 1e-11,
+        atol: 1e-15,
+        ..Settings::default()
+    };
+    let reference = prepared
+        .simulate(&tight, &[10.0])
+        .expect("solves tightly")
+        .rows[0][..model.species.len()]
+        .to_vec();
+    let err = last
+        .iter()
+        .zip(&reference)
+        .map(|(a, b)| (a - b).abs() / b.abs().max(1e-6))
+        .fold(0.0, f64::max);
     println!("network_error {err:.3e}");
     let text: Vec<String> = reference.iter().map(|v| format!("{v:?}")).collect();
     std::fs::write(dir.join("reference.txt"), text.join("\n")).expect("writes the reference");
@@ -246,7 +317,11 @@ fn threshold(reps: usize) {
         generate(&dir, n, 3 * n);
         let model = load_path(&dir.join("network.mech")).model.expect("loads");
         let system = ratewright::numeric::CompiledSystem::full(&model).expect("compiles");
-        let settings = Settings { rtol: 1e-6, atol: 1e-10, ..Settings::default() };
+        let settings = Settings {
+            rtol: 1e-6,
+            atol: 1e-10,
+            ..Settings::default()
+        };
         let mut line = format!("threshold n={n}");
         for algebra in [LinearAlgebra::Dense, LinearAlgebra::Sparse] {
             let mut times = Vec::new();
@@ -265,11 +340,22 @@ fn main() {
     let args: Vec<String> = std::env::args().collect();
     match args.get(1).map(String::as_str) {
         Some("robertson") => robertson(args.get(2).and_then(|s| s.parse().ok()).unwrap_or(50)),
-        Some("network") => generate_network(Path::new(args.get(2).map(String::as_str).unwrap_or("target/sim-bench"))),
+        Some("network") => generate_network(Path::new(
+            args.get(2)
+                .map(String::as_str)
+                .unwrap_or("target/sim-bench"),
+        )),
         Some("threshold") => threshold(args.get(2).and_then(|s| s.parse().ok()).unwrap_or(5)),
-        Some("network-run") => {
-            network_run(Path::new(args.get(2).map(String::as_str).unwrap_or("target/sim-bench")), args.get(3).and_then(|s| s.parse().ok()).unwrap_or(5))
-        }
-        _ => eprintln!("usage: sim_bench robertson N | network DIR | network-run DIR N | threshold N"),
+        Some("network-run") => network_run(
+            Path::new(
+                args.get(2)
+                    .map(String::as_str)
+                    .unwrap_or("target/sim-bench"),
+            ),
+            args.get(3).and_then(|s| s.parse().ok()).unwrap_or(5),
+        ),
+        _ => eprintln!(
+            "usage: sim_bench robertson N | network DIR | network-run DIR N | threshold N"
+        ),
     }
 }

@@ -16,7 +16,11 @@ fn write_model(dir: &Path, name: &str, text: &str) -> PathBuf {
 
 fn run_ok(args: &[&str]) -> String {
     let out = ratewright(args);
-    assert!(out.status.success(), "ratewright {args:?} failed:\n{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "ratewright {args:?} failed:\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     String::from_utf8(out.stdout).unwrap()
 }
 
@@ -24,20 +28,41 @@ fn run_ok(args: &[&str]) -> String {
 fn read_csv(path: &Path) -> (Vec<String>, Vec<Vec<f64>>) {
     let text = std::fs::read_to_string(path).unwrap();
     let mut lines = text.lines();
-    let header: Vec<String> = lines.next().unwrap().split(',').map(str::to_string).collect();
-    let rows = lines.map(|l| l.split(',').map(|v| v.parse::<f64>().unwrap()).collect()).collect();
+    let header: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    let rows = lines
+        .map(|l| l.split(',').map(|v| v.parse::<f64>().unwrap()).collect())
+        .collect();
     (header, rows)
 }
 
 fn parse_csv_text(text: &str) -> (Vec<String>, Vec<Vec<f64>>) {
     let mut lines = text.lines();
-    let header: Vec<String> = lines.next().unwrap().split(',').map(str::to_string).collect();
-    let rows = lines.map(|l| l.split(',').map(|v| v.parse::<f64>().unwrap_or(f64::NAN)).collect()).collect();
+    let header: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    let rows = lines
+        .map(|l| {
+            l.split(',')
+                .map(|v| v.parse::<f64>().unwrap_or(f64::NAN))
+                .collect()
+        })
+        .collect();
     (header, rows)
 }
 
 fn simulate_csv(dir: &Path, model: &Path, extra: &[&str]) -> (Vec<String>, Vec<Vec<f64>>) {
-    let out = dir.join(format!("{}.csv", model.file_stem().unwrap().to_string_lossy()));
+    let out = dir.join(format!(
+        "{}.csv",
+        model.file_stem().unwrap().to_string_lossy()
+    ));
     let mut args = vec!["run", model.to_str().unwrap(), "-o", out.to_str().unwrap()];
     args.extend_from_slice(extra);
     run_ok(&args);
@@ -53,28 +78,60 @@ fn robertson_matches_the_published_reference_solution() {
     //   t = 1e11: y = 0.2083340149701255e-7, 0.8333360770334713e-13, 0.9999999791665050
     // Being from memory, they are cross-checked below against SciPy Radau at rtol 1e-12.
     let reference = [
-        [0.7158270687193267, 0.9185534764557338e-5, 0.2841637457458771],
-        [0.2083340149701255e-7, 0.8333360770334713e-13, 0.9999999791665050],
+        [
+            0.7158270687193267,
+            0.9185534764557338e-5,
+            0.2841637457458771,
+        ],
+        [
+            0.2083340149701255e-7,
+            0.8333360770334713e-13,
+            0.9999999791665050,
+        ],
     ];
     let scipy = python(&root().join("tests/python/sim_robertson.py"), &[]);
-    assert!(scipy.status.success(), "{}", String::from_utf8_lossy(&scipy.stderr));
-    let scipy_rows: Vec<Vec<f64>> =
-        String::from_utf8(scipy.stdout).unwrap().lines().map(|l| l.split(',').map(|v| v.parse().unwrap()).collect()).collect();
+    assert!(
+        scipy.status.success(),
+        "{}",
+        String::from_utf8_lossy(&scipy.stderr)
+    );
+    let scipy_rows: Vec<Vec<f64>> = String::from_utf8(scipy.stdout)
+        .unwrap()
+        .lines()
+        .map(|l| l.split(',').map(|v| v.parse().unwrap()).collect())
+        .collect();
     for (r, s) in reference.iter().zip(&scipy_rows) {
         for k in 0..3 {
-            assert!((r[k] - s[k]).abs() <= 1e-6 * r[k], "memory value {} vs SciPy Radau {}", r[k], s[k]);
+            assert!(
+                (r[k] - s[k]).abs() <= 1e-6 * r[k],
+                "memory value {} vs SciPy Radau {}",
+                r[k],
+                s[k]
+            );
         }
     }
     let dir = tempfile::tempdir().unwrap();
     for method in ["bdf", "esdirk"] {
-        let (header, rows) =
-            simulate_csv(dir.path(), &root().join("models/robertson.mech"), &["--times", "40,1e11", "--rtol", "1e-10", "--atol", "1e-20", "--method", method]);
+        let (header, rows) = simulate_csv(
+            dir.path(),
+            &root().join("models/robertson.mech"),
+            &[
+                "--times", "40,1e11", "--rtol", "1e-10", "--atol", "1e-20", "--method", method,
+            ],
+        );
         assert_eq!(&header[..4], &["t", "A", "B", "C"]);
         for (row, r) in rows.iter().zip(&reference) {
             for k in 0..3 {
                 let rel = (row[k + 1] - r[k]).abs() / r[k];
                 // Asked for rtol 1e-10; global error accumulates over ~1000 steps.
-                assert!(rel < 1e-5, "{method}: t = {} y{} = {} vs {} (rel {rel:e})", row[0], k + 1, row[k + 1], r[k]);
+                assert!(
+                    rel < 1e-5,
+                    "{method}: t = {} y{} = {} vs {} (rel {rel:e})",
+                    row[0],
+                    k + 1,
+                    row[k + 1],
+                    r[k]
+                );
             }
         }
     }
@@ -94,7 +151,13 @@ fn first_order_reversible_and_second_order_match_closed_forms() {
          param k = 0.2 /s\nparam kf = 0.7 /s\nparam kr = 0.3 /s\nparam k2 = 0.05 /uM/s\n\
          step decay A -> B with k\nstep flip C <=> D with kf, kr\nstep dimer 2 E -> P with k2\n",
     );
-    let (_, rows) = simulate_csv(dir.path(), &m, &["--until", "20 s", "--points", "41", "--rtol", "1e-10", "--atol", "1e-14"]);
+    let (_, rows) = simulate_csv(
+        dir.path(),
+        &m,
+        &[
+            "--until", "20 s", "--points", "41", "--rtol", "1e-10", "--atol", "1e-14",
+        ],
+    );
     for r in &rows {
         let t = r[0];
         let a = 5.0 * (-0.2 * t).exp();
@@ -110,7 +173,11 @@ fn first_order_reversible_and_second_order_match_closed_forms() {
 /// The principal branch W0 of the Lambert W function by Halley's iteration
 /// (Corless et al., "On the Lambert W function", Adv. Comput. Math. 5, 1996).
 fn lambert_w0(x: f64) -> f64 {
-    let mut w = if x < 1.0 { x / (1.0 + x) } else { x.ln() - x.ln().ln().max(0.0) };
+    let mut w = if x < 1.0 {
+        x / (1.0 + x)
+    } else {
+        x.ln() - x.ln().ln().max(0.0)
+    };
     for _ in 0..100 {
         let ew = w.exp();
         let f = w * ew - x;
@@ -139,14 +206,24 @@ fn michaelis_menten_progress_curve_follows_the_lambert_w_solution() {
          param kon = 10 /uM/s\nparam koff = 100 /s\nparam kcat = 50 /s\n\
          step bind E + S <=> ES with kon, koff\nstep turn ES -> E + P with kcat\n",
     );
-    let (_, rows) = simulate_csv(dir.path(), &m, &["--until", "300 s", "--points", "61", "--rtol", "1e-9", "--atol", "1e-14"]);
+    let (_, rows) = simulate_csv(
+        dir.path(),
+        &m,
+        &[
+            "--until", "300 s", "--points", "61", "--rtol", "1e-9", "--atol", "1e-14",
+        ],
+    );
     let (km, vmax, s0) = ((100.0 + 50.0) / 10.0, 50.0 * 0.01, 50.0);
     for r in rows.iter().skip(1) {
         let t = r[0];
         let s = km * lambert_w0((s0 / km) * ((s0 - vmax * t) / km).exp());
         // Compare substrate + complex (the QSSA's slow variable) against S0 scale.
         let err = (r[1] + r[3] - s).abs() / s0;
-        assert!(err < 5e-4, "t = {t}: S+ES = {} vs W solution {s} (error {err:e} of S0)", r[1] + r[3]);
+        assert!(
+            err < 5e-4,
+            "t = {t}: S+ES = {} vs W solution {s} (error {err:e} of S0)",
+            r[1] + r[3]
+        );
     }
 }
 
@@ -156,7 +233,12 @@ fn laws_of(model: &Model) -> Vec<Vec<(usize, f64)>> {
     reduced
         .laws
         .iter()
-        .map(|l| l.coefficients.iter().map(|(i, c)| (*i, c.to_string().parse::<f64>().unwrap())).collect())
+        .map(|l| {
+            l.coefficients
+                .iter()
+                .map(|(i, c)| (*i, c.to_string().parse::<f64>().unwrap()))
+                .collect()
+        })
         .collect()
 }
 
@@ -165,23 +247,43 @@ fn every_conservation_law_holds_along_every_trajectory_and_reduced_runs_agree() 
     let dir = tempfile::tempdir().unwrap();
     for path in models() {
         let loaded = load_path(&path);
-        let model = loaded.model.unwrap_or_else(|| panic!("{} loads", path.display()));
+        let model = loaded
+            .model
+            .unwrap_or_else(|| panic!("{} loads", path.display()));
         let event_times: Vec<f64> = model.events.iter().map(|e| e.time).collect();
         let (_, full) = simulate_csv(dir.path(), &path, &["--rtol", "1e-10", "--atol", "1e-16"]);
         for law in laws_of(&model) {
             let value = |row: &Vec<f64>| law.iter().map(|(i, c)| c * row[i + 1]).sum::<f64>();
-            let scale = law.iter().map(|(i, c)| (c * full[0][i + 1]).abs()).sum::<f64>().max(1e-300);
+            let scale = law
+                .iter()
+                .map(|(i, c)| (c * full[0][i + 1]).abs())
+                .sum::<f64>()
+                .max(1e-300);
             // Compare within each stretch between events (an addition changes a total).
             let segment = |t: f64| event_times.iter().filter(|&&e| e <= t).count();
             for w in full.windows(2) {
                 if segment(w[0][0]) == segment(w[1][0]) {
                     let (a, b) = (value(&w[0]), value(&w[1]));
-                    assert!((a - b).abs() <= 1e-9 * scale.max(a.abs()), "{}: law {law:?} drifts from {a} to {b}", path.display());
+                    assert!(
+                        (a - b).abs() <= 1e-9 * scale.max(a.abs()),
+                        "{}: law {law:?} drifts from {a} to {b}",
+                        path.display()
+                    );
                 }
             }
         }
         let out = dir.path().join("reduced.csv");
-        run_ok(&["run", path.to_str().unwrap(), "--reduced", "--rtol", "1e-10", "--atol", "1e-16", "-o", out.to_str().unwrap()]);
+        run_ok(&[
+            "run",
+            path.to_str().unwrap(),
+            "--reduced",
+            "--rtol",
+            "1e-10",
+            "--atol",
+            "1e-16",
+            "-o",
+            out.to_str().unwrap(),
+        ]);
         let (_, reduced) = read_csv(&out);
         assert_eq!(reduced.len(), full.len());
         // Agreement to 1e-6 relative (the default --rtol) when both runs are asked for 1e-10:
@@ -213,7 +315,9 @@ fn compiled_jacobian_agrees_with_central_differences_on_every_model() {
         // At the initial state and at a state with every species positive.
         let y0 = system.state_from_species(&model.initial_state());
         let scale = y0.iter().fold(0.0f64, |a, v| a.max(v.abs())).max(1e-3);
-        let y1: Vec<f64> = (0..n).map(|i| y0[i] + scale * (0.1 + 0.05 * i as f64)).collect();
+        let y1: Vec<f64> = (0..n)
+            .map(|i| y0[i] + scale * (0.1 + 0.05 * i as f64))
+            .collect();
         for y in [y0, y1] {
             let j = system.dense_jacobian(&mut w, &y, 0.0);
             for c in 0..n {
@@ -226,8 +330,15 @@ fn compiled_jacobian_agrees_with_central_differences_on_every_model() {
                 system.rhs(&mut w, &ym, 0.0, &mut fm);
                 for r in 0..n {
                     let fd = (fp[r] - fm[r]) / (2.0 * h);
-                    let tol = 1e-5 * fd.abs().max(j[r][c].abs()) + 1e-7 * (fp[r].abs() + fm[r].abs()) / h * 1e-6 + 1e-9;
-                    assert!((fd - j[r][c]).abs() <= tol, "{}: J[{r}][{c}] = {} vs central difference {fd}", path.display(), j[r][c]);
+                    let tol = 1e-5 * fd.abs().max(j[r][c].abs())
+                        + 1e-7 * (fp[r].abs() + fm[r].abs()) / h * 1e-6
+                        + 1e-9;
+                    assert!(
+                        (fd - j[r][c]).abs() <= tol,
+                        "{}: J[{r}][{c}] = {} vs central difference {fd}",
+                        path.display(),
+                        j[r][c]
+                    );
                 }
             }
         }
@@ -254,10 +365,23 @@ fn crosscheck_spec(model: &Model, times: &[f64]) -> serde_json::Value {
         }
         e
     };
-    let fluxes: Vec<String> = (0..model.steps.len()).map(|j| print_expr(&expand(&model.step_rate(j)), &name, Syntax::Python)).collect();
-    let stoich: Vec<Vec<(usize, f64)>> =
-        (0..model.steps.len()).map(|j| model.net_change(j).into_iter().map(|(i, c)| (i, ratewright::model::coef_f64(c))).collect()).collect();
-    let observables: Vec<String> = model.observables.iter().map(|o| print_expr(&expand(&o.expr), &name, Syntax::Python)).collect();
+    let fluxes: Vec<String> = (0..model.steps.len())
+        .map(|j| print_expr(&expand(&model.step_rate(j)), &name, Syntax::Python))
+        .collect();
+    let stoich: Vec<Vec<(usize, f64)>> = (0..model.steps.len())
+        .map(|j| {
+            model
+                .net_change(j)
+                .into_iter()
+                .map(|(i, c)| (i, ratewright::model::coef_f64(c)))
+                .collect()
+        })
+        .collect();
+    let observables: Vec<String> = model
+        .observables
+        .iter()
+        .map(|o| print_expr(&expand(&o.expr), &name, Syntax::Python))
+        .collect();
     serde_json::json!({
         "species": model.species.iter().map(|s| s.name.clone()).collect::<Vec<_>>(),
         "observable_names": model.observables.iter().map(|o| o.name.clone()).collect::<Vec<_>>(),
@@ -280,12 +404,25 @@ fn scipy_radau_agrees_with_run_on_every_model() {
     let dir = tempfile::tempdir().unwrap();
     for path in models() {
         let model = load_path(&path).model.unwrap();
-        let (header, rows) = simulate_csv(dir.path(), &path, &["--rtol", "1e-10", "--atol", "1e-16"]);
+        let (header, rows) =
+            simulate_csv(dir.path(), &path, &["--rtol", "1e-10", "--atol", "1e-16"]);
         let times: Vec<f64> = rows.iter().map(|r| r[0]).collect();
         let spec = dir.path().join("spec.json");
-        std::fs::write(&spec, serde_json::to_vec(&crosscheck_spec(&model, &times)).unwrap()).unwrap();
-        let out = python(&root().join("tests/python/sim_crosscheck.py"), &[spec.to_str().unwrap()]);
-        assert!(out.status.success(), "{}: {}", path.display(), String::from_utf8_lossy(&out.stderr));
+        std::fs::write(
+            &spec,
+            serde_json::to_vec(&crosscheck_spec(&model, &times)).unwrap(),
+        )
+        .unwrap();
+        let out = python(
+            &root().join("tests/python/sim_crosscheck.py"),
+            &[spec.to_str().unwrap()],
+        );
+        assert!(
+            out.status.success(),
+            "{}: {}",
+            path.display(),
+            String::from_utf8_lossy(&out.stderr)
+        );
         let (ref_header, reference) = parse_csv_text(&String::from_utf8(out.stdout).unwrap());
         assert_eq!(header, ref_header, "{}", path.display());
         assert_eq!(rows.len(), reference.len(), "{}", path.display());
@@ -335,11 +472,24 @@ fn steady_state_matches_closed_forms_with_eigenvalues() {
     // Three independent species (E is fixed by E_t): three eigenvalues, P's is -kd.
     let eig = v["eigenvalues"].as_array().unwrap();
     assert_eq!(eig.len(), 3);
-    assert!(eig.iter().any(|e| (e[0].as_f64().unwrap() + 0.1).abs() < 1e-9));
+    assert!(
+        eig.iter()
+            .any(|e| (e[0].as_f64().unwrap() + 0.1).abs() < 1e-9)
+    );
 
     // A <=> B: A = kr T/(kf + kr); the one eigenvalue of the reduced system is -(kf + kr).
-    let m = write_model(dir.path(), "ab.mech", "species A = 3 uM\nspecies B = 1 uM\nparam kf = 2 /s\nparam kr = 0.5 /s\nstep s A <=> B with kf, kr\n");
-    let v: serde_json::Value = serde_json::from_str(&run_ok(&["steady", m.to_str().unwrap(), "--format", "json"])).unwrap();
+    let m = write_model(
+        dir.path(),
+        "ab.mech",
+        "species A = 3 uM\nspecies B = 1 uM\nparam kf = 2 /s\nparam kr = 0.5 /s\nstep s A <=> B with kf, kr\n",
+    );
+    let v: serde_json::Value = serde_json::from_str(&run_ok(&[
+        "steady",
+        m.to_str().unwrap(),
+        "--format",
+        "json",
+    ]))
+    .unwrap();
     assert!((v["state"]["A"].as_f64().unwrap() - 0.5 * 4.0 / 2.5).abs() < 1e-10);
     let eig = v["eigenvalues"].as_array().unwrap();
     assert_eq!(eig.len(), 1);
@@ -350,28 +500,71 @@ fn steady_state_matches_closed_forms_with_eigenvalues() {
 fn a_system_without_a_steady_state_gets_a_clear_message() {
     let dir = tempfile::tempdir().unwrap();
     // Constant inflow and nothing leaves: S grows without bound.
-    let m = write_model(dir.path(), "grow.mech", "species S = 1 uM\nparam k0 = 1 uM/s\nstep feed 0 -> S with k0\n");
+    let m = write_model(
+        dir.path(),
+        "grow.mech",
+        "species S = 1 uM\nparam k0 = 1 uM/s\nstep feed 0 -> S with k0\n",
+    );
     let out = ratewright(&["steady", m.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(1));
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(err.contains("E0702") && err.contains("no steady state"), "{err}");
+    assert!(
+        err.contains("E0702") && err.contains("no steady state"),
+        "{err}"
+    );
 }
 
 #[test]
 fn scans_match_closed_forms_at_a_time_and_at_steady_state() {
     let dir = tempfile::tempdir().unwrap();
-    let m = write_model(dir.path(), "ab.mech", "species A = 3 uM\nspecies B = 1 uM\nparam kf = 2 /s\nparam kr = 0.5 /s\nstep s A <=> B with kf, kr\n");
+    let m = write_model(
+        dir.path(),
+        "ab.mech",
+        "species A = 3 uM\nspecies B = 1 uM\nparam kf = 2 /s\nparam kr = 0.5 /s\nstep s A <=> B with kf, kr\n",
+    );
     let csv = dir.path().join("scan.csv");
-    run_ok(&["scan", m.to_str().unwrap(), "--vary", "kf=0.1..10:7:log", "--measure", "B / (A + B)", "--steady", "-o", csv.to_str().unwrap()]);
+    run_ok(&[
+        "scan",
+        m.to_str().unwrap(),
+        "--vary",
+        "kf=0.1..10:7:log",
+        "--measure",
+        "B / (A + B)",
+        "--steady",
+        "-o",
+        csv.to_str().unwrap(),
+    ]);
     let (header, rows) = read_csv(&csv);
     assert_eq!(header, vec!["kf", "B / (A + B)"]);
     assert_eq!(rows.len(), 7);
     for r in &rows {
         let expect = r[0] / (r[0] + 0.5); // equilibrium fraction kf/(kf + kr)
-        assert!((r[1] - expect).abs() < 1e-8, "kf = {}: {} vs {expect}", r[0], r[1]);
+        assert!(
+            (r[1] - expect).abs() < 1e-8,
+            "kf = {}: {} vs {expect}",
+            r[0],
+            r[1]
+        );
     }
     // Two names at a time: A(t) = A_eq + (A0 - A_eq) exp(-(kf + kr) t).
-    run_ok(&["scan", m.to_str().unwrap(), "--vary", "kf=0.5..2:4", "--vary", "A=1..4:3", "--measure", "A", "--at", "0.7 s", "--rtol", "1e-10", "--atol", "1e-14", "-o", csv.to_str().unwrap()]);
+    run_ok(&[
+        "scan",
+        m.to_str().unwrap(),
+        "--vary",
+        "kf=0.5..2:4",
+        "--vary",
+        "A=1..4:3",
+        "--measure",
+        "A",
+        "--at",
+        "0.7 s",
+        "--rtol",
+        "1e-10",
+        "--atol",
+        "1e-14",
+        "-o",
+        csv.to_str().unwrap(),
+    ]);
     let (_, rows) = read_csv(&csv);
     assert_eq!(rows.len(), 12);
     for r in &rows {
@@ -379,7 +572,11 @@ fn scans_match_closed_forms_at_a_time_and_at_steady_state() {
         let total = a0 + 1.0;
         let a_eq = 0.5 * total / (kf + 0.5);
         let expect = a_eq + (a0 - a_eq) * (-(kf + 0.5) * 0.7f64).exp();
-        assert!((r[2] - expect).abs() < 1e-7, "kf = {kf}, A0 = {a0}: {} vs {expect}", r[2]);
+        assert!(
+            (r[2] - expect).abs() < 1e-7,
+            "kf = {kf}, A0 = {a0}: {} vs {expect}",
+            r[2]
+        );
     }
 }
 
@@ -387,14 +584,33 @@ fn scans_match_closed_forms_at_a_time_and_at_steady_state() {
 fn a_blow_up_stops_with_the_time_and_species_and_writes_nothing() {
     let dir = tempfile::tempdir().unwrap();
     // 2 A -> 3 A: dA/dt = k A^2, A = A0/(1 - k A0 t), infinite at t = 1/(k A0) = 10 s.
-    let m = write_model(dir.path(), "boom.mech", "species A = 1 uM\nparam k = 0.1 /uM/s\nstep grow 2 A -> 3 A with k\n");
+    let m = write_model(
+        dir.path(),
+        "boom.mech",
+        "species A = 1 uM\nparam k = 0.1 /uM/s\nstep grow 2 A -> 3 A with k\n",
+    );
     let out_csv = dir.path().join("boom.csv");
-    let out = ratewright(&["run", m.to_str().unwrap(), "--until", "20 s", "-o", out_csv.to_str().unwrap()]);
+    let out = ratewright(&[
+        "run",
+        m.to_str().unwrap(),
+        "--until",
+        "20 s",
+        "-o",
+        out_csv.to_str().unwrap(),
+    ]);
     assert_eq!(out.status.code(), Some(1));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("E0701") && err.contains("`A`"), "{err}");
-    let t: f64 = err.split("t = ").nth(1).and_then(|s| s.split(':').next()).and_then(|s| s.trim().parse().ok()).expect("a time in the message");
-    assert!(t > 9.0 && t <= 10.0 + 1e-6, "failure reported at t = {t}, the singularity is at 10 s");
+    let t: f64 = err
+        .split("t = ")
+        .nth(1)
+        .and_then(|s| s.split(':').next())
+        .and_then(|s| s.trim().parse().ok())
+        .expect("a time in the message");
+    assert!(
+        t > 9.0 && t <= 10.0 + 1e-6,
+        "failure reported at t = {t}, the singularity is at 10 s"
+    );
     assert!(!out_csv.exists(), "nothing is written after a failure");
 }
 
@@ -407,13 +623,44 @@ fn outputs_come_in_every_format_and_plots_are_drawn() {
     let json = dir.path().join("x.json");
     let svg = dir.path().join("x.svg");
     let png = dir.path().join("x.png");
-    run_ok(&["run", m, "--until", "20 min", "--every", "1 min", "-o", tsv.to_str().unwrap(), "--plot", svg.to_str().unwrap(), "--show", "S,P"]);
+    run_ok(&[
+        "run",
+        m,
+        "--until",
+        "20 min",
+        "--every",
+        "1 min",
+        "-o",
+        tsv.to_str().unwrap(),
+        "--plot",
+        svg.to_str().unwrap(),
+        "--show",
+        "S,P",
+    ]);
     let text = std::fs::read_to_string(&tsv).unwrap();
-    assert!(text.starts_with("t\tS\tP\tE\tES\tsignal\tv_qss\n"), "{}", &text[..60]);
+    assert!(
+        text.starts_with("t\tS\tP\tE\tES\tsignal\tv_qss\n"),
+        "{}",
+        &text[..60]
+    );
     assert_eq!(text.lines().count(), 22);
     let svg_text = std::fs::read_to_string(&svg).unwrap();
-    assert!(svg_text.contains("<svg") && svg_text.contains("time (s)") && svg_text.contains("concentration (uM)"));
-    run_ok(&["run", m, "--times", "0,600 s,601", "-o", json.to_str().unwrap(), "--plot", png.to_str().unwrap(), "--log-values"]);
+    assert!(
+        svg_text.contains("<svg")
+            && svg_text.contains("time (s)")
+            && svg_text.contains("concentration (uM)")
+    );
+    run_ok(&[
+        "run",
+        m,
+        "--times",
+        "0,600 s,601",
+        "-o",
+        json.to_str().unwrap(),
+        "--plot",
+        png.to_str().unwrap(),
+        "--log-values",
+    ]);
     let v: serde_json::Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
     // The row at the addition's time holds the state after the addition (+10 uM S).
     let s = v["species"]["S"].as_array().unwrap();

@@ -63,7 +63,10 @@ const FONT_CANDIDATES: [&str; 8] = [
 fn ensure_font() -> Result<(), String> {
     static FONT: OnceLock<Result<(), String>> = OnceLock::new();
     FONT.get_or_init(|| {
-        let mut candidates: Vec<PathBuf> = std::env::var_os("RATEWRIGHT_FONT").map(PathBuf::from).into_iter().collect();
+        let mut candidates: Vec<PathBuf> = std::env::var_os("RATEWRIGHT_FONT")
+            .map(PathBuf::from)
+            .into_iter()
+            .collect();
         candidates.extend(FONT_CANDIDATES.iter().map(PathBuf::from));
         for path in candidates {
             if let Ok(bytes) = std::fs::read(&path) {
@@ -85,15 +88,26 @@ enum Kind {
 }
 
 fn kind_of(path: &Path) -> Result<Kind, String> {
-    match path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
+    match path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase)
+        .as_deref()
+    {
         Some("svg") => Ok(Kind::Svg),
         Some("png") => Ok(Kind::Png),
-        _ => Err(format!("--plot {}: the figure must end in .svg or .png", path.display())),
+        _ => Err(format!(
+            "--plot {}: the figure must end in .svg or .png",
+            path.display()
+        )),
     }
 }
 
 /// Draws through `draw` into a temporary file, then renames it to `path`.
-fn write_figure(path: &Path, draw: impl Fn(&Path, &Kind) -> Result<(), String>) -> Result<(), String> {
+fn write_figure(
+    path: &Path,
+    draw: impl Fn(&Path, &Kind) -> Result<(), String>,
+) -> Result<(), String> {
     let kind = kind_of(path)?;
     ensure_font()?;
     let dir = match path.parent() {
@@ -110,7 +124,8 @@ fn write_figure(path: &Path, draw: impl Fn(&Path, &Kind) -> Result<(), String>) 
         .tempfile_in(&dir)
         .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
     draw(tmp.path(), &kind)?;
-    tmp.persist(path).map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
+    tmp.persist(path)
+        .map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
     Ok(())
 }
 
@@ -118,7 +133,10 @@ fn write_figure(path: &Path, draw: impl Fn(&Path, &Kind) -> Result<(), String>) 
 pub fn draw_lines(path: &Path, spec: &LinePlot) -> Result<(), String> {
     write_figure(path, |tmp, kind| match kind {
         Kind::Svg => lines_on(SVGBackend::new(tmp, (960, 640)).into_drawing_area(), spec),
-        Kind::Png => lines_on(BitMapBackend::new(tmp, (1440, 960)).into_drawing_area(), spec),
+        Kind::Png => lines_on(
+            BitMapBackend::new(tmp, (1440, 960)).into_drawing_area(),
+            spec,
+        ),
     })
 }
 
@@ -126,7 +144,10 @@ pub fn draw_lines(path: &Path, spec: &LinePlot) -> Result<(), String> {
 pub fn draw_heat_map(path: &Path, spec: &HeatMap) -> Result<(), String> {
     write_figure(path, |tmp, kind| match kind {
         Kind::Svg => heat_on(SVGBackend::new(tmp, (960, 720)).into_drawing_area(), spec),
-        Kind::Png => heat_on(BitMapBackend::new(tmp, (1440, 1080)).into_drawing_area(), spec),
+        Kind::Png => heat_on(
+            BitMapBackend::new(tmp, (1440, 1080)).into_drawing_area(),
+            spec,
+        ),
     })
 }
 
@@ -141,13 +162,24 @@ fn range_of(values: impl Iterator<Item = f64>, log: bool) -> Option<(f64, f64)> 
     }
     if hi <= lo {
         let pad = if lo == 0.0 { 1.0 } else { lo.abs() * 0.1 };
-        return Some(if log { (lo / 2.0, hi * 2.0) } else { (lo - pad, hi + pad) });
+        return Some(if log {
+            (lo / 2.0, hi * 2.0)
+        } else {
+            (lo - pad, hi + pad)
+        });
     }
     if log {
         Some((lo, hi))
     } else {
         let pad = (hi - lo) * 0.04;
-        Some((if lo >= 0.0 { (lo - pad).max(0.0) } else { lo - pad }, hi + pad))
+        Some((
+            if lo >= 0.0 {
+                (lo - pad).max(0.0)
+            } else {
+                lo - pad
+            },
+            hi + pad,
+        ))
     }
 }
 
@@ -196,14 +228,21 @@ macro_rules! line_chart {
                 .x
                 .iter()
                 .zip(ys)
-                .filter(|(x, y)| x.is_finite() && y.is_finite() && (!spec.log_x || **x > 0.0) && (!spec.log_y || **y > 0.0))
+                .filter(|(x, y)| {
+                    x.is_finite()
+                        && y.is_finite()
+                        && (!spec.log_x || **x > 0.0)
+                        && (!spec.log_y || **y > 0.0)
+                })
                 .map(|(x, y)| (*x, *y))
                 .collect();
             chart
                 .draw_series(LineSeries::new(points, color.stroke_width(3)))
                 .map_err(err)?
                 .label(name.as_str())
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], color.stroke_width(3)));
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 24, y)], color.stroke_width(3))
+                });
         }
         chart
             .configure_series_labels()
@@ -221,9 +260,13 @@ where
     DB::ErrorType: 'static,
 {
     root.fill(&WHITE).map_err(err)?;
-    let (x0, x1) = range_of(spec.x.iter().copied(), spec.log_x).ok_or("nothing to plot on the x axis")?;
-    let (y0, y1) = range_of(spec.series.iter().flat_map(|(_, v)| v.iter().copied()), spec.log_y)
-        .ok_or("nothing to plot: every value is missing (or not positive on a log axis)")?;
+    let (x0, x1) =
+        range_of(spec.x.iter().copied(), spec.log_x).ok_or("nothing to plot on the x axis")?;
+    let (y0, y1) = range_of(
+        spec.series.iter().flat_map(|(_, v)| v.iter().copied()),
+        spec.log_y,
+    )
+    .ok_or("nothing to plot: every value is missing (or not positive on a log axis)")?;
     match (spec.log_x, spec.log_y) {
         (false, false) => line_chart!(&root, spec, x0..x1, y0..y1),
         (true, false) => line_chart!(&root, spec, (x0..x1).log_scale(), y0..y1),
@@ -236,9 +279,21 @@ where
 
 /// Viridis (van der Walt & Smith, 2015), 8 stops, linearly interpolated.
 fn viridis(f: f64) -> RGBColor {
-    const STOPS: [(u8, u8, u8); 8] =
-        [(68, 1, 84), (70, 50, 127), (54, 92, 141), (39, 127, 143), (31, 162, 136), (74, 194, 110), (160, 219, 57), (254, 232, 37)];
-    let f = if f.is_finite() { f.clamp(0.0, 1.0) } else { 0.0 };
+    const STOPS: [(u8, u8, u8); 8] = [
+        (68, 1, 84),
+        (70, 50, 127),
+        (54, 92, 141),
+        (39, 127, 143),
+        (31, 162, 136),
+        (74, 194, 110),
+        (160, 219, 57),
+        (254, 232, 37),
+    ];
+    let f = if f.is_finite() {
+        f.clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
     let x = f * (STOPS.len() - 1) as f64;
     let i = (x.floor() as usize).min(STOPS.len() - 2);
     let w = x - i as f64;
@@ -252,16 +307,28 @@ fn edges(points: &[f64], log: bool) -> Vec<f64> {
     let n = points.len();
     if n == 1 {
         let p = points[0];
-        return if log { vec![p / 1.5, p * 1.5] } else { vec![p - 0.5 * p.abs().max(1e-12), p + 0.5 * p.abs().max(1e-12)] };
+        return if log {
+            vec![p / 1.5, p * 1.5]
+        } else {
+            vec![p - 0.5 * p.abs().max(1e-12), p + 0.5 * p.abs().max(1e-12)]
+        };
     }
     let mid = |a: f64, b: f64| if log { (a * b).sqrt() } else { 0.5 * (a + b) };
     let mut e = Vec::with_capacity(n + 1);
-    let first = if log { points[0] * points[0] / mid(points[0], points[1]) } else { 2.0 * points[0] - mid(points[0], points[1]) };
+    let first = if log {
+        points[0] * points[0] / mid(points[0], points[1])
+    } else {
+        2.0 * points[0] - mid(points[0], points[1])
+    };
     e.push(first);
     for k in 0..n - 1 {
         e.push(mid(points[k], points[k + 1]));
     }
-    let last = if log { points[n - 1] * points[n - 1] / mid(points[n - 2], points[n - 1]) } else { 2.0 * points[n - 1] - mid(points[n - 2], points[n - 1]) };
+    let last = if log {
+        points[n - 1] * points[n - 1] / mid(points[n - 2], points[n - 1])
+    } else {
+        2.0 * points[n - 1] - mid(points[n - 2], points[n - 1])
+    };
     e.push(last);
     e
 }
@@ -292,8 +359,15 @@ macro_rules! heat_chart {
         for i in 0..spec.x.len() {
             for j in 0..spec.y.len() {
                 let v = spec.values[i][j];
-                let color = if v.is_finite() { viridis((v - $lo) / ($hi - $lo)) } else { RGBColor(200, 200, 200) };
-                cells.push(Rectangle::new([(xe[i], ye[j]), (xe[i + 1], ye[j + 1])], color.filled()));
+                let color = if v.is_finite() {
+                    viridis((v - $lo) / ($hi - $lo))
+                } else {
+                    RGBColor(200, 200, 200)
+                };
+                cells.push(Rectangle::new(
+                    [(xe[i], ye[j]), (xe[i + 1], ye[j + 1])],
+                    color.filled(),
+                ));
             }
         }
         chart.draw_series(cells).map_err(err)?;
@@ -309,17 +383,49 @@ where
         return Err("nothing to plot: the grid is empty".into());
     }
     let (plot_area, bar_area) = root.split_horizontally(root.dim_in_pixel().0 as i32 - 150);
-    let (lo, hi) = range_of(spec.values.iter().flat_map(|r| r.iter().copied()), false).ok_or("nothing to plot: every value is missing")?;
-    let (lo, hi) = if hi > lo { (lo, hi) } else { (lo - 1.0, hi + 1.0) };
+    let (lo, hi) = range_of(spec.values.iter().flat_map(|r| r.iter().copied()), false)
+        .ok_or("nothing to plot: every value is missing")?;
+    let (lo, hi) = if hi > lo {
+        (lo, hi)
+    } else {
+        (lo - 1.0, hi + 1.0)
+    };
     let xe = edges(&spec.x, spec.log_x);
     let ye = edges(&spec.y, spec.log_y);
     let (x0, x1) = (xe[0].min(xe[xe.len() - 1]), xe[0].max(xe[xe.len() - 1]));
     let (y0, y1) = (ye[0].min(ye[ye.len() - 1]), ye[0].max(ye[ye.len() - 1]));
     match (spec.log_x, spec.log_y) {
         (false, false) => heat_chart!(&plot_area, spec, x0..x1, y0..y1, &xe, &ye, lo, hi),
-        (true, false) => heat_chart!(&plot_area, spec, (x0..x1).log_scale(), y0..y1, &xe, &ye, lo, hi),
-        (false, true) => heat_chart!(&plot_area, spec, x0..x1, (y0..y1).log_scale(), &xe, &ye, lo, hi),
-        (true, true) => heat_chart!(&plot_area, spec, (x0..x1).log_scale(), (y0..y1).log_scale(), &xe, &ye, lo, hi),
+        (true, false) => heat_chart!(
+            &plot_area,
+            spec,
+            (x0..x1).log_scale(),
+            y0..y1,
+            &xe,
+            &ye,
+            lo,
+            hi
+        ),
+        (false, true) => heat_chart!(
+            &plot_area,
+            spec,
+            x0..x1,
+            (y0..y1).log_scale(),
+            &xe,
+            &ye,
+            lo,
+            hi
+        ),
+        (true, true) => heat_chart!(
+            &plot_area,
+            spec,
+            (x0..x1).log_scale(),
+            (y0..y1).log_scale(),
+            &xe,
+            &ye,
+            lo,
+            hi
+        ),
     }
     // Colour bar with the measured quantity's name.
     let mut bar = ChartBuilder::on(&bar_area)
@@ -341,7 +447,10 @@ where
     bar.draw_series((0..steps).map(|k| {
         let a = lo + (hi - lo) * k as f64 / steps as f64;
         let b = lo + (hi - lo) * (k + 1) as f64 / steps as f64;
-        Rectangle::new([(0.0, a), (1.0, b)], viridis(k as f64 / (steps - 1) as f64).filled())
+        Rectangle::new(
+            [(0.0, a), (1.0, b)],
+            viridis(k as f64 / (steps - 1) as f64).filled(),
+        )
     }))
     .map_err(err)?;
     root.present().map_err(err)?;

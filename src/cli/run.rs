@@ -84,7 +84,9 @@ pub(crate) fn model_with_overrides(file: &Path, set: &[String]) -> Result<Model,
     if overrides.is_empty() {
         return Ok(model);
     }
-    model.with_overrides(&overrides).map_err(|e| usage_error(format!("--set: {e}")))
+    model
+        .with_overrides(&overrides)
+        .map_err(|e| usage_error(format!("--set: {e}")))
 }
 
 /// Prints a simulation failure with its stable code; exit code 1.
@@ -170,10 +172,15 @@ pub fn run(args: &Args) -> ExitCode {
                 match columns.iter().position(|c| c == name) {
                     Some(i) => v.push(i),
                     None => {
-                        let hint = crate::diagnostics::did_you_mean(name, columns.iter().map(String::as_str))
-                            .map(|s| format!(" (did you mean `{s}`?)"))
-                            .unwrap_or_default();
-                        return usage_error(format!("--show: no species or observable named `{name}`{hint}"));
+                        let hint = crate::diagnostics::did_you_mean(
+                            name,
+                            columns.iter().map(String::as_str),
+                        )
+                        .map(|s| format!(" (did you mean `{s}`?)"))
+                        .unwrap_or_default();
+                        return usage_error(format!(
+                            "--show: no species or observable named `{name}`{hint}"
+                        ));
                     }
                 }
             }
@@ -205,11 +212,23 @@ pub fn run(args: &Args) -> ExitCode {
     };
     if let Some(plot_path) = &args.plot {
         let spec = super::plot::LinePlot {
-            title: prepared.model.name.clone().unwrap_or_else(|| file_stem(&args.file)),
+            title: prepared
+                .model
+                .name
+                .clone()
+                .unwrap_or_else(|| file_stem(&args.file)),
             x_label: format!("time ({})", prepared.model.units.time.symbol()),
             y_label: y_label(&prepared.model, &shown),
             x: trajectory.times.clone(),
-            series: shown.iter().map(|&c| (columns[c].clone(), trajectory.rows.iter().map(|r| r[c]).collect())).collect(),
+            series: shown
+                .iter()
+                .map(|&c| {
+                    (
+                        columns[c].clone(),
+                        trajectory.rows.iter().map(|r| r[c]).collect(),
+                    )
+                })
+                .collect(),
             log_x: args.log_time,
             log_y: args.log_values,
         };
@@ -224,16 +243,25 @@ pub fn run(args: &Args) -> ExitCode {
         if let Err(e) = write_atomic(path, &bytes, &inputs) {
             return run_error(format!("[E0803] {e}"));
         }
-        eprintln!("wrote {} rows to {}", trajectory.times.len(), path.display());
+        eprintln!(
+            "wrote {} rows to {}",
+            trajectory.times.len(),
+            path.display()
+        );
     }
     if args.output.is_none() {
-        print!("{}", compact_table(&prepared.model, &columns, &shown, &trajectory));
+        print!(
+            "{}",
+            compact_table(&prepared.model, &columns, &shown, &trajectory)
+        );
     }
     ExitCode::SUCCESS
 }
 
 fn file_stem(p: &Path) -> String {
-    p.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default()
+    p.file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_default()
 }
 
 /// The value axis label: the concentration unit when only species are shown.
@@ -244,22 +272,37 @@ fn y_label(model: &Model, shown: &[usize]) -> String {
     } else if shown.iter().all(|&c| c >= nsp) {
         "value".to_string()
     } else {
-        format!("concentration ({}) / value", model.units.concentration.symbol())
+        format!(
+            "concentration ({}) / value",
+            model.units.concentration.symbol()
+        )
     }
 }
 
 /// CSV, TSV or JSON by the file's extension.
-fn render_file(path: &Path, model: &Model, columns: &[String], tr: &Trajectory) -> Result<Vec<u8>, String> {
-    let ext = path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase();
+fn render_file(
+    path: &Path,
+    model: &Model,
+    columns: &[String],
+    tr: &Trajectory,
+) -> Result<Vec<u8>, String> {
+    let ext = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .unwrap_or("")
+        .to_ascii_lowercase();
     match ext.as_str() {
         "csv" => Ok(delimited(columns, tr, ',').into_bytes()),
         "tsv" => Ok(delimited(columns, tr, '\t').into_bytes()),
         "json" => {
             let nsp = model.species.len();
             let col = |c: usize| tr.rows.iter().map(|r| r[c]).collect::<Vec<f64>>();
-            let species: serde_json::Map<String, serde_json::Value> = (0..nsp).map(|c| (columns[c].clone(), serde_json::json!(col(c)))).collect();
-            let observables: serde_json::Map<String, serde_json::Value> =
-                (nsp..columns.len()).map(|c| (columns[c].clone(), serde_json::json!(col(c)))).collect();
+            let species: serde_json::Map<String, serde_json::Value> = (0..nsp)
+                .map(|c| (columns[c].clone(), serde_json::json!(col(c))))
+                .collect();
+            let observables: serde_json::Map<String, serde_json::Value> = (nsp..columns.len())
+                .map(|c| (columns[c].clone(), serde_json::json!(col(c))))
+                .collect();
             let v = serde_json::json!({
                 "units": { "concentration": model.units.concentration.symbol(), "time": model.units.time.symbol() },
                 "t": tr.times,
@@ -268,7 +311,10 @@ fn render_file(path: &Path, model: &Model, columns: &[String], tr: &Trajectory) 
             });
             serde_json::to_vec_pretty(&v).map_err(|e| format!("cannot encode JSON: {e}"))
         }
-        _ => Err(format!("-o {}: the output must end in .csv, .tsv or .json", path.display())),
+        _ => Err(format!(
+            "-o {}: the output must end in .csv, .tsv or .json",
+            path.display()
+        )),
     }
 }
 
@@ -300,7 +346,11 @@ fn delimited(columns: &[String], tr: &Trajectory, sep: char) -> String {
 /// and last always), values to 6 significant digits.
 fn compact_table(model: &Model, columns: &[String], shown: &[usize], tr: &Trajectory) -> String {
     let n = tr.times.len();
-    let picks: Vec<usize> = if n <= 25 { (0..n).collect() } else { (0..21).map(|k| (k * (n - 1) + 10) / 20).collect::<Vec<_>>() };
+    let picks: Vec<usize> = if n <= 25 {
+        (0..n).collect()
+    } else {
+        (0..21).map(|k| (k * (n - 1) + 10) / 20).collect::<Vec<_>>()
+    };
     let mut picks = picks;
     picks.dedup();
     let t_head = format!("t ({})", model.units.time.symbol());
@@ -312,16 +362,31 @@ fn compact_table(model: &Model, columns: &[String], shown: &[usize], tr: &Trajec
         let t_text = if t != 0.0 && !(1e-3..1e6).contains(&t.abs()) {
             format!("{t:.4e}")
         } else {
-            format!("{t:.6}").trim_end_matches('0').trim_end_matches('.').to_string()
+            format!("{t:.6}")
+                .trim_end_matches('0')
+                .trim_end_matches('.')
+                .to_string()
         };
         let mut row = vec![t_text];
         row.extend(shown.iter().map(|&c| format!("{:.6e}", tr.rows[i][c])));
         cells.push(row);
     }
-    let widths: Vec<usize> = (0..cells[0].len()).map(|k| cells.iter().map(|r| r[k].chars().count()).max().unwrap_or(0)).collect();
+    let widths: Vec<usize> = (0..cells[0].len())
+        .map(|k| {
+            cells
+                .iter()
+                .map(|r| r[k].chars().count())
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
     let mut out = String::new();
     for row in &cells {
-        let line: Vec<String> = row.iter().zip(&widths).map(|(c, w)| format!("{c:>w$}")).collect();
+        let line: Vec<String> = row
+            .iter()
+            .zip(&widths)
+            .map(|(c, w)| format!("{c:>w$}"))
+            .collect();
         out.push_str(line.join("  ").trim_end());
         out.push('\n');
     }
@@ -332,7 +397,10 @@ fn compact_table(model: &Model, columns: &[String], shown: &[usize], tr: &Trajec
             model.units.concentration.symbol()
         ));
     } else {
-        out.push_str(&format!("(concentrations in {})\n", model.units.concentration.symbol()));
+        out.push_str(&format!(
+            "(concentrations in {})\n",
+            model.units.concentration.symbol()
+        ));
     }
     out
 }

@@ -21,7 +21,12 @@ pub struct Args {
     #[arg(long, value_name = "EXPR")]
     pub measure: String,
     /// Measure at this time (units allowed).
-    #[arg(long, value_name = "TIME", conflicts_with = "steady", required_unless_present = "steady")]
+    #[arg(
+        long,
+        value_name = "TIME",
+        conflicts_with = "steady",
+        required_unless_present = "steady"
+    )]
     pub at: Option<String>,
     /// Measure at the steady state.
     #[arg(long)]
@@ -50,7 +55,11 @@ pub struct Args {
 fn fresh_name(text: &str) -> String {
     let mut k = 0;
     loop {
-        let name = if k == 0 { "scan_measure".to_string() } else { format!("scan_measure_{k}") };
+        let name = if k == 0 {
+            "scan_measure".to_string()
+        } else {
+            format!("scan_measure_{k}")
+        };
         if !text.contains(&name) {
             return name;
         }
@@ -59,7 +68,11 @@ fn fresh_name(text: &str) -> String {
 }
 
 fn csv_field(s: &str) -> String {
-    if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
 }
 
 pub fn run(args: &Args) -> ExitCode {
@@ -81,7 +94,10 @@ pub fn run(args: &Args) -> ExitCode {
     let measure_name = fresh_name(&text);
     let extended = format!("{text}\nobserve {measure_name} = {}\n", args.measure);
     let loaded = crate::model::load_str(&extended, &args.file);
-    let Some(base) = loaded.model.filter(|_| !loaded.diagnostics.iter().any(|d| d.is_error())) else {
+    let Some(base) = loaded
+        .model
+        .filter(|_| !loaded.diagnostics.iter().any(|d| d.is_error()))
+    else {
         common::print_diagnostics(&loaded.diagnostics, &loaded.sources);
         return ExitCode::from(common::EXIT_MODEL);
     };
@@ -99,7 +115,11 @@ pub fn run(args: &Args) -> ExitCode {
             Err(e) => return usage_error(format!("--set: {e}")),
         };
     }
-    let Some(obs) = model.observables.iter().position(|o| o.name == measure_name) else {
+    let Some(obs) = model
+        .observables
+        .iter()
+        .position(|o| o.name == measure_name)
+    else {
         return run_error("the measured expression was lost while loading");
     };
     let column = model.species.len() + obs;
@@ -119,26 +139,45 @@ pub fn run(args: &Args) -> ExitCode {
     let at = if args.steady {
         MeasureAt::Steady
     } else {
-        match args.at.as_deref().map(|a| common::parse_time(a, model.units)) {
+        match args
+            .at
+            .as_deref()
+            .map(|a| common::parse_time(a, model.units))
+        {
             Some(Ok(t)) if t >= 0.0 => MeasureAt::Time(t),
             Some(Ok(_)) => return usage_error("--at: the time must not be negative"),
             Some(Err(e)) => return usage_error(format!("--at: {e}")),
             None => return usage_error("give --at TIME or --steady"),
         }
     };
-    let settings = Settings { method: Method::Bdf, rtol: args.rtol, atol: args.atol, ..Settings::default() };
+    let settings = Settings {
+        method: Method::Bdf,
+        rtol: args.rtol,
+        atol: args.atol,
+        ..Settings::default()
+    };
     let total: usize = axes.iter().map(|a| a.values.len()).product();
     let bar = if std::io::stderr().is_terminal() {
         let b = indicatif::ProgressBar::new(total as u64);
         b.set_style(
-            indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} points, {eta} left").unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+            indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} points, {eta} left")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
         );
         b
     } else {
         indicatif::ProgressBar::hidden()
     };
-    let scan = Scan { model: &model, axes: &axes, column, at, settings };
-    let pool = match rayon::ThreadPoolBuilder::new().num_threads(args.jobs.unwrap_or(0)).build() {
+    let scan = Scan {
+        model: &model,
+        axes: &axes,
+        column,
+        at,
+        settings,
+    };
+    let pool = match rayon::ThreadPoolBuilder::new()
+        .num_threads(args.jobs.unwrap_or(0))
+        .build()
+    {
         Ok(p) => p,
         Err(e) => return usage_error(format!("--jobs: {e}")),
     };
@@ -149,12 +188,20 @@ pub fn run(args: &Args) -> ExitCode {
         Err(e) => return super::run::sim_failure(&e),
     };
 
-    let failures: Vec<&crate::sim::SimError> = result.values.iter().filter_map(|v| v.as_ref().err()).collect();
+    let failures: Vec<&crate::sim::SimError> = result
+        .values
+        .iter()
+        .filter_map(|v| v.as_ref().err())
+        .collect();
     if failures.len() == result.values.len() {
         return super::run::sim_failure(failures[0]);
     }
     let mut csv = String::new();
-    let header: Vec<String> = axes.iter().map(|a| csv_field(&a.name)).chain([csv_field(args.measure.trim())]).collect();
+    let header: Vec<String> = axes
+        .iter()
+        .map(|a| csv_field(&a.name))
+        .chain([csv_field(args.measure.trim())])
+        .collect();
     csv.push_str(&header.join(","));
     csv.push('\n');
     for (p, v) in result.points.iter().zip(&result.values) {
@@ -185,14 +232,21 @@ pub fn run(args: &Args) -> ExitCode {
                     x_label: label(&axes[0]),
                     y_label: args.measure.trim().to_string(),
                     x: axes[0].values.clone(),
-                    series: vec![(args.measure.trim().to_string(), result.values.iter().map(value).collect())],
+                    series: vec![(
+                        args.measure.trim().to_string(),
+                        result.values.iter().map(value).collect(),
+                    )],
                     log_x: axes[0].log,
                     log_y: false,
                 },
             )
         } else {
             let ny = axes[1].values.len();
-            let values: Vec<Vec<f64>> = result.values.chunks(ny).map(|row| row.iter().map(value).collect()).collect();
+            let values: Vec<Vec<f64>> = result
+                .values
+                .chunks(ny)
+                .map(|row| row.iter().map(value).collect())
+                .collect();
             super::plot::draw_heat_map(
                 plot,
                 &super::plot::HeatMap {
@@ -222,7 +276,11 @@ pub fn run(args: &Args) -> ExitCode {
         None => print!("{csv}"),
     }
     if let Some(first) = failures.first() {
-        eprintln!("warning: {} of {} points failed (left empty); the first: {first}", failures.len(), result.values.len());
+        eprintln!(
+            "warning: {} of {} points failed (left empty); the first: {first}",
+            failures.len(),
+            result.values.len()
+        );
     }
     ExitCode::SUCCESS
 }
@@ -235,7 +293,9 @@ fn axis_label(model: &crate::model::Model, name: &str) -> String {
         Some(Sym::Species(_)) => format!("initial {name} ({conc})"),
         Some(Sym::Fixed(_) | Sym::Total(_)) => format!("{name} ({conc})"),
         Some(Sym::Param(i)) => match model.params[i].dim {
-            Some(d) if d != crate::model::Dim::NONE => format!("{name} ({})", d.display_in(model.units)),
+            Some(d) if d != crate::model::Dim::NONE => {
+                format!("{name} ({})", d.display_in(model.units))
+            }
             _ => name.to_string(),
         },
         _ => name.to_string(),

@@ -46,11 +46,23 @@ pub fn run(args: &Args) -> ExitCode {
     };
     match args.format {
         Format::Json => {
-            let state: serde_json::Map<String, serde_json::Value> =
-                m.species.iter().zip(&result.values).map(|(s, v)| (s.name.clone(), serde_json::json!(v))).collect();
-            let observables: serde_json::Map<String, serde_json::Value> =
-                m.observables.iter().zip(&result.values[nsp..]).map(|(o, v)| (o.name.clone(), serde_json::json!(v))).collect();
-            let eig: Vec<[f64; 2]> = result.eigenvalues.iter().map(|(re, im)| [*re, *im]).collect();
+            let state: serde_json::Map<String, serde_json::Value> = m
+                .species
+                .iter()
+                .zip(&result.values)
+                .map(|(s, v)| (s.name.clone(), serde_json::json!(v)))
+                .collect();
+            let observables: serde_json::Map<String, serde_json::Value> = m
+                .observables
+                .iter()
+                .zip(&result.values[nsp..])
+                .map(|(o, v)| (o.name.clone(), serde_json::json!(v)))
+                .collect();
+            let eig: Vec<[f64; 2]> = result
+                .eigenvalues
+                .iter()
+                .map(|(re, im)| [*re, *im])
+                .collect();
             let v = serde_json::json!({
                 "state": state,
                 "observables": observables,
@@ -64,7 +76,13 @@ pub fn run(args: &Args) -> ExitCode {
         }
         Format::Human => {
             let conc = m.units.concentration.symbol();
-            let width = m.species.iter().map(|s| s.name.len()).chain(m.observables.iter().map(|o| o.name.len())).max().unwrap_or(1);
+            let width = m
+                .species
+                .iter()
+                .map(|s| s.name.len())
+                .chain(m.observables.iter().map(|o| o.name.len()))
+                .max()
+                .unwrap_or(1);
             println!("steady state ({conc}):");
             for (s, v) in m.species.iter().zip(&result.values) {
                 println!("  {:<width$}  {v:.6e}", s.name);
@@ -81,13 +99,20 @@ pub fn run(args: &Args) -> ExitCode {
                 if *im == 0.0 {
                     println!("  {re:.6e}");
                 } else {
-                    println!("  {re:.6e} {} {:.6e}i", if *im < 0.0 { "-" } else { "+" }, im.abs());
+                    println!(
+                        "  {re:.6e} {} {:.6e}i",
+                        if *im < 0.0 { "-" } else { "+" },
+                        im.abs()
+                    );
                 }
             }
             if result.eigenvalues.is_empty() {
                 println!("  (none: every species is fixed by a conservation law)");
             }
-            println!("{stability} (max |dy/dt| = {:.2e} {conc}/{time})", result.residual);
+            println!(
+                "{stability} (max |dy/dt| = {:.2e} {conc}/{time})",
+                result.residual
+            );
         }
     }
     ExitCode::SUCCESS

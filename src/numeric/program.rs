@@ -126,7 +126,14 @@ pub struct LowerError(pub String);
 
 impl<'a> ProgramBuilder<'a> {
     pub fn new(resolve: &'a dyn Fn(crate::model::Sym) -> Leaf) -> Self {
-        ProgramBuilder { resolve, prelude: Vec::new(), body: Vec::new(), memo: HashMap::new(), varies: Vec::new(), inline_depth: 0 }
+        ProgramBuilder {
+            resolve,
+            prelude: Vec::new(),
+            body: Vec::new(),
+            memo: HashMap::new(),
+            varies: Vec::new(),
+            inline_depth: 0,
+        }
     }
 
     /// Lowers an expression; returns the register that will hold its value.
@@ -139,7 +146,9 @@ impl<'a> ProgramBuilder<'a> {
                 Leaf::Constant(k) => self.emit(Node::Constant(k)),
                 Leaf::Inline(inner) => {
                     if self.inline_depth > 64 {
-                        return Err(LowerError("names refer to each other too deeply (a cycle?)".into()));
+                        return Err(LowerError(
+                            "names refer to each other too deeply (a cycle?)".into(),
+                        ));
                     }
                     self.inline_depth += 1;
                     let r = self.lower(&inner);
@@ -179,7 +188,11 @@ impl<'a> ProgramBuilder<'a> {
                 for a in args {
                     regs.push(self.lower(a)?);
                 }
-                let arg = |i: usize| regs.get(i).copied().ok_or_else(|| LowerError(format!("`{}` is missing an argument", f.name())));
+                let arg = |i: usize| {
+                    regs.get(i)
+                        .copied()
+                        .ok_or_else(|| LowerError(format!("`{}` is missing an argument", f.name())))
+                };
                 match f {
                     Func::Exp => self.emit(Node::Exp(arg(0)?)),
                     Func::Ln => self.emit(Node::Ln(arg(0)?)),
@@ -228,7 +241,11 @@ impl<'a> ProgramBuilder<'a> {
     }
 
     pub fn finish(self) -> Program {
-        Program { prelude: self.prelude, body: self.body, nregs: self.varies.len() }
+        Program {
+            prelude: self.prelude,
+            body: self.body,
+            nregs: self.varies.len(),
+        }
     }
 }
 
@@ -250,7 +267,10 @@ mod tests {
         let k = Expr::Name(Sym::Param(0));
         let a = Expr::Name(Sym::Species(0));
         let b = Expr::Name(Sym::Species(1));
-        let e = Expr::sub(Expr::mul(Expr::mul(k.clone(), a.clone()), b.clone()), Expr::mul(Expr::mul(k, a), b));
+        let e = Expr::sub(
+            Expr::mul(Expr::mul(k.clone(), a.clone()), b.clone()),
+            Expr::mul(Expr::mul(k, a), b),
+        );
         let resolve = |s: Sym| match s {
             Sym::Species(i) => Leaf::State(i as u32),
             _ => Leaf::Constant(0),

@@ -27,7 +27,10 @@ pub struct StateLayout {
 impl StateLayout {
     /// Every species is a state.
     pub fn full(model: &Model) -> StateLayout {
-        StateLayout { state_species: (0..model.species.len()).collect(), dependent: Vec::new() }
+        StateLayout {
+            state_species: (0..model.species.len()).collect(),
+            dependent: Vec::new(),
+        }
     }
 }
 
@@ -93,9 +96,16 @@ fn constant_slot(model: &Model, sym: Sym) -> Option<u32> {
 
 /// Replaces observables by their expressions and dependent species by their
 /// formulas, so the result mentions only state species and constants.
-fn expand(model: &Model, dependent: &BTreeMap<usize, Expr>, e: &Expr, depth: usize) -> Result<Expr, CompileError> {
+fn expand(
+    model: &Model,
+    dependent: &BTreeMap<usize, Expr>,
+    e: &Expr,
+    depth: usize,
+) -> Result<Expr, CompileError> {
     if depth > 64 {
-        return Err(CompileError("observables or dependent species refer to each other in a cycle".into()));
+        return Err(CompileError(
+            "observables or dependent species refer to each other in a cycle".into(),
+        ));
     }
     let failure = std::cell::RefCell::new(None);
     let recurse = |inner: &Expr| match expand(model, dependent, inner, depth + 1) {
@@ -128,7 +138,9 @@ impl CompiledSystem {
         let mut slot_of = vec![None; model.species.len()];
         for (slot, &sp) in layout.state_species.iter().enumerate() {
             if sp >= model.species.len() {
-                return Err(CompileError(format!("state slot {slot} names species {sp}, which does not exist")));
+                return Err(CompileError(format!(
+                    "state slot {slot} names species {sp}, which does not exist"
+                )));
             }
             slot_of[sp] = Some(slot as u32);
         }
@@ -138,7 +150,9 @@ impl CompiledSystem {
                 Sym::Species(i) => match slot_of.get(i).copied().flatten() {
                     Some(slot) => Leaf::State(slot),
                     // Expansion has replaced dependents; anything left is not integrated.
-                    None => Leaf::Inline(Expr::Number(model.species.get(i).map(|s| s.initial).unwrap_or(f64::NAN))),
+                    None => Leaf::Inline(Expr::Number(
+                        model.species.get(i).map(|s| s.initial).unwrap_or(f64::NAN),
+                    )),
                 },
                 other => match constant_slot(model, other) {
                     Some(k) => Leaf::Constant(k),
@@ -275,7 +289,10 @@ impl CompiledSystem {
 
     /// (row, column) of each structural non-zero, sorted by column then row.
     pub fn jacobian_pattern(&self) -> impl Iterator<Item = (usize, usize)> + '_ {
-        self.jac_rows.iter().zip(&self.jac_cols).map(|(&r, &c)| (r as usize, c as usize))
+        self.jac_rows
+            .iter()
+            .zip(&self.jac_cols)
+            .map(|(&r, &c)| (r as usize, c as usize))
     }
 
     /// The Jacobian's non-zero values (in pattern order) at `y`, `t`.

@@ -12,7 +12,8 @@ use super::{Method, Settings, SimError};
 use crate::model::{EventKind, Model, coef_f64};
 use crate::numeric::{CompiledSystem, constants_of};
 use diffsol::{
-    FaerSparseLU, FaerSparseMat, NalgebraLU, NalgebraMat, OdeBuilder, OdeSolverMethod, OdeSolverStopReason, Vector,
+    FaerSparseLU, FaerSparseMat, NalgebraLU, NalgebraMat, OdeBuilder, OdeSolverMethod,
+    OdeSolverStopReason, Vector,
 };
 use std::cell::RefCell;
 
@@ -36,7 +37,9 @@ struct JacobianCache {
 
 impl JacobianCache {
     fn matches(&self, y: &[f64], t: f64) -> bool {
-        self.valid && self.t_bits == t.to_bits() && self.y_bits.iter().zip(y).all(|(a, b)| *a == b.to_bits())
+        self.valid
+            && self.t_bits == t.to_bits()
+            && self.y_bits.iter().zip(y).all(|(a, b)| *a == b.to_bits())
     }
     fn store(&mut self, y: &[f64], t: f64) {
         self.y_bits.clear();
@@ -52,14 +55,25 @@ const BLOW_UP: f64 = 1e100;
 /// Integrates `model` compiled as `system` from t = 0 and reports the state
 /// at `times` (sorted, non-negative). `model` supplies constants, totals and
 /// events; its species' initial values are the start state.
-pub fn simulate(model: &Model, system: &CompiledSystem, settings: &Settings, times: &[f64]) -> Result<Trajectory, SimError> {
+pub fn simulate(
+    model: &Model,
+    system: &CompiledSystem,
+    settings: &Settings,
+    times: &[f64],
+) -> Result<Trajectory, SimError> {
     if times.iter().any(|t| !t.is_finite() || *t < 0.0) {
-        return Err(SimError::input("output times must be finite and not negative"));
+        return Err(SimError::input(
+            "output times must be finite and not negative",
+        ));
     }
     if times.windows(2).any(|w| w[1] < w[0]) {
         return Err(SimError::input("output times must be in increasing order"));
     }
-    let algebra = if system.nstates > crate::numeric::SPARSE_THRESHOLD { LinearAlgebra::Sparse } else { LinearAlgebra::Dense };
+    let algebra = if system.nstates > crate::numeric::SPARSE_THRESHOLD {
+        LinearAlgebra::Sparse
+    } else {
+        LinearAlgebra::Dense
+    };
     simulate_with(model, system, settings, times, algebra)
 }
 
@@ -72,7 +86,13 @@ pub enum LinearAlgebra {
 
 /// [`simulate`] with the linear algebra chosen by the caller (benchmarks
 /// use it to measure where sparse starts to pay).
-pub fn simulate_with(model: &Model, system: &CompiledSystem, settings: &Settings, times: &[f64], algebra: LinearAlgebra) -> Result<Trajectory, SimError> {
+pub fn simulate_with(
+    model: &Model,
+    system: &CompiledSystem,
+    settings: &Settings,
+    times: &[f64],
+    algebra: LinearAlgebra,
+) -> Result<Trajectory, SimError> {
     match algebra {
         LinearAlgebra::Sparse => simulate_sparse(model, system, settings, times),
         LinearAlgebra::Dense => simulate_dense(model, system, settings, times),
@@ -85,7 +105,9 @@ struct Plan {
 }
 
 fn plan(model: &Model, end: f64) -> Plan {
-    let mut events: Vec<usize> = (0..model.events.len()).filter(|&i| model.events[i].time <= end).collect();
+    let mut events: Vec<usize> = (0..model.events.len())
+        .filter(|&i| model.events[i].time <= end)
+        .collect();
     // Stable: events at the same time keep file order.
     events.sort_by(|&a, &b| model.events[a].time.total_cmp(&model.events[b].time));
     Plan { events }
@@ -107,29 +129,47 @@ fn apply_event(model: &Model, event: usize, species: &mut [f64]) {
 fn constants_after(model: &Model, species: &[f64]) -> Vec<f64> {
     let mut m = model.clone();
     for t in &mut m.totals {
-        t.value = t.terms.iter().map(|(i, c)| coef_f64(*c) * species[*i]).sum();
+        t.value = t
+            .terms
+            .iter()
+            .map(|(i, c)| coef_f64(*c) * species[*i])
+            .sum();
     }
     constants_of(&m)
 }
 
 macro_rules! simulate_with {
     ($name:ident, $matrix:ty, $solver:ty) => {
-        fn $name(model: &Model, system: &CompiledSystem, settings: &Settings, times: &[f64]) -> Result<Trajectory, SimError> {
+        fn $name(
+            model: &Model,
+            system: &CompiledSystem,
+            settings: &Settings,
+            times: &[f64],
+        ) -> Result<Trajectory, SimError> {
             let n = system.nstates;
             let end = times.last().copied().unwrap_or(0.0);
             let plan = plan(model, end);
             let mut species: Vec<f64> = model.initial_state();
             let mut next_event = 0;
-            while next_event < plan.events.len() && model.events[plan.events[next_event]].time <= 0.0 {
+            while next_event < plan.events.len()
+                && model.events[plan.events[next_event]].time <= 0.0
+            {
                 apply_event(model, plan.events[next_event], &mut species);
                 next_event += 1;
             }
             let constants = constants_after(model, &species);
             let workspace = RefCell::new(system.workspace(&constants));
             let start = RefCell::new(system.state_from_species(&species));
-            let cache = RefCell::new(JacobianCache { y_bits: Vec::new(), t_bits: 0, valid: false, values: vec![0.0; system.jacobian_nnz()] });
+            let cache = RefCell::new(JacobianCache {
+                y_bits: Vec::new(),
+                t_bits: 0,
+                valid: false,
+                values: vec![0.0; system.jacobian_nnz()],
+            });
 
-            let rhs = |x: &[f64], _p: &[f64], t: f64, y: &mut [f64]| system.rhs(&mut workspace.borrow_mut(), x, t, y);
+            let rhs = |x: &[f64], _p: &[f64], t: f64, y: &mut [f64]| {
+                system.rhs(&mut workspace.borrow_mut(), x, t, y)
+            };
             let jac = |x: &[f64], _p: &[f64], t: f64, v: &[f64], y: &mut [f64]| {
                 let mut c = cache.borrow_mut();
                 if !c.matches(x, t) {
@@ -149,12 +189,20 @@ macro_rules! simulate_with {
                 .map_err(|e| SimError::setup(format!("the solver could not be set up: {e}")))?;
             problem.ode_options.max_number_timesteps = settings.max_steps;
 
-            let mut out = Trajectory { times: Vec::with_capacity(times.len()), rows: Vec::with_capacity(times.len()), steps: 0 };
+            let mut out = Trajectory {
+                times: Vec::with_capacity(times.len()),
+                rows: Vec::with_capacity(times.len()),
+                steps: 0,
+            };
             let mut next_out = 0;
             let mut row = Vec::new();
             let mut t_start = 0.0;
             loop {
-                let seg_end = if next_event < plan.events.len() { model.events[plan.events[next_event]].time } else { end };
+                let seg_end = if next_event < plan.events.len() {
+                    model.events[plan.events[next_event]].time
+                } else {
+                    end
+                };
                 let last_segment = next_event >= plan.events.len();
                 // Outputs at the segment start report the start state (after its events).
                 while next_out < times.len() && times[next_out] <= t_start {
@@ -169,12 +217,42 @@ macro_rules! simulate_with {
                     cache.borrow_mut().valid = false;
                     let last_state = match settings.method {
                         Method::Bdf => {
-                            let solver = problem.bdf::<$solver>().map_err(|e| SimError::setup(format!("the solver could not start at t = {t_start}: {e}")))?;
-                            drive(solver, system, &workspace, settings, times, &mut next_out, seg_end, last_segment, &mut out, &mut row)?
+                            let solver = problem.bdf::<$solver>().map_err(|e| {
+                                SimError::setup(format!(
+                                    "the solver could not start at t = {t_start}: {e}"
+                                ))
+                            })?;
+                            drive(
+                                solver,
+                                system,
+                                &workspace,
+                                settings,
+                                times,
+                                &mut next_out,
+                                seg_end,
+                                last_segment,
+                                &mut out,
+                                &mut row,
+                            )?
                         }
                         Method::Esdirk => {
-                            let solver = problem.esdirk34::<$solver>().map_err(|e| SimError::setup(format!("the solver could not start at t = {t_start}: {e}")))?;
-                            drive(solver, system, &workspace, settings, times, &mut next_out, seg_end, last_segment, &mut out, &mut row)?
+                            let solver = problem.esdirk34::<$solver>().map_err(|e| {
+                                SimError::setup(format!(
+                                    "the solver could not start at t = {t_start}: {e}"
+                                ))
+                            })?;
+                            drive(
+                                solver,
+                                system,
+                                &workspace,
+                                settings,
+                                times,
+                                &mut next_out,
+                                seg_end,
+                                last_segment,
+                                &mut out,
+                                &mut row,
+                            )?
                         }
                     };
                     system.outputs(&mut workspace.borrow_mut(), &last_state, seg_end, &mut row);
@@ -185,7 +263,9 @@ macro_rules! simulate_with {
                 }
                 // Apply every event at this time, then restart.
                 let t_event = seg_end;
-                while next_event < plan.events.len() && model.events[plan.events[next_event]].time <= t_event {
+                while next_event < plan.events.len()
+                    && model.events[plan.events[next_event]].time <= t_event
+                {
                     apply_event(model, plan.events[next_event], &mut species);
                     next_event += 1;
                 }
@@ -221,14 +301,23 @@ where
     Eqn: diffsol::OdeEquationsImplicit<T = f64> + 'a,
     S: OdeSolverMethod<'a, Eqn>,
 {
-    solver.set_stop_time(seg_end).map_err(|e| SimError::setup(format!("cannot stop at t = {seg_end}: {e}")))?;
+    solver
+        .set_stop_time(seg_end)
+        .map_err(|e| SimError::setup(format!("cannot stop at t = {seg_end}: {e}")))?;
     loop {
         let reason = match solver.step() {
             Ok(r) => r,
             Err(e) => {
                 let state = solver.state();
                 let y = state.y.clone_as_vec();
-                return Err(diagnose_failure(system, workspace, settings, &y, state.t, &e.to_string()));
+                return Err(diagnose_failure(
+                    system,
+                    workspace,
+                    settings,
+                    &y,
+                    state.t,
+                    &e.to_string(),
+                ));
             }
         };
         out.steps += 1;
@@ -237,9 +326,19 @@ where
         let size = state.y.norm(1);
         if !size.is_finite() || size > BLOW_UP {
             let y = state.y.clone_as_vec();
-            return Err(diagnose_failure(system, workspace, settings, &y, t_now, "the solution blew up"));
+            return Err(diagnose_failure(
+                system,
+                workspace,
+                settings,
+                &y,
+                t_now,
+                "the solution blew up",
+            ));
         }
-        while *next_out < times.len() && times[*next_out] <= t_now && (last_segment || times[*next_out] < seg_end) {
+        while *next_out < times.len()
+            && times[*next_out] <= t_now
+            && (last_segment || times[*next_out] < seg_end)
+        {
             let t = times[*next_out];
             let y = solver
                 .interpolate(t)
@@ -278,7 +377,12 @@ fn diagnose_failure(
     system.rhs(&mut ws, y, t, &mut f);
     if let Some(slot) = (0..f.len()).find(|&k| !f[k].is_finite()) {
         let sp = system.state_species[slot];
-        return SimError::failed(t, Some(sp), full[sp], &format!("{what}; its rate of change is {}", f[slot]));
+        return SimError::failed(
+            t,
+            Some(sp),
+            full[sp],
+            &format!("{what}; its rate of change is {}", f[slot]),
+        );
     }
     let worst = (0..f.len()).max_by(|&a, &b| {
         let sa = f[a].abs() / (settings.atol + settings.rtol * y[a].abs());
@@ -288,7 +392,12 @@ fn diagnose_failure(
     match worst {
         Some(slot) => {
             let sp = system.state_species[slot];
-            SimError::failed(t, Some(sp), full[sp], &format!("{what} (fastest-changing species shown)"))
+            SimError::failed(
+                t,
+                Some(sp),
+                full[sp],
+                &format!("{what} (fastest-changing species shown)"),
+            )
         }
         None => SimError::failed(t, None, f64::NAN, what),
     }
@@ -309,14 +418,33 @@ pub(crate) mod tests {
     ) -> Model {
         let mut m = Model::default();
         for (name, v) in species {
-            m.species.push(Species { name: name.to_string(), initial: *v, initial_given: true, description: None, span: Default::default() });
+            m.species.push(Species {
+                name: name.to_string(),
+                initial: *v,
+                initial_given: true,
+                description: None,
+                span: Default::default(),
+            });
         }
         for (name, v) in params {
-            m.params.push(Param { name: name.to_string(), definition: ParamDef::Value(*v), value: *v, dim: None, description: None, span: Default::default() });
+            m.params.push(Param {
+                name: name.to_string(),
+                definition: ParamDef::Value(*v),
+                value: *v,
+                dim: None,
+                description: None,
+                span: Default::default(),
+            });
         }
         m.param_order = (0..params.len()).collect();
         let terms = |side: &[(usize, i64)]| -> Vec<Term> {
-            side.iter().map(|&(i, c)| Term { sym: Sym::Species(i), coefficient: Coef::from_integer(c), span: Default::default() }).collect()
+            side.iter()
+                .map(|&(i, c)| Term {
+                    sym: Sym::Species(i),
+                    coefficient: Coef::from_integer(c),
+                    span: Default::default(),
+                })
+                .collect()
         };
         for (k, (lhs, rhs, kf, kr)) in steps.iter().enumerate() {
             m.steps.push(Step {
@@ -324,7 +452,10 @@ pub(crate) mod tests {
                 reactants: terms(lhs),
                 products: terms(rhs),
                 reversible: kr.is_some(),
-                rate: Rate::MassAction { forward: Expr::Name(Sym::Param(*kf)), reverse: kr.map(|r| Expr::Name(Sym::Param(r))) },
+                rate: Rate::MassAction {
+                    forward: Expr::Name(Sym::Param(*kf)),
+                    reverse: kr.map(|r| Expr::Name(Sym::Param(r))),
+                },
                 description: None,
                 span: Default::default(),
                 rate_span: Default::default(),
@@ -338,16 +469,28 @@ pub(crate) mod tests {
         mass_action(
             &[("A", 1.0), ("B", 0.0), ("C", 0.0)],
             &[("k1", 0.04), ("k2", 1e4), ("k3", 3e7)],
-            &[(&[(0, 1)], &[(1, 1)], 0, None), (&[(1, 1), (2, 1)], &[(0, 1), (2, 1)], 1, None), (&[(1, 2)], &[(1, 1), (2, 1)], 2, None)],
+            &[
+                (&[(0, 1)], &[(1, 1)], 0, None),
+                (&[(1, 1), (2, 1)], &[(0, 1), (2, 1)], 1, None),
+                (&[(1, 2)], &[(1, 1), (2, 1)], 2, None),
+            ],
         )
     }
 
     #[test]
     fn first_order_decay_matches_the_closed_form() {
         // A -> B: A(t) = A0 exp(-k t) (first-order rate law; common practice).
-        let m = mass_action(&[("A", 2.0), ("B", 0.0)], &[("k", 0.3)], &[(&[(0, 1)], &[(1, 1)], 0, None)]);
+        let m = mass_action(
+            &[("A", 2.0), ("B", 0.0)],
+            &[("k", 0.3)],
+            &[(&[(0, 1)], &[(1, 1)], 0, None)],
+        );
         let p = Prepared::full(&m).unwrap();
-        let settings = Settings { rtol: 1e-10, atol: 1e-14, ..Settings::default() };
+        let settings = Settings {
+            rtol: 1e-10,
+            atol: 1e-14,
+            ..Settings::default()
+        };
         let times = [0.0, 0.5, 1.0, 5.0, 10.0];
         let tr = p.simulate(&settings, &times).unwrap();
         for (t, row) in tr.times.iter().zip(&tr.rows) {
@@ -366,13 +509,28 @@ pub(crate) mod tests {
         // rtol 1e-12 in tests/python/sim_robertson.py.
         let p = Prepared::full(&robertson()).unwrap();
         for method in [Method::Bdf, Method::Esdirk] {
-            let settings = Settings { method, rtol: 1e-8, atol: 1e-14, ..Settings::default() };
+            let settings = Settings {
+                method,
+                rtol: 1e-8,
+                atol: 1e-14,
+                ..Settings::default()
+            };
             let tr = p.simulate(&settings, &[0.0, 1e11]).unwrap();
             let y = &tr.rows[1];
-            let reference = [0.2083340149701255e-7, 0.8333360770334713e-13, 0.9999999791665050];
+            let reference = [
+                0.2083340149701255e-7,
+                0.8333360770334713e-13,
+                0.9999999791665050,
+            ];
             for k in 0..3 {
                 let rel = (y[k] - reference[k]).abs() / reference[k];
-                assert!(rel < 1e-3, "{method:?} y{} = {} vs {}", k + 1, y[k], reference[k]);
+                assert!(
+                    rel < 1e-3,
+                    "{method:?} y{} = {} vs {}",
+                    k + 1,
+                    y[k],
+                    reference[k]
+                );
             }
         }
     }
@@ -380,10 +538,24 @@ pub(crate) mod tests {
     #[test]
     fn an_output_at_an_event_time_holds_the_state_after_the_event() {
         // A -> B with 1 added to A at t = 1: A(1) = A0 e^{-k} + 1 after the event.
-        let mut m = mass_action(&[("A", 1.0), ("B", 0.0)], &[("k", 1.0)], &[(&[(0, 1)], &[(1, 1)], 0, None)]);
-        m.events.push(crate::model::Event { kind: EventKind::Add, species: 0, amount: 1.0, time: 1.0, span: Default::default() });
+        let mut m = mass_action(
+            &[("A", 1.0), ("B", 0.0)],
+            &[("k", 1.0)],
+            &[(&[(0, 1)], &[(1, 1)], 0, None)],
+        );
+        m.events.push(crate::model::Event {
+            kind: EventKind::Add,
+            species: 0,
+            amount: 1.0,
+            time: 1.0,
+            span: Default::default(),
+        });
         let p = Prepared::full(&m).unwrap();
-        let settings = Settings { rtol: 1e-10, atol: 1e-14, ..Settings::default() };
+        let settings = Settings {
+            rtol: 1e-10,
+            atol: 1e-14,
+            ..Settings::default()
+        };
         let tr = p.simulate(&settings, &[0.0, 0.999, 1.0, 2.0]).unwrap();
         let e = (-1.0f64).exp();
         assert!((tr.rows[2][0] - (e + 1.0)).abs() < 1e-8);

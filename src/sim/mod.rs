@@ -41,7 +41,12 @@ pub struct Settings {
 
 impl Default for Settings {
     fn default() -> Self {
-        Settings { method: Method::Bdf, rtol: 1e-6, atol: 1e-10, max_steps: 500_000 }
+        Settings {
+            method: Method::Bdf,
+            rtol: 1e-6,
+            atol: 1e-10,
+            max_steps: 500_000,
+        }
     }
 }
 
@@ -72,10 +77,22 @@ pub enum SimErrorKind {
 
 impl SimError {
     pub fn input(message: impl Into<String>) -> Self {
-        SimError { kind: SimErrorKind::Input, message: message.into(), time: None, species: None, species_name: None }
+        SimError {
+            kind: SimErrorKind::Input,
+            message: message.into(),
+            time: None,
+            species: None,
+            species_name: None,
+        }
     }
     pub fn setup(message: impl Into<String>) -> Self {
-        SimError { kind: SimErrorKind::Setup, message: message.into(), time: None, species: None, species_name: None }
+        SimError {
+            kind: SimErrorKind::Setup,
+            message: message.into(),
+            time: None,
+            species: None,
+            species_name: None,
+        }
     }
     pub fn failed(time: f64, species: Option<usize>, value: f64, message: &str) -> Self {
         SimError {
@@ -87,7 +104,13 @@ impl SimError {
         }
     }
     pub fn no_steady_state(message: impl Into<String>) -> Self {
-        SimError { kind: SimErrorKind::NoSteadyState, message: message.into(), time: None, species: None, species_name: None }
+        SimError {
+            kind: SimErrorKind::NoSteadyState,
+            message: message.into(),
+            time: None,
+            species: None,
+            species_name: None,
+        }
     }
     /// Fills in the species name from the model.
     pub fn named(mut self, model: &Model) -> Self {
@@ -114,7 +137,10 @@ impl fmt::Display for SimError {
             None => write!(f, "{}", self.message)?,
         }
         if let Some((i, v)) = self.species {
-            let name = self.species_name.clone().unwrap_or_else(|| format!("species #{i}"));
+            let name = self
+                .species_name
+                .clone()
+                .unwrap_or_else(|| format!("species #{i}"));
             write!(f, "; species `{name}` = {v:e}")?;
         }
         Ok(())
@@ -142,7 +168,11 @@ pub struct Prepared {
 impl Prepared {
     /// Every species is integrated.
     pub fn full(model: &Model) -> Result<Prepared, SimError> {
-        Ok(Prepared { model: model.clone(), system: CompiledSystem::full(model)?, reduced: false })
+        Ok(Prepared {
+            model: model.clone(),
+            system: CompiledSystem::full(model)?,
+            reduced: false,
+        })
     }
 
     /// Only the independent species are integrated; the dependent ones follow
@@ -152,12 +182,23 @@ impl Prepared {
         let reduced = crate::network::reduce(model)?;
         let layout = StateLayout {
             state_species: reduced.independent.clone(),
-            dependent: reduced.dependent.iter().map(|d| (d.species, d.formula.clone())).collect(),
+            dependent: reduced
+                .dependent
+                .iter()
+                .map(|d| (d.species, d.formula.clone()))
+                .collect(),
         };
         let system = CompiledSystem::compile(&reduced.model, &layout).map_err(|e| {
-            crate::diagnostics::Diagnostic::error(crate::diagnostics::Code::SolverFailed, format!("the reduced model could not be compiled: {}", e.0))
+            crate::diagnostics::Diagnostic::error(
+                crate::diagnostics::Code::SolverFailed,
+                format!("the reduced model could not be compiled: {}", e.0),
+            )
         })?;
-        Ok(Prepared { model: reduced.model, system, reduced: true })
+        Ok(Prepared {
+            model: reduced.model,
+            system,
+            reduced: true,
+        })
     }
 
     pub fn simulate(&self, settings: &Settings, times: &[f64]) -> Result<Trajectory, SimError> {
@@ -168,7 +209,12 @@ impl Prepared {
 /// Column names of a trajectory row: species in declaration order, then
 /// observables.
 pub fn column_names(model: &Model) -> Vec<String> {
-    model.species.iter().map(|s| s.name.clone()).chain(model.observables.iter().map(|o| o.name.clone())).collect()
+    model
+        .species
+        .iter()
+        .map(|s| s.name.clone())
+        .chain(model.observables.iter().map(|o| o.name.clone()))
+        .collect()
 }
 
 /// The default end time: the last event plus five times the slowest time
@@ -195,7 +241,11 @@ fn slowest_time_scale(model: &Model, system: &CompiledSystem) -> Option<f64> {
     if !(largest.is_finite() && largest > 0.0) {
         return None;
     }
-    let slowest = eig.iter().map(|z| z.re.abs()).filter(|&r| r > 1e-9 * largest).fold(f64::INFINITY, f64::min);
+    let slowest = eig
+        .iter()
+        .map(|z| z.re.abs())
+        .filter(|&r| r > 1e-9 * largest)
+        .fold(f64::INFINITY, f64::min);
     (slowest.is_finite() && slowest > 0.0).then(|| 1.0 / slowest)
 }
 

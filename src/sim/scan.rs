@@ -22,11 +22,15 @@ pub struct Axis {
 
 /// Parses `NAME=LO..HI[:N][:log]` (units allowed on LO and HI; N defaults to 21).
 pub fn parse_axis(text: &str, units: Units) -> Result<Axis, String> {
-    let (name, rest) = text.split_once('=').ok_or_else(|| format!("`{text}` is not NAME=LO..HI[:N][:log]"))?;
+    let (name, rest) = text
+        .split_once('=')
+        .ok_or_else(|| format!("`{text}` is not NAME=LO..HI[:N][:log]"))?;
     let name = name.trim().to_string();
     let mut parts = rest.split(':');
     let range = parts.next().unwrap_or("");
-    let (lo, hi) = range.split_once("..").ok_or_else(|| format!("`{range}` is not a range LO..HI"))?;
+    let (lo, hi) = range
+        .split_once("..")
+        .ok_or_else(|| format!("`{range}` is not a range LO..HI"))?;
     let lo = crate::model::units::parse_quantity(lo, units)?.0;
     let hi = crate::model::units::parse_quantity(hi, units)?.0;
     let mut n = 21usize;
@@ -38,7 +42,9 @@ pub fn parse_axis(text: &str, units: Units) -> Result<Axis, String> {
         } else if p.eq_ignore_ascii_case("lin") {
             log = false;
         } else {
-            n = p.parse().map_err(|_| format!("`{p}` is neither a point count nor `log`"))?;
+            n = p
+                .parse()
+                .map_err(|_| format!("`{p}` is neither a point count nor `log`"))?;
         }
     }
     if n == 0 || n > 100_000 {
@@ -49,8 +55,16 @@ pub fn parse_axis(text: &str, units: Units) -> Result<Axis, String> {
     }
     let values = (0..n)
         .map(|i| {
-            let f = if n == 1 { 0.0 } else { i as f64 / (n - 1) as f64 };
-            if log { (lo.ln() + f * (hi.ln() - lo.ln())).exp() } else { lo + f * (hi - lo) }
+            let f = if n == 1 {
+                0.0
+            } else {
+                i as f64 / (n - 1) as f64
+            };
+            if log {
+                (lo.ln() + f * (hi.ln() - lo.ln())).exp()
+            } else {
+                lo + f * (hi - lo)
+            }
         })
         .collect();
     Ok(Axis { name, values, log })
@@ -86,13 +100,22 @@ pub fn check_axes(model: &Model, axes: &[Axis]) -> Result<(), String> {
     for a in axes {
         match model.lookup(&a.name) {
             Some(Sym::Param(_) | Sym::Species(_) | Sym::Fixed(_) | Sym::Total(_)) => {}
-            Some(Sym::Observable(_)) => return Err(format!("`{}` is an observable; vary a param, species, fixed species or total", a.name)),
+            Some(Sym::Observable(_)) => {
+                return Err(format!(
+                    "`{}` is an observable; vary a param, species, fixed species or total",
+                    a.name
+                ));
+            }
             None => {
                 let names = model.all_names();
-                let hint = crate::diagnostics::did_you_mean(&a.name, names.iter().map(String::as_str))
-                    .map(|s| format!(" (did you mean `{s}`?)"))
-                    .unwrap_or_default();
-                return Err(format!("no param, species, fixed species or total named `{}`{hint}", a.name));
+                let hint =
+                    crate::diagnostics::did_you_mean(&a.name, names.iter().map(String::as_str))
+                        .map(|s| format!(" (did you mean `{s}`?)"))
+                        .unwrap_or_default();
+                return Err(format!(
+                    "no param, species, fixed species or total named `{}`{hint}",
+                    a.name
+                ));
             }
         }
     }
@@ -103,7 +126,14 @@ pub fn check_axes(model: &Model, axes: &[Axis]) -> Result<(), String> {
 pub fn run_scan(scan: &Scan<'_>, tick: &(dyn Fn() + Sync)) -> Result<ScanResult, SimError> {
     let mut points: Vec<Vec<f64>> = vec![Vec::new()];
     for axis in scan.axes {
-        points = points.into_iter().flat_map(|p| axis.values.iter().map(move |v| [p.clone(), vec![*v]].concat())).collect();
+        points = points
+            .into_iter()
+            .flat_map(|p| {
+                axis.values
+                    .iter()
+                    .map(move |v| [p.clone(), vec![*v]].concat())
+            })
+            .collect();
     }
     let steady = matches!(scan.at, MeasureAt::Steady);
     // Compile once: the reduced layout for steady states, the full one for time points.
@@ -111,7 +141,11 @@ pub fn run_scan(scan: &Scan<'_>, tick: &(dyn Fn() + Sync)) -> Result<ScanResult,
         let reduced = crate::network::reduce(scan.model).map_err(|d| SimError::setup(d.message))?;
         let layout = StateLayout {
             state_species: reduced.independent.clone(),
-            dependent: reduced.dependent.iter().map(|d| (d.species, d.formula.clone())).collect(),
+            dependent: reduced
+                .dependent
+                .iter()
+                .map(|d| (d.species, d.formula.clone()))
+                .collect(),
         };
         (reduced.model, layout)
     } else {
@@ -129,18 +163,37 @@ pub fn run_scan(scan: &Scan<'_>, tick: &(dyn Fn() + Sync)) -> Result<ScanResult,
     Ok(ScanResult { points, values })
 }
 
-fn point(scan: &Scan<'_>, system: &CompiledSystem, steady: bool, p: &[f64]) -> Result<f64, SimError> {
-    let overrides: Vec<(String, f64)> = scan.axes.iter().zip(p).map(|(a, v)| (a.name.clone(), *v)).collect();
-    let model = scan.model.with_overrides(&overrides).map_err(SimError::input)?;
+fn point(
+    scan: &Scan<'_>,
+    system: &CompiledSystem,
+    steady: bool,
+    p: &[f64],
+) -> Result<f64, SimError> {
+    let overrides: Vec<(String, f64)> = scan
+        .axes
+        .iter()
+        .zip(p)
+        .map(|(a, v)| (a.name.clone(), *v))
+        .collect();
+    let model = scan
+        .model
+        .with_overrides(&overrides)
+        .map_err(SimError::input)?;
     if steady {
         // The reduced model of this point: its totals follow this point's initial values.
         let reduced = crate::network::reduce(&model).map_err(|d| SimError::setup(d.message))?;
-        let s = steady_state_of(&reduced.model, system, &scan.settings).map_err(|e| e.named(&reduced.model))?;
+        let s = steady_state_of(&reduced.model, system, &scan.settings)
+            .map_err(|e| e.named(&reduced.model))?;
         Ok(s.values[scan.column])
     } else {
-        let MeasureAt::Time(t) = scan.at else { unreachable!("steady handled above") };
+        let MeasureAt::Time(t) = scan.at else {
+            unreachable!("steady handled above")
+        };
         let tr = simulate(&model, system, &scan.settings, &[t]).map_err(|e| e.named(&model))?;
-        tr.rows.first().map(|r| r[scan.column]).ok_or_else(|| SimError::setup("no output at the measurement time"))
+        tr.rows
+            .first()
+            .map(|r| r[scan.column])
+            .ok_or_else(|| SimError::setup("no output at the measurement time"))
     }
 }
 

@@ -46,33 +46,56 @@ pub fn steady_state(prepared: &Prepared, settings: &Settings) -> Result<SteadySt
 
 /// Finds the steady state of `model` compiled as `system` (constants and
 /// the initial state from `model`).
-pub fn steady_state_of(model: &Model, system: &CompiledSystem, settings: &Settings) -> Result<SteadyState, SimError> {
+pub fn steady_state_of(
+    model: &Model,
+    system: &CompiledSystem,
+    settings: &Settings,
+) -> Result<SteadyState, SimError> {
     let mut model = model.clone();
     model.events.clear();
     let constants = crate::numeric::constants_of(&model);
     let mut w = system.workspace(&constants);
-    let tight = Settings { rtol: settings.rtol.min(1e-8), atol: settings.atol.min(1e-12), ..*settings };
+    let tight = Settings {
+        rtol: settings.rtol.min(1e-8),
+        atol: settings.atol.min(1e-12),
+        ..*settings
+    };
     let mut until = default_until(&model, system);
     let mut last_reason = String::new();
     for _attempt in 0..10 {
         let tr = simulate(&model, system, &tight, &[until]).map_err(|e| e.named(&model))?;
         let Some(row) = tr.rows.last() else {
-            return Err(SimError::no_steady_state("the integration produced no state"));
+            return Err(SimError::no_steady_state(
+                "the integration produced no state",
+            ));
         };
         let x0 = system.state_from_species(&row[..system.species_count()]);
         match newton(system, &mut w, x0) {
             Ok((x, iterations)) => {
                 let mut values = Vec::new();
                 system.outputs(&mut w, &x, until, &mut values);
-                let scale = values[..system.species_count()].iter().fold(0.0f64, |a, v| a.max(v.abs())).max(1e-300);
+                let scale = values[..system.species_count()]
+                    .iter()
+                    .fold(0.0f64, |a, v| a.max(v.abs()))
+                    .max(1e-300);
                 if let Some(i) = (0..system.species_count()).find(|&i| values[i] < -1e-8 * scale) {
-                    last_reason = format!("Newton's method reached a state with negative `{}` = {:e}", model.species[i].name, values[i]);
+                    last_reason = format!(
+                        "Newton's method reached a state with negative `{}` = {:e}",
+                        model.species[i].name, values[i]
+                    );
                 } else {
                     let mut f = vec![0.0; system.nstates];
                     system.rhs(&mut w, &x, until, &mut f);
                     let residual = f.iter().fold(0.0f64, |a, v| a.max(v.abs()));
                     let (eigenvalues, stability) = eigen(system, &mut w, &x, until);
-                    return Ok(SteadyState { values, eigenvalues, stability, residual, integrated_to: until, newton_iterations: iterations });
+                    return Ok(SteadyState {
+                        values,
+                        eigenvalues,
+                        stability,
+                        residual,
+                        integrated_to: until,
+                        newton_iterations: iterations,
+                    });
                 }
             }
             Err(reason) => last_reason = reason,
@@ -86,7 +109,11 @@ pub fn steady_state_of(model: &Model, system: &CompiledSystem, settings: &Settin
 }
 
 /// Newton with backtracking on ||F||²; returns the state and iteration count.
-fn newton(system: &CompiledSystem, w: &mut crate::numeric::Workspace, mut x: Vec<f64>) -> Result<(Vec<f64>, usize), String> {
+fn newton(
+    system: &CompiledSystem,
+    w: &mut crate::numeric::Workspace,
+    mut x: Vec<f64>,
+) -> Result<(Vec<f64>, usize), String> {
     let n = system.nstates;
     if n == 0 {
         return Ok((x, 0));
@@ -107,7 +134,10 @@ fn newton(system: &CompiledSystem, w: &mut crate::numeric::Workspace, mut x: Vec
             return Err("the Jacobian is singular at the iterate".into());
         };
         // Converged: the full Newton step is far below the state's size.
-        let step_small = dx.iter().zip(&x).all(|(d, xi)| d.abs() <= 1e-10 * xi.abs() + 1e-14 * xscale);
+        let step_small = dx
+            .iter()
+            .zip(&x)
+            .all(|(d, xi)| d.abs() <= 1e-10 * xi.abs() + 1e-14 * xscale);
         if step_small {
             return Ok((x, it));
         }
@@ -138,14 +168,23 @@ fn newton(system: &CompiledSystem, w: &mut crate::numeric::Workspace, mut x: Vec
     Err("no convergence in 100 iterations".into())
 }
 
-fn eigen(system: &CompiledSystem, w: &mut crate::numeric::Workspace, x: &[f64], t: f64) -> (Vec<(f64, f64)>, Stability) {
+fn eigen(
+    system: &CompiledSystem,
+    w: &mut crate::numeric::Workspace,
+    x: &[f64],
+    t: f64,
+) -> (Vec<(f64, f64)>, Stability) {
     let n = system.nstates;
     if n == 0 {
         return (Vec::new(), Stability::Stable);
     }
     let j = system.dense_jacobian(w, x, t);
     let m = DMatrix::from_fn(n, n, |r, c| j[r][c]);
-    let mut eig: Vec<(f64, f64)> = m.complex_eigenvalues().iter().map(|z| (z.re, z.im)).collect();
+    let mut eig: Vec<(f64, f64)> = m
+        .complex_eigenvalues()
+        .iter()
+        .map(|z| (z.re, z.im))
+        .collect();
     eig.sort_by(|a, b| b.0.total_cmp(&a.0).then(b.1.total_cmp(&a.1)));
     let largest = eig.iter().map(|(re, im)| re.hypot(*im)).fold(0.0, f64::max);
     let tol = 1e-9 * largest.max(1e-300);
