@@ -493,7 +493,7 @@ fn the_documented_git_diff_driver_shows_the_meaning_level_change() {
         &[
             "config",
             "diff.mech.command",
-            &format!("f() {{ '{}' diff \"$2\" \"$5\"; }}; f", bin().display()),
+            &format!("f() {{ echo \"== $1\"; '{}' diff \"$2\" \"$5\"; }}; f", bin().display()),
         ],
     );
     git(dir, &["config", "diff.mech.trustExitCode", "true"]);
@@ -537,7 +537,7 @@ fn the_documented_git_diff_driver_shows_the_meaning_level_change() {
         .unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
-        text.contains("value: 2 /s → 4 /s"),
+        text.contains("value: 2 /s → 4 /s") && text.contains("== m.mech"),
         "{text}\n{}",
         String::from_utf8_lossy(&out.stderr)
     );

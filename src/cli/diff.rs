@@ -38,6 +38,12 @@ fn load(arg: &str) -> Loaded {
     }
 }
 
+/// Writes the report; a closed pipe (`| head`) is not an error worth a panic.
+fn emit(text: &str) {
+    use std::io::Write;
+    let _ = writeln!(std::io::stdout().lock(), "{text}");
+}
+
 pub fn run(args: &Args) -> ExitCode {
     let json = args.format == Format::Json;
     let sides = [load(&args.old), load(&args.new)];
@@ -55,10 +61,9 @@ pub fn run(args: &Args) -> ExitCode {
                         .map(|d| to_json_value(d, &l.sources))
                 })
                 .collect();
-            println!(
-                "{}",
-                serde_json::to_string_pretty(&serde_json::json!({ "errors": errors }))
-                    .unwrap_or_default()
+            emit(
+                &serde_json::to_string_pretty(&serde_json::json!({ "errors": errors }))
+                    .unwrap_or_default(),
             );
         } else {
             for l in &sides {
@@ -78,12 +83,9 @@ pub fn run(args: &Args) -> ExitCode {
     let comparison = compare::compare(&old, &new);
     if json {
         let doc = compare::report::json(&comparison, &args.old, &args.new);
-        println!("{}", serde_json::to_string_pretty(&doc).unwrap_or_default());
+        emit(&serde_json::to_string_pretty(&doc).unwrap_or_default());
     } else {
-        print!(
-            "{}",
-            compare::report::human(&comparison, &args.old, &args.new)
-        );
+        emit(compare::report::human(&comparison, &args.old, &args.new).trim_end());
     }
     ExitCode::from(if comparison.changed() {
         EXIT_MODEL
