@@ -78,11 +78,66 @@ pub struct Consequences {
     pub rate_law: Option<RateLawComparison>,
 }
 
-pub fn compare(ctx: &Context) -> Consequences {
+/// `equivalent`: no item changed, so both sides have the same network and
+/// rate law, and the old side's are computed once (the network analysis
+/// dominates the time of a large diff).
+pub fn compare(ctx: &Context, equivalent: bool) -> Consequences {
+    if equivalent {
+        return Consequences {
+            network: same_network(ctx.old),
+            rate_law: same_rate_law(ctx.old),
+        };
+    }
     Consequences {
         network: network_facts(ctx),
         rate_law: rate_law(ctx),
     }
+}
+
+fn same_network(m: &Model) -> Result<NetworkFacts, String> {
+    let a = network::analyze(m).map_err(|d| d.message)?;
+    let both = |v| Both { old: v, new: v };
+    Ok(NetworkFacts {
+        rank: both(a.rank),
+        reduced_dimension: both(a.reduced.independent.len()),
+        conservation_laws: both(a.reduced.laws.len()),
+        deficiency: Both {
+            old: a.structure.deficiency,
+            new: a.structure.deficiency,
+        },
+        weakly_reversible: Both {
+            old: a.structure.weakly_reversible,
+            new: a.structure.weakly_reversible,
+        },
+        gained: vec![],
+        lost: vec![],
+    })
+}
+
+fn same_rate_law(m: &Model) -> Option<RateLawComparison> {
+    if !has_assumptions(m) {
+        return None;
+    }
+    Some(match ratelaw::derive(m, &ratelaw::Request::default()) {
+        Ok(d) => {
+            let text = ratelaw::output::json(&d, m)
+                .get("rate")
+                .and_then(|v| v.as_str())
+                .map(str::to_string);
+            RateLawComparison {
+                status: RateLawStatus::Unchanged,
+                old: text.clone(),
+                new: text,
+                reason: None,
+            }
+        }
+        Err(d) => RateLawComparison {
+            status: RateLawStatus::NotCompared,
+            old: None,
+            new: None,
+            reason: Some(format!("cannot derive the rate law: {}", d.message)),
+        },
+    })
 }
 
 fn network_facts(ctx: &Context) -> Result<NetworkFacts, String> {

@@ -156,7 +156,7 @@ pub fn compare(old: &Model, new: &Model) -> Comparison {
     let ctx = pairing::pair(sameness::Context::new(old, new));
     let mut changes = items::changes(&ctx);
     changes.sort_by(|a, b| (a.item, a.kind, a.name()).cmp(&(b.item, b.kind, b.name())));
-    let consequences = consequences::compare(&ctx);
+    let consequences = consequences::compare(&ctx, changes.is_empty());
     Comparison {
         changes,
         consequences,

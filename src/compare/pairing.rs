@@ -141,14 +141,38 @@ fn pair_named_renames(ctx: &mut Context) -> bool {
 }
 
 fn pair_step_renames(ctx: &mut Context) -> bool {
+    // Same content needs the same sides under the pairing, so leftover new
+    // steps are looked up by their sides instead of compared one by one.
+    type Sides = (
+        bool,
+        BTreeMap<Key, crate::model::Coef>,
+        BTreeMap<Key, crate::model::Coef>,
+    );
+    let sides = |ctx: &Context, side: Side, j: usize| -> Sides {
+        let s = &ctx.model(side).steps[j];
+        (
+            s.reversible,
+            ctx.side_keys(side, &s.reactants),
+            ctx.side_keys(side, &s.products),
+        )
+    };
+    let mut by_sides: HashMap<Sides, Vec<usize>> = HashMap::new();
+    for k in (0..ctx.new.steps.len()).filter(|k| !ctx.pairing.steps_back.contains_key(k)) {
+        by_sides
+            .entry(sides(ctx, Side::New, k))
+            .or_default()
+            .push(k);
+    }
     let mut progress = false;
     for j in 0..ctx.old.steps.len() {
         if ctx.pairing.steps.contains_key(&j) {
             continue;
         }
-        let found = (0..ctx.new.steps.len())
-            .find(|&k| !ctx.pairing.steps_back.contains_key(&k) && ctx.same_step(j, k));
-        if let Some(k) = found {
+        let Some(list) = by_sides.get_mut(&sides(ctx, Side::Old, j)) else {
+            continue;
+        };
+        if let Some(pos) = list.iter().position(|&k| ctx.same_rate(j, k)) {
+            let k = list.remove(pos);
             ctx.pairing.pair_steps(j, k);
             progress = true;
         }

@@ -357,15 +357,6 @@ impl<'a> Context<'a> {
         self.same_expr(&self.old.step_rate(old_step), &negated, (rate, rate))
     }
 
-    /// Whether two steps have the same content under the current pairing.
-    pub fn same_step(&self, old_step: usize, new_step: usize) -> bool {
-        let (a, b) = (&self.old.steps[old_step], &self.new.steps[new_step]);
-        a.reversible == b.reversible
-            && self.side_keys(Side::Old, &a.reactants) == self.side_keys(Side::New, &b.reactants)
-            && self.side_keys(Side::Old, &a.products) == self.side_keys(Side::New, &b.products)
-            && self.same_rate(old_step, new_step)
-    }
-
     /// Whether two params have the same definition (a number with the same
     /// value, or an expression that means the same).
     pub fn same_param_definition(&self, old: usize, new: usize) -> bool {
