@@ -189,26 +189,16 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
     field(out, "species", &json!(species), false)?;
     field(out, "steps", &json!(steps), false)?;
     // Dense species × steps, written a row at a time.
-    write!(out, ",\n  \"stoichiometry\": [")?;
-    let mut row: Vec<Value> = vec![json!(0); model.steps.len()];
     let mut by_species: Vec<Vec<(usize, Coef)>> = vec![Vec::new(); model.species.len()];
     for (j, col) in a.columns.iter().enumerate() {
         for (i, c) in col {
             by_species[*i].push((j, *c));
         }
     }
+    write!(out, ",\n  \"stoichiometry\": [")?;
     for (i, entries) in by_species.iter().enumerate() {
-        row.iter_mut().for_each(|v| *v = json!(0));
-        for (j, c) in entries {
-            row[*j] = coef_json(c);
-        }
-        write!(
-            out,
-            "{}{}",
-            if i == 0 { "" } else { "," },
-            Value::Array(std::mem::take(&mut row))
-        )?;
-        row = vec![json!(0); model.steps.len()];
+        let cells = entries.iter().map(|(j, c)| (*j, coef_json(c).to_string()));
+        write_dense_row(out, i == 0, model.steps.len(), cells)?;
     }
     write!(out, "]")?;
     field(out, "rank", &json!(a.rank), false)?;
@@ -269,30 +259,14 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
     field(out, "dependent_formulas", &Value::Object(formulas), false)?;
     write!(out, ",\n  \"link_matrix\": [")?;
     for (i, entries) in r.link_matrix.iter().enumerate() {
-        let mut dense = vec![json!(0); r.independent.len()];
-        for (p, v) in entries {
-            dense[*p] = big_json(v);
-        }
-        write!(
-            out,
-            "{}{}",
-            if i == 0 { "" } else { "," },
-            Value::Array(dense)
-        )?;
+        let cells = entries.iter().map(|(p, v)| (*p, big_json(v).to_string()));
+        write_dense_row(out, i == 0, r.independent.len(), cells)?;
     }
     write!(out, "]")?;
     write!(out, ",\n  \"reduced_stoichiometry\": [")?;
     for (p, entries) in r.reduced_stoichiometry.iter().enumerate() {
-        let mut dense = vec![json!(0); model.steps.len()];
-        for (j, c) in entries {
-            dense[*j] = coef_json(c);
-        }
-        write!(
-            out,
-            "{}{}",
-            if p == 0 { "" } else { "," },
-            Value::Array(dense)
-        )?;
+        let cells = entries.iter().map(|(j, c)| (*j, coef_json(c).to_string()));
+        write_dense_row(out, p == 0, model.steps.len(), cells)?;
     }
     write!(out, "]")?;
     let s = &a.structure;
@@ -335,6 +309,37 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
         .collect();
     field(out, "never_fire", &json!(never_fire), false)?;
     writeln!(out, "\n}}")
+}
+
+/// Writes one dense JSON row of `len` cells from sparse (column, JSON text)
+/// pairs sorted by column; the other cells are 0.
+fn write_dense_row(
+    out: &mut dyn Write,
+    first: bool,
+    len: usize,
+    cells: impl Iterator<Item = (usize, String)>,
+) -> std::io::Result<()> {
+    let mut row = String::with_capacity(2 * len + 2);
+    if !first {
+        row.push(',');
+    }
+    row.push('[');
+    let mut next = 0;
+    for (col, text) in cells {
+        for k in next..col {
+            row.push_str(if k == 0 { "0" } else { ",0" });
+        }
+        if col > 0 {
+            row.push(',');
+        }
+        row.push_str(&text);
+        next = col + 1;
+    }
+    for k in next..len {
+        row.push_str(if k == 0 { "0" } else { ",0" });
+    }
+    row.push(']');
+    out.write_all(row.as_bytes())
 }
 
 /// A right-aligned table with a header row and a first column of labels.

@@ -282,27 +282,26 @@ fn edelstein_network_has_deficiency_one() {
 
 #[test]
 fn mixed_sign_laws_complete_the_basis() {
-    // A -> B + C, 0 -> B: only B − ... hmm: laws of N = [[-1,0],[1,1],[1,0]]
-    // are y with −y_A + y_B + y_C = 0 and y_B = 0: y = A + C (non-negative).
-    // With A -> B + C, C -> 0... Use A <=> B, B + C -> D + C? Instead take
-    // X -> Y, Y -> 0, 0 -> X + Z... The network A -> B, B + C -> A gives
-    // N = [[-1, 1], [1, -1], [0, -1]]: the only law is A + B (C is consumed only).
+    // A -> B, C -> A + D, B -> D: y_B = y_A, y_C = y_A + y_D, y_D = y_B, so
+    // the one law is A + B + 2 C + D (solved by hand).
     let m = network(&["A -> B", "C -> A + D", "B -> D"]);
-    // N columns: (-A+B), (-C+A+D), (-B+D): laws y with y_B = y_A, y_A + y_D = y_C, y_D = y_B:
-    // y = (1, 1, 2, 1) over A, B, C, D — non-negative; now add D -> 0 to break it
-    // and C -> 0 to leave... keep this one: a single non-negative law.
     let a = analyze(&m).unwrap();
     assert_eq!(law_strings(&m, &a.reduced), vec!["A + B + 2 C + D"]);
     check_invariants(&m, &a);
 
-    // A law with mixed signs: A -> B + C, B -> C... y: −yA + yB + yC = 0, −yB + yC = 0
-    // → yB = yC, yA = 2 yC: non-negative again. Mixed signs arise with
-    // A + B -> 0 style sinks: A + B -> 0 gives y_A = −y_B.
+    // A + B -> 0 conserves only A − B: no non-negative law exists.
     let m = network(&["A + B -> 0"]);
     let a = analyze(&m).unwrap();
     assert_eq!(law_strings(&m, &a.reduced), vec!["A + -1 B"]);
     assert_eq!(a.reduced.laws[0].name, "conserved_1");
     assert_eq!(a.nonnegative, NonNegativeBasis::NoneExist);
+    check_invariants(&m, &a);
+
+    // Adding C <=> D gives the moiety C + D, which does not span A − B.
+    let m = network(&["A + B -> 0", "C <=> D"]);
+    let a = analyze(&m).unwrap();
+    assert_eq!(law_strings(&m, &a.reduced), vec!["C + D", "A + -1 B"]);
+    assert_eq!(a.nonnegative, NonNegativeBasis::Partial);
     check_invariants(&m, &a);
 }
 
