@@ -15,8 +15,14 @@ pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
             Severity::Warning => miette::Severity::Warning,
         });
     let mut elsewhere = Vec::new();
+    let window = primary_file.and_then(|f| sources.get(f)).map(|file| WindowSource::around(&file.path.display().to_string(), &file.text, &diag.labels));
+    let too_long = window.as_ref().is_some_and(|w| w.text.lines().any(|l| l.len() > MAX_DRAWN_LINE));
     for label in &diag.labels {
-        if Some(label.span.file) == primary_file {
+        if too_long {
+            let path = sources.get(label.span.file).map(|f| f.path.display().to_string()).unwrap_or_default();
+            let (line, col) = sources.line_col(label.span.file, label.span.start);
+            elsewhere.push(format!("{}: {path}:{line}:{col} (the line is too long to show)", label.message));
+        } else if Some(label.span.file) == primary_file {
             let len = label.span.len();
             report = report.and_label(LabeledSpan::new(Some(label.message.clone()), label.span.start, len));
         } else {
@@ -36,9 +42,8 @@ pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
         report = report.with_help(help);
     }
     let mut out = String::new();
-    let result = match primary_file.and_then(|f| sources.get(f)) {
-        Some(file) => {
-            let source = WindowSource::around(&file.path.display().to_string(), &file.text, &diag.labels);
+    let result = match window.filter(|_| !too_long) {
+        Some(source) => {
             let report = miette::Report::new(report).with_source_code(source);
             handler.render_report(&mut out, report.as_ref())
         }
@@ -49,6 +54,11 @@ pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
     }
     out
 }
+
+/// Lines longer than this are not drawn: a terminal wraps them unreadably,
+/// and the renderer cannot pad columns past 65,535 characters. Their
+/// diagnostics give `path:line:column` instead.
+const MAX_DRAWN_LINE: usize = 2000;
 
 fn severity_word(s: Severity) -> &'static str {
     match s {
@@ -147,8 +157,30 @@ impl WindowSource {
             }
         }
         let base_line = text.as_bytes()[..start].iter().filter(|&&b| b == b'\n').count();
-        WindowSource { name: name.to_string(), text: text[start..end].to_string(), base_offset: start, base_line }
+        WindowSource { name: name.to_string(), text: shown(&text[start..end]), base_offset: start, base_line }
     }
+}
+
+/// The text as drawn: control characters (escape sequences, NUL, a lone
+/// carriage return) and invisible format characters (bidirectional
+/// overrides, zero-width spaces) would drive or mislead the user's terminal,
+/// so each becomes `?` or U+FFFD of the same byte length (spans stay valid).
+fn shown(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    let mut chars = text.chars().peekable();
+    while let Some(c) = chars.next() {
+        let invisible = matches!(c, '\u{200B}'..='\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2060}'..='\u{2069}' | '\u{FEFF}');
+        match c {
+            '\n' | '\t' => out.push(c),
+            '\r' if chars.peek() == Some(&'\n') => out.push(c),
+            _ if c.is_control() || invisible => match c.len_utf8() {
+                3 => out.push('\u{FFFD}'),
+                n => out.extend(std::iter::repeat_n('?', n)),
+            },
+            _ => out.push(c),
+        }
+    }
+    out
 }
 
 impl SourceCode for WindowSource {

@@ -12,7 +12,7 @@ use super::load::Loaded;
 use super::units::{ConcUnit, Dim, TimeUnit, UnitExpr, Units, parse_unit};
 use crate::diagnostics::{Code, Diagnostic, FileId, SourceMap, Span, did_you_mean};
 use crate::syntax::{self, AstBinOp, AstExpr, Ident, ParamValue, Quantity, RateAst, Side, StatementKind, StepTerm, UnitKey};
-use num_traits::{CheckedDiv, One, Signed, ToPrimitive, Zero};
+use num_traits::{CheckedAdd, CheckedDiv, CheckedSub, One, Signed, ToPrimitive, Zero};
 use std::collections::{HashMap, HashSet};
 use std::path::{Path, PathBuf};
 
@@ -23,7 +23,10 @@ pub fn load_path(path: &Path) -> Loaded {
             let id = sources.add(path.to_path_buf(), text);
             lower_from(sources, id)
         }
-        Err(d) => Loaded { sources, model: None, diagnostics: vec![d] },
+        Err(d) => {
+            let d = locate_bad_bytes(d, path, &mut sources);
+            Loaded { sources, model: None, diagnostics: vec![d] }
+        }
     }
 }
 
@@ -34,13 +37,43 @@ pub fn load_str(text: &str, path: &Path) -> Loaded {
     lower_from(sources, id)
 }
 
+/// Gives a not-UTF-8 error a label at the first bad byte: the file joins
+/// the source map with invalid bytes shown as U+FFFD (the valid prefix, and
+/// so the offset, is unchanged).
+/// A file over the size limit gets a label at its start (only its first
+/// line joins the source map).
+fn locate_bad_bytes(d: Diagnostic, path: &Path, sources: &mut SourceMap) -> Diagnostic {
+    if d.code == Code::InputTooLarge {
+        let mut head = Vec::new();
+        let Ok(file) = std::fs::File::open(path) else { return d };
+        if std::io::Read::read_to_end(&mut std::io::Read::take(file, 256), &mut head).is_err() {
+            return d;
+        }
+        let head = String::from_utf8_lossy(&head);
+        let first_line = head.lines().next().unwrap_or("").to_string();
+        let id = sources.add(path.to_path_buf(), first_line);
+        return d.with_label(Span::new(id, 0, 0), "file starts here");
+    }
+    if d.code != Code::NotUtf8 {
+        return d;
+    }
+    let Ok(bytes) = std::fs::read(path) else { return d };
+    let Err(e) = std::str::from_utf8(&bytes) else { return d };
+    let at = e.valid_up_to();
+    let id = sources.add(path.to_path_buf(), String::from_utf8_lossy(&bytes).into_owned());
+    d.with_label(Span::new(id, at, at + '\u{FFFD}'.len_utf8()), "not UTF-8")
+}
+
 /// Reads a file as UTF-8 text, dropping a byte-order mark.
 fn read_source(path: &Path) -> Result<String, Diagnostic> {
-    let bytes = std::fs::read(path).map_err(|e| {
-        Diagnostic::error(Code::FileRead, format!("cannot read {}: {e}", path.display())).with_help("check the path and the file's permissions")
-    })?;
+    let read_error = |e: std::io::Error| Diagnostic::error(Code::FileRead, format!("cannot read {}: {e}", path.display())).with_help("check the path and the file's permissions");
+    // Read at most one byte past the limit, so an endless source (a device
+    // such as /dev/zero) ends in a size error instead of exhausting memory.
+    let mut bytes = Vec::new();
+    std::io::Read::read_to_end(&mut std::io::Read::take(std::fs::File::open(path).map_err(read_error)?, syntax::parse::MAX_FILE_BYTES as u64 + 1), &mut bytes).map_err(read_error)?;
     if bytes.len() > syntax::parse::MAX_FILE_BYTES {
-        return Err(Diagnostic::error(Code::InputTooLarge, format!("{} is {} bytes; the limit is {}", path.display(), bytes.len(), syntax::parse::MAX_FILE_BYTES)));
+        return Err(Diagnostic::error(Code::InputTooLarge, format!("{} is larger than {} bytes, the limit", path.display(), syntax::parse::MAX_FILE_BYTES))
+            .with_help("split the mechanism into several files joined with `use`"));
     }
     match String::from_utf8(bytes) {
         Ok(s) => Ok(s.strip_prefix('\u{FEFF}').map(str::to_string).unwrap_or(s)),
@@ -49,8 +82,9 @@ fn read_source(path: &Path) -> Result<String, Diagnostic> {
             let before = &e.as_bytes()[..at];
             let line = before.iter().filter(|&&b| b == b'\n').count() + 1;
             let col = at - before.iter().rposition(|&b| b == b'\n').map(|p| p + 1).unwrap_or(0) + 1;
+            let utf16 = e.as_bytes().starts_with(&[0xFF, 0xFE]) || e.as_bytes().starts_with(&[0xFE, 0xFF]);
             Err(Diagnostic::error(Code::NotUtf8, format!("{} is not UTF-8 text: invalid byte at line {line}, column {col} (byte {at})", path.display()))
-                .with_help("save the file as UTF-8"))
+                .with_help(if utf16 { "the file starts with a UTF-16 byte-order mark: save it as UTF-8" } else { "save the file as UTF-8" }))
         }
     }
 }
@@ -135,7 +169,8 @@ fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<(PathBuf
                 let id = sources.add(target, text);
                 collect_files(sources, id, stack, trees, diags);
             }
-            Err(mut d) => {
+            Err(d) => {
+                let mut d = locate_bad_bytes(d, &target, sources);
                 d.code = if d.code == Code::FileRead { Code::FileRead } else { d.code };
                 d.labels.push(crate::diagnostics::Label { span, message: "included here".into() });
                 // A missing included file is a model error, not a usage error.
@@ -660,7 +695,10 @@ impl<'s> Lowerer<'s> {
             let Some(c) = self.coefficient(t) else { continue };
             self.used.insert(sym);
             match terms.iter_mut().find(|x| x.sym == sym) {
-                Some(x) => x.coefficient += c,
+                Some(x) => match x.coefficient.checked_add(&c) {
+                    Some(sum) => x.coefficient = sum,
+                    None => self.error(coefficient_overflow(t.span, "the coefficients of this species on one side")),
+                },
                 None => terms.push(Term { sym, coefficient: c, span: t.span }),
             }
         }
@@ -714,6 +752,12 @@ impl<'s> Lowerer<'s> {
         }
         let reactants = self.lower_terms(lhs);
         let products = self.lower_terms(rhs);
+        // Later stages add and subtract coefficients exactly in 64 bits:
+        // refuse a step whose side orders or net changes would overflow.
+        if let Some(what) = coefficient_sums_overflow(&reactants, &products) {
+            self.error(coefficient_overflow(item.span, what));
+            return;
+        }
         let rate = match rate {
             RateAst::Law(e) => {
                 let resolved = self.resolve(e, &|s| !matches!(s, Sym::Observable(_)), "a rate law");
@@ -1107,6 +1151,29 @@ fn context_help(context: &str) -> String {
         "a rate law" => "a law uses species, fixed species, params, totals and `t`".into(),
         _ => format!("check what {context} may use in docs/language.md"),
     }
+}
+
+fn coefficient_overflow(span: Span, what: &str) -> Diagnostic {
+    Diagnostic::error(Code::BadCoefficient, format!("{what} add up to more than this tool can hold exactly"))
+        .with_label(span, "coefficients too large")
+        .with_help("use smaller coefficients (numerators and denominators of a few digits); scale a step's coefficients down by their common factor")
+}
+
+/// Which sum of a step's coefficients (side orders, net change of a
+/// species) does not fit in 64-bit rationals, if any.
+fn coefficient_sums_overflow(reactants: &[Term], products: &[Term]) -> Option<&'static str> {
+    let sum = |terms: &[Term]| terms.iter().try_fold(Coef::zero(), |a, t| a.checked_add(&t.coefficient));
+    if sum(reactants).is_none() || sum(products).is_none() {
+        return Some("the coefficients of one side of this step");
+    }
+    for r in reactants {
+        if let Some(p) = products.iter().find(|p| p.sym == r.sym)
+            && p.coefficient.checked_sub(&r.coefficient).is_none()
+        {
+            return Some("the net change of a species in this step");
+        }
+    }
+    None
 }
 
 /// Parses `2`, `0.5`, `1/2` exactly; None on overflow or malformed text.

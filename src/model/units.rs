@@ -112,14 +112,16 @@ impl Dim {
     pub fn new(conc: i32, time: i32) -> Dim {
         Dim { conc, time }
     }
+    // Saturating: absurd powers (`uM^2147483647`) must give a dimension
+    // that matches nothing, never an overflow.
     pub fn mul(self, o: Dim) -> Dim {
-        Dim { conc: self.conc + o.conc, time: self.time + o.time }
+        Dim { conc: self.conc.saturating_add(o.conc), time: self.time.saturating_add(o.time) }
     }
     pub fn div(self, o: Dim) -> Dim {
-        Dim { conc: self.conc - o.conc, time: self.time - o.time }
+        Dim { conc: self.conc.saturating_sub(o.conc), time: self.time.saturating_sub(o.time) }
     }
     pub fn powi(self, n: i32) -> Dim {
-        Dim { conc: self.conc * n, time: self.time * n }
+        Dim { conc: self.conc.saturating_mul(n), time: self.time.saturating_mul(n) }
     }
     /// The dimension a mass-action constant of total order `n` must have:
     /// concentration^(1-n) / time.
@@ -134,7 +136,7 @@ impl Dim {
         let mut num = Vec::new();
         let mut den = Vec::new();
         let mut put = |sym: &str, p: i32| {
-            let part = |p: i32| if p.abs() == 1 { sym.to_string() } else { format!("{sym}^{}", p.abs()) };
+            let part = |p: i32| if p.unsigned_abs() == 1 { sym.to_string() } else { format!("{sym}^{}", p.unsigned_abs()) };
             if p > 0 {
                 num.push(part(p));
             } else if p < 0 {
@@ -209,16 +211,16 @@ pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
             Some((w, p)) => (w, p.parse::<i32>().map_err(|_| format!("bad power `{p}` in `{text}`"))?),
             None => (word_pow, 1),
         };
-        let power = power * sign;
+        let power = power.saturating_mul(sign);
         if let Some(c) = ConcUnit::parse(word) {
             match &mut out.conc {
-                Some((u, p)) if *u == c => *p += power,
+                Some((u, p)) if *u == c => *p = p.saturating_add(power),
                 Some(_) => return Err(format!("two different concentration units in `{text}`")),
                 None => out.conc = Some((c, power)),
             }
         } else if let Some(t) = TimeUnit::parse(word) {
             match &mut out.time {
-                Some((u, p)) if *u == t => *p += power,
+                Some((u, p)) if *u == t => *p = p.saturating_add(power),
                 Some(_) => return Err(format!("two different time units in `{text}`")),
                 None => out.time = Some((t, power)),
             }

@@ -177,7 +177,12 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
     let found = if rest.is_empty() || rest.starts_with(['\n', '\r']) {
         "the end of the line".to_string()
     } else {
-        format!("`{}`", &text[start..crate::diagnostics::floor_char_boundary(text, end)])
+        // Control and invisible characters (NUL, escape sequences, bidi
+        // overrides, zero-width spaces) are shown escaped, so the message
+        // never drives or misleads the user's terminal.
+        let token = &text[start..crate::diagnostics::floor_char_boundary(text, end)];
+        let invisible = |c: char| c.is_control() || matches!(c, '\u{200B}'..='\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2060}'..='\u{2069}' | '\u{FEFF}');
+        format!("`{}`", token.chars().map(|c| if invisible(c) { c.escape_default().to_string() } else { c.to_string() }).collect::<String>())
     };
     let message = match &e.variant {
         ErrorVariant::ParsingError { positives, negatives: _ } => {
