@@ -18,8 +18,14 @@ pub mod names;
 pub mod system;
 
 mod c;
+mod dot;
 mod json;
+mod julia;
+mod latex;
+mod octave;
 mod python;
+mod r;
+mod rust;
 mod sbml;
 
 use crate::diagnostics::Diagnostic;
@@ -63,7 +69,18 @@ pub trait Target: Sync {
 }
 
 /// Every target, in the order the documentation lists them.
-pub static TARGETS: &[&dyn Target] = &[&python::Python, &c::C, &sbml::Sbml, &json::Json];
+pub static TARGETS: &[&dyn Target] = &[
+    &python::Python,
+    &julia::Julia,
+    &c::C,
+    &rust::Rust,
+    &octave::Octave,
+    &r::R,
+    &sbml::Sbml,
+    &latex::Latex,
+    &json::Json,
+    &dot::Dot,
+];
 
 /// Finds a target by its `--target` name.
 pub fn find_target(name: &str) -> Option<&'static dyn Target> {

@@ -1,0 +1,570 @@
+//! End-to-end checks of `ratewright emit`: the emitted code is run by the
+//! tools it targets and compared with outside references (SciPy's
+//! integrator, gcc-compiled C, libSBML's validator, GNU Octave, rustc) and
+//! with central finite differences of its own right-hand side.
+
+mod common;
+
+use common::{models, python, ratewright, root};
+use ratewright::model::{Model, load_path};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// Loads a demo model (the front end is tested elsewhere).
+fn load(path: &Path) -> Model {
+    let loaded = load_path(path);
+    loaded
+        .model
+        .unwrap_or_else(|| panic!("{} loads: {:?}", path.display(), loaded.diagnostics))
+}
+
+/// The compiler's own right-hand side of the emitted system (full, or
+/// reduced through `network::reduce`), evaluated at state `y`.
+struct Reference {
+    model: Model,
+    rhs: Vec<ratewright::model::Expr>,
+    state: Vec<usize>,
+}
+
+impl Reference {
+    fn new(model: &Model, reduced: bool) -> Reference {
+        if reduced {
+            let r = ratewright::network::reduce(model).expect("reduces");
+            Reference {
+                rhs: r.rhs_exprs(),
+                state: r.independent.clone(),
+                model: r.model,
+            }
+        } else {
+            Reference {
+                rhs: model.rhs_exprs(),
+                state: (0..model.species.len()).collect(),
+                model: model.clone(),
+            }
+        }
+    }
+    fn full(&self, y: &[f64]) -> Vec<f64> {
+        let mut full = self.model.initial_state();
+        for (k, &i) in self.state.iter().enumerate() {
+            full[i] = y[k];
+        }
+        full
+    }
+    fn rhs(&self, y: &[f64]) -> Vec<f64> {
+        let full = self.full(y);
+        self.rhs
+            .iter()
+            .map(|e| self.model.eval_at(e, &full, 0.5))
+            .collect()
+    }
+    /// Richardson-extrapolated central differences, error O(h⁴) (common
+    /// practice; e.g. Press et al., Numerical Recipes, 5.7).
+    fn jac_fd(&self, y: &[f64]) -> Vec<Vec<f64>> {
+        let n = y.len();
+        let mut j = vec![vec![0.0; n]; n];
+        for c in 0..n {
+            let central = |h: f64| {
+                let (mut yp, mut ym) = (y.to_vec(), y.to_vec());
+                yp[c] += h;
+                ym[c] -= h;
+                let (fp, fm) = (self.rhs(&yp), self.rhs(&ym));
+                (0..n)
+                    .map(|r| (fp[r] - fm[r]) / (2.0 * h))
+                    .collect::<Vec<f64>>()
+            };
+            let h = 1e-3 * y[c].abs().max(1e-6);
+            let (d1, d2) = (central(h), central(h / 2.0));
+            for r in 0..n {
+                j[r][c] = (4.0 * d2[r] - d1[r]) / 3.0;
+            }
+        }
+        j
+    }
+    /// The tolerance of a finite-difference column: 1e-6 of its scale plus
+    /// the round-off of a difference quotient over terms of size |J||y|+|f|.
+    fn fd_tolerance(
+        &self,
+        y: &[f64],
+        jac: &dyn Fn(usize, usize) -> f64,
+        fd: &[Vec<f64>],
+        c: usize,
+    ) -> f64 {
+        let n = y.len();
+        let f = self.rhs(y);
+        let terms = (0..n)
+            .map(|r| (0..n).map(|k| jac(r, k).abs() * y[k].abs()).sum::<f64>() + f[r].abs())
+            .fold(0.0, f64::max);
+        let scale = (0..n)
+            .map(|r| fd[r][c].abs().max(jac(r, c).abs()))
+            .fold(1e-300, f64::max);
+        let h = 1e-3 * y[c].abs().max(1e-6);
+        1e-6 * scale + 16.0 * f64::EPSILON * terms / h
+    }
+    /// Deterministic pseudo-random positive states around the initial scale.
+    fn states(&self, count: usize) -> Vec<Vec<f64>> {
+        let scale = self
+            .model
+            .species
+            .iter()
+            .map(|s| s.initial)
+            .fold(0.0f64, f64::max)
+            .max(1e-3);
+        let mut seed: u64 = 0x9E37_79B9_7F4A_7C15;
+        (0..count)
+            .map(|_| {
+                self.state
+                    .iter()
+                    .map(|_| {
+                        seed = seed
+                            .wrapping_mul(6364136223846793005)
+                            .wrapping_add(1442695040888963407);
+                        let u = (seed >> 11) as f64 / (1u64 << 53) as f64;
+                        scale * (0.05 + 0.95 * u)
+                    })
+                    .collect()
+            })
+            .collect()
+    }
+}
+
+fn temp() -> tempfile::TempDir {
+    tempfile::tempdir().expect("temp dir")
+}
+
+fn emit(model: &Path, target: &str, reduced: bool, out: &Path) {
+    let mut args = vec![
+        "emit",
+        model.to_str().unwrap(),
+        "--target",
+        target,
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    if reduced {
+        args.push("--reduced");
+    }
+    let o = ratewright(&args);
+    assert!(
+        o.status.success(),
+        "emit {target} {}: {}",
+        model.display(),
+        String::from_utf8_lossy(&o.stderr)
+    );
+}
+
+fn close(a: f64, b: f64, rel: f64, scale: f64) -> bool {
+    (a - b).abs() <= rel * a.abs().max(b.abs()).max(scale)
+}
+
+#[test]
+fn emitted_python_rhs_matches_the_compiler_and_its_jacobian_matches_central_differences() {
+    let dir = temp();
+    for path in models() {
+        for reduced in [false, true] {
+            let reference = Reference::new(&load(&path), reduced);
+            let module = dir.path().join(format!(
+                "m_{}_{reduced}.py",
+                path.file_stem().unwrap().to_string_lossy()
+            ));
+            emit(&path, "python", reduced, &module);
+            let states = reference.states(4);
+            let rhs: Vec<Vec<f64>> = states.iter().map(|y| reference.rhs(y)).collect();
+            let cases = dir.path().join("cases.json");
+            std::fs::write(
+                &cases,
+                serde_json::json!({ "states": states, "rhs": rhs }).to_string(),
+            )
+            .unwrap();
+            let out = python(
+                &root().join("tests/python/emit_check_python.py"),
+                &[module.to_str().unwrap(), cases.to_str().unwrap()],
+            );
+            assert!(
+                out.status.success(),
+                "{} (reduced {reduced}): {}{}",
+                path.display(),
+                String::from_utf8_lossy(&out.stdout),
+                String::from_utf8_lossy(&out.stderr)
+            );
+        }
+    }
+}
+
+/// Reads a CSV with a header into (header, rows).
+fn read_csv(path: &Path) -> (Vec<String>, Vec<Vec<f64>>) {
+    let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let mut lines = text.lines();
+    let header = lines
+        .next()
+        .unwrap_or_default()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    let rows = lines
+        .filter(|l| !l.trim().is_empty())
+        .map(|l| {
+            l.split(',')
+                .map(|v| v.trim().parse::<f64>().unwrap_or(f64::NAN))
+                .collect()
+        })
+        .collect();
+    (header, rows)
+}
+
+#[test]
+fn emitted_python_main_reproduces_run_with_scipy() {
+    // SciPy's BDF (an independent integrator) on the emitted module against
+    // `ratewright run` on the same file; both at tight tolerances, so the
+    // two solutions agree to 1e-6 relative (of each column's scale).
+    let dir = temp();
+    for path in models() {
+        let model = load(&path);
+        let until = if model.name.as_deref() == Some("robertson") {
+            "40"
+        } else {
+            "900"
+        };
+        for reduced in [false, true] {
+            let module = dir.path().join(format!("m_{reduced}.py"));
+            emit(&path, "python", reduced, &module);
+            let py_csv = dir.path().join("py.csv");
+            let out = python(
+                &module,
+                &[
+                    "--until",
+                    until,
+                    "--points",
+                    "31",
+                    "--rtol",
+                    "1e-10",
+                    "--atol",
+                    "1e-14",
+                    "-o",
+                    py_csv.to_str().unwrap(),
+                ],
+            );
+            assert!(
+                out.status.success(),
+                "{}: {}",
+                path.display(),
+                String::from_utf8_lossy(&out.stderr)
+            );
+            let run_csv = dir.path().join("run.csv");
+            let o = ratewright(&[
+                "run",
+                path.to_str().unwrap(),
+                "--until",
+                until,
+                "--points",
+                "31",
+                "--rtol",
+                "1e-10",
+                "--atol",
+                "1e-14",
+                "-o",
+                run_csv.to_str().unwrap(),
+            ]);
+            assert!(
+                o.status.success(),
+                "run {}: {}",
+                path.display(),
+                String::from_utf8_lossy(&o.stderr)
+            );
+            let (h1, r1) = read_csv(&py_csv);
+            let (h2, r2) = read_csv(&run_csv);
+            assert_eq!(h1, h2, "{}: CSV headers differ", path.display());
+            assert_eq!(r1.len(), r2.len());
+            for c in 0..h1.len() {
+                let scale = r2
+                    .iter()
+                    .map(|r| r[c].abs())
+                    .fold(0.0, f64::max)
+                    .max(1e-300);
+                for (a, b) in r1.iter().zip(&r2) {
+                    assert!(
+                        close(a[c], b[c], 1e-6, scale),
+                        "{} (reduced {reduced}) column {} at t={}: python {} vs run {}",
+                        path.display(),
+                        h1[c],
+                        a[0],
+                        a[c],
+                        b[c]
+                    );
+                }
+            }
+        }
+    }
+}
+
+/// A C program that prints rhs, dense and sparse Jacobian at given states.
+fn c_harness(stem: &str, states: &[Vec<f64>]) -> String {
+    let n = states.first().map(|s| s.len()).unwrap_or(0);
+    let up = stem.to_uppercase();
+    let mut s = format!("#include <stdio.h>\n#include \"{stem}.h\"\nint main(void)\n{{\n");
+    s += &format!(
+        "    static const double states[{}][{}] = {{",
+        states.len(),
+        n.max(1)
+    );
+    for st in states {
+        s += &format!(
+            "{{{}}},",
+            st.iter()
+                .map(|v| format!("{v:?}"))
+                .collect::<Vec<_>>()
+                .join(",")
+        );
+    }
+    s += "};\n";
+    s += &format!(
+        "    {stem}_params p;\n    double f[{up}_N_STATE + 1], J[{up}_N_STATE * {up}_N_STATE + 1], v[{up}_JAC_NNZ + 1];\n    int k, i;\n    {stem}_default_params(&p);\n"
+    );
+    s += &format!("    for (k = 0; k < {}; ++k) {{\n", states.len());
+    s += &format!(
+        "        {stem}_rhs(0.5, states[k], &p, f);\n        {stem}_jac_dense(0.5, states[k], &p, J);\n        {stem}_jac_csc(0.5, states[k], &p, v);\n"
+    );
+    s += &format!(
+        "        for (i = 0; i < {up}_N_STATE; ++i) printf(\"%.17g \", f[i]);\n        printf(\"\\n\");\n"
+    );
+    s += &format!(
+        "        for (i = 0; i < {up}_N_STATE * {up}_N_STATE; ++i) printf(\"%.17g \", J[i]);\n        printf(\"\\n\");\n"
+    );
+    s += &format!(
+        "        for (i = 0; i < {up}_JAC_NNZ; ++i) printf(\"%.17g \", v[i]);\n        printf(\"\\n\");\n    }}\n"
+    );
+    s += &format!(
+        "    for (i = 0; i <= {up}_N_STATE; ++i) printf(\"%d \", {stem}_jac_colptr[i]);\n    printf(\"\\n\");\n"
+    );
+    s += &format!(
+        "    for (i = 0; i < {up}_JAC_NNZ; ++i) printf(\"%d \", {stem}_jac_rowval[i]);\n    printf(\"\\n\");\n    return 0;\n}}\n"
+    );
+    s
+}
+
+fn numbers(line: &str) -> Vec<f64> {
+    line.split_whitespace()
+        .map(|w| w.parse().unwrap_or(f64::NAN))
+        .collect()
+}
+
+#[test]
+fn emitted_c_compiles_with_werror_and_matches_the_compiler() {
+    let dir = temp();
+    for path in models() {
+        for reduced in [false, true] {
+            let stem = "mech";
+            let sub = dir.path().join(format!(
+                "{}_{reduced}",
+                path.file_stem().unwrap().to_string_lossy()
+            ));
+            std::fs::create_dir_all(&sub).unwrap();
+            emit(&path, "c", reduced, &sub.join(stem));
+            let reference = Reference::new(&load(&path), reduced);
+            let states = reference.states(3);
+            std::fs::write(sub.join("main.c"), c_harness(stem, &states)).unwrap();
+            let exe = sub.join("check");
+            let cc = Command::new("gcc")
+                .args([
+                    "-std=c99",
+                    "-Wall",
+                    "-Wextra",
+                    "-Werror",
+                    "-pedantic",
+                    "-O1",
+                    "-o",
+                ])
+                .arg(&exe)
+                .arg(sub.join("main.c"))
+                .arg(sub.join("mech.c"))
+                .arg("-lm")
+                .output()
+                .expect("gcc runs");
+            assert!(
+                cc.status.success(),
+                "gcc on {} (reduced {reduced}):\n{}",
+                path.display(),
+                String::from_utf8_lossy(&cc.stderr)
+            );
+            let run = Command::new(&exe).output().expect("harness runs");
+            let text = String::from_utf8_lossy(&run.stdout).to_string();
+            let lines: Vec<&str> = text.lines().collect();
+            let n = reference.state.len();
+            let colptr: Vec<usize> = numbers(lines[3 * states.len()])
+                .iter()
+                .map(|v| *v as usize)
+                .collect();
+            let rowval: Vec<usize> =
+                numbers(lines.get(3 * states.len() + 1).copied().unwrap_or(""))
+                    .iter()
+                    .map(|v| *v as usize)
+                    .collect();
+            for (k, y) in states.iter().enumerate() {
+                let f = numbers(lines[3 * k]);
+                let jd = numbers(lines[3 * k + 1]);
+                let vals = numbers(lines[3 * k + 2]);
+                let want = reference.rhs(y);
+                let fscale = want.iter().fold(0.0f64, |a, v| a.max(v.abs())) * 1e-9;
+                for i in 0..n {
+                    assert!(
+                        close(f[i], want[i], 1e-10, fscale),
+                        "{} rhs[{i}]: C {} vs compiler {}",
+                        path.display(),
+                        f[i],
+                        want[i]
+                    );
+                }
+                let fd = reference.jac_fd(y);
+                let jc = |r: usize, c: usize| jd[r + n * c];
+                for c in 0..n {
+                    let tol = reference.fd_tolerance(y, &jc, &fd, c);
+                    for r in 0..n {
+                        assert!(
+                            (jd[r + n * c] - fd[r][c]).abs() <= tol,
+                            "{} (reduced {reduced}) J[{r},{c}]: C {} vs central difference {}",
+                            path.display(),
+                            jd[r + n * c],
+                            fd[r][c]
+                        );
+                    }
+                    // The CSC values are the dense entries at the declared pattern.
+                    for idx in colptr[c]..colptr[c + 1] {
+                        assert_eq!(vals[idx], jd[rowval[idx] + n * c]);
+                    }
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn emitted_sbml_validates_with_libsbml_and_reads_back() {
+    let dir = temp();
+    for path in models() {
+        let model = load(&path);
+        let file = dir.path().join("model.xml");
+        emit(&path, "sbml", false, &file);
+        // Every species at 0.7 of its scale and the first step's law there.
+        let reference = Reference::new(&model, false);
+        let y = &reference.states(1)[0];
+        let values: serde_json::Map<String, serde_json::Value> = model
+            .species
+            .iter()
+            .zip(y)
+            .map(|(s, v)| (s.name.clone(), serde_json::json!(v)))
+            .collect();
+        let state = dir.path().join("state.json");
+        let reaction = format!("step_{}", model.steps[0].name);
+        std::fs::write(
+            &state,
+            serde_json::json!({ "values": values, "reaction": reaction }).to_string(),
+        )
+        .unwrap();
+        let out = python(
+            &root().join("tests/python/emit_check_sbml.py"),
+            &[file.to_str().unwrap(), state.to_str().unwrap()],
+        );
+        let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap_or_else(|_| {
+            panic!(
+                "{}: {}",
+                path.display(),
+                String::from_utf8_lossy(&out.stderr)
+            )
+        });
+        assert!(
+            out.status.success(),
+            "{}: libSBML errors {}",
+            path.display(),
+            report["errors"]
+        );
+        assert_eq!(report["level"], 3);
+        assert_eq!(report["version"], 2);
+        assert_eq!(report["species"], model.species.len() + model.fixed.len());
+        assert_eq!(report["reactions"], model.steps.len());
+        assert_eq!(
+            report["parameters"],
+            model.params.len() + model.totals.len() + model.observables.len()
+        );
+        assert_eq!(report["events"], model.events.len());
+        let full = reference.full(y);
+        let want = model.eval_at(&model.step_rate(0), &full, 0.0);
+        let got = report["law"].as_f64().expect("a kinetic law value");
+        assert!(
+            close(got, want, 1e-12, 0.0),
+            "{}: libSBML law {got} vs compiler {want}",
+            path.display()
+        );
+    }
+}
+
+/// Every target for two models, as insta snapshots (full and reduced).
+#[test]
+fn snapshots_of_every_target() {
+    let dir = temp();
+    for name in ["protease_assay", "kinase_cycle"] {
+        let path = root().join("models").join(format!("{name}.mech"));
+        for target in ::ratewright::emit::TARGETS {
+            for reduced in [false, true] {
+                if reduced && !target.supports_reduced() {
+                    continue;
+                }
+                let out = if target.multi_file() {
+                    dir.path().join(name)
+                } else {
+                    dir.path().join(format!("{name}.{}", target.extension()))
+                };
+                emit(&path, target.name(), reduced, &out);
+                let files: Vec<PathBuf> = if target.multi_file() {
+                    vec![
+                        dir.path().join(format!("{name}.h")),
+                        dir.path().join(format!("{name}.c")),
+                    ]
+                } else {
+                    vec![out.clone()]
+                };
+                let mut text = String::new();
+                for f in files {
+                    text += &format!("==> {} <==\n", f.file_name().unwrap().to_string_lossy());
+                    text += &std::fs::read_to_string(&f).unwrap();
+                }
+                let snap = format!(
+                    "{name}_{}{}",
+                    target.name(),
+                    if reduced { "_reduced" } else { "" }
+                );
+                insta::assert_snapshot!(snap, text);
+            }
+        }
+    }
+}
+
+#[test]
+fn usage_errors_are_clear() {
+    let m = root().join("models/protease_assay.mech");
+    let m = m.to_str().unwrap();
+    let o = ratewright(&["emit", m, "--target", "pyhton"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("did you mean `python`"));
+    let o = ratewright(&["emit", m, "--target", "c"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("-o DIR"));
+    let o = ratewright(&["emit", m, "--target", "sbml", "--reduced"]);
+    assert_eq!(o.status.code(), Some(2));
+    // Refuses to overwrite its input.
+    let dir = temp();
+    let copy = dir.path().join("m.mech");
+    std::fs::copy(m, &copy).unwrap();
+    let o = ratewright(&[
+        "emit",
+        copy.to_str().unwrap(),
+        "--target",
+        "json",
+        "-o",
+        copy.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(
+        std::fs::read_to_string(&copy)
+            .unwrap()
+            .contains("mechanism protease_assay")
+    );
+}
