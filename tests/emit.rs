@@ -436,6 +436,226 @@ fn emitted_c_compiles_with_werror_and_matches_the_compiler() {
     }
 }
 
+/// Checks rhs values against the compiler and a dense column-major
+/// Jacobian against finite differences, at each state.
+fn check_rhs_and_jac(
+    what: &str,
+    reference: &Reference,
+    states: &[Vec<f64>],
+    f_rows: &[Vec<f64>],
+    j_rows: &[Vec<f64>],
+) {
+    let n = reference.state.len();
+    for (k, y) in states.iter().enumerate() {
+        let (f, jd) = (&f_rows[k], &j_rows[k]);
+        assert_eq!(f.len(), n, "{what}: rhs length");
+        assert_eq!(jd.len(), n * n, "{what}: Jacobian size");
+        let want = reference.rhs(y);
+        let fscale = want.iter().fold(0.0f64, |a, v| a.max(v.abs())) * 1e-9;
+        for i in 0..n {
+            assert!(
+                close(f[i], want[i], 1e-10, fscale),
+                "{what} rhs[{i}]: {} vs compiler {}",
+                f[i],
+                want[i]
+            );
+        }
+        let fd = reference.jac_fd(y);
+        let jc = |r: usize, c: usize| jd[r + n * c];
+        for c in 0..n {
+            let tol = reference.fd_tolerance(y, &jc, &fd, c);
+            for r in 0..n {
+                assert!(
+                    (jc(r, c) - fd[r][c]).abs() <= tol,
+                    "{what} J[{r},{c}]: {} vs central difference {}",
+                    jc(r, c),
+                    fd[r][c]
+                );
+            }
+        }
+    }
+}
+
+/// A time before the first event, where `run` and another integrator can be
+/// compared without event handling: (time, text).
+fn quiet_horizon(model: &Model) -> f64 {
+    let first_event = model
+        .events
+        .iter()
+        .map(|e| e.time)
+        .fold(f64::INFINITY, f64::min);
+    let horizon: f64 = if model.name.as_deref() == Some("robertson") {
+        40.0
+    } else {
+        100.0
+    };
+    horizon.min(0.5 * first_event)
+}
+
+#[test]
+fn emitted_octave_runs_under_octave_cli_with_ode15s() {
+    let dir = temp();
+    for path in models() {
+        let model = load(&path);
+        for reduced in [false, true] {
+            let sub = dir.path().join(format!(
+                "{}_{reduced}",
+                path.file_stem().unwrap().to_string_lossy()
+            ));
+            std::fs::create_dir_all(&sub).unwrap();
+            emit(&path, "octave", reduced, &sub.join("mech.m"));
+            let reference = Reference::new(&model, reduced);
+            let states = reference.states(3);
+            let horizon = quiet_horizon(&model);
+            let mut script = String::from("m = mech();\n");
+            for y in &states {
+                let col = y
+                    .iter()
+                    .map(|v| format!("{v:?}"))
+                    .collect::<Vec<_>>()
+                    .join("; ");
+                script += &format!(
+                    "y = [{col}];\nprintf('%.17g ', m.rhs(0.5, y, m.p)); printf('\\n');\nJ = m.jac(0.5, y, m.p); printf('%.17g ', J(:)); printf('\\n');\n"
+                );
+            }
+            // Octave 7's ode15s stops at t = 0 ("error test failed") on these
+            // models with AbsTol 1e-12 even without a Jacobian; 1e-10 works.
+            script += &format!(
+                "opts = odeset(m.options, 'RelTol', 1e-8, 'AbsTol', 1e-10);\n[t, y] = ode15s(@(t, y) m.rhs(t, y, m.p), [0 {horizon:?}], m.y0, opts);\nprintf('%.17g ', y(end, :)); printf('\\n');\n"
+            );
+            std::fs::write(sub.join("check.m"), script).unwrap();
+            let out = Command::new("octave-cli")
+                .args(["--no-gui", "--quiet", "--no-window-system", "check.m"])
+                .current_dir(&sub)
+                .output()
+                .expect("octave-cli runs (install GNU Octave: apt-get install -y octave)");
+            let text = String::from_utf8_lossy(&out.stdout).to_string();
+            assert!(
+                out.status.success(),
+                "octave on {}: {}{}",
+                path.display(),
+                text,
+                String::from_utf8_lossy(&out.stderr)
+            );
+            let lines: Vec<Vec<f64>> = text.lines().map(numbers).collect();
+            let f_rows: Vec<Vec<f64>> = (0..states.len()).map(|k| lines[2 * k].clone()).collect();
+            let j_rows: Vec<Vec<f64>> = (0..states.len())
+                .map(|k| lines[2 * k + 1].clone())
+                .collect();
+            let what = format!("octave {} (reduced {reduced})", path.display());
+            check_rhs_and_jac(&what, &reference, &states, &f_rows, &j_rows);
+            // ode15s with the Jacobian option against `ratewright run`.
+            let csv = sub.join("run.csv");
+            let t = format!("{horizon:?}");
+            let o = ratewright(&[
+                "run",
+                path.to_str().unwrap(),
+                "--times",
+                &t,
+                "--rtol",
+                "1e-10",
+                "--atol",
+                "1e-14",
+                "-o",
+                csv.to_str().unwrap(),
+            ]);
+            assert!(
+                o.status.success(),
+                "run: {}",
+                String::from_utf8_lossy(&o.stderr)
+            );
+            let (_, rows) = read_csv(&csv);
+            let run_state: Vec<f64> = reference
+                .state
+                .iter()
+                .map(|&i| rows[rows.len() - 1][1 + i])
+                .collect();
+            let end = &lines[2 * states.len()];
+            let scale = run_state.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+            for (i, (a, b)) in end.iter().zip(&run_state).enumerate() {
+                assert!(
+                    (a - b).abs() <= 1e-6 * scale,
+                    "{what}: ode15s y[{i}] = {a} vs run {b} at t = {t}"
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn emitted_rust_compiles_with_rustc_and_matches_the_compiler() {
+    let dir = temp();
+    for path in models() {
+        let model = load(&path);
+        for reduced in [false, true] {
+            let sub = dir.path().join(format!(
+                "{}_{reduced}",
+                path.file_stem().unwrap().to_string_lossy()
+            ));
+            std::fs::create_dir_all(&sub).unwrap();
+            emit(&path, "rust", reduced, &sub.join("mech.rs"));
+            let reference = Reference::new(&model, reduced);
+            let states = reference.states(3);
+            let mut main = String::from(
+                "mod mech;\nfn show(v: &[f64]) { println!(\"{}\", v.iter().map(|x| format!(\"{x:?}\")).collect::<Vec<_>>().join(\" \")); }\nfn main() {\n    let p = mech::DEFAULT_PARAMS;\n    let n = mech::N;\n",
+            );
+            for y in &states {
+                let list = y
+                    .iter()
+                    .map(|v| format!("{v:?}"))
+                    .collect::<Vec<_>>()
+                    .join(", ");
+                main += &format!(
+                    "    let y: Vec<f64> = vec![{list}];\n    let mut f = vec![0.0; n];\n    mech::rhs(&y, &p, 0.5, &mut f);\n    show(&f);\n    let mut j = vec![0.0; n * n];\n    mech::jac_dense(&y, &p, 0.5, &mut j);\n    show(&j);\n    let v: Vec<f64> = (0..n).map(|i| 1.0 + i as f64).collect();\n    let mut jv = vec![0.0; n];\n    mech::jac_mul(&y, &p, 0.5, &v, &mut jv);\n    show(&jv);\n"
+                );
+            }
+            main += "    let mut y0 = vec![0.0; n];\n    mech::init(&p, 0.0, &mut y0);\n    show(&y0);\n}\n";
+            std::fs::write(sub.join("main.rs"), main).unwrap();
+            let exe = sub.join("check");
+            let rc = Command::new("rustc")
+                .args(["--edition", "2021", "-D", "warnings", "-o"])
+                .arg(&exe)
+                .arg(sub.join("main.rs"))
+                .output()
+                .expect("rustc runs");
+            assert!(
+                rc.status.success(),
+                "rustc on {} (reduced {reduced}):\n{}",
+                path.display(),
+                String::from_utf8_lossy(&rc.stderr)
+            );
+            let run = Command::new(&exe).output().expect("program runs");
+            let lines: Vec<Vec<f64>> = String::from_utf8_lossy(&run.stdout)
+                .lines()
+                .map(numbers)
+                .collect();
+            let what = format!("rust {} (reduced {reduced})", path.display());
+            let f_rows: Vec<Vec<f64>> = (0..states.len()).map(|k| lines[3 * k].clone()).collect();
+            let j_rows: Vec<Vec<f64>> = (0..states.len())
+                .map(|k| lines[3 * k + 1].clone())
+                .collect();
+            check_rhs_and_jac(&what, &reference, &states, &f_rows, &j_rows);
+            let n = reference.state.len();
+            for k in 0..states.len() {
+                let (j, jv) = (&j_rows[k], &lines[3 * k + 2]);
+                for r in 0..n {
+                    let want: f64 = (0..n).map(|c| j[r + n * c] * (1.0 + c as f64)).sum();
+                    assert!(
+                        close(jv[r], want, 1e-12, 1e-300),
+                        "{what}: (J v)[{r}] {} vs {want}",
+                        jv[r]
+                    );
+                }
+            }
+            let y0 = &lines[3 * states.len()];
+            let full = model.initial_state();
+            for (k, &i) in reference.state.iter().enumerate() {
+                assert_eq!(y0[k], full[i], "{what}: init");
+            }
+        }
+    }
+}
+
 #[test]
 fn emitted_sbml_validates_with_libsbml_and_reads_back() {
     let dir = temp();

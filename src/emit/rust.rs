@@ -47,7 +47,7 @@ fn source(sys: &System, options: &EmitOptions) -> String {
         "//! The functions match diffsol's closure signatures, for example:\n\
          //! `OdeBuilder::<M>::new().p(DEFAULT_PARAMS.to_vec()).rhs_implicit(rhs, jac_mul).init(init, N).build()`.\n",
     );
-    o.push_str("#![allow(non_snake_case, unused_variables, clippy::all)]\n\n");
+    o.push_str("#![allow(non_snake_case, unused_variables, dead_code, clippy::all)]\n\n");
     let list = |v: Vec<String>| v.iter().map(|s| quoted(s)).collect::<Vec<_>>().join(", ");
     let np = sys.constants.len();
     let nnz = sys.jac.len();
