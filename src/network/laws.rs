@@ -207,7 +207,18 @@ pub(crate) fn find(model: &Model) -> Result<Found, Diagnostic> {
     // Moieties, block by block.
     let mut nonneg_rays: Vec<Row<BigInt>> = Vec::new();
     let mut abandoned_blocks = 0usize;
-    for (species, _) in blocks(&elim.null_vectors, n) {
+    for (species, members) in blocks(&elim.null_vectors, n) {
+        // A one-dimensional block is a line: its only possible ray is the
+        // basis vector itself, when all its coefficients share one sign.
+        if let [only] = members[..] {
+            let v = &elim.null_vectors[only];
+            if v.iter().all(|(_, c)| c.is_positive()) {
+                nonneg_rays.push(v.clone());
+            } else if v.iter().all(|(_, c)| c.is_negative()) {
+                nonneg_rays.push(v.iter().map(|(i, c)| (*i, -c)).collect());
+            }
+            continue;
+        }
         match extreme_rays(&species, &columns) {
             BlockRays::Rays(r) => nonneg_rays.extend(r),
             BlockRays::TooLarge => abandoned_blocks += 1,

@@ -331,3 +331,26 @@ fn rational_coefficients_are_exact() {
     assert_eq!(law_strings(&m, &a.reduced), vec!["H2 + H2O", "2 O2 + H2O"]);
     check_invariants(&m, &a);
 }
+
+#[test]
+fn a_long_closed_cycle_has_one_moiety_over_every_species() {
+    // A0 -> A1 -> ... -> A399 -> A0 conserves the sum of all species
+    // (mass balance of a closed cycle; common practice).
+    let texts: Vec<String> = (0..400)
+        .map(|i| format!("A{i} -> A{}", (i + 1) % 400))
+        .collect();
+    let refs: Vec<&str> = texts.iter().map(String::as_str).collect();
+    let m = network(&refs);
+    let a = analyze(&m).unwrap();
+    assert_eq!(a.rank, 399);
+    assert_eq!(a.reduced.laws.len(), 1);
+    assert_eq!(a.reduced.laws[0].coefficients.len(), 400);
+    assert!(
+        a.reduced.laws[0]
+            .coefficients
+            .iter()
+            .all(|(_, c)| *c == BigInt::from(1))
+    );
+    assert_eq!(a.nonnegative, NonNegativeBasis::Spans);
+    check_invariants(&m, &a);
+}
