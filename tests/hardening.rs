@@ -104,3 +104,93 @@ fn corpus_json_diagnostics_carry_line_and_column() {
         assert!(located, "{p}: no located error in {report}");
     }
 }
+
+// ---------------------------------------------------------------- output safety
+
+fn temp_files_in(dir: &Path) -> Vec<String> {
+    std::fs::read_dir(dir).expect("readable dir").filter_map(|e| e.ok()).map(|e| e.file_name().to_string_lossy().into_owned()).filter(|n| n.ends_with(".tmp")).collect()
+}
+
+#[test]
+fn output_never_overwrites_the_input_file() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let text = std::fs::read_to_string(root().join("models/protease_assay.mech")).expect("demo model");
+    // A model whose name has an output extension, so only the input check
+    // can stop the write; reached by its name, through `./`, and through a
+    // symlink.
+    let model = dir.path().join("assay.csv");
+    std::fs::write(&model, &text).expect("write model");
+    let m = model.to_str().expect("UTF-8 path");
+    let link = dir.path().join("link.csv");
+    std::os::unix::fs::symlink(&model, &link).expect("symlink");
+    for target in [model.clone(), dir.path().join(".").join("assay.csv"), link] {
+        let out = ratewright(&["run", m, "--points", "5", "-o", target.to_str().expect("UTF-8")]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_ne!(out.status.code(), Some(0), "run -o {} succeeded over its input", target.display());
+        assert!(stderr.contains("refusing to overwrite"), "{stderr}");
+        assert_eq!(std::fs::read_to_string(&model).expect("model still there"), text, "the input changed");
+    }
+    let plain = dir.path().join("m.mech");
+    std::fs::write(&plain, &text).expect("write model");
+    let p = plain.to_str().expect("UTF-8 path");
+    for args in [vec!["run", p, "--points", "5", "-o", p], vec!["run", p, "--points", "5", "--plot", p], vec!["emit", p, "--target", "json", "-o", p]] {
+        let out = ratewright(&args);
+        assert_ne!(out.status.code(), Some(0), "{args:?} succeeded over its input");
+        assert_eq!(std::fs::read_to_string(&plain).expect("model still there"), text, "{args:?} changed the input");
+    }
+    assert!(temp_files_in(dir.path()).is_empty());
+}
+
+#[test]
+fn a_failed_run_leaves_the_previous_output_untouched() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let model = dir.path().join("blowup.mech");
+    // dA/dt = k A^2 (net of 2 A -> 3 A) is infinite at t = 1/(k A0) = 10 s
+    // (A(t) = A0 / (1 - k A0 t), the closed form of the Riccati equation).
+    std::fs::write(&model, "species A = 1 uM\nparam k = 0.1 /uM/s\nstep grow 2 A -> 3 A with k\n").expect("write");
+    let out_path = dir.path().join("out.csv");
+    std::fs::write(&out_path, "previous result\n").expect("write");
+    let out = ratewright(&["run", model.to_str().expect("UTF-8"), "--until", "20", "-o", out_path.to_str().expect("UTF-8")]);
+    assert_eq!(out.status.code(), Some(1));
+    assert_eq!(std::fs::read_to_string(&out_path).expect("still there"), "previous result\n");
+    assert!(temp_files_in(dir.path()).is_empty());
+}
+
+/// SIGINT at every stage of a long `run -o`: while integrating, and the
+/// moment the temporary output file appears. Afterwards there is either no
+/// output or the complete one, and never a temporary file.
+#[test]
+fn sigint_leaves_no_partial_file() {
+    let model = root().join("models/robertson.mech");
+    for stage in ["integrating", "writing"] {
+        let dir = tempfile::tempdir().expect("a temp dir");
+        let out_path = dir.path().join("robertson.csv");
+        let mut child = Command::new(common::bin())
+            .args(["run", model.to_str().expect("UTF-8"), "--points", "3000000", "-o", out_path.to_str().expect("UTF-8")])
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .expect("spawn");
+        let started = Instant::now();
+        match stage {
+            "integrating" => std::thread::sleep(Duration::from_millis(300)),
+            _ => {
+                while temp_files_in(dir.path()).is_empty() && started.elapsed() < Duration::from_secs(120) {
+                    if child.try_wait().expect("wait").is_some() {
+                        break;
+                    }
+                    std::thread::sleep(Duration::from_millis(2));
+                }
+            }
+        }
+        let _ = Command::new("kill").args(["-INT", &child.id().to_string()]).status();
+        let status = child.wait().expect("wait");
+        let leftovers = temp_files_in(dir.path());
+        assert!(leftovers.is_empty(), "{stage}: SIGINT left {leftovers:?} (exit {status:?})");
+        if out_path.exists() {
+            let text = std::fs::read_to_string(&out_path).expect("read");
+            assert_eq!(text.lines().count(), 3_000_001, "{stage}: the output is partial");
+        }
+        assert!(!status.success() || out_path.exists(), "{stage}: success without output");
+    }
+}

@@ -74,6 +74,7 @@ pub fn parse_time(text: &str, units: Units) -> Result<f64, String> {
 /// `inputs` (the files the command read).
 pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(), String> {
     refuse_input_overwrite(path, inputs)?;
+    let _no_interrupt = writing_guard();
     let dir = match path.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
@@ -87,6 +88,26 @@ pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(),
     tmp.as_file().sync_all().map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     tmp.persist(path).map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
     Ok(())
+}
+
+static WRITING: std::sync::Mutex<()> = std::sync::Mutex::new(());
+
+/// Held while a temporary output file exists. The first call installs a
+/// handler for SIGINT, SIGTERM and SIGHUP that waits for the guard, so an
+/// interrupted command exits (code 130) only between writes: the temporary
+/// file has then been renamed into place or removed, never left behind.
+/// Every command that writes through a temporary file holds it.
+pub fn writing_guard() -> std::sync::MutexGuard<'static, ()> {
+    static INSTALL: std::sync::Once = std::sync::Once::new();
+    INSTALL.call_once(|| {
+        // Without a handler (it fails only if one is already set) an
+        // interrupt ends the process at once, as it would anyway.
+        let _ = ctrlc::set_handler(|| {
+            let _wait = WRITING.lock();
+            std::process::exit(130);
+        });
+    });
+    WRITING.lock().unwrap_or_else(std::sync::PoisonError::into_inner)
 }
 
 /// Errors if `out` names the same file as one of `inputs`.
