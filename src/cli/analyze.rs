@@ -379,8 +379,11 @@ fn table(
     Ok(())
 }
 
+/// A value for people: 12 significant digits, so sums of converted
+/// quantities print as 2000 rather than 2000.0000000000002.
 fn number(v: f64) -> String {
-    crate::algebra::print::plain_literal(v)
+    let rounded = format!("{v:.11e}").parse::<f64>().unwrap_or(v);
+    crate::algebra::print::plain_literal(rounded)
 }
 
 fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Result<()> {
@@ -431,7 +434,17 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
     if r.laws.is_empty() {
         writeln!(out, "  none: every species can change independently")?;
     }
-    for law in &r.laws {
+    let equations: Vec<String> = r
+        .laws
+        .iter()
+        .map(|law| format!("{} = {}", combination(law_terms(model, law)), law.name))
+        .collect();
+    let width = equations
+        .iter()
+        .map(|e| e.chars().count())
+        .max()
+        .unwrap_or(0);
+    for (law, equation) in r.laws.iter().zip(&equations) {
         let origin = match law.user_total {
             Some(_) => "your total",
             None if law.coefficients.iter().all(|(_, c)| c.is_positive()) => {
@@ -441,9 +454,7 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
         };
         writeln!(
             out,
-            "  {} = {}    value {} {unit}   ({origin})",
-            combination(law_terms(model, law)),
-            law.name,
+            "  {equation:<width$}    value {} {unit}   ({origin})",
             number(law.value)
         )?;
     }

@@ -272,18 +272,29 @@ pub(crate) fn find(model: &Model) -> Result<Found, Diagnostic> {
     })
 }
 
-/// A readable name for an automatic law that clashes with no other name.
+/// A readable name for an automatic law that clashes with no other name:
+/// `X_total` after the first species with coefficient 1 whose name is still
+/// free (then any species), else `conserved_N` for laws with mixed signs.
 fn law_name(model: &Model, v: &Row<BigInt>, used: &mut Vec<String>, counter: &mut usize) -> String {
+    let taken = |name: &str, used: &Vec<String>| {
+        model.lookup(name).is_some() || used.iter().any(|u| u == name)
+    };
     let semi_positive = v.iter().all(|(_, c)| c.is_positive());
     let base = if semi_positive {
-        let first_unit = v.iter().find(|(_, c)| c.is_one()).unwrap_or(&v[0]).0 as usize;
-        format!("{}_total", model.species[first_unit].name)
+        let candidates = v
+            .iter()
+            .filter(|(_, c)| c.is_one())
+            .chain(v.iter().filter(|(_, c)| !c.is_one()));
+        let names: Vec<String> = candidates
+            .map(|(i, _)| format!("{}_total", model.species[*i as usize].name))
+            .collect();
+        match names.iter().find(|n| !taken(n, used)) {
+            Some(free) => free.clone(),
+            None => names[0].clone(),
+        }
     } else {
         *counter += 1;
         format!("conserved_{counter}")
-    };
-    let taken = |name: &str, used: &Vec<String>| {
-        model.lookup(name).is_some() || used.iter().any(|u| u == name)
     };
     let mut name = base.clone();
     let mut suffix = 2;
