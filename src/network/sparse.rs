@@ -225,8 +225,7 @@ pub fn eliminate<T: Int>(mut rows: Vec<Row<T>>, ncols: usize) -> Option<Eliminat
         }
         let mut best = (scan_from, col_count[scan_from]);
         if best.1 > 1 {
-            for c in scan_from + 1..ncols {
-                let k = col_count[c];
+            for (c, &k) in col_count.iter().enumerate().skip(scan_from + 1) {
                 if k > 0 && k < best.1 {
                     best = (c, k);
                     if k == 1 {

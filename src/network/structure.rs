@@ -275,9 +275,9 @@ fn never_fire(model: &Model) -> Vec<usize> {
         }
     };
     let mut queue = Vec::new();
-    for d in 0..ndir {
+    for (d, missing_inputs) in missing.iter_mut().enumerate() {
         if d % 2 == 1 && !model.steps[d / 2].reversible {
-            missing[d] = usize::MAX;
+            *missing_inputs = usize::MAX;
             continue;
         }
         let (input, _) = sides(d);
@@ -288,11 +288,11 @@ fn never_fire(model: &Model) -> Vec<usize> {
             .collect();
         needed.sort_unstable();
         needed.dedup();
-        missing[d] = needed.len();
+        *missing_inputs = needed.len();
         for k in needed {
             users[k].push(d);
         }
-        if missing[d] == 0 {
+        if *missing_inputs == 0 {
             queue.push(d);
         }
     }

@@ -1,4 +1,5 @@
 //! Unit tests on hand-built models. Reference values name their source.
+#![allow(clippy::needless_range_loop)] // matrix entries read clearest as n[i][j]
 
 use super::*;
 use crate::model::{Param, ParamDef, Rate, Species, Step, Term, Total};

@@ -10,8 +10,10 @@ exact rational arithmetic in SymPy:
   - every conservation law y satisfies y^T N = 0, has integer coefficients
     with gcd 1, and the laws are linearly independent, with
     number of laws = species - rank (so they are a basis of the left null space);
-  - where the analysis claims the non-negative laws span ("spans"), every law
-    is non-negative;
+  - every found non-negative law is an extreme ray of the cone
+    { y >= 0 : y^T N = 0 } (N restricted to its species has rank one less
+    than their number), and where the analysis claims the non-negative laws
+    span ("spans"), every law is non-negative;
   - the link matrix L and N_R satisfy N = L * N_R, with the identity on the
     independent species;
   - from the truth file: complexes, linkage classes and deficiency, computed
@@ -85,6 +87,16 @@ def check(analysis_path, truth_path):
             errors.append("some law y has y^T N != 0")
         if Y.rank() != len(laws):
             errors.append("the laws are not linearly independent")
+    # A found non-negative law must be an extreme ray of {y >= 0 : y^T N = 0}:
+    # the laws supported within its support form a line, i.e.
+    # rank(N restricted to its species) = support size - 1.
+    for law in laws:
+        if law.get("kind") == "nonnegative":
+            rows = sorted(species.index(name) for name in law["coefficients"])
+            sub = N.extract(rows, list(range(m))) if m else sympy.zeros(len(rows), 0)
+            sub_rank = sub.rank() if m else 0
+            if sub_rank != len(rows) - 1:
+                errors.append(f"law {law['name']} is not an extreme ray (rank {sub_rank} on {len(rows)} species)")
     if a["nonnegative_basis"] == "spans":
         if any(int(v) < 0 for law in laws for v in law["coefficients"].values()):
             errors.append("claims a non-negative basis but a law has a negative coefficient")
