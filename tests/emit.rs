@@ -6,7 +6,7 @@
 mod common;
 
 use common::{models, python, ratewright, root};
-use ratewright::model::{Model, load_path};
+use ratewright::model::{Expr, Model, Sym, load_path};
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -713,6 +713,303 @@ fn emitted_sbml_validates_with_libsbml_and_reads_back() {
             "{}: libSBML law {got} vs compiler {want}",
             path.display()
         );
+    }
+}
+
+/// Deterministic random expressions over three names `a`, `b`, `c`.
+struct ExprGen {
+    seed: u64,
+}
+
+impl ExprGen {
+    fn next(&mut self) -> u64 {
+        self.seed = self
+            .seed
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        self.seed >> 33
+    }
+    fn pick(&mut self, n: u64) -> u64 {
+        self.next() % n
+    }
+    fn expr(&mut self, depth: u32) -> Expr {
+        use ratewright::model::{BinOp, Func};
+        if depth == 0 || self.pick(5) == 0 {
+            return match self.pick(5) {
+                0 => Expr::Number([0.5, 2.0, 3.0, 1e-3, 0.1, -1.5, 7.25][self.pick(7) as usize]),
+                1 => Expr::Time,
+                k => Expr::Name(Sym::Species((k - 2) as usize)),
+            };
+        }
+        let d = depth - 1;
+        match self.pick(11) {
+            0 => Expr::Neg(Box::new(self.expr(d))),
+            1 => Expr::bin(BinOp::Add, self.expr(d), self.expr(d)),
+            2 => Expr::bin(BinOp::Sub, self.expr(d), self.expr(d)),
+            3 => Expr::bin(BinOp::Mul, self.expr(d), self.expr(d)),
+            4 => Expr::bin(BinOp::Div, self.expr(d), self.expr(d)),
+            5 => Expr::bin(
+                BinOp::Pow,
+                self.expr(d),
+                Expr::Number([2.0, 3.0, -1.0, 0.5, -2.0][self.pick(5) as usize]),
+            ),
+            6 => Expr::bin(
+                BinOp::Pow,
+                Expr::Call(Func::Abs, vec![self.expr(d)]),
+                self.expr(d),
+            ),
+            7 => Expr::Call(
+                [Func::Exp, Func::Ln, Func::Sqrt, Func::Log10][self.pick(4) as usize],
+                vec![self.expr(d)],
+            ),
+            8 => Expr::Call(
+                [Func::Min, Func::Max][self.pick(2) as usize],
+                vec![self.expr(d), self.expr(d)],
+            ),
+            9 => Expr::Call(
+                Func::Pow,
+                vec![Expr::Call(Func::Abs, vec![self.expr(d)]), self.expr(d)],
+            ),
+            _ => Expr::Call(Func::Abs, vec![self.expr(d)]),
+        }
+    }
+}
+
+/// Expressions whose value is finite and moderate at a = 1.3, b = 0.7,
+/// c = 2.1, t = 0.9, with those values.
+fn sample_printed_exprs() -> Vec<(Expr, f64)> {
+    let mut g = ExprGen { seed: 42 };
+    let values = [1.3, 0.7, 2.1];
+    let mut out = Vec::new();
+    while out.len() < 150 {
+        let e = g.expr(5);
+        let value = |e: &Expr| {
+            e.eval(
+                &|s| {
+                    if let Sym::Species(i) = s {
+                        values[i]
+                    } else {
+                        f64::NAN
+                    }
+                },
+                0.9,
+            )
+        };
+        let v = value(&e);
+        // Every part defined: targets differ only where the math is (NaN
+        // and complex results), which is not what this test is about.
+        if all_parts_finite(&e, &value) && v.abs() < 1e12 && (v == 0.0 || v.abs() > 1e-12) {
+            out.push((e, v));
+        }
+    }
+    out
+}
+
+fn all_parts_finite(e: &Expr, value: &dyn Fn(&Expr) -> f64) -> bool {
+    value(e).is_finite()
+        && match e {
+            Expr::Neg(a) => all_parts_finite(a, value),
+            Expr::Binary(_, a, b) => all_parts_finite(a, value) && all_parts_finite(b, value),
+            Expr::Call(_, args) => args.iter().all(|a| all_parts_finite(a, value)),
+            _ => true,
+        }
+}
+
+fn abc(s: Sym) -> String {
+    match s {
+        Sym::Species(0) => "a".into(),
+        Sym::Species(1) => "b".into(),
+        _ => "c".into(),
+    }
+}
+
+#[test]
+fn printed_expressions_evaluate_the_same_in_python_c_octave_rust_and_the_mechanism_language() {
+    use ratewright::algebra::print::{Syntax, print_expr};
+    let samples = sample_printed_exprs();
+    let dir = temp();
+    let check = |what: &str, got: &[f64]| {
+        assert_eq!(got.len(), samples.len(), "{what}: one value per expression");
+        for ((e, want), g) in samples.iter().zip(got) {
+            assert!(
+                close(*g, *want, 1e-9, 0.0),
+                "{what}: {} = {g}, Rust evaluates {want}",
+                print_expr(e, &abc, Syntax::Mech)
+            );
+        }
+    };
+    // Python (numpy), the reference interpreter for the Python printer.
+    let py: Vec<String> = samples
+        .iter()
+        .map(|(e, _)| print_expr(e, &abc, Syntax::Python))
+        .collect();
+    let script = dir.path().join("eval.py");
+    std::fs::write(
+        &script,
+        format!(
+            "import numpy as np\na, b, c, t = 1.3, 0.7, 2.1, 0.9\nfor v in [{}]:\n    print(repr(float(v)))\n",
+            py.join(",\n          ")
+        ),
+    )
+    .unwrap();
+    let out = python(&script, &[]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    check("python", &numbers(&String::from_utf8_lossy(&out.stdout)));
+    // C99 with <math.h>, compiled by gcc with warnings as errors.
+    let mut c = String::from(
+        "#include <math.h>\n#include <stdio.h>\nint main(void)\n{\n    const double a = 1.3, b = 0.7, c = 2.1, t = 0.9;\n",
+    );
+    for (e, _) in &samples {
+        c += &format!(
+            "    printf(\"%.17g\\n\", {});\n",
+            print_expr(e, &abc, Syntax::C)
+        );
+    }
+    c += "    return 0;\n}\n";
+    std::fs::write(dir.path().join("eval.c"), c).unwrap();
+    let exe = dir.path().join("eval_c");
+    let cc = Command::new("gcc")
+        .args(["-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-o"])
+        .arg(&exe)
+        .arg(dir.path().join("eval.c"))
+        .arg("-lm")
+        .output()
+        .expect("gcc runs");
+    assert!(
+        cc.status.success(),
+        "{}",
+        String::from_utf8_lossy(&cc.stderr)
+    );
+    check(
+        "c",
+        &numbers(&String::from_utf8_lossy(
+            &Command::new(&exe).output().unwrap().stdout,
+        )),
+    );
+    // Rust with f64 methods, compiled by rustc.
+    let mut rs =
+        String::from("fn main() {\n    let (a, b, c, t) = (1.3f64, 0.7f64, 2.1f64, 0.9f64);\n");
+    for (e, _) in &samples {
+        rs += &format!(
+            "    println!(\"{{:?}}\", {});\n",
+            print_expr(e, &abc, Syntax::Rust)
+        );
+    }
+    rs += "    let _ = (a, b, c, t);\n}\n";
+    std::fs::write(dir.path().join("eval.rs"), rs).unwrap();
+    let exe = dir.path().join("eval_rs");
+    let rc = Command::new("rustc")
+        .args(["--edition", "2021", "-A", "warnings", "-o"])
+        .arg(&exe)
+        .arg(dir.path().join("eval.rs"))
+        .output()
+        .expect("rustc runs");
+    assert!(
+        rc.status.success(),
+        "{}",
+        String::from_utf8_lossy(&rc.stderr)
+    );
+    check(
+        "rust",
+        &numbers(&String::from_utf8_lossy(
+            &Command::new(&exe).output().unwrap().stdout,
+        )),
+    );
+    // GNU Octave.
+    let mut m = String::from("a = 1.3; b = 0.7; c = 2.1; t = 0.9;\n");
+    for (e, _) in &samples {
+        m += &format!(
+            "printf('%.17g\\n', {});\n",
+            print_expr(e, &abc, Syntax::Octave)
+        );
+    }
+    std::fs::write(dir.path().join("evalm.m"), m).unwrap();
+    let out = Command::new("octave-cli")
+        .args(["--no-gui", "--quiet", "evalm.m"])
+        .current_dir(dir.path())
+        .output()
+        .expect("octave-cli runs");
+    check("octave", &numbers(&String::from_utf8_lossy(&out.stdout)));
+    // The mechanism language: printed as observables, parsed back by the
+    // front end and evaluated by the IR.
+    let mut mech = String::from("species a = 1.3\nspecies b = 0.7\nspecies c = 2.1\n");
+    for (k, (e, _)) in samples.iter().enumerate() {
+        mech += &format!("observe o{k} = {}\n", print_expr(e, &abc, Syntax::Mech));
+    }
+    let loaded = ratewright::model::load_str(&mech, Path::new("printed.mech"));
+    let model = loaded
+        .model
+        .unwrap_or_else(|| panic!("printed expressions parse: {:?}", loaded.diagnostics));
+    let y = model.initial_state();
+    let got: Vec<f64> = model
+        .observables
+        .iter()
+        .map(|o| model.eval_at(&o.expr, &y, 0.9))
+        .collect();
+    check("mech", &got);
+}
+
+/// The JSON target's Jacobian, in the mechanism language, parsed back as
+/// observables of the model and compared with central differences.
+#[test]
+fn json_jacobian_reads_back_and_matches_central_differences() {
+    let dir = temp();
+    for path in models() {
+        let file = dir.path().join("m.json");
+        emit(&path, "json", false, &file);
+        let doc: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(&file).unwrap()).unwrap();
+        assert_eq!(doc["format"], "ratewright-model");
+        let model = load(&path);
+        let mut text = std::fs::read_to_string(&path).unwrap();
+        let entries = doc["system"]["jacobian"].as_array().unwrap();
+        for (k, e) in entries.iter().enumerate() {
+            text += &format!(
+                "\nobserve json_jac_{k} = {}",
+                e["expression"].as_str().unwrap()
+            );
+        }
+        let loaded = ratewright::model::load_str(&text, &path);
+        let with = loaded
+            .model
+            .unwrap_or_else(|| panic!("{}: {:?}", path.display(), loaded.diagnostics));
+        let reference = Reference::new(&model, false);
+        let y = &reference.states(1)[0];
+        let fd = reference.jac_fd(y);
+        let n = y.len();
+        let index = |name: &str| model.species.iter().position(|s| s.name == name).unwrap();
+        let mut dense = vec![0.0; n * n];
+        let first = model.observables.len();
+        for (k, e) in entries.iter().enumerate() {
+            let (r, c) = (
+                index(e["row"].as_str().unwrap()),
+                index(e["column"].as_str().unwrap()),
+            );
+            dense[r + n * c] = with.eval_at(&with.observables[first + k].expr, y, 0.5);
+        }
+        let jc = |r: usize, c: usize| dense[r + n * c];
+        for c in 0..n {
+            let tol = reference.fd_tolerance(y, &jc, &fd, c);
+            for r in 0..n {
+                assert!(
+                    (jc(r, c) - fd[r][c]).abs() <= tol,
+                    "{} json J[{r},{c}] {} vs {}",
+                    path.display(),
+                    jc(r, c),
+                    fd[r][c]
+                );
+            }
+        }
+        // Shape of the documented schema.
+        assert_eq!(
+            doc["stoichiometry"]["matrix"].as_array().unwrap().len(),
+            model.species.len()
+        );
+        assert_eq!(doc["steps"].as_array().unwrap().len(), model.steps.len());
     }
 }
 

@@ -350,8 +350,17 @@ impl Printer<'_> {
             Expr::Number(v) => {
                 out.push_str(&format!("({}_f64)", float_literal(*v)));
             }
-            Expr::Name(_) | Expr::Time | Expr::Call(..) | Expr::Binary(BinOp::Pow, _, _) => {
+            Expr::Name(_) | Expr::Time | Expr::Call(..) | Expr::Binary(BinOp::Pow, _, _)
+                if !constant(a) =>
+            {
                 self.expr(a, out)
+            }
+            // A receiver made only of literals has no type yet: `(1.0 + 2.0).ln()`
+            // does not compile, `((1.0 + 2.0) as f64).ln()` does.
+            _ if constant(a) => {
+                out.push_str("((");
+                self.expr(a, out);
+                out.push_str(") as f64)");
             }
             _ => {
                 out.push('(');
@@ -391,8 +400,8 @@ impl Printer<'_> {
             (Syntax::Python, Func::Log10) => "np.log10",
             (Syntax::Python, Func::Sqrt) => "np.sqrt",
             (Syntax::Python, Func::Abs) => "np.abs",
-            (Syntax::Python, Func::Min) => "np.minimum",
-            (Syntax::Python, Func::Max) => "np.maximum",
+            (Syntax::Python, Func::Min) => "np.fmin",
+            (Syntax::Python, Func::Max) => "np.fmax",
             (Syntax::C, Func::Abs) => "fabs",
             (Syntax::C, Func::Min) => "fmin",
             (Syntax::C, Func::Max) => "fmax",
@@ -537,6 +546,11 @@ impl Printer<'_> {
             _ => plain_literal(v),
         }
     }
+}
+
+/// Whether an expression has no names and no `t` (only literals).
+fn constant(e: &Expr) -> bool {
+    e.names().is_empty() && !e.mentions_time()
 }
 
 /// `1.5e-7` → `1.5 \times 10^{-7}`.
