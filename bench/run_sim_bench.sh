@@ -5,8 +5,9 @@
 #  (a) Robertson to 1e11: the tool in process and as a whole process, against
 #      SciPy solve_ivp LSODA and BDF with the analytic Jacobian (in process
 #      and whole process);
-#  (b) a generated 1,000-species, 3,000-step network against SciPy BDF with
-#      a sparse analytic Jacobian;
+#  (b) generated 1,000-species, 3,000-step networks (random partners, and
+#      partners among nearby species) against SciPy BDF with a sparse
+#      analytic Jacobian;
 #  (c) the compiled model against a hand-written Rust RHS and Jacobian
 #      handed to diffsol.
 # Usage: bench/run_sim_bench.sh [REPS]   (from the repository root)
@@ -39,14 +40,20 @@ print(f"process_scipy_lsoda_seconds {wall(['python3', 'bench/sim_robertson_scipy
 print(f"process_scipy_bdf_seconds {wall(['python3', 'bench/sim_robertson_scipy.py', 'once', 'BDF']):.6e}")
 PY
 
-echo "# (b) generated network: 1,000 species, 3,000 steps, to t = 10, rtol 1e-6, atol 1e-10"
-$BENCH network "$OUT"
-$BENCH network-run "$OUT" 5
-python3 - "$BIN" "$OUT" <<'PY'
+for kind in network network-local; do
+  DIR="$OUT/$kind"
+  echo "# (b) generated $kind: 1,000 species, 3,000 steps, to t = 10, rtol 1e-6, atol 1e-10"
+  $BENCH "$kind" "$DIR"
+  $BENCH network-run "$DIR" 5
+  python3 - "$BIN" "$DIR" <<'PY'
 import subprocess, sys, time
 binary, out = sys.argv[1], sys.argv[2]
 t0 = time.perf_counter()
 subprocess.run([binary, 'run', f'{out}/network.mech', '--times', '10', '-o', f'{out}/network.csv'], check=True, stderr=subprocess.DEVNULL)
 print(f"process_tool_network_seconds {time.perf_counter() - t0:.6e}")
 PY
-python3 bench/sim_network_scipy.py "$OUT"
+  python3 bench/sim_network_scipy.py "$DIR"
+done
+
+echo "# dense against sparse LU by size (sets numeric::SPARSE_THRESHOLD)"
+$BENCH threshold 5

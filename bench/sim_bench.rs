@@ -5,8 +5,11 @@
 //!                                   same problem with a hand-written RHS and
 //!                                   Jacobian handed to diffsol (the limit).
 //!   sim_bench network DIR           generates the 1,000-species, 3,000-step
-//!                                   network into DIR (network.mech and
-//!                                   network.json for the SciPy script).
+//!                                   random network into DIR (network.mech
+//!                                   and network.json for the SciPy script).
+//!   sim_bench network-local DIR     the same with partners chosen among
+//!                                   nearby species (pathway-like).
+//!   sim_bench threshold N           dense against sparse LU by size.
 //!   sim_bench network-run DIR N     solves DIR/network.mech N times and a
 //!                                   tight reference once.
 //!
@@ -161,11 +164,28 @@ impl Rng {
 /// about two thirds reversible. Every step conserves a positive weight
 /// (binding products weigh the sum of their parts), so concentrations stay
 /// bounded.
-fn generate_network(dir: &Path) {
-    generate(dir, 1000, 3000);
+///
+/// `window`: None picks partners anywhere (a random graph, the worst case for
+/// sparse LU fill-in); Some(w) picks them within about w indices of a random
+/// centre, like pathways where each species reacts with a few neighbours.
+fn generate_network(dir: &Path, window: Option<usize>) {
+    generate(dir, 1000, 3000, window);
 }
 
-fn generate(dir: &Path, n_species: usize, n_steps: usize) {
+/// A member of `group` (sorted) anywhere, or near `centre`.
+fn pick(rng: &mut Rng, group: &[usize], centre: usize, window: Option<usize>) -> usize {
+    match window {
+        None => group[rng.below(group.len())],
+        Some(w) => {
+            let p0 = group.partition_point(|&x| x < centre) as i64;
+            let half = (w / 4).max(1) as i64;
+            let off = rng.below((2 * half + 1) as usize) as i64 - half;
+            group[(p0 + off).clamp(0, group.len() as i64 - 1) as usize]
+        }
+    }
+}
+
+fn generate(dir: &Path, n_species: usize, n_steps: usize, window: Option<usize>) {
     let mut rng = Rng(20241);
     // Weights 1..4 so that bindings can conserve weight: C's weight = A's + B's.
     let weight: Vec<usize> = (0..n_species).map(|i| 1 + i % 4).collect();
@@ -184,14 +204,15 @@ fn generate(dir: &Path, n_species: usize, n_steps: usize) {
     let mut steps_json = Vec::new();
     for k in 0..n_steps {
         let kind = rng.below(3);
+        let centre = rng.below(n_species);
         let kf = rng.log_uniform(0.01, 100.0);
         let kr = rng.log_uniform(0.01, 100.0);
         let (reactants, products, reversible): (Vec<usize>, Vec<usize>, bool) = match kind {
             0 => {
                 let w = 1 + rng.below(4);
                 let g = &groups[w];
-                let a = g[rng.below(g.len())];
-                let mut b = g[rng.below(g.len())];
+                let a = pick(&mut rng, g, centre, window);
+                let mut b = pick(&mut rng, g, centre, window);
                 if b == a {
                     b = g[(g.iter().position(|&x| x == a).unwrap_or(0) + 1) % g.len()];
                 }
@@ -199,17 +220,16 @@ fn generate(dir: &Path, n_species: usize, n_steps: usize) {
             }
             1 => {
                 let (wa, wb) = (1 + rng.below(2), 1 + rng.below(2));
-                let a = groups[wa][rng.below(groups[wa].len())];
-                let b = groups[wb][rng.below(groups[wb].len())];
-                let gc = &groups[wa + wb];
-                let c = gc[rng.below(gc.len())];
+                let a = pick(&mut rng, &groups[wa], centre, window);
+                let b = pick(&mut rng, &groups[wb], centre, window);
+                let c = pick(&mut rng, &groups[wa + wb], centre, window);
                 (vec![a, b], vec![c], rng.below(4) != 0)
             }
             _ => {
                 let w = 1 + rng.below(4);
                 let g = &groups[w];
-                let a = g[rng.below(g.len())];
-                let mut b = g[rng.below(g.len())];
+                let a = pick(&mut rng, g, centre, window);
+                let mut b = pick(&mut rng, g, centre, window);
                 if b == a {
                     b = g[(g.iter().position(|&x| x == a).unwrap_or(0) + 1) % g.len()];
                 }
@@ -255,7 +275,7 @@ fn generate(dir: &Path, n_species: usize, n_steps: usize) {
     )
     .expect("writes network.json");
     if n_species == 1000 {
-        println!("network_written {}", dir.display());
+        println!("network_written {} (window {window:?})", dir.display());
     }
 }
 
@@ -312,27 +332,29 @@ fn network_run(dir: &Path, reps: usize) {
 /// Dense against sparse linear algebra on generated networks of growing size
 /// (same generator, scaled: 3 steps per species), to place the threshold.
 fn threshold(reps: usize) {
-    for n in [10usize, 20, 30, 40, 60, 80, 120, 200] {
-        let dir = std::env::temp_dir().join(format!("ratewright-threshold-{n}"));
-        generate(&dir, n, 3 * n);
-        let model = load_path(&dir.join("network.mech")).model.expect("loads");
-        let system = ratewright::numeric::CompiledSystem::full(&model).expect("compiles");
-        let settings = Settings {
-            rtol: 1e-6,
-            atol: 1e-10,
-            ..Settings::default()
-        };
-        let mut line = format!("threshold n={n}");
-        for algebra in [LinearAlgebra::Dense, LinearAlgebra::Sparse] {
-            let mut times = Vec::new();
-            for _ in 0..reps {
-                let start = Instant::now();
-                simulate_with(&model, &system, &settings, &[10.0], algebra).expect("solves");
-                times.push(start.elapsed().as_secs_f64());
+    for (kind, window) in [("random", None), ("local", Some(20))] {
+        for n in [20usize, 40, 80, 120, 200, 300, 500] {
+            let dir = std::env::temp_dir().join(format!("ratewright-threshold-{kind}-{n}"));
+            generate(&dir, n, 3 * n, window);
+            let model = load_path(&dir.join("network.mech")).model.expect("loads");
+            let system = ratewright::numeric::CompiledSystem::full(&model).expect("compiles");
+            let settings = Settings {
+                rtol: 1e-6,
+                atol: 1e-10,
+                ..Settings::default()
+            };
+            let mut line = format!("threshold {kind} n={n}");
+            for algebra in [LinearAlgebra::Dense, LinearAlgebra::Sparse] {
+                let mut times = Vec::new();
+                for _ in 0..reps {
+                    let start = Instant::now();
+                    simulate_with(&model, &system, &settings, &[10.0], algebra).expect("solves");
+                    times.push(start.elapsed().as_secs_f64());
+                }
+                line.push_str(&format!(" {algebra:?}_ms={:.3}", median(times) * 1e3));
             }
-            line.push_str(&format!(" {algebra:?}_ms={:.3}", median(times) * 1e3));
+            println!("{line}");
         }
-        println!("{line}");
     }
 }
 
@@ -340,11 +362,22 @@ fn main() {
     let args: Vec<String> = std::env::args().collect();
     match args.get(1).map(String::as_str) {
         Some("robertson") => robertson(args.get(2).and_then(|s| s.parse().ok()).unwrap_or(50)),
-        Some("network") => generate_network(Path::new(
-            args.get(2)
-                .map(String::as_str)
-                .unwrap_or("target/sim-bench"),
-        )),
+        Some("network") => generate_network(
+            Path::new(
+                args.get(2)
+                    .map(String::as_str)
+                    .unwrap_or("target/sim-bench"),
+            ),
+            None,
+        ),
+        Some("network-local") => generate_network(
+            Path::new(
+                args.get(2)
+                    .map(String::as_str)
+                    .unwrap_or("target/sim-bench-local"),
+            ),
+            Some(20),
+        ),
         Some("threshold") => threshold(args.get(2).and_then(|s| s.parse().ok()).unwrap_or(5)),
         Some("network-run") => network_run(
             Path::new(
@@ -355,7 +388,7 @@ fn main() {
             args.get(3).and_then(|s| s.parse().ok()).unwrap_or(5),
         ),
         _ => eprintln!(
-            "usage: sim_bench robertson N | network DIR | network-run DIR N | threshold N"
+            "usage: sim_bench robertson N | network DIR | network-local DIR | network-run DIR N | threshold N"
         ),
     }
 }

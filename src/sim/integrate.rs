@@ -536,6 +536,29 @@ pub(crate) mod tests {
     }
 
     #[test]
+    fn sparse_and_dense_linear_algebra_give_the_same_robertson_solution() {
+        // Same reference as above (Bari IVP test set, ROBER at t = 1e11, from memory).
+        let m = robertson();
+        let system = CompiledSystem::full(&m).unwrap();
+        let settings = Settings {
+            rtol: 1e-8,
+            atol: 1e-14,
+            ..Settings::default()
+        };
+        let dense = simulate_with(&m, &system, &settings, &[1e11], LinearAlgebra::Dense).unwrap();
+        let sparse = simulate_with(&m, &system, &settings, &[1e11], LinearAlgebra::Sparse).unwrap();
+        let reference = [
+            0.2083340149701255e-7,
+            0.8333360770334713e-13,
+            0.9999999791665050,
+        ];
+        for k in 0..3 {
+            assert!((sparse.rows[0][k] - reference[k]).abs() < 1e-3 * reference[k]);
+            assert!((sparse.rows[0][k] - dense.rows[0][k]).abs() < 1e-4 * reference[k]);
+        }
+    }
+
+    #[test]
     fn an_output_at_an_event_time_holds_the_state_after_the_event() {
         // A -> B with 1 added to A at t = 1: A(1) = A0 e^{-k} + 1 after the event.
         let mut m = mass_action(
