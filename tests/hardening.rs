@@ -194,3 +194,157 @@ fn sigint_leaves_no_partial_file() {
         assert!(!status.success() || out_path.exists(), "{stage}: success without output");
     }
 }
+
+// ---------------------------------------------------------------- limits
+
+fn write_temp(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
+    let p = dir.join(name);
+    std::fs::write(&p, bytes).expect("write a temp file");
+    p
+}
+
+fn check_file(p: &Path) -> (Option<i32>, String) {
+    let out = ratewright(&["check", p.to_str().expect("UTF-8 path")]);
+    (out.status.code(), String::from_utf8_lossy(&out.stderr).into_owned())
+}
+
+#[test]
+fn nesting_of_100000_parentheses_is_refused_without_stack_overflow() {
+    let text = format!("species A = 1 uM\nparam k = {}1{} /s\nstep r A -> 0 with k\n", "(".repeat(100_000), ")".repeat(100_000));
+    let loaded = load(&text);
+    assert_eq!(codes(&loaded), vec![Code::NestingTooDeep]);
+    let unbalanced = format!("param k = {}1\n", "(".repeat(100_000));
+    assert_eq!(codes(&load(&unbalanced)), vec![Code::NestingTooDeep]);
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let (code, stderr) = check_file(&write_temp(dir.path(), "deep.mech", text.as_bytes()));
+    assert_eq!(code, Some(1), "{stderr}");
+    assert!(stderr.contains("E0104") && stderr.contains("deep.mech:2:"), "{stderr}");
+}
+
+/// 200 levels (the limit) pass every stage that walks expressions: check,
+/// analyze, run and emit. The library is called on the test thread's
+/// default stack.
+#[test]
+fn nesting_at_the_limit_works_end_to_end() {
+    let depth = ratewright::syntax::parse::MAX_NESTING;
+    let deep = format!("{}k0{}", "(".repeat(depth), ")".repeat(depth));
+    let text = format!("species A = 1 uM, B\nparam k0 = 0.5 /s\nparam k = {deep}\nstep r A -> B law {deep} * A\nobserve o = {deep} * B\n");
+    let loaded = load(&text);
+    assert!(loaded.model.is_some(), "{}", rendered(&loaded));
+    let over = format!("param k = {}1{}\n", "(".repeat(depth + 1), ")".repeat(depth + 1));
+    assert_eq!(codes(&load(&over)), vec![Code::NestingTooDeep]);
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let p = write_temp(dir.path(), "deep.mech", text.as_bytes());
+    let ps = p.to_str().expect("UTF-8");
+    for args in [vec!["check", ps], vec!["analyze", ps], vec!["run", ps, "--until", "2", "--points", "3"], vec!["emit", ps, "--target", "python"]] {
+        let out = ratewright(&args);
+        assert_eq!(out.status.code(), Some(0), "{args:?}: {}", String::from_utf8_lossy(&out.stderr));
+    }
+    // A(t) = exp(-k0 t) for first-order decay: at t = 2 s with k0 = 0.5 /s, A = e^-1.
+    let out = ratewright(&["run", ps, "--times", "2", "-o", dir.path().join("a.csv").to_str().expect("UTF-8")]);
+    assert_eq!(out.status.code(), Some(0));
+    let csv = std::fs::read_to_string(dir.path().join("a.csv")).expect("csv");
+    let a: f64 = csv.lines().last().and_then(|l| l.split(',').nth(1)).and_then(|v| v.parse().ok()).expect("a value of A");
+    assert!((a - (-1.0f64).exp()).abs() < 1e-5, "A(2) = {a}");
+}
+
+fn load(text: &str) -> Loaded {
+    load_str(text, Path::new("example.mech"))
+}
+
+#[test]
+fn files_over_64_mib_and_endless_sources_are_refused() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let limit = ratewright::syntax::parse::MAX_FILE_BYTES;
+    let line = "# padding padding padding padding padding padding padding padding\n";
+    let mut big = String::from("species A = 1 uM\n");
+    while big.len() <= limit {
+        big.push_str(line);
+    }
+    let p = write_temp(dir.path(), "huge.mech", big.as_bytes());
+    let (code, stderr) = check_file(&p);
+    assert_eq!(code, Some(1), "{stderr}");
+    assert!(stderr.contains("E0106") && stderr.contains("huge.mech:1:1"), "{stderr}");
+    drop(big);
+    // `use` of a device that never ends stops at the limit instead of
+    // reading until memory runs out.
+    let p = write_temp(dir.path(), "zero.mech", b"use \"/dev/zero\"\nspecies A = 1 uM\n");
+    let (code, stderr) = check_file(&p);
+    assert_eq!(code, Some(1), "{stderr}");
+    assert!(stderr.contains("E0106"), "{stderr}");
+}
+
+#[test]
+fn very_long_lines_are_read_and_located() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    // 200,000 terms on one line (about 800 kB).
+    let sum = vec!["1"; 200_000].join(" + ");
+    let good = format!("species A = 1 uM\nparam k = 1 /s\nstep r A -> 0 with k\nobserve o = ({sum}) * A\n");
+    let (code, stderr) = check_file(&write_temp(dir.path(), "long.mech", good.as_bytes()));
+    assert_eq!(code, Some(0), "{stderr}");
+    let bad = format!("species A = 1 uM\nparam k = {sum} + nope\nstep r A -> 0 with k\n");
+    let (code, stderr) = check_file(&write_temp(dir.path(), "long_bad.mech", bad.as_bytes()));
+    assert_eq!(code, Some(1), "{stderr}");
+    let column = "param k = ".len() + sum.len() + " + ".len() + 1;
+    assert!(stderr.contains(&format!("long_bad.mech:2:{column}")), "{stderr}");
+    assert!(stderr.len() < 10_000, "the diagnostic echoes the whole line ({} bytes)", stderr.len());
+}
+
+/// CRLF, CR-only and mixed line endings, a byte-order mark and tabs are
+/// layout only: the model is the same as from the plain file.
+#[test]
+fn line_endings_bom_and_tabs_do_not_change_the_model() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    for name in common::models() {
+        let text = std::fs::read_to_string(&name).expect("demo model");
+        let plain = load_path(&name).model.expect("demo models load").without_spans();
+        let variants: Vec<(&str, Vec<u8>)> = vec![
+            ("crlf", text.replace('\n', "\r\n").into_bytes()),
+            ("cr", text.replace('\n', "\r").into_bytes()),
+            ("bom", [b"\xEF\xBB\xBF".as_slice(), text.as_bytes()].concat()),
+            ("tabs", tabs_for_spaces(&text).into_bytes()),
+            ("bom_crlf_tabs", [b"\xEF\xBB\xBF".as_slice(), tabs_for_spaces(&text).replace('\n', "\r\n").as_bytes()].concat()),
+        ];
+        for (kind, bytes) in variants {
+            let p = write_temp(dir.path(), &format!("{kind}.mech"), &bytes);
+            let loaded = load_path(&p);
+            let model = loaded.model.as_ref().unwrap_or_else(|| panic!("{} as {kind}: {}", name.display(), rendered(&loaded)));
+            assert!(model.without_spans() == plain, "{} as {kind}: a different model", name.display());
+        }
+    }
+}
+
+/// Every space outside quoted descriptions and comments becomes a tab.
+fn tabs_for_spaces(text: &str) -> String {
+    let mut out = String::new();
+    let (mut in_string, mut in_comment) = (false, false);
+    for c in text.chars() {
+        match c {
+            '"' if !in_comment => in_string = !in_string,
+            '#' if !in_string => in_comment = true,
+            '\n' => (in_string, in_comment) = (false, false),
+            _ => {}
+        }
+        out.push(if c == ' ' && !in_string && !in_comment { '\t' } else { c });
+    }
+    out
+}
+
+#[test]
+fn huge_coefficients_are_exact_or_a_clear_error() {
+    // 2^62 fits a 64-bit rational exactly and must stay exact.
+    let loaded = load("species A = 1 uM, B\nparam k = 1 /s\nstep r 4611686018427387904 A -> 3 B with k\n");
+    let model = loaded.model.expect("2^62 is accepted");
+    let change = model.net_change(0);
+    assert_eq!(change[0].1, ratewright::model::Coef::from_integer(-4_611_686_018_427_387_904));
+    // Beyond that: a located E0407, never a wrapped value.
+    for text in [
+        "species A = 1 uM, B\nparam k = 1 /s\nstep r 99999999999999999999 A -> B with k\n",
+        "species A = 1 uM, B\nparam k = 1 /s\nstep r 9000000000000000000 A + 9000000000000000000 A -> B with k\n",
+        "species A = 1 uM\nparam k = 1 /s\nstep r 1/9000000000000000007 A -> 1/9000000000000000001 A with k\n",
+    ] {
+        let loaded = load(text);
+        assert!(codes(&loaded).contains(&Code::BadCoefficient), "{text}: {:?}", codes(&loaded));
+        assert!(loaded.diagnostics.iter().all(|d| d.primary_span().is_some()));
+    }
+}
