@@ -219,7 +219,8 @@ pub(crate) fn find(model: &Model) -> Result<Found, Diagnostic> {
             }
             continue;
         }
-        match extreme_rays(&species, &columns) {
+        let basis: Vec<&Row<BigInt>> = members.iter().map(|b| &elim.null_vectors[*b]).collect();
+        match extreme_rays(&species, &basis) {
             BlockRays::Rays(r) => nonneg_rays.extend(r),
             BlockRays::TooLarge => abandoned_blocks += 1,
         }
