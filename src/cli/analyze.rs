@@ -439,9 +439,11 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
         .iter()
         .map(|law| format!("{} = {}", combination(law_terms(model, law)), law.name))
         .collect();
+    // Align the values, but do not let one long law push every line far right.
     let width = equations
         .iter()
         .map(|e| e.chars().count())
+        .filter(|w| *w <= 48)
         .max()
         .unwrap_or(0);
     for (law, equation) in r.laws.iter().zip(&equations) {
