@@ -253,13 +253,12 @@ fn rank(mut rows: Vec<Vec<BigRational>>) -> usize {
             continue;
         };
         rows.swap(r, p);
-        let pivot = rows[r][col].clone();
-        for i in 0..rows.len() {
-            if i != r && !rows[i][col].is_zero() {
-                let f = rows[i][col].clone() / pivot.clone();
-                for c in col..width {
-                    let sub = rows[r][c].clone() * f.clone();
-                    rows[i][c] -= sub;
+        let pivot_row = rows[r].clone();
+        for (i, row) in rows.iter_mut().enumerate() {
+            if i != r && !row[col].is_zero() {
+                let f = row[col].clone() / pivot_row[col].clone();
+                for (v, p) in row.iter_mut().zip(&pivot_row).skip(col) {
+                    *v -= p * &f;
                 }
             }
         }

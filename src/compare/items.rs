@@ -553,7 +553,8 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
     let mut old_left: Vec<usize> = (0..old.events.len()).collect();
     let mut new_left: Vec<usize> = (0..new.events.len()).collect();
     // Identical events first, then the same event at another amount, then at another time.
-    let passes: [&dyn Fn(&Event, &Event) -> bool; 3] = [
+    type Fits<'f> = &'f dyn Fn(&Event, &Event) -> bool;
+    let passes: [Fits; 3] = [
         &|a, b| ctx.same_value(a.amount, b.amount, conc) && ctx.same_value(a.time, b.time, time),
         &|a, b| ctx.same_value(a.time, b.time, time),
         &|a, b| ctx.same_value(a.amount, b.amount, conc),

@@ -285,13 +285,12 @@ fn collect_votes(ctx: &Context) -> HashMap<(Sym, Sym), u32> {
 /// differ in a leftover name on each side, votes for pairing those names.
 fn align(ctx: &Context, a: &Expr, b: &Expr, add: &mut dyn FnMut(Sym, Sym, u32)) {
     match (a, b) {
-        (Expr::Name(x), Expr::Name(y)) => {
+        (Expr::Name(x), Expr::Name(y))
             if matches!(ctx.key(Side::Old, *x), Key::OldOnly(_))
                 && matches!(ctx.key(Side::New, *y), Key::NewOnly(_))
-                && same_kind(*x, *y)
-            {
-                add(*x, *y, 1);
-            }
+                && same_kind(*x, *y) =>
+        {
+            add(*x, *y, 1);
         }
         (Expr::Neg(x), Expr::Neg(y)) => align(ctx, x, y, add),
         (Expr::Binary(o1, x1, y1), Expr::Binary(o2, x2, y2)) if o1 == o2 => {
