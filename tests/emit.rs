@@ -438,6 +438,7 @@ fn emitted_c_compiles_with_werror_and_matches_the_compiler() {
 
 /// Checks rhs values against the compiler and a dense column-major
 /// Jacobian against finite differences, at each state.
+#[allow(clippy::needless_range_loop)]
 fn check_rhs_and_jac(
     what: &str,
     reference: &Reference,
@@ -956,6 +957,7 @@ fn printed_expressions_evaluate_the_same_in_python_c_octave_rust_and_the_mechani
 /// The JSON target's Jacobian, in the mechanism language, parsed back as
 /// observables of the model and compared with central differences.
 #[test]
+#[allow(clippy::needless_range_loop)]
 fn json_jacobian_reads_back_and_matches_central_differences() {
     let dir = temp();
     for path in models() {

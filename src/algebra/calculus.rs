@@ -261,7 +261,7 @@ impl Product {
         let mut denom: Vec<Expr> = Vec::new();
         for (base, exponent) in self.factors {
             match number(&exponent) {
-                Some(v) if v == 0.0 => {}
+                Some(0.0) => {}
                 Some(v) if v < 0.0 => denom.push(raise(base, num(-v))),
                 _ => match exponent {
                     Expr::Neg(inner) => denom.push(raise(base, *inner)),
@@ -311,7 +311,7 @@ impl Product {
 /// `base^exponent` with the trivial exponents removed (no further folding).
 fn raise(base: Expr, exponent: Expr) -> Expr {
     match number(&exponent) {
-        Some(v) if v == 1.0 => base,
+        Some(1.0) => base,
         _ => Expr::pow(base, exponent),
     }
 }
@@ -376,9 +376,9 @@ fn power(base: Expr, exponent: Expr) -> Expr {
                 return num(v);
             }
         }
-        (_, Some(x)) if x == 0.0 => return num(1.0),
-        (_, Some(x)) if x == 1.0 => return base,
-        (Some(b), _) if b == 1.0 => return num(1.0),
+        (_, Some(0.0)) => return num(1.0),
+        (_, Some(1.0)) => return base,
+        (Some(1.0), _) => return num(1.0),
         _ => {}
     }
     if let (Expr::Binary(BinOp::Pow, inner, m), Some(n)) = (&base, number(&exponent)) {

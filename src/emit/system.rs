@@ -422,6 +422,24 @@ fn check_size(model: &Model, e: &Expr, step: usize) -> Result<(), Diagnostic> {
     Ok(())
 }
 
+impl System {
+    /// The full species vector (declaration order) from a state vector:
+    /// dependent species from their formulas.
+    pub fn full_values(&self, y: &[f64]) -> Vec<f64> {
+        let mut full = self.model.initial_state();
+        for (r, &i) in self.state.iter().enumerate() {
+            if let Some(v) = y.get(r) {
+                full[i] = *v;
+            }
+        }
+        let snapshot = full.clone();
+        for d in &self.dependent {
+            full[d.species] = self.model.eval_at(&d.formula, &snapshot, 0.0);
+        }
+        full
+    }
+}
+
 #[cfg(test)]
 pub(crate) mod tests {
     use super::*;
@@ -470,23 +488,5 @@ pub(crate) mod tests {
                 }
             }
         }
-    }
-}
-
-impl System {
-    /// The full species vector (declaration order) from a state vector:
-    /// dependent species from their formulas.
-    pub fn full_values(&self, y: &[f64]) -> Vec<f64> {
-        let mut full = self.model.initial_state();
-        for (r, &i) in self.state.iter().enumerate() {
-            if let Some(v) = y.get(r) {
-                full[i] = *v;
-            }
-        }
-        let snapshot = full.clone();
-        for d in &self.dependent {
-            full[d.species] = self.model.eval_at(&d.formula, &snapshot, 0.0);
-        }
-        full
     }
 }
