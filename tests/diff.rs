@@ -134,6 +134,7 @@ fn renames_are_detected_even_among_species_with_equal_start_values() {
             ("step", "renamed", "inhibit", "inhibitor_binding"),
             ("total", "renamed", "E_t", "Etot"),
             ("observable", "renamed", "product_signal", "signal"),
+            ("fixed", "renamed", "Mg", "Mg2"),
         ])
     );
     // Renaming changes nothing in the network or the rate law.
@@ -294,6 +295,10 @@ fn kinetics_changes_direction_law_equivalence_and_kind() {
             ("step", "changed", "s1", "s1"),
             ("step", "changed", "s2", "s2"),
             ("step", "changed", "s4", "s4"),
+            ("fixed", "removed", "F", ""),
+            ("total", "removed", "T", ""),
+            ("observable", "removed", "f", ""),
+            ("event", "removed", "add 1 uM A at 10 s", ""),
         ])
     );
     assert_eq!(detail(&doc, "species", "G", "kind")["new"], "fixed");
