@@ -309,3 +309,38 @@ fn sympy_confirms_laws_rank_link_matrix_and_deficiency() {
         "{report}"
     );
 }
+
+#[test]
+fn user_totals_keep_their_names_and_a_redundant_one_adds_no_law() {
+    // For E + S <=> ES -> E + P the laws are E + ES and S + ES + P (textbook
+    // result, common practice); `twice` = 2·(E + ES) is no new law.
+    let a = analyze_text(
+        "species E = 1 uM, S = 5 uM, ES, P\n\
+         step bind E + S <=> ES with 1, 1\n\
+         step cat ES -> E + P with 1\n\
+         total E_t = E + ES\n\
+         total twice = 2 E + 2 ES\n\
+         total substrate = S + ES + P\n",
+    );
+    let l = laws(&a);
+    assert_eq!(l.keys().collect::<Vec<_>>(), vec!["E_t", "substrate"]);
+    assert_eq!(l["substrate"], map(&[("S", 1), ("ES", 1), ("P", 1)]));
+    assert_eq!(a["redundant_totals"], serde_json::json!(["twice"]));
+    for law in a["conservation_laws"].as_array().unwrap() {
+        assert_eq!(law["kind"], "user");
+    }
+    // ES (no start value) follows from E_t, P from the substrate total.
+    assert_eq!(a["dependent"], serde_json::json!(["ES", "P"]));
+    assert_eq!(a["dependent_formulas"]["ES"], "E_t - E");
+}
+
+#[test]
+fn json_errors_are_a_json_report_with_exit_one() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("bad.mech");
+    std::fs::write(&path, "species A\nstep r A -> B with 1\n").unwrap();
+    let out = ratewright(&["analyze", path.to_str().unwrap(), "--format", "json"]);
+    assert_eq!(out.status.code(), Some(1));
+    let report: Value = serde_json::from_slice(&out.stdout).expect("a JSON diagnostics report");
+    assert!(report.to_string().contains("E0201"), "{report}");
+}
