@@ -15,6 +15,9 @@
 //!
 //! Each line of output is `key value` so the shell script can collect it.
 
+// Reference values keep every digit their source gives.
+#![allow(clippy::excessive_precision)]
+
 use diffsol::{NalgebraLU, NalgebraMat, OdeBuilder, OdeSolverMethod, Vector};
 use ratewright::model::load_path;
 use ratewright::sim::integrate::{LinearAlgebra, simulate_with};

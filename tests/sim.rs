@@ -1,6 +1,9 @@
 //! End-to-end checks of `run`, `steady` and `scan` against published
 //! reference solutions, closed forms, SciPy, and central differences.
 
+// Reference values keep every digit their source gives.
+#![allow(clippy::excessive_precision)]
+
 mod common;
 
 use common::{models, python, ratewright, root};

@@ -115,12 +115,12 @@ fn output_times(args: &Args, model: &Model, prepared: &Prepared) -> Result<Vec<f
         Some(u) => common::parse_time(u, units).map_err(|e| format!("--until: {e}"))?,
         None => sim::default_until(&prepared.model, &prepared.system),
     };
-    if !(until > 0.0) {
+    if until.is_nan() || until <= 0.0 {
         return Err("--until: the end time must be positive".into());
     }
     if let Some(every) = &args.every {
         let dt = common::parse_time(every, units).map_err(|e| format!("--every: {e}"))?;
-        if !(dt > 0.0) {
+        if dt.is_nan() || dt <= 0.0 {
             return Err("--every: the interval must be positive".into());
         }
         let n = (until / dt * (1.0 + 1e-12)).floor() as usize;
@@ -141,7 +141,12 @@ fn output_times(args: &Args, model: &Model, prepared: &Prepared) -> Result<Vec<f
 }
 
 pub fn run(args: &Args) -> ExitCode {
-    if !(args.rtol > 0.0 && args.rtol < 1.0) || !(args.atol > 0.0) {
+    if args.rtol.is_nan()
+        || args.rtol <= 0.0
+        || args.rtol >= 1.0
+        || args.atol.is_nan()
+        || args.atol <= 0.0
+    {
         return usage_error("--rtol must lie in (0, 1) and --atol must be positive");
     }
     let model = match model_with_overrides(&args.file, &args.set) {

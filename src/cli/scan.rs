@@ -82,7 +82,12 @@ pub fn run(args: &Args) -> ExitCode {
     if args.measure.contains(['\n', '#']) {
         return usage_error("--measure: give one expression on one line");
     }
-    if !(args.rtol > 0.0 && args.rtol < 1.0) || !(args.atol > 0.0) {
+    if args.rtol.is_nan()
+        || args.rtol <= 0.0
+        || args.rtol >= 1.0
+        || args.atol.is_nan()
+        || args.atol <= 0.0
+    {
         return usage_error("--rtol must lie in (0, 1) and --atol must be positive");
     }
     // The measured expression is parsed and resolved by the front end as an

@@ -117,7 +117,7 @@ fn expand(
     };
     let out = e.substitute(&|s| match s {
         Sym::Observable(i) => model.observables.get(i).and_then(|o| recurse(&o.expr)),
-        Sym::Species(i) => dependent.get(&i).and_then(|f| recurse(f)),
+        Sym::Species(i) => dependent.get(&i).and_then(&recurse),
         _ => None,
     });
     match failure.into_inner() {

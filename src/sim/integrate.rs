@@ -404,17 +404,21 @@ fn diagnose_failure(
 }
 
 #[cfg(test)]
+#[allow(clippy::excessive_precision)]
 pub(crate) mod tests {
     use super::*;
     use crate::model::{Coef, Expr, Param, ParamDef, Rate, Species, Step, Sym, Term};
     use crate::sim::Prepared;
+
+    /// Reactants and products as (species, coefficient), forward and reverse param.
+    pub(crate) type StepSpec<'a> = (&'a [(usize, i64)], &'a [(usize, i64)], usize, Option<usize>);
 
     /// A hand-built mass-action model: species with initial values, params,
     /// and steps given as (reactants, products, forward param, reverse param).
     pub(crate) fn mass_action(
         species: &[(&str, f64)],
         params: &[(&str, f64)],
-        steps: &[(&[(usize, i64)], &[(usize, i64)], usize, Option<usize>)],
+        steps: &[StepSpec<'_>],
     ) -> Model {
         let mut m = Model::default();
         for (name, v) in species {
