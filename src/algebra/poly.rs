@@ -40,6 +40,11 @@ impl Monomial {
     pub fn is_one(&self) -> bool {
         self.0.is_empty()
     }
+    /// From pairs already sorted by variable, with positive exponents.
+    pub(crate) fn from_sorted(pairs: Vec<(Var, u32)>) -> Monomial {
+        debug_assert!(pairs.windows(2).all(|w| w[0].0 < w[1].0) && pairs.iter().all(|p| p.1 > 0));
+        Monomial(pairs)
+    }
     pub fn pairs(&self) -> &[(Var, u32)] {
         &self.0
     }
@@ -253,9 +258,20 @@ impl Poly {
         Poly { terms: self.terms.iter().map(|(m, c)| (m.clone(), -c)).collect() }
     }
     pub fn mul(&self, other: &Poly) -> Poly {
+        // One side a single term: the products stay distinct, so no merging.
+        if let Some((m, c)) = other.single_term().or_else(|| self.single_term()) {
+            let rest = if other.terms.len() == 1 { self } else { other };
+            let one = c.is_one();
+            return Poly {
+                terms: rest.terms.iter().map(|(n, d)| (n.mul(m), if one { d.clone() } else { d * c })).collect(),
+            };
+        }
         let mut p = Poly::zero();
         p.add_mul_assign(self, other);
         p
+    }
+    fn single_term(&self) -> Option<(&Monomial, &BigRational)> {
+        if self.terms.len() == 1 { self.terms.iter().next() } else { None }
     }
     pub fn scale(&self, c: &BigRational) -> Poly {
         if c.is_zero() {
@@ -414,12 +430,139 @@ impl Poly {
         gcd_monomial_free(&a.normalized(), &b.normalized()).mul_monomial(&mono).normalized()
     }
 
+    /// A fast test that `gcd(self, other)` has no factor beyond a
+    /// constant and a monomial: for each shared variable the images of both
+    /// polynomials at a random point of the other variables (modulo a prime)
+    /// have a constant gcd. An image gcd is never of lower degree than the
+    /// true one while the leading coefficients survive, so `true` is a proof;
+    /// `false` means "maybe", and the caller computes the full gcd.
+    pub fn coprime_up_to_monomials(&self, other: &Poly) -> bool {
+        let shared: Vec<Var> = self.vars().intersection(&other.vars()).copied().collect();
+        let all: BTreeSet<Var> = self.vars().union(&other.vars()).copied().collect();
+        let size = all.iter().next_back().map(|v| *v as usize + 1).unwrap_or(0);
+        let point: Vec<u64> = (0..size).map(|v| modp::random(v as u64 + 1)).collect();
+        for &x in &shared {
+            let (Some(a), Some(b)) = (self.univariate_image(x, &point), other.univariate_image(x, &point)) else {
+                return false;
+            };
+            if modp::gcd_degree(a, b) > 0 {
+                return false;
+            }
+        }
+        true
+    }
+
+    /// Coefficients (mod p) of `self` as a polynomial in `x` with the other
+    /// variables at `point`, after dividing out the lowest power of `x`;
+    /// `None` if the leading or trailing coefficient vanishes there.
+    fn univariate_image(&self, x: Var, point: &[u64]) -> Option<Vec<u64>> {
+        let lo = self.terms.keys().map(|m| m.exponent(x)).min().unwrap_or(0);
+        let hi = self.degree_in(x);
+        let mut coef = vec![0u64; (hi - lo + 1) as usize];
+        for (m, c) in &self.terms {
+            let mut v = modp::from_rational(c)?;
+            for &(w, e) in m.pairs() {
+                if w != x {
+                    v = modp::mul(v, if e == 1 { point[w as usize] } else { modp::pow(point[w as usize], e as u64) });
+                }
+            }
+            let k = (m.exponent(x) - lo) as usize;
+            coef[k] = modp::add(coef[k], v);
+        }
+        (coef[0] != 0 && *coef.last()? != 0).then_some(coef)
+    }
+
     /// Parses a polynomial (a rational expression whose denominator must be
     /// constant); see [`super::rational::RationalFunction::parse`].
     pub fn parse(text: &str, vars: &mut Vars) -> Result<Poly, String> {
         let r = super::rational::RationalFunction::parse(text, vars)?;
         let d = r.den.as_constant().ok_or_else(|| format!("`{text}` is not a polynomial"))?;
         Ok(r.num.scale(&d.recip()))
+    }
+}
+
+/// Arithmetic modulo the prime 2^61 - 1, for the coprimality test.
+mod modp {
+    use num_bigint::BigInt;
+    use num_rational::BigRational;
+    use num_traits::ToPrimitive;
+
+    pub const P: u64 = (1 << 61) - 1;
+
+    pub fn add(a: u64, b: u64) -> u64 {
+        (a + b) % P
+    }
+    pub fn sub(a: u64, b: u64) -> u64 {
+        (a + P - b) % P
+    }
+    pub fn mul(a: u64, b: u64) -> u64 {
+        // Mersenne reduction: 2^61 = 1 (mod P).
+        let t = a as u128 * b as u128;
+        let r = (t as u64 & P) + (t >> 61) as u64;
+        let r = (r & P) + (r >> 61);
+        if r >= P { r - P } else { r }
+    }
+    pub fn pow(mut a: u64, mut e: u64) -> u64 {
+        let mut r = 1;
+        while e > 0 {
+            if e & 1 == 1 {
+                r = mul(r, a);
+            }
+            a = mul(a, a);
+            e >>= 1;
+        }
+        r
+    }
+    pub fn inv(a: u64) -> u64 {
+        pow(a, P - 2)
+    }
+    fn from_int(n: &BigInt) -> u64 {
+        if let Some(small) = n.to_i64() {
+            return (small.rem_euclid(P as i64)) as u64;
+        }
+        let p = BigInt::from(P);
+        let r = ((n % &p) + &p) % &p;
+        r.to_u64().unwrap_or(0)
+    }
+    pub fn from_rational(c: &BigRational) -> Option<u64> {
+        let n = from_int(c.numer());
+        if num_traits::One::is_one(c.denom()) {
+            return Some(n);
+        }
+        let d = from_int(c.denom());
+        (d != 0).then(|| mul(n, inv(d)))
+    }
+    /// A fixed pseudo-random residue per seed (splitmix64).
+    pub fn random(seed: u64) -> u64 {
+        let mut z = seed.wrapping_mul(0x9E37_79B9_7F4A_7C15);
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        (z ^ (z >> 31)) % P
+    }
+    fn trim(a: &mut Vec<u64>) {
+        while a.last() == Some(&0) {
+            a.pop();
+        }
+    }
+    /// Degree of the gcd of two univariate polynomials (coefficients from
+    /// the constant term up).
+    pub fn gcd_degree(mut a: Vec<u64>, mut b: Vec<u64>) -> usize {
+        trim(&mut a);
+        trim(&mut b);
+        while !b.is_empty() {
+            // a mod b
+            let lb = inv(*b.last().unwrap_or(&1));
+            while a.len() >= b.len() && !a.is_empty() {
+                let f = mul(*a.last().unwrap_or(&0), lb);
+                let shift = a.len() - b.len();
+                for (i, &bi) in b.iter().enumerate() {
+                    a[i + shift] = sub(a[i + shift], mul(f, bi));
+                }
+                trim(&mut a);
+            }
+            std::mem::swap(&mut a, &mut b);
+        }
+        a.len().saturating_sub(1)
     }
 }
 
@@ -728,6 +871,11 @@ mod tests {
         assert_eq!(a.gcd(&b), p("x + y", &mut v));
         assert_eq!(p("3*x*y^2", &mut v).gcd(&p("6*x^2*y", &mut v)), p("x*y", &mut v));
         assert!(p("x + 1", &mut v).gcd(&p("y + 1", &mut v)).is_one());
+        // The modular test proves coprimality and never claims it falsely.
+        assert!(p("x*y + 1", &mut v).coprime_up_to_monomials(&p("x + y", &mut v)));
+        assert!(p("x^2*y + x*y^2", &mut v).coprime_up_to_monomials(&p("x*y*z", &mut v)));
+        assert!(!f.coprime_up_to_monomials(&g));
+        assert!(!a.coprime_up_to_monomials(&b));
     }
 
     #[test]

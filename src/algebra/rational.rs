@@ -31,7 +31,9 @@ impl RationalFunction {
         if num.is_zero() {
             return Some(RationalFunction::zero());
         }
-        let g = if num.len().saturating_mul(den.len()) <= GCD_TERM_LIMIT {
+        let g = if num.coprime_up_to_monomials(&den) {
+            Poly::monomial(num.monomial_content().gcd(&den.monomial_content()))
+        } else if num.len().saturating_mul(den.len()) <= GCD_TERM_LIMIT {
             num.gcd(&den)
         } else {
             Poly::monomial(num.monomial_content().gcd(&den.monomial_content()))

@@ -70,7 +70,9 @@ pub fn derive_with_progress(
         groups.entry(component.find(f)).or_default().push(f);
     }
     let mut totals: Vec<FormTotal> = Vec::new();
-    let mut form_conc: BTreeMap<usize, RationalFunction> = BTreeMap::new();
+    // Each form as `num / (share_den * Q[component])`; Q is stored once.
+    let mut form_conc: BTreeMap<usize, FormConc> = BTreeMap::new();
+    let mut qs: Vec<Poly> = Vec::new();
     let mut trees_visited = 0;
 
     // The work bound for all components, checked before any expansion.
@@ -122,18 +124,25 @@ pub fn derive_with_progress(
             let g = plan.lump_of[&f];
             let share = &plan.share[&f];
             let num = tpoly.mul(&share.num).mul(&weights[g]);
-            let den = share.den.mul(&q);
-            form_conc.insert(f, RationalFunction::raw(num, den));
+            form_conc.insert(f, FormConc { num, den: share.den.clone(), component: qs.len() });
         }
+        drop(weights);
+        qs.push(q);
     }
 
-    let rates: Vec<RationalFunction> = views.iter().map(|v| step_net_rate(v, &form_conc)).collect();
+    // Net rates only of the steps the requested rate needs.
+    let needed: Vec<bool> = match &request.target {
+        Target::Flux(name) => model.steps.iter().map(|s| &s.name == name).collect(),
+        _ => (0..model.steps.len()).map(|j| !model.net_change(j).iter().all(|(i, _)| cx.is_form[*i])).collect(),
+    };
+    let rates: Vec<Part> =
+        views.iter().zip(&needed).map(|(v, need)| if *need { step_net_rate(v, &form_conc) } else { Part::zero() }).collect();
     let (derived, rate) = match &request.target {
         Target::Flux(name) => {
             let j = model.step_index(name).ok_or_else(|| {
                 unknown_name("step", name, &model.steps.iter().map(|s| s.name.clone()).collect::<Vec<_>>())
             })?;
-            (Derived::Flux(j), rates[j].clone())
+            (Derived::Flux(j), sum_parts(vec![rates[j].clone()], &qs))
         }
         Target::Species(name) => {
             let i = match model.lookup(name) {
@@ -152,7 +161,7 @@ pub fn derive_with_progress(
                     return Err(unknown_name("species", name, &model.species.iter().map(|s| s.name.clone()).collect::<Vec<_>>()));
                 }
             };
-            (Derived::Species(i), species_rate(model, i, &rates, &BigRational::one()))
+            (Derived::Species(i), species_rate(model, i, &rates, &BigRational::one(), &qs))
         }
         Target::Overall => {
             let overall = overall_reaction(model, &cx.is_form)?;
@@ -162,7 +171,7 @@ pub fn derive_with_progress(
                 .map(|(i, c)| (*i, c.clone()))
                 .or_else(|| overall.reactants.first().map(|(i, c)| (*i, -c.clone())))
                 .ok_or_else(|| no_overall(model))?;
-            let rate = species_rate(model, i, &rates, &BigRational::from_integer(nu));
+            let rate = species_rate(model, i, &rates, &BigRational::from_integer(nu), &qs);
             (Derived::Overall(overall), rate)
         }
     };
@@ -170,10 +179,22 @@ pub fn derive_with_progress(
         Diagnostic::error(Code::NonlinearSteadyState, "the steady-state denominator vanishes identically")
     })?;
 
-    let forms: Vec<(usize, RationalFunction)> = steady
-        .iter()
-        .filter_map(|f| form_conc.get(f).map(|r| (*f, r.clone())))
-        .collect();
+    // The forms' own expressions are kept only while they are small: each
+    // would hold its own copy of the denominator.
+    let small = qs.iter().map(Poly::len).sum::<usize>() <= FORM_EXPRESSION_LIMIT;
+    if !small {
+        notes.push("the intermediates' expressions are omitted (the denominator is large)".into());
+    }
+    let forms: Vec<(usize, RationalFunction)> = if small {
+        steady
+            .iter()
+            .filter_map(|f| {
+                form_conc.get(f).map(|c| (*f, RationalFunction::raw(c.num.clone(), c.den.mul(&qs[c.component]))))
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
     let mut derivation = Derivation {
         vars: cx.vars,
         kinds: cx.kinds,
@@ -622,36 +643,117 @@ fn name_total(model: &Model, forms: &[usize], existing: &[FormTotal]) -> FormTot
     FormTotal { name, forms: forms.to_vec(), declared: None, value }
 }
 
+/// Above this many denominator terms the forms' expressions are not kept.
+const FORM_EXPRESSION_LIMIT: usize = 20_000;
+
+/// A form's steady-state concentration `num / (den * Q[component])`.
+struct FormConc {
+    num: Poly,
+    den: Poly,
+    component: usize,
+}
+
+/// A rate `num / (den * Q[component])` (no Q factor for `None`): sums over
+/// one component's steps share Q, so it is never copied per step.
+#[derive(Clone)]
+struct Part {
+    num: Poly,
+    den: Poly,
+    component: Option<usize>,
+}
+
+impl Part {
+    fn zero() -> Part {
+        Part { num: Poly::zero(), den: Poly::one(), component: None }
+    }
+    /// The sum, without cancelling; `None` when the two do not share the
+    /// component's denominator.
+    fn add(&self, o: &Part) -> Option<Part> {
+        if o.num.is_zero() {
+            return Some(self.clone());
+        }
+        if self.num.is_zero() {
+            return Some(o.clone());
+        }
+        if self.component != o.component {
+            return None;
+        }
+        if self.den == o.den {
+            return Some(Part { num: self.num.add(&o.num), den: self.den.clone(), component: self.component });
+        }
+        Some(Part { num: self.num.mul(&o.den).add(&o.num.mul(&self.den)), den: self.den.mul(&o.den), component: self.component })
+    }
+    fn into_rational(self, qs: &[Poly]) -> RationalFunction {
+        let den = match self.component {
+            Some(c) if self.den.is_one() => qs[c].clone(),
+            Some(c) => self.den.mul(&qs[c]),
+            None => self.den,
+        };
+        RationalFunction::raw(self.num, den)
+    }
+}
+
 /// Net rate of a step with intermediates replaced by their steady-state
-/// concentrations; terms over the same denominator are added without
-/// cancelling (that happens once, at the end).
-fn step_net_rate(v: &StepView, conc: &BTreeMap<usize, RationalFunction>) -> RationalFunction {
+/// concentrations; nothing is cancelled here (that happens once, at the end).
+fn step_net_rate(v: &StepView, conc: &BTreeMap<usize, FormConc>) -> Part {
     if let Some(law) = &v.law {
-        return law.clone();
+        return Part { num: law.num.clone(), den: law.den.clone(), component: None };
     }
     let side = |k: &RationalFunction, f: Option<usize>| match f.and_then(|f| conc.get(&f)) {
-        Some(x) => RationalFunction::raw(k.num.mul(&x.num), k.den.mul(&x.den)),
-        None => k.clone(),
+        Some(x) => Part {
+            num: k.num.mul(&x.num),
+            den: if k.den.is_one() { x.den.clone() } else { k.den.mul(&x.den) },
+            component: Some(x.component),
+        },
+        None => Part { num: k.num.clone(), den: k.den.clone(), component: None },
     };
     let fwd = side(&v.forward, v.left);
     match &v.reverse {
-        Some(r) => fwd.add_lazy(&side(r, v.right).neg()),
+        Some(r) => {
+            let mut rev = side(r, v.right);
+            rev.num = rev.num.neg();
+            // Both sides carry forms of one component (or neither does).
+            fwd.add(&rev).unwrap_or(fwd)
+        }
         None => fwd,
     }
 }
 
-/// d(species)/dt divided by `nu`.
-fn species_rate(model: &Model, i: usize, rates: &[RationalFunction], nu: &BigRational) -> RationalFunction {
+/// Sums rates, sharing each component's denominator where possible.
+fn sum_parts(parts: Vec<Part>, qs: &[Poly]) -> RationalFunction {
+    let mut groups: Vec<Part> = Vec::new();
+    for p in parts {
+        if p.num.is_zero() {
+            continue;
+        }
+        match groups.iter_mut().find(|g| g.component == p.component) {
+            Some(g) => {
+                if let Some(s) = g.add(&p) {
+                    *g = s;
+                }
+            }
+            None => groups.push(p),
+        }
+    }
     let mut acc = RationalFunction::zero();
+    for g in groups {
+        acc = acc.add_lazy(&g.into_rational(qs));
+    }
+    acc
+}
+
+/// d(species)/dt divided by `nu`.
+fn species_rate(model: &Model, i: usize, rates: &[Part], nu: &BigRational, qs: &[Poly]) -> RationalFunction {
+    let mut parts = Vec::new();
     for (j, r) in rates.iter().enumerate() {
         for (k, c) in model.net_change(j) {
             if k == i {
                 let c = BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom())) / nu;
-                acc = acc.add_lazy(&RationalFunction::raw(r.num.scale(&c), r.den.clone()));
+                parts.push(Part { num: r.num.scale(&c), den: r.den.clone(), component: r.component });
             }
         }
     }
-    acc
+    sum_parts(parts, qs)
 }
 
 fn no_overall(model: &Model) -> Diagnostic {

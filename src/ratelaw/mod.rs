@@ -42,7 +42,7 @@ impl Default for Request {
     }
 }
 
-pub const DEFAULT_MAX_TERMS: u64 = 2_000_000;
+pub const DEFAULT_MAX_TERMS: u64 = 1_000_000;
 
 /// The rate to derive.
 #[derive(Clone, Debug, PartialEq, Eq)]

@@ -143,8 +143,8 @@ struct Enumeration<'a> {
 impl Enumeration<'_> {
     fn descend(&mut self, depth: usize) {
         if depth == self.order.len() {
-            let m = Monomial::from_pairs(
-                self.exponents.iter().enumerate().filter(|(_, e)| **e > 0).map(|(v, e)| (v as Var, *e)),
+            let m = Monomial::from_sorted(
+                self.exponents.iter().enumerate().filter(|(_, e)| **e > 0).map(|(v, e)| (v as Var, *e)).collect(),
             );
             self.sum.add_term(self.coef.clone(), m);
             *self.visited += 1;
