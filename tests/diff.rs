@@ -498,7 +498,10 @@ fn the_documented_git_diff_driver_shows_the_meaning_level_change() {
         &[
             "config",
             "diff.mech.command",
-            &format!("f() {{ echo \"== $1\"; '{}' diff \"$2\" \"$5\"; }}; f", bin().display()),
+            &format!(
+                "f() {{ echo \"== $1\"; '{}' diff \"$2\" \"$5\"; }}; f",
+                bin().display()
+            ),
         ],
     );
     git(dir, &["config", "diff.mech.trustExitCode", "true"]);
@@ -547,4 +550,53 @@ fn the_documented_git_diff_driver_shows_the_meaning_level_change() {
         String::from_utf8_lossy(&out.stderr)
     );
     let _ = root();
+}
+
+#[test]
+fn every_demo_model_equals_itself_shuffled_and_differs_from_the_others() {
+    // Statement order is irrelevant in the language (LANGUAGE.md: "order-independent
+    // names"), so reversing the order of a file's statements must leave its
+    // meaning alone; distinct demo models must differ, never fail.
+    let models = common::models();
+    let dir = tempfile::tempdir().unwrap();
+    for (i, m) in models.iter().enumerate() {
+        let text = std::fs::read_to_string(m).unwrap();
+        // A statement continues over lines while parentheses are open.
+        let mut statements: Vec<String> = Vec::new();
+        let mut depth = 0i32;
+        for line in text.lines() {
+            let code = line.split('#').next().unwrap_or("");
+            if depth > 0 {
+                statements
+                    .last_mut()
+                    .unwrap()
+                    .push_str(&format!("\n{code}"));
+            } else if !code.trim().is_empty() {
+                statements.push(code.to_string());
+            }
+            depth += code.matches('(').count() as i32 - code.matches(')').count() as i32;
+        }
+        let reversed: Vec<&str> = statements.iter().rev().map(String::as_str).collect();
+        let copy = dir.path().join(format!("reversed_{i}.mech"));
+        std::fs::write(&copy, reversed.join("\n") + "\n").unwrap();
+        let path = m.to_str().unwrap();
+        let out = ratewright(&["diff", path, copy.to_str().unwrap()]);
+        assert_eq!(
+            out.status.code(),
+            Some(0),
+            "{path}: {}{}",
+            String::from_utf8_lossy(&out.stdout),
+            String::from_utf8_lossy(&out.stderr)
+        );
+        for other in models.iter().filter(|o| *o != m) {
+            let out = ratewright(&["diff", path, other.to_str().unwrap()]);
+            assert_eq!(
+                out.status.code(),
+                Some(1),
+                "{path} vs {}: {}",
+                other.display(),
+                String::from_utf8_lossy(&out.stderr)
+            );
+        }
+    }
 }
