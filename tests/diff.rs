@@ -15,7 +15,7 @@
 
 mod common;
 
-use common::{bin, ratewright, root};
+use common::{bin, ratewright};
 use serde_json::Value;
 use std::collections::BTreeSet;
 use std::path::Path;
@@ -416,6 +416,7 @@ fn revisions_are_read_through_git_with_their_own_included_files() {
     git(dir, &["init", "-q"]);
     git(dir, &["config", "user.name", "Diff Test"]);
     git(dir, &["config", "user.email", "diff-test@example.org"]);
+    git(dir, &["config", "commit.gpgsign", "false"]);
     std::fs::create_dir_all(dir.join("parts")).unwrap();
     std::fs::write(dir.join("parts/rates.mech"), "param k = 2 /s\n").unwrap();
     std::fs::write(
@@ -492,6 +493,7 @@ fn the_documented_git_diff_driver_shows_the_meaning_level_change() {
     git(dir, &["init", "-q"]);
     git(dir, &["config", "user.name", "Diff Test"]);
     git(dir, &["config", "user.email", "diff-test@example.org"]);
+    git(dir, &["config", "commit.gpgsign", "false"]);
     std::fs::write(dir.join(".gitattributes"), "*.mech diff=mech\n").unwrap();
     git(
         dir,
@@ -549,7 +551,6 @@ fn the_documented_git_diff_driver_shows_the_meaning_level_change() {
         "{text}\n{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    let _ = root();
 }
 
 #[test]
