@@ -52,6 +52,7 @@ pub fn all_syms(model: &Model) -> Vec<Sym> {
 
 /// Pairs by name, then finds renames; returns the context with its pairing.
 pub fn pair(mut ctx: Context<'_>) -> Context<'_> {
+    let roles = (roles_of(ctx.old), roles_of(ctx.new));
     for sym in all_syms(ctx.old) {
         if let Some(new) = ctx.new.lookup(ctx.old.name_of(sym)) {
             ctx.pairing.pair_named(sym, new);
@@ -63,7 +64,7 @@ pub fn pair(mut ctx: Context<'_>) -> Context<'_> {
         }
     }
     loop {
-        let mut progress = pair_named_renames(&mut ctx);
+        let mut progress = pair_named_renames(&mut ctx, &roles);
         progress |= pair_step_renames(&mut ctx);
         if !progress {
             break;
@@ -72,8 +73,48 @@ pub fn pair(mut ctx: Context<'_>) -> Context<'_> {
     ctx
 }
 
-fn same_content(ctx: &Context, old: Sym, new: Sym) -> bool {
+/// How a species or fixed species takes part in the steps, whatever the
+/// names: (0 reactant, 1 product, 2 only in a law; coefficient; reversible)
+/// per step, sorted. A renamed species keeps its roles; a species removed
+/// with its steps and an unrelated one added with others do not share them.
+type Role = (u8, crate::model::Coef, bool);
+
+fn roles_of(model: &Model) -> HashMap<Sym, Vec<Role>> {
+    let mut roles: HashMap<Sym, Vec<Role>> = HashMap::new();
+    for step in &model.steps {
+        let mut on_sides = Vec::new();
+        for (place, terms) in [(0u8, &step.reactants), (1, &step.products)] {
+            for t in terms.iter() {
+                roles
+                    .entry(t.sym)
+                    .or_default()
+                    .push((place, t.coefficient, step.reversible));
+                on_sides.push(t.sym);
+            }
+        }
+        if let Rate::Law(e) = &step.rate {
+            for sym in e.names() {
+                if matches!(sym, Sym::Species(_) | Sym::Fixed(_)) && !on_sides.contains(&sym) {
+                    roles.entry(sym).or_default().push((
+                        2,
+                        crate::model::Coef::default(),
+                        step.reversible,
+                    ));
+                }
+            }
+        }
+    }
+    roles.values_mut().for_each(|v| v.sort());
+    roles
+}
+
+type Roles = (HashMap<Sym, Vec<Role>>, HashMap<Sym, Vec<Role>>);
+
+fn same_content(ctx: &Context, roles: &Roles, old: Sym, new: Sym) -> bool {
     let dim = Some(crate::model::Dim::CONC);
+    if matches!(old, Sym::Species(_) | Sym::Fixed(_)) && roles.0.get(&old) != roles.1.get(&new) {
+        return false;
+    }
     match (old, new) {
         (Sym::Species(a), Sym::Species(b)) => {
             ctx.same_value(ctx.old.species[a].initial, ctx.new.species[b].initial, dim)
@@ -92,7 +133,7 @@ fn same_kind(a: Sym, b: Sym) -> bool {
     std::mem::discriminant(&a) == std::mem::discriminant(&b)
 }
 
-fn pair_named_renames(ctx: &mut Context) -> bool {
+fn pair_named_renames(ctx: &mut Context, roles: &Roles) -> bool {
     let old_left: Vec<Sym> = all_syms(ctx.old)
         .into_iter()
         .filter(|s| !ctx.pairing.named.contains_key(s))
@@ -108,7 +149,7 @@ fn pair_named_renames(ctx: &mut Context) -> bool {
     let mut candidates_back: BTreeMap<Sym, Vec<Sym>> = BTreeMap::new();
     for &a in &old_left {
         for &b in new_left.iter().filter(|b| same_kind(a, **b)) {
-            if same_content(ctx, a, b) {
+            if same_content(ctx, roles, a, b) {
                 candidates.entry(a).or_default().push(b);
                 candidates_back.entry(b).or_default().push(a);
             }

@@ -107,3 +107,21 @@ fn conservation_laws_are_compared_as_spaces() {
         "{facts:?}"
     );
 }
+
+#[test]
+fn an_unrelated_species_with_the_same_start_value_is_no_rename() {
+    // X (a product, 0 at start) is removed with its step; Y (also 0) is
+    // added as the reactant of a new step: different roles, so no rename.
+    let a = model("species A = 1, X\nparam k = 1 /s\nstep make A -> X with k\n");
+    let b = model("species A = 1, Y\nparam k = 1 /s\nstep use_up Y -> A with k\n");
+    let s = summary(&compare(&a, &b));
+    assert_eq!(
+        s,
+        vec![
+            (ItemKind::Species, ChangeKind::Added, "Y".into()),
+            (ItemKind::Species, ChangeKind::Removed, "X".into()),
+            (ItemKind::Step, ChangeKind::Added, "use_up".into()),
+            (ItemKind::Step, ChangeKind::Removed, "make".into()),
+        ]
+    );
+}
