@@ -84,6 +84,10 @@ impl Reduced {
     pub fn rhs_exprs(&self) -> Vec<Expr> {
         let full = self.model.rhs_exprs();
         let observables = &self.model.observables;
+        let mut formula_of: Vec<Option<&Expr>> = vec![None; self.model.species.len()];
+        for d in &self.dependent {
+            formula_of[d.species] = Some(&d.formula);
+        }
         let substitute_dependent = |e: &Expr| -> Expr {
             // Observables may name species, so they are expanded first
             // (their definitions cannot be cyclic).
@@ -95,11 +99,7 @@ impl Reduced {
             }
             let expanded = expand(e, observables);
             expanded.substitute(&|s| match s {
-                Sym::Species(i) => self
-                    .dependent
-                    .iter()
-                    .find(|d| d.species == i)
-                    .map(|d| d.formula.clone()),
+                Sym::Species(i) => formula_of.get(i).copied().flatten().cloned(),
                 _ => None,
             })
         };
