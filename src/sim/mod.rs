@@ -218,9 +218,11 @@ pub fn column_names(model: &Model) -> Vec<String> {
 }
 
 /// The default end time: the last event plus five times the slowest time
-/// scale of the linearised system at the start (1/|Re λ| of the smallest
-/// non-zero eigenvalue), rounded up to 1, 2 or 5 × 10^k. Without any
-/// dynamics the fallback is 100 time units.
+/// scale of the linearised system at the start (1/|Re λ| of the eigenvalue
+/// with the smallest non-zero real part, on the reduced system so that
+/// conservation laws add no zero eigenvalues), rounded up to 1, 2 or
+/// 5 × 10^k. Without any dynamics, or above 400 species, the slowest time
+/// scale is taken as 20 time units.
 pub fn default_until(model: &Model, system: &CompiledSystem) -> f64 {
     let last_event = model.events.iter().map(|e| e.time).fold(0.0, f64::max);
     let tau = slowest_time_scale(model, system).unwrap_or(20.0);
@@ -228,25 +230,77 @@ pub fn default_until(model: &Model, system: &CompiledSystem) -> f64 {
 }
 
 fn slowest_time_scale(model: &Model, system: &CompiledSystem) -> Option<f64> {
+    if system.nstates == 0 || system.nstates > 400 {
+        return None;
+    }
+    let reduced = if system.nstates == model.species.len() {
+        Prepared::reduced(model).ok()
+    } else {
+        None
+    };
+    let (model, system) = match &reduced {
+        Some(p) => (&p.model, &p.system),
+        None => (model, system),
+    };
     let n = system.nstates;
-    if n == 0 || n > 400 {
+    if n == 0 {
         return None;
     }
     let y = system.state_from_species(&model.initial_state());
     let mut w = system.workspace(&crate::numeric::constants_of(model));
     let j = system.dense_jacobian(&mut w, &y, 0.0);
-    let m = nalgebra::DMatrix::from_fn(n, n, |r, c| j[r][c]);
-    let eig = m.complex_eigenvalues();
-    let largest = eig.iter().map(|z| z.norm()).fold(0.0, f64::max);
-    if !(largest.is_finite() && largest > 0.0) {
-        return None;
-    }
+    let eig = accurate_eigenvalues(&nalgebra::DMatrix::from_fn(n, n, |r, c| j[r][c]));
     let slowest = eig
         .iter()
+        .filter(|z| z.re != 0.0 && z.re.abs() > 1e-9 * z.norm())
         .map(|z| z.re.abs())
-        .filter(|&r| r > 1e-9 * largest)
         .fold(f64::INFINITY, f64::min);
     (slowest.is_finite() && slowest > 0.0).then(|| 1.0 / slowest)
+}
+
+/// Eigenvalues, each with small relative error even when their magnitudes
+/// span many decades: the QR algorithm's error is about ε·‖J‖ in absolute
+/// terms, so small eigenvalues are taken from J⁻¹ (whose eigenvalues are
+/// their reciprocals) and large ones from J. Sorted by magnitude.
+pub fn accurate_eigenvalues(j: &nalgebra::DMatrix<f64>) -> Vec<nalgebra::Complex<f64>> {
+    let by_size = |mut v: Vec<nalgebra::Complex<f64>>| {
+        v.sort_by(|a, b| a.norm().total_cmp(&b.norm()));
+        v
+    };
+    let direct = by_size(j.complex_eigenvalues().iter().copied().collect());
+    let inverse = j
+        .clone()
+        .try_inverse()
+        .filter(|inv| inv.iter().all(|v| v.is_finite()));
+    let Some(inverse) = inverse else {
+        return direct;
+    };
+    let reciprocal: Vec<nalgebra::Complex<f64>> = inverse
+        .complex_eigenvalues()
+        .iter()
+        .map(|mu| mu.inv())
+        .collect();
+    let reciprocal = by_size(reciprocal);
+    if reciprocal.len() != direct.len()
+        || reciprocal
+            .iter()
+            .any(|z| !(z.re.is_finite() && z.im.is_finite()))
+    {
+        return direct;
+    }
+    let largest = direct.last().map(|z| z.norm()).unwrap_or(0.0);
+    let smallest = reciprocal.first().map(|z| z.norm()).unwrap_or(0.0);
+    direct
+        .iter()
+        .zip(&reciprocal)
+        .map(|(d, r)| {
+            if d.norm() * d.norm() >= largest * smallest {
+                *d
+            } else {
+                *r
+            }
+        })
+        .collect()
 }
 
 /// Rounds up to 1, 2 or 5 × 10^k.

@@ -127,6 +127,10 @@ fn newton(
         if !fnorm.is_finite() {
             return Err("the rates became non-finite".into());
         }
+        if fnorm == 0.0 {
+            // Every rate is exactly zero: a steady state, even where J is singular.
+            return Ok((x, it));
+        }
         let j = system.dense_jacobian(w, &x, 0.0);
         let jm = DMatrix::from_fn(n, n, |r, c| j[r][c]);
         let rhs = DVector::from_iterator(n, f.iter().map(|v| -v));
@@ -180,21 +184,29 @@ fn eigen(
     }
     let j = system.dense_jacobian(w, x, t);
     let m = DMatrix::from_fn(n, n, |r, c| j[r][c]);
-    let mut eig: Vec<(f64, f64)> = m
-        .complex_eigenvalues()
-        .iter()
-        .map(|z| (z.re, z.im))
-        .collect();
-    eig.sort_by(|a, b| b.0.total_cmp(&a.0).then(b.1.total_cmp(&a.1)));
-    let largest = eig.iter().map(|(re, im)| re.hypot(*im)).fold(0.0, f64::max);
-    let tol = 1e-9 * largest.max(1e-300);
-    let max_re = eig.iter().map(|e| e.0).fold(f64::NEG_INFINITY, f64::max);
-    let stability = if max_re > tol {
+    let accurate = super::accurate_eigenvalues(&m);
+    // Each eigenvalue is accurate relative to its own size, so its sign is
+    // judged against its own magnitude: a real part within 1e-9 of |λ| (a
+    // zero or a purely imaginary pair) cannot decide stability.
+    let mut any_positive = false;
+    let mut any_undecided = false;
+    for z in &accurate {
+        let tol = 1e-9 * z.norm();
+        if z.norm() == 0.0 || z.re.abs() <= tol {
+            any_undecided = true;
+        } else if z.re > 0.0 {
+            any_positive = true;
+        }
+    }
+    let stability = if any_positive {
         Stability::Unstable
-    } else if max_re >= -tol {
+    } else if any_undecided {
         Stability::Marginal
     } else {
         Stability::Stable
     };
+    // `+ 0.0` turns a negative zero into zero for printing.
+    let mut eig: Vec<(f64, f64)> = accurate.iter().map(|z| (z.re + 0.0, z.im + 0.0)).collect();
+    eig.sort_by(|a, b| b.0.total_cmp(&a.0).then(b.1.total_cmp(&a.1)));
     (eig, stability)
 }
