@@ -12,7 +12,7 @@
 use crate::model::{Coef, EventKind, Model, Rate, Sym, Term};
 use std::collections::HashMap;
 
-/// A complex: (species, coefficient) sorted by species; empty = the zero complex.
+/// A complex: (species, coefficient) in the order first written; empty = the zero complex.
 pub type Complex = Vec<(usize, Coef)>;
 
 #[derive(Debug, Clone, PartialEq)]
@@ -78,7 +78,6 @@ fn complex_of(terms: &[Term]) -> Complex {
         }
     }
     c.retain(|(_, v)| *v != Coef::default());
-    c.sort_by_key(|(s, _)| *s);
     c
 }
 
@@ -135,8 +134,11 @@ fn strong_components(nodes: usize, edges: &[(usize, usize, usize)]) -> Vec<usize
 pub(crate) fn analyze(model: &Model, rank: usize) -> Structure {
     let mut index: HashMap<Complex, usize> = HashMap::new();
     let mut complexes: Vec<Complex> = Vec::new();
+    // Complexes are equal whatever order their terms are written in.
     let mut intern = |c: Complex| -> usize {
-        *index.entry(c.clone()).or_insert_with(|| {
+        let mut key = c.clone();
+        key.sort_by_key(|(s, _)| *s);
+        *index.entry(key).or_insert_with(|| {
             complexes.push(c);
             complexes.len() - 1
         })
