@@ -129,7 +129,11 @@ impl System {
             })
             .collect::<Result<_, Diagnostic>>()?;
 
-        let slot_of = |species: usize| state.iter().position(|&s| s == species);
+        let mut slots: Vec<Option<usize>> = vec![None; model.species.len()];
+        for (r, &i) in state.iter().enumerate() {
+            slots[i] = Some(r);
+        }
+        let slot_of = |species: usize| slots.get(species).copied().flatten();
         let mut rhs_terms: Vec<Vec<(usize, Coef)>> = vec![Vec::new(); state.len()];
         for j in 0..model.steps.len() {
             for (i, c) in model.net_change(j) {
