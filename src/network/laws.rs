@@ -27,13 +27,24 @@ pub(crate) fn integer_columns(model: &Model) -> Vec<Vec<(usize, BigInt)>> {
     (0..model.steps.len())
         .map(|j| {
             let change = model.net_change(j);
-            let lcm = change.iter().fold(1i64, |l, (_, c)| l.lcm(c.denom()));
+            let lcm = denominator_lcm(change.iter().map(|(_, c)| c));
             change
                 .into_iter()
-                .map(|(i, c)| (i, BigInt::from(c.numer() * (lcm / c.denom()))))
+                .map(|(i, c)| (i, scaled(&c, &lcm)))
                 .collect()
         })
         .collect()
+}
+
+/// The lcm of the denominators, in big integers (fractions the user wrote
+/// may have large, coprime denominators).
+fn denominator_lcm<'a>(coefs: impl Iterator<Item = &'a Coef>) -> BigInt {
+    coefs.fold(BigInt::one(), |l, c| l.lcm(&BigInt::from(*c.denom())))
+}
+
+/// `c · lcm` as an integer (`lcm` is a multiple of `c`'s denominator).
+fn scaled(c: &Coef, lcm: &BigInt) -> BigInt {
+    BigInt::from(*c.numer()) * (lcm / BigInt::from(*c.denom()))
 }
 
 /// Everything the law search finds, before naming.
@@ -47,11 +58,11 @@ pub(crate) struct Found {
 /// Integer vector of a user total (content 1) and the factor `s` with
 /// `vector = s · terms`.
 fn total_vector(total: &Total) -> (Row<BigInt>, BigRational) {
-    let lcm = total.terms.iter().fold(1i64, |l, (_, c)| l.lcm(c.denom()));
+    let lcm = denominator_lcm(total.terms.iter().map(|(_, c)| c));
     let mut v: Row<BigInt> = total
         .terms
         .iter()
-        .map(|(i, c)| (*i as u32, BigInt::from(c.numer() * (lcm / c.denom()))))
+        .map(|(i, c)| (*i as u32, scaled(c, &lcm)))
         .collect();
     v.sort_by_key(|e| e.0);
     v.retain(|e| !Zero::is_zero(&e.1));
@@ -60,7 +71,7 @@ fn total_vector(total: &Total) -> (Row<BigInt>, BigRational) {
     for (_, x) in v.iter_mut() {
         *x /= &g;
     }
-    (v, BigRational::new(BigInt::from(lcm), g))
+    (v, BigRational::new(lcm, g))
 }
 
 /// Row echelon form used to test independence: pivot = leading column.

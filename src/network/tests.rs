@@ -446,3 +446,16 @@ fn reduced_system_reproduces_the_full_one_on_random_networks() {
         }
     }
 }
+
+#[test]
+fn large_coprime_denominators_do_not_overflow() {
+    // 1/9999999967 A + 1/9999999943 B -> C (two primes near 1e10): the
+    // column scaled to integers has entries near 1e20, beyond i64.
+    let mut m = network(&["A + B -> C"]);
+    m.steps[0].reactants[0].coefficient = Coef::new(1, 9_999_999_967);
+    m.steps[0].reactants[1].coefficient = Coef::new(1, 9_999_999_943);
+    let a = analyze(&m).unwrap();
+    assert_eq!(a.rank, 1);
+    assert_eq!(a.reduced.laws.len(), 2);
+    check_invariants(&m, &a);
+}
