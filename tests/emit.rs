@@ -1007,10 +1007,22 @@ fn json_jacobian_reads_back_and_matches_central_differences() {
             }
         }
         // Shape of the documented schema.
-        assert_eq!(
-            doc["stoichiometry"]["matrix"].as_array().unwrap().len(),
-            model.species.len()
-        );
+        let entries = doc["stoichiometry"]["entries"].as_array().unwrap();
+        let nonzeros: usize = (0..model.steps.len())
+            .map(|j| model.net_change(j).len())
+            .sum();
+        assert_eq!(entries.len(), nonzeros);
+        let stoich = model.stoichiometry();
+        for e in entries {
+            let (i, j) = (
+                e[0].as_u64().unwrap() as usize,
+                e[1].as_u64().unwrap() as usize,
+            );
+            assert_eq!(
+                e[2].as_i64().map(|v| v as f64),
+                Some(ratewright::model::coef_f64(stoich[i][j]))
+            );
+        }
         assert_eq!(doc["steps"].as_array().unwrap().len(), model.steps.len());
     }
 }

@@ -77,7 +77,15 @@ fn document(sys: &System) -> Result<Value, Diagnostic> {
             })
         })
         .collect();
-    let stoich = m.stoichiometry();
+    // Sparse (column-major, zeros omitted): a dense matrix of a large
+    // network would be most of the file and of the memory.
+    let entries: Vec<Value> = (0..m.steps.len())
+        .flat_map(|j| {
+            m.net_change(j)
+                .into_iter()
+                .map(move |(i, c)| json!([i, j, exact(c)]))
+        })
+        .collect();
     let reduction = crate::network::reduce(m)?;
     let laws: Vec<Value> = reduction
         .laws
@@ -122,7 +130,7 @@ fn document(sys: &System) -> Result<Value, Diagnostic> {
         "stoichiometry": {
             "species": m.species.iter().map(|s| s.name.clone()).collect::<Vec<_>>(),
             "steps": m.steps.iter().map(|s| s.name.clone()).collect::<Vec<_>>(),
-            "matrix": stoich.iter().map(|row| row.iter().map(|c| exact(*c)).collect::<Vec<_>>()).collect::<Vec<_>>(),
+            "entries": entries,
         },
         "totals": m.totals.iter().map(|t| json!({
             "name": t.name,
