@@ -296,6 +296,72 @@ fn emitted_python_main_reproduces_run_with_scipy() {
     }
 }
 
+#[test]
+fn emitted_python_uses_the_sparse_jacobian_on_a_large_network_and_matches_run() {
+    // 90 species (> 50: the script switches to the sparse Jacobian), from
+    // the seeded generator of the network benchmark.
+    let dir = temp();
+    let mech = dir.path().join("net.mech");
+    let out = python(&root().join("bench/network_gen.py"), &["90", "180"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    std::fs::write(&mech, &out.stdout).unwrap();
+    let module = dir.path().join("net.py");
+    emit(&mech, "python", false, &module);
+    let (py_csv, run_csv) = (dir.path().join("py.csv"), dir.path().join("run.csv"));
+    let tol = ["--rtol", "1e-10", "--atol", "1e-14"];
+    let mut args = vec![
+        "--until",
+        "5",
+        "--points",
+        "6",
+        "-o",
+        py_csv.to_str().unwrap(),
+    ];
+    args.extend(tol);
+    let out = python(&module, &args);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let mut args = vec![
+        "run",
+        mech.to_str().unwrap(),
+        "--until",
+        "5",
+        "--points",
+        "6",
+        "-o",
+        run_csv.to_str().unwrap(),
+    ];
+    args.extend(tol);
+    let o = ratewright(&args);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let ((h1, r1), (h2, r2)) = (read_csv(&py_csv), read_csv(&run_csv));
+    assert_eq!(h1, h2);
+    for c in 1..h1.len() {
+        let scale = r2
+            .iter()
+            .map(|r| r[c].abs())
+            .fold(0.0, f64::max)
+            .max(1e-300);
+        for (a, b) in r1.iter().zip(&r2) {
+            assert!(
+                close(a[c], b[c], 1e-6, scale),
+                "column {} at t={}: python {} vs run {}",
+                h1[c],
+                a[0],
+                a[c],
+                b[c]
+            );
+        }
+    }
+}
+
 /// A C program that prints rhs, dense and sparse Jacobian at given states.
 fn c_harness(stem: &str, states: &[Vec<f64>]) -> String {
     let n = states.first().map(|s| s.len()).unwrap_or(0);

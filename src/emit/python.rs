@@ -199,15 +199,34 @@ fn module(sys: &System, options: &EmitOptions) -> String {
     }
     o.push_str("    return dy\n");
 
-    // jac
+    // jac: the structural non-zeros once, dense and sparse views of them.
     let needs = sys.needs(sys.jac.iter().map(|e| &e.expr));
-    o.push_str("\n\ndef jac(t, y, p):\n    \"\"\"The analytic Jacobian d rhs[i] / d y[j] as a dense matrix.\"\"\"\n");
+    let ints = |v: Vec<usize>| {
+        v.iter()
+            .map(|x| x.to_string())
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let _ = writeln!(
+        o,
+        "\n\n# Jacobian sparsity: jac_values()[k] is d rhs[JAC_ROWS[k]] / d y[JAC_COLS[k]].\nJAC_ROWS = np.array([{}], dtype=int)\nJAC_COLS = np.array([{}], dtype=int)",
+        ints(sys.jac.iter().map(|e| e.row).collect()),
+        ints(sys.jac.iter().map(|e| e.col).collect())
+    );
+    o.push_str(
+        "\n\ndef jac_values(t, y, p):\n    \"\"\"The Jacobian's structural non-zeros (JAC_ROWS, JAC_COLS order).\"\"\"\n",
+    );
     prelude(&mut o, sys, &names, &needs);
-    let _ = writeln!(o, "    J = np.zeros(({n}, {n}))", n = sys.n());
-    for e in &sys.jac {
-        let _ = writeln!(o, "    J[{}, {}] = {}", e.row, e.col, ex(&e.expr));
+    let _ = writeln!(o, "    values = np.zeros({})", sys.jac.len());
+    for (k, e) in sys.jac.iter().enumerate() {
+        let _ = writeln!(o, "    values[{k}] = {}", ex(&e.expr));
     }
-    o.push_str("    return J\n");
+    o.push_str("    return values\n");
+    let _ = writeln!(
+        o,
+        "\n\ndef jac(t, y, p):\n    \"\"\"The analytic Jacobian d rhs[i] / d y[j] as a dense matrix.\"\"\"\n    J = np.zeros(({n}, {n}))\n    J[JAC_ROWS, JAC_COLS] = jac_values(t, y, p)\n    return J",
+        n = sys.n()
+    );
 
     // full_state and observables
     o.push_str(
@@ -382,6 +401,14 @@ def simulate(times, p=None, rtol=1e-8, atol=1e-12):
 
     p = dict(PARAMS if p is None else p)
     times = np.asarray(times, dtype=float)
+    jacobian = jac
+    if len(STATE) > 50:
+        # Large systems: the sparse Jacobian (SciPy then factorizes sparsely).
+        from scipy.sparse import csc_matrix
+
+        def jacobian(t, y, p):
+            return csc_matrix((jac_values(t, y, p), (JAC_ROWS, JAC_COLS)), shape=(len(STATE), len(STATE)))
+
     rows = np.empty((len(times), len(SPECIES) + len(OBSERVABLES)))
     y = y0(p)
     t = 0.0
@@ -402,7 +429,7 @@ def simulate(times, p=None, rtol=1e-8, atol=1e-12):
             inside = (times >= t) & (times < b) if b < end else (times >= t) & (times <= b)
             wanted = times[inside]
             t_eval = wanted if len(wanted) and wanted[-1] == b else np.append(wanted, b)
-            sol = solve_ivp(rhs, (t, b), y, method="BDF", jac=jac, args=(p,),
+            sol = solve_ivp(rhs, (t, b), y, method="BDF", jac=jacobian, args=(p,),
                             t_eval=t_eval, rtol=rtol, atol=atol)
             if not sol.success:
                 raise RuntimeError(f"integration failed at t = {sol.t[-1]}: {sol.message}")
