@@ -14,7 +14,7 @@ A random-order ter-ter mechanism with dead-end complexes shows the size
 limit and the progress line.
 
 Usage (from the repository root, after `cargo build --release`):
-    python3 bench/derive_bench.py [--runs 20] [--no-linsolve]
+    python3 bench/derive_bench.py [--runs 20] [--no-linsolve] [--large]
 """
 
 import json
@@ -171,7 +171,7 @@ def main():
         ("ordered ter-ter (6 forms)", ordered_ter_ter),
     ]:
         text, spec = make()
-        path = os.path.join(tmp, spec["forms"][0] + label.split()[0].replace("-", "_") + ".mech")
+        path = os.path.join(tmp, make.__name__ + ".mech")
         with open(path, "w") as f:
             f.write(text)
         whole, inproc, out = median_time([BIN, "derive", path, "--format", "json", "--timing"], runs)
@@ -200,7 +200,16 @@ def main():
         f.write(text)
     out = subprocess.run([BIN, "derive", path, "--format", "json"], capture_output=True, text=True)
     print(f"\nrandom-order ter-ter with dead-end complexes ({len(spec['forms'])} forms), default limit: exit {out.returncode}")
-    print("    " + "\n    ".join(out.stderr.strip().splitlines()[:3]))
+    print(out.stdout.strip() or out.stderr.strip())
+    if "--large" in sys.argv:
+        # Raised limit: wall time and peak memory (GNU time), progress on stderr.
+        cmd = ["/usr/bin/time", "-v", BIN, "derive", path, "--format", "json", "--timing", "--max-terms", "5000000"]
+        t0 = time.perf_counter()
+        out = subprocess.run(cmd, capture_output=True, text=True)
+        wall = time.perf_counter() - t0
+        rss = [l for l in out.stderr.splitlines() if "Maximum resident" in l]
+        timing = [l for l in out.stderr.replace("\r", "\n").splitlines() if l.startswith("timing:")]
+        print(f"raised limit: exit {out.returncode}, wall {wall:.1f} s, {rss[0].strip() if rss else ''}, {timing[0] if timing else ''}, output {len(out.stdout) / 1e6:.0f} MB")
 
 
 if __name__ == "__main__":

@@ -441,35 +441,18 @@ impl Poly {
         let all: BTreeSet<Var> = self.vars().union(&other.vars()).copied().collect();
         let size = all.iter().next_back().map(|v| *v as usize + 1).unwrap_or(0);
         let point: Vec<u64> = (0..size).map(|v| modp::random(v as u64 + 1)).collect();
+        let (Some(a), Some(b)) = (ImageTable::new(self, &point), ImageTable::new(other, &point)) else {
+            return false;
+        };
         for &x in &shared {
-            let (Some(a), Some(b)) = (self.univariate_image(x, &point), other.univariate_image(x, &point)) else {
+            let (Some(ia), Some(ib)) = (a.univariate(x, &point), b.univariate(x, &point)) else {
                 return false;
             };
-            if modp::gcd_degree(a, b) > 0 {
+            if modp::gcd_degree(ia, ib) > 0 {
                 return false;
             }
         }
         true
-    }
-
-    /// Coefficients (mod p) of `self` as a polynomial in `x` with the other
-    /// variables at `point`, after dividing out the lowest power of `x`;
-    /// `None` if the leading or trailing coefficient vanishes there.
-    fn univariate_image(&self, x: Var, point: &[u64]) -> Option<Vec<u64>> {
-        let lo = self.terms.keys().map(|m| m.exponent(x)).min().unwrap_or(0);
-        let hi = self.degree_in(x);
-        let mut coef = vec![0u64; (hi - lo + 1) as usize];
-        for (m, c) in &self.terms {
-            let mut v = modp::from_rational(c)?;
-            for &(w, e) in m.pairs() {
-                if w != x {
-                    v = modp::mul(v, if e == 1 { point[w as usize] } else { modp::pow(point[w as usize], e as u64) });
-                }
-            }
-            let k = (m.exponent(x) - lo) as usize;
-            coef[k] = modp::add(coef[k], v);
-        }
-        (coef[0] != 0 && *coef.last()? != 0).then_some(coef)
     }
 
     /// Parses a polynomial (a rational expression whose denominator must be
@@ -478,6 +461,47 @@ impl Poly {
         let r = super::rational::RationalFunction::parse(text, vars)?;
         let d = r.den.as_constant().ok_or_else(|| format!("`{text}` is not a polynomial"))?;
         Ok(r.num.scale(&d.recip()))
+    }
+}
+
+/// Each term's value (mod p) at a point, for univariate images in any
+/// variable without re-walking the monomials.
+struct ImageTable<'a> {
+    poly: &'a Poly,
+    values: Vec<u64>,
+}
+
+impl<'a> ImageTable<'a> {
+    fn new(poly: &'a Poly, point: &[u64]) -> Option<ImageTable<'a>> {
+        let mut values = Vec::with_capacity(poly.len());
+        for (m, c) in poly.terms() {
+            let mut v = modp::from_rational(c)?;
+            for &(w, e) in m.pairs() {
+                v = modp::mul(v, if e == 1 { point[w as usize] } else { modp::pow(point[w as usize], e as u64) });
+            }
+            values.push(v);
+        }
+        Some(ImageTable { poly, values })
+    }
+
+    /// Coefficients of the image in `x` (the other variables at the point),
+    /// after dividing out the lowest power of `x`; `None` if the leading or
+    /// trailing coefficient vanishes.
+    fn univariate(&self, x: Var, point: &[u64]) -> Option<Vec<u64>> {
+        let exps: Vec<u32> = self.poly.terms.keys().map(|m| m.exponent(x)).collect();
+        let lo = *exps.iter().min()?;
+        let hi = *exps.iter().max()?;
+        let inv_x = modp::inv(point[x as usize]);
+        let mut inv_pow = vec![1u64; hi as usize + 1];
+        for k in 1..inv_pow.len() {
+            inv_pow[k] = modp::mul(inv_pow[k - 1], inv_x);
+        }
+        let mut coef = vec![0u64; (hi - lo + 1) as usize];
+        for (&e, &v) in exps.iter().zip(&self.values) {
+            let k = (e - lo) as usize;
+            coef[k] = modp::add(coef[k], modp::mul(v, inv_pow[e as usize]));
+        }
+        (coef[0] != 0 && *coef.last()? != 0).then_some(coef)
     }
 }
 

@@ -101,7 +101,8 @@ pub fn derive_with_progress(
         let (sums, visited) = tree_sums(&plan.graph, cx.vars.len(), &mut |n| progress(Progress::Trees(trees_visited + n)));
         trees_visited += visited;
         // Share of each lump: its out-edge scale times its tree sum.
-        let weights: Vec<Poly> = sums.iter().zip(&plan.scale).map(|(t, c)| t.mul(c)).collect();
+        let weights: Vec<Poly> =
+            sums.into_iter().zip(&plan.scale).map(|(t, c)| if c.is_one() { t } else { t.mul(c) }).collect();
         let mut q = Poly::zero();
         for w in &weights {
             q.add_assign_poly(w);
