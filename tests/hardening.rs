@@ -28,7 +28,12 @@ fn corpus() -> Vec<PathBuf> {
 }
 
 fn rendered(loaded: &Loaded) -> String {
-    loaded.diagnostics.iter().map(|d| render_human(d, &loaded.sources)).collect::<Vec<_>>().join("\n")
+    loaded
+        .diagnostics
+        .iter()
+        .map(|d| render_human(d, &loaded.sources))
+        .collect::<Vec<_>>()
+        .join("\n")
 }
 
 fn codes(loaded: &Loaded) -> Vec<Code> {
@@ -39,12 +44,19 @@ fn codes(loaded: &Loaded) -> Vec<Code> {
 /// `╭─[path:L:C]` or the plain form used for over-long lines.
 fn has_location(text: &str) -> bool {
     text.lines().any(|l| {
-        let Some(at) = l.find(".mech:").or_else(|| l.find(".inc:")) else { return false };
+        let Some(at) = l.find(".mech:").or_else(|| l.find(".inc:")) else {
+            return false;
+        };
         let rest = &l[at..];
         let rest = &rest[rest.find(':').map(|i| i + 1).unwrap_or(0)..];
         let mut parts = rest.splitn(3, ':');
         let line = parts.next().unwrap_or("");
-        let col: String = parts.next().unwrap_or("").chars().take_while(char::is_ascii_digit).collect();
+        let col: String = parts
+            .next()
+            .unwrap_or("")
+            .chars()
+            .take_while(char::is_ascii_digit)
+            .collect();
         !line.is_empty() && line.chars().all(|c| c.is_ascii_digit()) && !col.is_empty()
     })
 }
@@ -52,7 +64,10 @@ fn has_location(text: &str) -> bool {
 #[test]
 fn corpus_has_at_least_sixty_files() {
     let n = corpus().len();
-    assert!(n >= 60, "tests/bad_inputs has {n} files; issue 8 asks for at least 60");
+    assert!(
+        n >= 60,
+        "tests/bad_inputs has {n} files; issue 8 asks for at least 60"
+    );
 }
 
 /// The library's view: errors (never only warnings), every error located,
@@ -62,15 +77,34 @@ fn corpus_diagnostics_are_located_and_snapshotted() {
     let _cwd = root(); // cargo runs integration tests from the crate root
     for path in corpus() {
         let loaded = load_path(&path);
-        let stem = path.file_stem().and_then(|s| s.to_str()).expect("a UTF-8 file name").to_string();
-        assert!(loaded.model.is_none(), "{stem}: a model was produced from a bad input");
+        let stem = path
+            .file_stem()
+            .and_then(|s| s.to_str())
+            .expect("a UTF-8 file name")
+            .to_string();
+        assert!(
+            loaded.model.is_none(),
+            "{stem}: a model was produced from a bad input"
+        );
         let errors: Vec<_> = loaded.diagnostics.iter().filter(|d| d.is_error()).collect();
-        assert!(!errors.is_empty(), "{stem}: no error, only {:?}", codes(&loaded));
+        assert!(
+            !errors.is_empty(),
+            "{stem}: no error, only {:?}",
+            codes(&loaded)
+        );
         for d in &errors {
-            assert!(d.primary_span().is_some(), "{stem}: error {:?} `{}` has no location", d.code, d.message);
+            assert!(
+                d.primary_span().is_some(),
+                "{stem}: error {:?} `{}` has no location",
+                d.code,
+                d.message
+            );
         }
         let text = rendered(&loaded);
-        assert!(has_location(&text), "{stem}: rendering has no path:line:column\n{text}");
+        assert!(
+            has_location(&text),
+            "{stem}: rendering has no path:line:column\n{text}"
+        );
         insta::assert_snapshot!(format!("bad_{stem}"), text);
     }
 }
@@ -86,10 +120,24 @@ fn corpus_check_exits_1_with_a_located_diagnostic() {
         let out = ratewright(&["check", p]);
         let elapsed = started.elapsed();
         let stderr = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(1), "{p}: exit code {:?}\n{stderr}", out.status.code());
-        assert!(has_location(&stderr), "{p}: no path:line:column in\n{stderr}");
-        assert!(!stderr.contains("internal failure") && !stderr.contains("panicked"), "{p}: crashed\n{stderr}");
-        assert!(elapsed < Duration::from_secs(10), "{p}: took {elapsed:?} (a hang?)");
+        assert_eq!(
+            out.status.code(),
+            Some(1),
+            "{p}: exit code {:?}\n{stderr}",
+            out.status.code()
+        );
+        assert!(
+            has_location(&stderr),
+            "{p}: no path:line:column in\n{stderr}"
+        );
+        assert!(
+            !stderr.contains("internal failure") && !stderr.contains("panicked"),
+            "{p}: crashed\n{stderr}"
+        );
+        assert!(
+            elapsed < Duration::from_secs(10),
+            "{p}: took {elapsed:?} (a hang?)"
+        );
     }
 }
 
@@ -99,8 +147,17 @@ fn corpus_json_diagnostics_carry_line_and_column() {
         let p = path.to_str().expect("UTF-8 path");
         let out = ratewright(&["check", "--format", "json", p]);
         assert_eq!(out.status.code(), Some(1), "{p}");
-        let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{p}: not JSON ({e})"));
-        let located = report["diagnostics"].as_array().expect("a diagnostics array").iter().any(|d| d["severity"] == "error" && d["line"].as_u64().is_some() && d["column"].as_u64().is_some());
+        let report: serde_json::Value =
+            serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{p}: not JSON ({e})"));
+        let located = report["diagnostics"]
+            .as_array()
+            .expect("a diagnostics array")
+            .iter()
+            .any(|d| {
+                d["severity"] == "error"
+                    && d["line"].as_u64().is_some()
+                    && d["column"].as_u64().is_some()
+            });
         assert!(located, "{p}: no located error in {report}");
     }
 }
@@ -108,13 +165,19 @@ fn corpus_json_diagnostics_carry_line_and_column() {
 // ---------------------------------------------------------------- output safety
 
 fn temp_files_in(dir: &Path) -> Vec<String> {
-    std::fs::read_dir(dir).expect("readable dir").filter_map(|e| e.ok()).map(|e| e.file_name().to_string_lossy().into_owned()).filter(|n| n.ends_with(".tmp")).collect()
+    std::fs::read_dir(dir)
+        .expect("readable dir")
+        .filter_map(|e| e.ok())
+        .map(|e| e.file_name().to_string_lossy().into_owned())
+        .filter(|n| n.ends_with(".tmp"))
+        .collect()
 }
 
 #[test]
 fn output_never_overwrites_the_input_file() {
     let dir = tempfile::tempdir().expect("a temp dir");
-    let text = std::fs::read_to_string(root().join("models/protease_assay.mech")).expect("demo model");
+    let text =
+        std::fs::read_to_string(root().join("models/protease_assay.mech")).expect("demo model");
     // A model whose name has an output extension, so only the input check
     // can stop the write; reached by its name, through `./`, and through a
     // symlink.
@@ -124,19 +187,47 @@ fn output_never_overwrites_the_input_file() {
     let link = dir.path().join("link.csv");
     std::os::unix::fs::symlink(&model, &link).expect("symlink");
     for target in [model.clone(), dir.path().join(".").join("assay.csv"), link] {
-        let out = ratewright(&["run", m, "--points", "5", "-o", target.to_str().expect("UTF-8")]);
+        let out = ratewright(&[
+            "run",
+            m,
+            "--points",
+            "5",
+            "-o",
+            target.to_str().expect("UTF-8"),
+        ]);
         let stderr = String::from_utf8_lossy(&out.stderr);
-        assert_ne!(out.status.code(), Some(0), "run -o {} succeeded over its input", target.display());
+        assert_ne!(
+            out.status.code(),
+            Some(0),
+            "run -o {} succeeded over its input",
+            target.display()
+        );
         assert!(stderr.contains("refusing to overwrite"), "{stderr}");
-        assert_eq!(std::fs::read_to_string(&model).expect("model still there"), text, "the input changed");
+        assert_eq!(
+            std::fs::read_to_string(&model).expect("model still there"),
+            text,
+            "the input changed"
+        );
     }
     let plain = dir.path().join("m.mech");
     std::fs::write(&plain, &text).expect("write model");
     let p = plain.to_str().expect("UTF-8 path");
-    for args in [vec!["run", p, "--points", "5", "-o", p], vec!["run", p, "--points", "5", "--plot", p], vec!["emit", p, "--target", "json", "-o", p]] {
+    for args in [
+        vec!["run", p, "--points", "5", "-o", p],
+        vec!["run", p, "--points", "5", "--plot", p],
+        vec!["emit", p, "--target", "json", "-o", p],
+    ] {
         let out = ratewright(&args);
-        assert_ne!(out.status.code(), Some(0), "{args:?} succeeded over its input");
-        assert_eq!(std::fs::read_to_string(&plain).expect("model still there"), text, "{args:?} changed the input");
+        assert_ne!(
+            out.status.code(),
+            Some(0),
+            "{args:?} succeeded over its input"
+        );
+        assert_eq!(
+            std::fs::read_to_string(&plain).expect("model still there"),
+            text,
+            "{args:?} changed the input"
+        );
     }
     assert!(temp_files_in(dir.path()).is_empty());
 }
@@ -147,12 +238,26 @@ fn a_failed_run_leaves_the_previous_output_untouched() {
     let model = dir.path().join("blowup.mech");
     // dA/dt = k A^2 (net of 2 A -> 3 A) is infinite at t = 1/(k A0) = 10 s
     // (A(t) = A0 / (1 - k A0 t), the closed form of the Riccati equation).
-    std::fs::write(&model, "species A = 1 uM\nparam k = 0.1 /uM/s\nstep grow 2 A -> 3 A with k\n").expect("write");
+    std::fs::write(
+        &model,
+        "species A = 1 uM\nparam k = 0.1 /uM/s\nstep grow 2 A -> 3 A with k\n",
+    )
+    .expect("write");
     let out_path = dir.path().join("out.csv");
     std::fs::write(&out_path, "previous result\n").expect("write");
-    let out = ratewright(&["run", model.to_str().expect("UTF-8"), "--until", "20", "-o", out_path.to_str().expect("UTF-8")]);
+    let out = ratewright(&[
+        "run",
+        model.to_str().expect("UTF-8"),
+        "--until",
+        "20",
+        "-o",
+        out_path.to_str().expect("UTF-8"),
+    ]);
     assert_eq!(out.status.code(), Some(1));
-    assert_eq!(std::fs::read_to_string(&out_path).expect("still there"), "previous result\n");
+    assert_eq!(
+        std::fs::read_to_string(&out_path).expect("still there"),
+        "previous result\n"
+    );
     assert!(temp_files_in(dir.path()).is_empty());
 }
 
@@ -166,7 +271,14 @@ fn sigint_leaves_no_partial_file() {
         let dir = tempfile::tempdir().expect("a temp dir");
         let out_path = dir.path().join("robertson.csv");
         let mut child = Command::new(common::bin())
-            .args(["run", model.to_str().expect("UTF-8"), "--points", "3000000", "-o", out_path.to_str().expect("UTF-8")])
+            .args([
+                "run",
+                model.to_str().expect("UTF-8"),
+                "--points",
+                "3000000",
+                "-o",
+                out_path.to_str().expect("UTF-8"),
+            ])
             .stdout(Stdio::null())
             .stderr(Stdio::null())
             .spawn()
@@ -175,7 +287,9 @@ fn sigint_leaves_no_partial_file() {
         match stage {
             "integrating" => std::thread::sleep(Duration::from_millis(300)),
             _ => {
-                while temp_files_in(dir.path()).is_empty() && started.elapsed() < Duration::from_secs(120) {
+                while temp_files_in(dir.path()).is_empty()
+                    && started.elapsed() < Duration::from_secs(120)
+                {
                     if child.try_wait().expect("wait").is_some() {
                         break;
                     }
@@ -183,15 +297,27 @@ fn sigint_leaves_no_partial_file() {
                 }
             }
         }
-        let _ = Command::new("kill").args(["-INT", &child.id().to_string()]).status();
+        let _ = Command::new("kill")
+            .args(["-INT", &child.id().to_string()])
+            .status();
         let status = child.wait().expect("wait");
         let leftovers = temp_files_in(dir.path());
-        assert!(leftovers.is_empty(), "{stage}: SIGINT left {leftovers:?} (exit {status:?})");
+        assert!(
+            leftovers.is_empty(),
+            "{stage}: SIGINT left {leftovers:?} (exit {status:?})"
+        );
         if out_path.exists() {
             let text = std::fs::read_to_string(&out_path).expect("read");
-            assert_eq!(text.lines().count(), 3_000_001, "{stage}: the output is partial");
+            assert_eq!(
+                text.lines().count(),
+                3_000_001,
+                "{stage}: the output is partial"
+            );
         }
-        assert!(!status.success() || out_path.exists(), "{stage}: success without output");
+        assert!(
+            !status.success() || out_path.exists(),
+            "{stage}: success without output"
+        );
     }
 }
 
@@ -205,12 +331,19 @@ fn write_temp(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
 
 fn check_file(p: &Path) -> (Option<i32>, String) {
     let out = ratewright(&["check", p.to_str().expect("UTF-8 path")]);
-    (out.status.code(), String::from_utf8_lossy(&out.stderr).into_owned())
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
 }
 
 #[test]
 fn nesting_of_100000_parentheses_is_refused_without_stack_overflow() {
-    let text = format!("species A = 1 uM\nparam k = {}1{} /s\nstep r A -> 0 with k\n", "(".repeat(100_000), ")".repeat(100_000));
+    let text = format!(
+        "species A = 1 uM\nparam k = {}1{} /s\nstep r A -> 0 with k\n",
+        "(".repeat(100_000),
+        ")".repeat(100_000)
+    );
     let loaded = load(&text);
     assert_eq!(codes(&loaded), vec![Code::NestingTooDeep]);
     let unbalanced = format!("param k = {}1\n", "(".repeat(100_000));
@@ -218,7 +351,10 @@ fn nesting_of_100000_parentheses_is_refused_without_stack_overflow() {
     let dir = tempfile::tempdir().expect("a temp dir");
     let (code, stderr) = check_file(&write_temp(dir.path(), "deep.mech", text.as_bytes()));
     assert_eq!(code, Some(1), "{stderr}");
-    assert!(stderr.contains("E0104") && stderr.contains("deep.mech:2:"), "{stderr}");
+    assert!(
+        stderr.contains("E0104") && stderr.contains("deep.mech:2:"),
+        "{stderr}"
+    );
 }
 
 /// 200 levels (the limit) pass every stage that walks expressions: check,
@@ -228,23 +364,51 @@ fn nesting_of_100000_parentheses_is_refused_without_stack_overflow() {
 fn nesting_at_the_limit_works_end_to_end() {
     let depth = ratewright::syntax::parse::MAX_NESTING;
     let deep = format!("{}k0{}", "(".repeat(depth), ")".repeat(depth));
-    let text = format!("species A = 1 uM, B\nparam k0 = 0.5 /s\nparam k = {deep}\nstep r A -> B law {deep} * A\nobserve o = {deep} * B\n");
+    let text = format!(
+        "species A = 1 uM, B\nparam k0 = 0.5 /s\nparam k = {deep}\nstep r A -> B law {deep} * A\nobserve o = {deep} * B\n"
+    );
     let loaded = load(&text);
     assert!(loaded.model.is_some(), "{}", rendered(&loaded));
-    let over = format!("param k = {}1{}\n", "(".repeat(depth + 1), ")".repeat(depth + 1));
+    let over = format!(
+        "param k = {}1{}\n",
+        "(".repeat(depth + 1),
+        ")".repeat(depth + 1)
+    );
     assert_eq!(codes(&load(&over)), vec![Code::NestingTooDeep]);
     let dir = tempfile::tempdir().expect("a temp dir");
     let p = write_temp(dir.path(), "deep.mech", text.as_bytes());
     let ps = p.to_str().expect("UTF-8");
-    for args in [vec!["check", ps], vec!["analyze", ps], vec!["run", ps, "--until", "2", "--points", "3"], vec!["emit", ps, "--target", "python"]] {
+    for args in [
+        vec!["check", ps],
+        vec!["analyze", ps],
+        vec!["run", ps, "--until", "2", "--points", "3"],
+        vec!["emit", ps, "--target", "python"],
+    ] {
         let out = ratewright(&args);
-        assert_eq!(out.status.code(), Some(0), "{args:?}: {}", String::from_utf8_lossy(&out.stderr));
+        assert_eq!(
+            out.status.code(),
+            Some(0),
+            "{args:?}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
     }
     // A(t) = exp(-k0 t) for first-order decay: at t = 2 s with k0 = 0.5 /s, A = e^-1.
-    let out = ratewright(&["run", ps, "--times", "2", "-o", dir.path().join("a.csv").to_str().expect("UTF-8")]);
+    let out = ratewright(&[
+        "run",
+        ps,
+        "--times",
+        "2",
+        "-o",
+        dir.path().join("a.csv").to_str().expect("UTF-8"),
+    ]);
     assert_eq!(out.status.code(), Some(0));
     let csv = std::fs::read_to_string(dir.path().join("a.csv")).expect("csv");
-    let a: f64 = csv.lines().last().and_then(|l| l.split(',').nth(1)).and_then(|v| v.parse().ok()).expect("a value of A");
+    let a: f64 = csv
+        .lines()
+        .last()
+        .and_then(|l| l.split(',').nth(1))
+        .and_then(|v| v.parse().ok())
+        .expect("a value of A");
     assert!((a - (-1.0f64).exp()).abs() < 1e-5, "A(2) = {a}");
 }
 
@@ -264,11 +428,18 @@ fn files_over_64_mib_and_endless_sources_are_refused() {
     let p = write_temp(dir.path(), "huge.mech", big.as_bytes());
     let (code, stderr) = check_file(&p);
     assert_eq!(code, Some(1), "{stderr}");
-    assert!(stderr.contains("E0106") && stderr.contains("huge.mech:1:1"), "{stderr}");
+    assert!(
+        stderr.contains("E0106") && stderr.contains("huge.mech:1:1"),
+        "{stderr}"
+    );
     drop(big);
     // `use` of a device that never ends stops at the limit instead of
     // reading until memory runs out.
-    let p = write_temp(dir.path(), "zero.mech", b"use \"/dev/zero\"\nspecies A = 1 uM\n");
+    let p = write_temp(
+        dir.path(),
+        "zero.mech",
+        b"use \"/dev/zero\"\nspecies A = 1 uM\n",
+    );
     let (code, stderr) = check_file(&p);
     assert_eq!(code, Some(1), "{stderr}");
     assert!(stderr.contains("E0106"), "{stderr}");
@@ -279,15 +450,24 @@ fn very_long_lines_are_read_and_located() {
     let dir = tempfile::tempdir().expect("a temp dir");
     // 200,000 terms on one line (about 800 kB).
     let sum = vec!["1"; 200_000].join(" + ");
-    let good = format!("species A = 1 uM\nparam k = 1 /s\nstep r A -> 0 with k\nobserve o = ({sum}) * A\n");
+    let good = format!(
+        "species A = 1 uM\nparam k = 1 /s\nstep r A -> 0 with k\nobserve o = ({sum}) * A\n"
+    );
     let (code, stderr) = check_file(&write_temp(dir.path(), "long.mech", good.as_bytes()));
     assert_eq!(code, Some(0), "{stderr}");
     let bad = format!("species A = 1 uM\nparam k = {sum} + nope\nstep r A -> 0 with k\n");
     let (code, stderr) = check_file(&write_temp(dir.path(), "long_bad.mech", bad.as_bytes()));
     assert_eq!(code, Some(1), "{stderr}");
     let column = "param k = ".len() + sum.len() + " + ".len() + 1;
-    assert!(stderr.contains(&format!("long_bad.mech:2:{column}")), "{stderr}");
-    assert!(stderr.len() < 10_000, "the diagnostic echoes the whole line ({} bytes)", stderr.len());
+    assert!(
+        stderr.contains(&format!("long_bad.mech:2:{column}")),
+        "{stderr}"
+    );
+    assert!(
+        stderr.len() < 10_000,
+        "the diagnostic echoes the whole line ({} bytes)",
+        stderr.len()
+    );
 }
 
 /// CRLF, CR-only and mixed line endings, a byte-order mark and tabs are
@@ -297,19 +477,39 @@ fn line_endings_bom_and_tabs_do_not_change_the_model() {
     let dir = tempfile::tempdir().expect("a temp dir");
     for name in common::models() {
         let text = std::fs::read_to_string(&name).expect("demo model");
-        let plain = load_path(&name).model.expect("demo models load").without_spans();
+        let plain = load_path(&name)
+            .model
+            .expect("demo models load")
+            .without_spans();
         let variants: Vec<(&str, Vec<u8>)> = vec![
             ("crlf", text.replace('\n', "\r\n").into_bytes()),
             ("cr", text.replace('\n', "\r").into_bytes()),
-            ("bom", [b"\xEF\xBB\xBF".as_slice(), text.as_bytes()].concat()),
+            (
+                "bom",
+                [b"\xEF\xBB\xBF".as_slice(), text.as_bytes()].concat(),
+            ),
             ("tabs", tabs_for_spaces(&text).into_bytes()),
-            ("bom_crlf_tabs", [b"\xEF\xBB\xBF".as_slice(), tabs_for_spaces(&text).replace('\n', "\r\n").as_bytes()].concat()),
+            (
+                "bom_crlf_tabs",
+                [
+                    b"\xEF\xBB\xBF".as_slice(),
+                    tabs_for_spaces(&text).replace('\n', "\r\n").as_bytes(),
+                ]
+                .concat(),
+            ),
         ];
         for (kind, bytes) in variants {
             let p = write_temp(dir.path(), &format!("{kind}.mech"), &bytes);
             let loaded = load_path(&p);
-            let model = loaded.model.as_ref().unwrap_or_else(|| panic!("{} as {kind}: {}", name.display(), rendered(&loaded)));
-            assert!(model.without_spans() == plain, "{} as {kind}: a different model", name.display());
+            let model = loaded
+                .model
+                .as_ref()
+                .unwrap_or_else(|| panic!("{} as {kind}: {}", name.display(), rendered(&loaded)));
+            assert!(
+                model.without_spans() == plain,
+                "{} as {kind}: a different model",
+                name.display()
+            );
         }
     }
 }
@@ -325,7 +525,11 @@ fn tabs_for_spaces(text: &str) -> String {
             '\n' => (in_string, in_comment) = (false, false),
             _ => {}
         }
-        out.push(if c == ' ' && !in_string && !in_comment { '\t' } else { c });
+        out.push(if c == ' ' && !in_string && !in_comment {
+            '\t'
+        } else {
+            c
+        });
     }
     out
 }
@@ -333,10 +537,14 @@ fn tabs_for_spaces(text: &str) -> String {
 #[test]
 fn huge_coefficients_are_exact_or_a_clear_error() {
     // 2^62 fits a 64-bit rational exactly and must stay exact.
-    let loaded = load("species A = 1 uM, B\nparam k = 1 /s\nstep r 4611686018427387904 A -> 3 B with k\n");
+    let loaded =
+        load("species A = 1 uM, B\nparam k = 1 /s\nstep r 4611686018427387904 A -> 3 B with k\n");
     let model = loaded.model.expect("2^62 is accepted");
     let change = model.net_change(0);
-    assert_eq!(change[0].1, ratewright::model::Coef::from_integer(-4_611_686_018_427_387_904));
+    assert_eq!(
+        change[0].1,
+        ratewright::model::Coef::from_integer(-4_611_686_018_427_387_904)
+    );
     // Beyond that: a located E0407, never a wrapped value.
     for text in [
         "species A = 1 uM, B\nparam k = 1 /s\nstep r 99999999999999999999 A -> B with k\n",
@@ -344,8 +552,17 @@ fn huge_coefficients_are_exact_or_a_clear_error() {
         "species A = 1 uM\nparam k = 1 /s\nstep r 1/9000000000000000007 A -> 1/9000000000000000001 A with k\n",
     ] {
         let loaded = load(text);
-        assert!(codes(&loaded).contains(&Code::BadCoefficient), "{text}: {:?}", codes(&loaded));
-        assert!(loaded.diagnostics.iter().all(|d| d.primary_span().is_some()));
+        assert!(
+            codes(&loaded).contains(&Code::BadCoefficient),
+            "{text}: {:?}",
+            codes(&loaded)
+        );
+        assert!(
+            loaded
+                .diagnostics
+                .iter()
+                .all(|d| d.primary_span().is_some())
+        );
     }
 }
 
@@ -358,7 +575,10 @@ fn huge_coefficients_are_exact_or_a_clear_error() {
 // t = 1/(k·A0) (separable Riccati equation).
 
 fn model_file(dir: &Path, name: &str, text: &str) -> String {
-    write_temp(dir, name, text.as_bytes()).to_str().expect("UTF-8").to_string()
+    write_temp(dir, name, text.as_bytes())
+        .to_str()
+        .expect("UTF-8")
+        .to_string()
 }
 
 /// The values of one column of `run -o x.csv`.
@@ -370,9 +590,18 @@ fn run_csv(args: &[&str], dir: &Path) -> (Option<i32>, String, Vec<Vec<f64>>) {
     full.extend(["-o", o.as_str()]);
     let out = ratewright(&full);
     let rows = std::fs::read_to_string(&out_path)
-        .map(|csv| csv.lines().skip(1).map(|l| l.split(',').map(|v| v.parse().expect("a number")).collect()).collect())
+        .map(|csv| {
+            csv.lines()
+                .skip(1)
+                .map(|l| l.split(',').map(|v| v.parse().expect("a number")).collect())
+                .collect()
+        })
         .unwrap_or_default();
-    (out.status.code(), String::from_utf8_lossy(&out.stderr).into_owned(), rows)
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+        rows,
+    )
 }
 
 const STIFF_1E20: &str = "species A = 1 uM, B, C\nparam kfast = 1e10 /s\nparam kslow = 1e-10 /s\nstep fast A -> B with kfast\nstep slow B -> C with kslow\n";
@@ -380,8 +609,13 @@ const STIFF_1E20: &str = "species A = 1 uM, B, C\nparam kfast = 1e10 /s\nparam k
 #[test]
 fn zero_rate_constants_keep_every_species_at_its_start() {
     let dir = tempfile::tempdir().expect("a temp dir");
-    let m = model_file(dir.path(), "zero.mech", "species A = 1 uM, B\nparam k = 0 /s\nstep r A -> B with k\n");
-    let (code, stderr, rows) = run_csv(&["run", &m, "--until", "100", "--points", "11"], dir.path());
+    let m = model_file(
+        dir.path(),
+        "zero.mech",
+        "species A = 1 uM, B\nparam k = 0 /s\nstep r A -> B with k\n",
+    );
+    let (code, stderr, rows) =
+        run_csv(&["run", &m, "--until", "100", "--points", "11"], dir.path());
     assert_eq!(code, Some(0), "{stderr}");
     assert_eq!(rows.len(), 11);
     assert!(rows.iter().all(|r| r[1] == 1.0 && r[2] == 0.0), "{rows:?}");
@@ -390,10 +624,17 @@ fn zero_rate_constants_keep_every_species_at_its_start() {
 #[test]
 fn a_rate_constant_of_1e300_fails_with_a_clear_message_and_writes_nothing() {
     let dir = tempfile::tempdir().expect("a temp dir");
-    let m = model_file(dir.path(), "fast.mech", "species A = 1 uM, B\nparam k = 1e300 /s\nstep r A -> B with k\n");
+    let m = model_file(
+        dir.path(),
+        "fast.mech",
+        "species A = 1 uM, B\nparam k = 1e300 /s\nstep r A -> B with k\n",
+    );
     let (code, stderr, rows) = run_csv(&["run", &m, "--until", "1"], dir.path());
     assert_eq!(code, Some(1), "{stderr}");
-    assert!(stderr.contains("[E0701]") && stderr.contains("t = 0"), "{stderr}");
+    assert!(
+        stderr.contains("[E0701]") && stderr.contains("t = 0"),
+        "{stderr}"
+    );
     assert!(rows.is_empty() && !dir.path().join("out.csv").exists());
 }
 
@@ -402,17 +643,40 @@ fn stiffness_ratio_1e20_integrates_to_the_closed_form() {
     let dir = tempfile::tempdir().expect("a temp dir");
     let m = model_file(dir.path(), "stiff.mech", STIFF_1E20);
     for method in ["bdf", "esdirk"] {
-        let (code, stderr, rows) = run_csv(&["run", &m, "--times", "1e-10,1e10,5e10", "--method", method, "--rtol", "1e-8"], dir.path());
+        let (code, stderr, rows) = run_csv(
+            &[
+                "run",
+                &m,
+                "--times",
+                "1e-10,1e10,5e10",
+                "--method",
+                method,
+                "--rtol",
+                "1e-8",
+            ],
+            dir.path(),
+        );
         assert_eq!(code, Some(0), "{method}: {stderr}");
         let (k1, k2) = (1e10f64, 1e-10f64);
         for r in &rows {
             let t = r[0];
             let a = (-k1 * t).exp();
             let b = k1 / (k2 - k1) * ((-k1 * t).exp() - (-k2 * t).exp());
-            assert!((r[1] - a).abs() < 1e-6, "{method}: A({t}) = {} vs {a}", r[1]);
+            assert!(
+                (r[1] - a).abs() < 1e-6,
+                "{method}: A({t}) = {} vs {a}",
+                r[1]
+            );
             // rtol bounds the local error; the global error after ~1e3 steps is larger.
-            assert!((r[2] - b).abs() < 1e-5 * b.max(1e-3), "{method}: B({t}) = {} vs {b}", r[2]);
-            assert!((r[1] + r[2] + r[3] - 1.0).abs() < 1e-9, "{method}: mass not conserved at {t}");
+            assert!(
+                (r[2] - b).abs() < 1e-5 * b.max(1e-3),
+                "{method}: B({t}) = {} vs {b}",
+                r[2]
+            );
+            assert!(
+                (r[1] + r[2] + r[3] - 1.0).abs() < 1e-9,
+                "{method}: mass not conserved at {t}"
+            );
         }
     }
 }
@@ -420,10 +684,19 @@ fn stiffness_ratio_1e20_integrates_to_the_closed_form() {
 #[test]
 fn blow_up_is_reported_just_before_the_singularity() {
     let dir = tempfile::tempdir().expect("a temp dir");
-    let m = model_file(dir.path(), "blowup.mech", "species A = 1 uM\nparam k = 0.1 /uM/s\nstep grow 2 A -> 3 A with k\n");
+    let m = model_file(
+        dir.path(),
+        "blowup.mech",
+        "species A = 1 uM\nparam k = 0.1 /uM/s\nstep grow 2 A -> 3 A with k\n",
+    );
     let (code, stderr, _) = run_csv(&["run", &m, "--until", "20"], dir.path());
     assert_eq!(code, Some(1), "{stderr}");
-    let t: f64 = stderr.split("failed at t = ").nth(1).and_then(|s| s.split(':').next()).and_then(|s| s.trim().parse().ok()).unwrap_or_else(|| panic!("no time in {stderr}"));
+    let t: f64 = stderr
+        .split("failed at t = ")
+        .nth(1)
+        .and_then(|s| s.split(':').next())
+        .and_then(|s| s.trim().parse().ok())
+        .unwrap_or_else(|| panic!("no time in {stderr}"));
     // 1/(k A0) = 10 s.
     assert!(t > 9.9 && t <= 10.0, "failed at t = {t}");
     assert!(stderr.contains("species `A`"), "{stderr}");
@@ -435,14 +708,37 @@ fn blow_up_is_reported_just_before_the_singularity() {
 #[test]
 fn overshoot_below_zero_stays_within_the_absolute_tolerance() {
     let dir = tempfile::tempdir().expect("a temp dir");
-    let m = model_file(dir.path(), "overshoot.mech", "species A = 1 uM, B\nparam k = 1e6 /s\nstep r A -> B with k\n");
-    for (method, rtol, atol) in [("bdf", "0.5", "1e-3"), ("esdirk", "0.5", "1e-3"), ("bdf", "1e-3", "1e-12")] {
-        let (code, stderr, rows) = run_csv(&["run", &m, "--until", "10", "--points", "101", "--method", method, "--rtol", rtol, "--atol", atol], dir.path());
+    let m = model_file(
+        dir.path(),
+        "overshoot.mech",
+        "species A = 1 uM, B\nparam k = 1e6 /s\nstep r A -> B with k\n",
+    );
+    for (method, rtol, atol) in [
+        ("bdf", "0.5", "1e-3"),
+        ("esdirk", "0.5", "1e-3"),
+        ("bdf", "1e-3", "1e-12"),
+    ] {
+        let (code, stderr, rows) = run_csv(
+            &[
+                "run", &m, "--until", "10", "--points", "101", "--method", method, "--rtol", rtol,
+                "--atol", atol,
+            ],
+            dir.path(),
+        );
         assert_eq!(code, Some(0), "{stderr}");
         let atol: f64 = atol.parse().expect("a number");
         for r in &rows[1..] {
-            assert!(r[1] > -atol, "{method} rtol {rtol}: A = {} at t = {}", r[1], r[0]);
-            assert!((r[1] + r[2] - 1.0).abs() < 1e-6, "{method}: A + B = {}", r[1] + r[2]);
+            assert!(
+                r[1] > -atol,
+                "{method} rtol {rtol}: A = {} at t = {}",
+                r[1],
+                r[0]
+            );
+            assert!(
+                (r[1] + r[2] - 1.0).abs() < 1e-6,
+                "{method}: A + B = {}",
+                r[1] + r[2]
+            );
         }
     }
 }
@@ -474,9 +770,18 @@ fn steady_state_at_stiffness_1e20_is_stable() {
 #[ignore = "sim (src/sim/steady.rs): with every rate constant 0 the start is a steady state (dy/dt = 0), but `steady` exits 1 with E0702 `the Jacobian is singular`"]
 fn steady_state_with_zero_rate_constants_is_the_start() {
     let dir = tempfile::tempdir().expect("a temp dir");
-    let m = model_file(dir.path(), "zero.mech", "species A = 1 uM, B\nparam k = 0 /s\nstep r A -> B with k\n");
+    let m = model_file(
+        dir.path(),
+        "zero.mech",
+        "species A = 1 uM, B\nparam k = 0 /s\nstep r A -> B with k\n",
+    );
     let out = ratewright(&["steady", &m, "--format", "json"]);
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
     assert_eq!(v["state"]["A"], 1.0);
 }
@@ -489,21 +794,43 @@ fn steady_state_with_zero_rate_constants_is_the_start() {
 #[test]
 fn fuzz_regressions_derive_or_refuse_cleanly() {
     let dir = root().join("fuzz/regressions/derive_small");
-    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir).expect("fuzz/regressions/derive_small").filter_map(|e| e.ok().map(|e| e.path())).collect();
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .expect("fuzz/regressions/derive_small")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .collect();
     files.sort();
     assert!(!files.is_empty());
     for path in files {
         let text = std::fs::read_to_string(&path).expect("UTF-8");
-        let target = match text.lines().next().and_then(|l| l.split("derive target: ").nth(1)).map(|t| t.trim_end_matches(')')) {
-            Some(t) if t.starts_with("species ") => ratewright::ratelaw::Target::Species(t["species ".len()..].to_string()),
-            Some(t) if t.starts_with("flux ") => ratewright::ratelaw::Target::Flux(t["flux ".len()..].to_string()),
+        let target = match text
+            .lines()
+            .next()
+            .and_then(|l| l.split("derive target: ").nth(1))
+            .map(|t| t.trim_end_matches(')'))
+        {
+            Some(t) if t.starts_with("species ") => {
+                ratewright::ratelaw::Target::Species(t["species ".len()..].to_string())
+            }
+            Some(t) if t.starts_with("flux ") => {
+                ratewright::ratelaw::Target::Flux(t["flux ".len()..].to_string())
+            }
             _ => ratewright::ratelaw::Target::Overall,
         };
         let loaded = load_path(&path);
-        let Some(model) = loaded.model.clone() else { panic!("{}: {}", path.display(), rendered(&loaded)) };
-        let request = ratewright::ratelaw::Request { target, max_terms: 20_000, ..Default::default() };
+        let Some(model) = loaded.model.clone() else {
+            panic!("{}: {}", path.display(), rendered(&loaded))
+        };
+        let request = ratewright::ratelaw::Request {
+            target,
+            max_terms: 20_000,
+            ..Default::default()
+        };
         match ratewright::ratelaw::derive(&model, &request) {
-            Ok(d) => assert!(!d.denominator().is_zero(), "{}: zero denominator", path.display()),
+            Ok(d) => assert!(
+                !d.denominator().is_zero(),
+                "{}: zero denominator",
+                path.display()
+            ),
             Err(diag) => assert!(diag.is_error(), "{}: {:?}", path.display(), diag.code),
         }
     }
@@ -518,8 +845,60 @@ fn fuzz_regressions_derive_or_refuse_cleanly() {
 // error is located.
 
 const TOKENS: &[&str] = &[
-    "species ", "fixed ", "param ", "step ", "total ", "observe ", "assume steady ", "assume equilibrium ", "add ", "remove ", "set ", " at ", "use \"x.mech\"", " with ", " law ", "->", "<=>", "→", "⇌", "∅", " + ",
-    " - ", " * ", " / ", "^", "(", ")", ",", "=", "\"", "#", "\n", "\r\n", "\t", "0", "1e308", "1e-320", "-1", "9223372036854775807", "1/3", " uM", " /uM/s", " min", "µM", "exp(", "min(", "pow(", "t", "pi", "A", "E", "\u{FEFF}", "\u{202E}", "\0",
+    "species ",
+    "fixed ",
+    "param ",
+    "step ",
+    "total ",
+    "observe ",
+    "assume steady ",
+    "assume equilibrium ",
+    "add ",
+    "remove ",
+    "set ",
+    " at ",
+    "use \"x.mech\"",
+    " with ",
+    " law ",
+    "->",
+    "<=>",
+    "→",
+    "⇌",
+    "∅",
+    " + ",
+    " - ",
+    " * ",
+    " / ",
+    "^",
+    "(",
+    ")",
+    ",",
+    "=",
+    "\"",
+    "#",
+    "\n",
+    "\r\n",
+    "\t",
+    "0",
+    "1e308",
+    "1e-320",
+    "-1",
+    "9223372036854775807",
+    "1/3",
+    " uM",
+    " /uM/s",
+    " min",
+    "µM",
+    "exp(",
+    "min(",
+    "pow(",
+    "t",
+    "pi",
+    "A",
+    "E",
+    "\u{FEFF}",
+    "\u{202E}",
+    "\0",
 ];
 
 fn floor_boundary(s: &str, mut i: usize) -> usize {
@@ -558,8 +937,15 @@ fn mutate(text: &str, edits: &[(u8, usize, usize)]) -> String {
 }
 
 fn seed_texts() -> Vec<String> {
-    let mut seeds: Vec<String> = common::models().iter().map(|p| std::fs::read_to_string(p).expect("demo model")).collect();
-    seeds.extend(corpus().iter().filter_map(|p| std::fs::read_to_string(root().join(p)).ok()));
+    let mut seeds: Vec<String> = common::models()
+        .iter()
+        .map(|p| std::fs::read_to_string(p).expect("demo model"))
+        .collect();
+    seeds.extend(
+        corpus()
+            .iter()
+            .filter_map(|p| std::fs::read_to_string(root().join(p)).ok()),
+    );
     seeds
 }
 
@@ -584,7 +970,11 @@ fn enzyme_mechanism(bytes: &[u8]) -> String {
         let to = if to == from { (to + 1) % forms } else { to };
         let mut lhs = format!("E{from}");
         if flags & 1 != 0 {
-            lhs += &format!(" + {}{}", if flags & 0x40 != 0 { "2 " } else { "" }, ["A", "B", "I", "X"][(flags as usize >> 4) % 4]);
+            lhs += &format!(
+                " + {}{}",
+                if flags & 0x40 != 0 { "2 " } else { "" },
+                ["A", "B", "I", "X"][(flags as usize >> 4) % 4]
+            );
         }
         let mut rhs = format!("E{to}");
         if flags & 2 != 0 {
@@ -654,7 +1044,13 @@ proptest! {
 
 /// Runs the binary with a deadline; `None` if it had to be killed.
 fn ratewright_within(args: &[&str], limit: Duration) -> Option<std::process::Output> {
-    let mut child = Command::new(common::bin()).args(args).current_dir(root()).stdout(Stdio::piped()).stderr(Stdio::piped()).spawn().expect("spawn");
+    let mut child = Command::new(common::bin())
+        .args(args)
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
     let started = Instant::now();
     while started.elapsed() < limit {
         if child.try_wait().expect("wait").is_some() {
@@ -671,8 +1067,31 @@ fn ratewright_within(args: &[&str], limit: Duration) -> Option<std::process::Out
 #[ignore = "sim (src/cli/scan.rs, src/sim/scan.rs): each axis is capped at 100,000 points but their product is not; two such axes (1e10 runs) run for days and grow in memory instead of being refused as a usage error"]
 fn a_scan_of_ten_billion_points_is_refused() {
     let dir = tempfile::tempdir().expect("a temp dir");
-    let m = model_file(dir.path(), "scan.mech", "species A = 1 uM, B\nparam k = 1 /s\nstep r A -> B with k\n");
-    let out = ratewright_within(&["scan", &m, "--vary", "k=1..2:100000", "--vary", "A=1..2:100000", "--measure", "A", "--at", "1"], Duration::from_secs(20));
+    let m = model_file(
+        dir.path(),
+        "scan.mech",
+        "species A = 1 uM, B\nparam k = 1 /s\nstep r A -> B with k\n",
+    );
+    let out = ratewright_within(
+        &[
+            "scan",
+            &m,
+            "--vary",
+            "k=1..2:100000",
+            "--vary",
+            "A=1..2:100000",
+            "--measure",
+            "A",
+            "--at",
+            "1",
+        ],
+        Duration::from_secs(20),
+    );
     let out = out.expect("still running after 20 s");
-    assert_eq!(out.status.code(), Some(2), "{}", String::from_utf8_lossy(&out.stderr));
+    assert_eq!(
+        out.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
 }

@@ -44,10 +44,19 @@ fn generated(data: &[u8]) -> String {
         }
         let mut rhs = format!("E{to}");
         if flags & 2 != 0 {
-            write!(rhs, " + {}", PRODUCTS[(flags as usize >> 2) % PRODUCTS.len()]).ok();
+            write!(
+                rhs,
+                " + {}",
+                PRODUCTS[(flags as usize >> 2) % PRODUCTS.len()]
+            )
+            .ok();
         }
         let reversible = flags & 4 != 0;
-        let (arrow, constants) = if reversible { ("<=>", format!("kf{s}, kr{s}")) } else { ("->", format!("kf{s}")) };
+        let (arrow, constants) = if reversible {
+            ("<=>", format!("kf{s}, kr{s}"))
+        } else {
+            ("->", format!("kf{s}"))
+        };
         writeln!(text, "param kf{s} = {}", 1 + next() % 100).ok();
         if reversible {
             writeln!(text, "param kr{s} = {}", 1 + next() % 100).ok();
@@ -74,7 +83,9 @@ fuzz_target!(|data: &[u8]| {
     }
     let text = if data[0] % 2 == 0 {
         match std::str::from_utf8(&data[1..]) {
-            Ok(t) if !t.contains("/dev") && !t.contains("/proc") && !t.contains("/sys") => t.to_string(),
+            Ok(t) if !t.contains("/dev") && !t.contains("/proc") && !t.contains("/sys") => {
+                t.to_string()
+            }
             _ => return,
         }
     } else {
@@ -87,7 +98,11 @@ fuzz_target!(|data: &[u8]| {
         1 => Target::Flux("s0".into()),
         _ => Target::Overall,
     };
-    let request = Request { target, max_terms: 20_000, ..Request::default() };
+    let request = Request {
+        target,
+        max_terms: 20_000,
+        ..Request::default()
+    };
     if let Ok(derivation) = derive(&model, &request) {
         let _ = derivation.eval(&|_| 1.5);
     }

@@ -9,7 +9,9 @@ use ratewright::model::load_str;
 use std::path::Path;
 
 fuzz_target!(|data: &[u8]| {
-    let Ok(text) = std::str::from_utf8(data) else { return };
+    let Ok(text) = std::str::from_utf8(data) else {
+        return;
+    };
     // `use` may name any path; keep the fuzzer away from device files that
     // never end (the file-size limit is tested separately).
     if text.contains("/dev") || text.contains("/proc") || text.contains("/sys") {
@@ -19,7 +21,10 @@ fuzz_target!(|data: &[u8]| {
     for d in &loaded.diagnostics {
         let _ = ratewright::diagnostics::render_human(d, &loaded.sources);
     }
-    if let Ok(tree) = ratewright::syntax::parse(text.strip_prefix('\u{FEFF}').unwrap_or(text), ratewright::diagnostics::FileId(0)) {
+    if let Ok(tree) = ratewright::syntax::parse(
+        text.strip_prefix('\u{FEFF}').unwrap_or(text),
+        ratewright::diagnostics::FileId(0),
+    ) {
         let formatted = ratewright::syntax::format::format_file(&tree, text);
         let _ = ratewright::syntax::parse(&formatted, ratewright::diagnostics::FileId(0));
     }
