@@ -1095,3 +1095,31 @@ fn a_scan_of_ten_billion_points_is_refused() {
         String::from_utf8_lossy(&out.stderr)
     );
 }
+
+/// Rewriting a file keeps its mode; a new output gets the mode a newly
+/// created file gets (0666 less the umask), never the temporary file's 0600.
+#[test]
+fn written_files_keep_or_get_ordinary_permissions() {
+    use std::os::unix::fs::PermissionsExt;
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let m = dir.path().join("m.mech");
+    std::fs::write(&m, "species A = 1 uM\nparam   k = 1 /s\nstep r A -> 0 with k\n").expect("write");
+    for mode in [0o644, 0o664, 0o600] {
+        std::fs::set_permissions(&m, std::fs::Permissions::from_mode(mode)).expect("chmod");
+        std::fs::write(&m, "species A = 1 uM\nparam   k = 1 /s\nstep r A -> 0 with k\n").expect("write");
+        let out = ratewright(&["fmt", m.to_str().expect("UTF-8")]);
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        assert!(std::fs::read_to_string(&m).expect("read").contains("param k = 1 /s"), "fmt did not rewrite");
+        let after = std::fs::metadata(&m).expect("metadata").permissions().mode() & 0o777;
+        assert_eq!(after, mode, "fmt changed the mode from {mode:o} to {after:o}");
+    }
+    // A new file: compare with what the system gives a file created here.
+    let reference = dir.path().join("reference");
+    std::fs::write(&reference, "").expect("write");
+    let expected = std::fs::metadata(&reference).expect("metadata").permissions().mode() & 0o777;
+    let csv = dir.path().join("out.csv");
+    let out = ratewright(&["run", m.to_str().expect("UTF-8"), "--points", "3", "-o", csv.to_str().expect("UTF-8")]);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let got = std::fs::metadata(&csv).expect("metadata").permissions().mode() & 0o777;
+    assert_eq!(got, expected, "new output has mode {got:o}, a new file here gets {expected:o}");
+}

@@ -79,11 +79,17 @@ pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(),
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let mut tmp = tempfile::Builder::new()
-        .prefix(".ratewright-")
-        .suffix(".tmp")
-        .tempfile_in(&dir)
-        .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
+    // A replaced file keeps its mode; a new one gets the mode of any new
+    // file (0666 less the umask), not the temporary file's private 0600.
+    let existing_mode = std::fs::metadata(path).ok().map(|m| m.permissions());
+    let mut builder = tempfile::Builder::new();
+    builder.prefix(".ratewright-").suffix(".tmp");
+    #[cfg(unix)]
+    builder.permissions(std::os::unix::fs::PermissionsExt::from_mode(0o666));
+    let mut tmp = builder.tempfile_in(&dir).map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
+    if let Some(mode) = existing_mode {
+        tmp.as_file().set_permissions(mode).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    }
     tmp.write_all(bytes).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     tmp.as_file().sync_all().map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     tmp.persist(path).map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
