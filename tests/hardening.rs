@@ -297,9 +297,14 @@ fn sigint_leaves_no_partial_file() {
                 }
             }
         }
-        let _ = Command::new("kill")
+        let kill = Command::new("kill")
             .args(["-INT", &child.id().to_string()])
-            .status();
+            .status()
+            .expect("the kill command runs");
+        assert!(
+            kill.success() || child.try_wait().expect("wait").is_some(),
+            "{stage}: kill -INT failed"
+        );
         let status = child.wait().expect("wait");
         let leftovers = temp_files_in(dir.path());
         assert!(
@@ -1103,25 +1108,73 @@ fn written_files_keep_or_get_ordinary_permissions() {
     use std::os::unix::fs::PermissionsExt;
     let dir = tempfile::tempdir().expect("a temp dir");
     let m = dir.path().join("m.mech");
-    std::fs::write(&m, "species A = 1 uM\nparam   k = 1 /s\nstep r A -> 0 with k\n").expect("write");
+    std::fs::write(
+        &m,
+        "species A = 1 uM\nparam   k = 1 /s\nstep r A -> 0 with k\n",
+    )
+    .expect("write");
     for mode in [0o644, 0o664, 0o600] {
         std::fs::set_permissions(&m, std::fs::Permissions::from_mode(mode)).expect("chmod");
-        std::fs::write(&m, "species A = 1 uM\nparam   k = 1 /s\nstep r A -> 0 with k\n").expect("write");
+        std::fs::write(
+            &m,
+            "species A = 1 uM\nparam   k = 1 /s\nstep r A -> 0 with k\n",
+        )
+        .expect("write");
         let out = ratewright(&["fmt", m.to_str().expect("UTF-8")]);
-        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
-        assert!(std::fs::read_to_string(&m).expect("read").contains("param k = 1 /s"), "fmt did not rewrite");
-        let after = std::fs::metadata(&m).expect("metadata").permissions().mode() & 0o777;
-        assert_eq!(after, mode, "fmt changed the mode from {mode:o} to {after:o}");
+        assert_eq!(
+            out.status.code(),
+            Some(0),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        assert!(
+            std::fs::read_to_string(&m)
+                .expect("read")
+                .contains("param k = 1 /s"),
+            "fmt did not rewrite"
+        );
+        let after = std::fs::metadata(&m)
+            .expect("metadata")
+            .permissions()
+            .mode()
+            & 0o777;
+        assert_eq!(
+            after, mode,
+            "fmt changed the mode from {mode:o} to {after:o}"
+        );
     }
     // A new file: compare with what the system gives a file created here.
     let reference = dir.path().join("reference");
     std::fs::write(&reference, "").expect("write");
-    let expected = std::fs::metadata(&reference).expect("metadata").permissions().mode() & 0o777;
+    let expected = std::fs::metadata(&reference)
+        .expect("metadata")
+        .permissions()
+        .mode()
+        & 0o777;
     let csv = dir.path().join("out.csv");
-    let out = ratewright(&["run", m.to_str().expect("UTF-8"), "--points", "3", "-o", csv.to_str().expect("UTF-8")]);
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
-    let got = std::fs::metadata(&csv).expect("metadata").permissions().mode() & 0o777;
-    assert_eq!(got, expected, "new output has mode {got:o}, a new file here gets {expected:o}");
+    let out = ratewright(&[
+        "run",
+        m.to_str().expect("UTF-8"),
+        "--points",
+        "3",
+        "-o",
+        csv.to_str().expect("UTF-8"),
+    ]);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let got = std::fs::metadata(&csv)
+        .expect("metadata")
+        .permissions()
+        .mode()
+        & 0o777;
+    assert_eq!(
+        got, expected,
+        "new output has mode {got:o}, a new file here gets {expected:o}"
+    );
 }
 
 /// Small mechanisms on which `derive` ran for seconds to minutes when
@@ -1131,12 +1184,23 @@ fn written_files_keep_or_get_ordinary_permissions() {
 #[ignore = "ratelaw/algebra (src/algebra/poly.rs Poly::gcd → gcd_monomial_free → content_in → pseudo_remainder): the recursive pseudo-remainder GCD blows up on small mechanisms (4 forms, 8 steps, one rapid-equilibrium step, --species P): 6.5 s, 6.6 s, 16.6 s and over 120 s in a release build"]
 fn derive_finishes_on_the_fuzzed_slow_mechanisms() {
     let dir = root().join("fuzz/regressions/derive_small_hangs");
-    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir).expect("the directory").filter_map(|e| e.ok().map(|e| e.path())).collect();
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .expect("the directory")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .collect();
     files.sort();
     for path in files {
         let text = std::fs::read_to_string(&path).expect("UTF-8");
-        let mut args = vec!["derive".to_string(), path.to_str().expect("UTF-8").to_string()];
-        if let Some(t) = text.lines().next().and_then(|l| l.split("derive target: ").nth(1)).map(|t| t.trim_end_matches(')')) {
+        let mut args = vec![
+            "derive".to_string(),
+            path.to_str().expect("UTF-8").to_string(),
+        ];
+        if let Some(t) = text
+            .lines()
+            .next()
+            .and_then(|l| l.split("derive target: ").nth(1))
+            .map(|t| t.trim_end_matches(')'))
+        {
             if let Some(s) = t.strip_prefix("species ") {
                 args.extend(["--species".to_string(), s.to_string()]);
             } else if let Some(s) = t.strip_prefix("flux ") {
@@ -1145,6 +1209,10 @@ fn derive_finishes_on_the_fuzzed_slow_mechanisms() {
         }
         let args: Vec<&str> = args.iter().map(String::as_str).collect();
         let out = ratewright_within(&args, Duration::from_secs(60));
-        assert!(out.is_some(), "{}: derive still running after 60 s", path.display());
+        assert!(
+            out.is_some(),
+            "{}: derive still running after 60 s",
+            path.display()
+        );
     }
 }
