@@ -235,15 +235,24 @@ fn assert_same(what: &str, derived: &str, published: &str) {
     let mut vars = Vars::new();
     let a = rational(derived, &mut vars);
     let b = rational(published, &mut vars);
-    assert!(a.equals(&b), "{what}: derived `{derived}` differs from the published `{published}`");
+    assert!(
+        a.equals(&b),
+        "{what}: derived `{derived}` differs from the published `{published}`"
+    );
 }
 
 fn constant<'a>(json: &'a Value, name: &str) -> &'a str {
-    json["constants"][name].as_str().unwrap_or_else(|| panic!("no constant `{name}` in {}", json["constants"]))
+    json["constants"][name]
+        .as_str()
+        .unwrap_or_else(|| panic!("no constant `{name}` in {}", json["constants"]))
 }
 
 fn numerator_denominator(json: &Value) -> String {
-    format!("({})/({})", json["numerator"].as_str().unwrap(), json["denominator"].as_str().unwrap())
+    format!(
+        "({})/({})",
+        json["numerator"].as_str().unwrap(),
+        json["denominator"].as_str().unwrap()
+    )
 }
 
 // ---------------------------------------------------------------------------
@@ -254,8 +263,16 @@ fn briggs_haldane_1925() {
     let m = write("bh", BRIGGS_HALDANE);
     let j = derive_json(&m.path, &[]);
     // Briggs & Haldane (1925): v = V S / (Km + S), V = k2 E_t, Km = (k-1 + k2)/k1.
-    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1 + S)");
-    assert_same("numerator/denominator", &numerator_denominator(&j), "k2*Et*S/((km1 + k2)/k1 + S)");
+    assert_same(
+        "rate",
+        j["rate"].as_str().unwrap(),
+        "k2*Et*S/((km1 + k2)/k1 + S)",
+    );
+    assert_same(
+        "numerator/denominator",
+        &numerator_denominator(&j),
+        "k2*Et*S/((km1 + k2)/k1 + S)",
+    );
     assert_same("kcat", constant(&j, "kcat"), "k2");
     assert_same("Km", constant(&j, "Km_S"), "(km1 + k2)/k1");
     assert_eq!(j["rate_of"]["reaction"], "S -> P");
@@ -288,26 +305,50 @@ fn reversible_michaelis_menten_and_haldane_1930() {
         text = text.replace(name, &format!("({})", constant(&j, name)));
     }
     let lhs = rational(constant(&j, "Keq"), &mut vars);
-    assert!(lhs.equals(&rational(&text, &mut vars)), "Haldane relation {rhs} does not reproduce Keq");
+    assert!(
+        lhs.equals(&rational(&text, &mut vars)),
+        "Haldane relation {rhs} does not reproduce Keq"
+    );
     assert_eq!(j["rate_of"]["reaction"], "S <=> P");
 }
 
 #[test]
 fn competitive_inhibition_segel_1975() {
-    let m = write("comp", &inhibited("species EI", "step block E + I <=> EI with ki, kmi", "EI"));
+    let m = write(
+        "comp",
+        &inhibited("species EI", "step block E + I <=> EI with ki, kmi", "EI"),
+    );
     let j = derive_json(&m.path, &[]);
     // Segel (1975), Enzyme Kinetics, ch. 3: v = V S / (Km (1 + I/Ki) + S), Ki = k-i/ki.
-    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1*(1 + I/(kmi/ki)) + S)");
+    assert_same(
+        "rate",
+        j["rate"].as_str().unwrap(),
+        "k2*Et*S/((km1 + k2)/k1*(1 + I/(kmi/ki)) + S)",
+    );
     assert_same("Ki", constant(&j, "Ki_I"), "kmi/ki");
-    assert!(j["constants"].get("Kii_I").is_none(), "a competitive inhibitor has no intercept constant");
+    assert!(
+        j["constants"].get("Kii_I").is_none(),
+        "a competitive inhibitor has no intercept constant"
+    );
 }
 
 #[test]
 fn uncompetitive_inhibition_segel_1975() {
-    let m = write("uncomp", &inhibited("species ESI", "step block ES + I <=> ESI with kiu, kmiu", "ESI"));
+    let m = write(
+        "uncomp",
+        &inhibited(
+            "species ESI",
+            "step block ES + I <=> ESI with kiu, kmiu",
+            "ESI",
+        ),
+    );
     let j = derive_json(&m.path, &[]);
     // Segel (1975), ch. 3: v = V S / (Km + S (1 + I/Ki')), Ki' = k-i/ki for ESI.
-    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1 + S*(1 + I/(kmiu/kiu)))");
+    assert_same(
+        "rate",
+        j["rate"].as_str().unwrap(),
+        "k2*Et*S/((km1 + k2)/k1 + S*(1 + I/(kmiu/kiu)))",
+    );
     assert_same("Kii", constant(&j, "Kii_I"), "kmiu/kiu");
     assert!(j["constants"].get("Ki_I").is_none());
 }
@@ -321,7 +362,10 @@ fn mixed_inhibition_segel_1975() {
             "step block_e E + I <=> EI with ki, kmi\nstep block_es ES + I <=> ESI with kiu, kmiu",
             "EI + ESI",
         )
-        .replace("assume steady E, ES, EI + ESI", "assume steady E, ES, EI, ESI"),
+        .replace(
+            "assume steady E, ES, EI + ESI",
+            "assume steady E, ES, EI, ESI",
+        ),
     );
     let j = derive_json(&m.path, &[]);
     // Segel (1975), ch. 3 (mixed-type, dead-end EI and ESI):
@@ -338,7 +382,11 @@ fn substrate_inhibition_haldane_1930_segel_1975() {
     let j = derive_json(&m.path, &[]);
     // Segel (1975), ch. 3 (after Haldane 1930): v = V S / (Km + S + S^2/KSi),
     // KSi = k-3/k3 for the dead-end SES complex.
-    assert_same("rate", j["rate"].as_str().unwrap(), "k2*Et*S/((km1 + k2)/k1 + S + S^2/(km3/k3))");
+    assert_same(
+        "rate",
+        j["rate"].as_str().unwrap(),
+        "k2*Et*S/((km1 + k2)/k1 + S + S^2/(km3/k3))",
+    );
     assert_same("KSi", constant(&j, "Ksi_S"), "km3/k3");
     assert_same("Km", constant(&j, "Km_S"), "(km1 + k2)/k1");
 }
@@ -413,7 +461,10 @@ fn rapid_equilibrium_random_bi_bi_segel_1975() {
     assert_same("Kia", constant(&j, "Ki_A"), ka);
     assert_same("Km_B (alpha KB)", constant(&j, "Km_B"), akb);
     let notes = j["notes"].to_string();
-    assert!(notes.contains("cycle") && notes.contains("a_second"), "the closed cycle of equilibria is reported: {notes}");
+    assert!(
+        notes.contains("cycle") && notes.contains("a_second"),
+        "the closed cycle of equilibria is reported: {notes}"
+    );
 }
 
 /// Michaelis & Menten (1913): with the binding step at rapid equilibrium
@@ -424,13 +475,20 @@ fn options_override_assumptions_michaelis_menten_1913() {
     let p = protease.to_string_lossy().to_string();
     let j = derive_json(&protease, &["--equilibrium", "bind"]);
     assert_same("Km", constant(&j, "Km_S"), "k_off/k_on");
-    assert_same("rate", j["rate"].as_str().unwrap(), "k_cat*E_t*S/(k_off/k_on + S)");
+    assert_same(
+        "rate",
+        j["rate"].as_str().unwrap(),
+        "k_cat*E_t*S/(k_off/k_on + S)",
+    );
     // --steady names the forms explicitly; an unknown name is a usage error.
     let j2 = derive_json(&protease, &["--steady", "E,ES"]);
     assert_same("Km", constant(&j2, "Km_S"), "(k_off + k_cat)/k_on");
     let bad = ratewright(&["derive", &p, "--steady", "E,ESS"]);
     assert_eq!(bad.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&bad.stderr).contains("ES"), "suggests the close name");
+    assert!(
+        String::from_utf8_lossy(&bad.stderr).contains("ES"),
+        "suggests the close name"
+    );
 }
 
 // ---------------------------------------------------------------------------
@@ -459,7 +517,10 @@ assume steady E, E2, E2S
     let out = ratewright(&["derive", &p]);
     assert_eq!(out.status.code(), Some(1));
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(err.contains("E0601") && err.contains("dimerise") && err.contains("nonlinear"), "{err}");
+    assert!(
+        err.contains("E0601") && err.contains("dimerise") && err.contains("nonlinear"),
+        "{err}"
+    );
     assert!(err.contains("E + E"), "points at the step text: {err}");
     let json = ratewright(&["derive", &p, "--format", "json"]);
     let v: Value = serde_json::from_slice(&json.stdout).expect("diagnostics as JSON");
@@ -494,11 +555,23 @@ assume steady E, ES
     // Both branches share Km = (k-1 + k2 + k3)/k1 (common practice).
     let km = "((km1 + k2 + k3)/k1)";
     let jp = derive_json(&m.path, &["--species", "P"]);
-    assert_same("dP/dt", jp["rate"].as_str().unwrap(), &format!("k2*Et*S/({km} + S)"));
+    assert_same(
+        "dP/dt",
+        jp["rate"].as_str().unwrap(),
+        &format!("k2*Et*S/({km} + S)"),
+    );
     let jq = derive_json(&m.path, &["--flux", "to_q"]);
-    assert_same("to_q", jq["rate"].as_str().unwrap(), &format!("k3*Et*S/({km} + S)"));
+    assert_same(
+        "to_q",
+        jq["rate"].as_str().unwrap(),
+        &format!("k3*Et*S/({km} + S)"),
+    );
     let js = derive_json(&m.path, &["--species", "S"]);
-    assert_same("dS/dt", js["rate"].as_str().unwrap(), &format!("-(k2 + k3)*Et*S/({km} + S)"));
+    assert_same(
+        "dS/dt",
+        js["rate"].as_str().unwrap(),
+        &format!("-(k2 + k3)*Et*S/({km} + S)"),
+    );
 }
 
 #[test]
@@ -511,9 +584,16 @@ fn size_limit_is_reported_and_can_be_raised() {
     let out = ratewright(&["derive", &p, "--equilibrium", "", "--max-terms", "5"]);
     assert_eq!(out.status.code(), Some(1));
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(err.contains("E0603") && err.contains("--max-terms"), "{err}");
+    assert!(
+        err.contains("E0603") && err.contains("--max-terms"),
+        "{err}"
+    );
     let ok = ratewright(&["derive", &p, "--equilibrium", "", "--max-terms", "1000"]);
-    assert!(ok.status.success(), "{}", String::from_utf8_lossy(&ok.stderr));
+    assert!(
+        ok.status.success(),
+        "{}",
+        String::from_utf8_lossy(&ok.stderr)
+    );
 }
 
 #[test]
@@ -522,14 +602,26 @@ fn mech_output_is_a_runnable_mechanism() {
     for model in ["protease_assay", "dehydrogenase_ordered"] {
         let src = root().join(format!("models/{model}.mech"));
         let out = dir.path().join(format!("{model}_rate.mech"));
-        let (s, o) = (src.to_string_lossy().to_string(), out.to_string_lossy().to_string());
+        let (s, o) = (
+            src.to_string_lossy().to_string(),
+            out.to_string_lossy().to_string(),
+        );
         let r = ratewright(&["derive", &s, "--format", "mech", "-o", &o]);
         assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
         let check = ratewright(&["check", &o]);
-        assert!(check.status.success(), "check rejects the derived mechanism:\n{}\n{}", std::fs::read_to_string(&out).unwrap(), String::from_utf8_lossy(&check.stderr));
+        assert!(
+            check.status.success(),
+            "check rejects the derived mechanism:\n{}\n{}",
+            std::fs::read_to_string(&out).unwrap(),
+            String::from_utf8_lossy(&check.stderr)
+        );
         let csv = dir.path().join(format!("{model}.csv"));
         let run = ratewright(&["run", &o, "--until", "10", "-o", &csv.to_string_lossy()]);
-        assert!(run.status.success(), "{}", String::from_utf8_lossy(&run.stderr));
+        assert!(
+            run.status.success(),
+            "{}",
+            String::from_utf8_lossy(&run.stderr)
+        );
         // The derived law, loaded by the front end, gives the same rate as
         // the JSON form at the file's initial state.
         let loaded = load_path(&out);
@@ -538,10 +630,16 @@ fn mech_output_is_a_runnable_mechanism() {
         let v_mech = dm.eval_at(&law, &dm.initial_state(), 0.0);
         let j = derive_json(&src, &[]);
         let v_json = eval_rate(j["rate"].as_str().unwrap(), &dm);
-        assert!((v_mech - v_json).abs() <= 1e-12 * v_json.abs(), "{v_mech} vs {v_json}");
+        assert!(
+            (v_mech - v_json).abs() <= 1e-12 * v_json.abs(),
+            "{v_mech} vs {v_json}"
+        );
     }
     // The latex form is a math environment.
-    let s = root().join("models/protease_assay.mech").to_string_lossy().to_string();
+    let s = root()
+        .join("models/protease_assay.mech")
+        .to_string_lossy()
+        .to_string();
     let tex = ratewright(&["derive", &s, "--format", "latex"]);
     assert!(String::from_utf8_lossy(&tex.stdout).contains("\\frac{"));
 }
@@ -554,7 +652,9 @@ fn eval_rate(text: &str, m: &Model) -> f64 {
     let values: Vec<f64> = (0..vars.len())
         .map(|v| {
             let name = vars.name(v as u32);
-            let sym = m.lookup(name).unwrap_or_else(|| panic!("`{name}` is not in the model"));
+            let sym = m
+                .lookup(name)
+                .unwrap_or_else(|| panic!("`{name}` is not in the model"));
             m.initial_value(sym)
         })
         .collect();
@@ -575,12 +675,23 @@ fn clamped(text: &str, forms: &[String]) -> String {
             continue;
         }
         if let Some(rest) = t.strip_prefix("species ") {
-            let name: String = rest.trim_start().chars().take_while(|c| c.is_alphanumeric() || *c == '_').collect();
+            let name: String = rest
+                .trim_start()
+                .chars()
+                .take_while(|c| c.is_alphanumeric() || *c == '_')
+                .collect();
             let before_comment = rest.split('#').next().unwrap_or("");
-            assert!(!before_comment.split('"').next().unwrap_or("").contains(','), "one species a line expected: {line}");
+            assert!(
+                !before_comment.split('"').next().unwrap_or("").contains(','),
+                "one species a line expected: {line}"
+            );
             if !forms.contains(&name) {
                 let has_value = before_comment.split('"').next().unwrap_or("").contains('=');
-                let body = if has_value { rest.to_string() } else { rest.replacen(&name, &format!("{name} = 1"), 1) };
+                let body = if has_value {
+                    rest.to_string()
+                } else {
+                    rest.replacen(&name, &format!("{name} = 1"), 1)
+                };
                 out.push_str(&format!("fixed {body}\n"));
                 continue;
             }
@@ -608,15 +719,29 @@ impl Rng {
 }
 
 fn steady_check(path: &Path, points: usize) {
-    let model = load_path(path).model.unwrap_or_else(|| panic!("{} loads", path.display()));
-    let forms: Vec<String> = model.assumptions.steady.iter().map(|(i, _)| model.species[*i].name.clone()).collect();
+    let model = load_path(path)
+        .model
+        .unwrap_or_else(|| panic!("{} loads", path.display()));
+    let forms: Vec<String> = model
+        .assumptions
+        .steady
+        .iter()
+        .map(|(i, _)| model.species[*i].name.clone())
+        .collect();
     let text = std::fs::read_to_string(path).unwrap();
     let variant = write("clamped", &clamped(&text, &forms));
     let j = derive_json(path, &[]);
     let rate_text = j["rate"].as_str().unwrap().to_string();
-    let product = j["rate_of"]["products"].as_object().and_then(|m| m.iter().next()).map(|(k, v)| (k.clone(), v.as_f64().unwrap()));
+    let product = j["rate_of"]["products"]
+        .as_object()
+        .and_then(|m| m.iter().next())
+        .map(|(k, v)| (k.clone(), v.as_f64().unwrap()));
     let (product, nu) = product.expect("an overall reaction with a product");
-    let product_index = model.species.iter().position(|s| s.name == product).unwrap();
+    let product_index = model
+        .species
+        .iter()
+        .position(|s| s.name == product)
+        .unwrap();
     let mut rng = Rng(0x5EED ^ path.to_string_lossy().len() as u64);
     for point in 0..points {
         let mut sets: Vec<(String, f64)> = Vec::new();
@@ -641,14 +766,24 @@ fn steady_check(path: &Path, points: usize) {
         }
         let argv: Vec<&str> = args.iter().map(String::as_str).collect();
         let out = ratewright(&argv);
-        assert!(out.status.success(), "steady failed at point {point}: {}", String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "steady failed at point {point}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
         let sj: Value = serde_json::from_slice(&out.stdout).unwrap();
         // Full-mechanism flux from the numerical steady state.
         let m = model.with_overrides(&sets).unwrap();
         let y: Vec<f64> = m
             .species
             .iter()
-            .map(|s| if forms.contains(&s.name) { sj["state"][&s.name].as_f64().unwrap() } else { s.initial })
+            .map(|s| {
+                if forms.contains(&s.name) {
+                    sj["state"][&s.name].as_f64().unwrap()
+                } else {
+                    s.initial
+                }
+            })
             .collect();
         let numeric: f64 = (0..m.steps.len())
             .flat_map(|k| m.net_change(k).into_iter().map(move |(i, c)| (k, i, c)))
@@ -663,7 +798,11 @@ fn steady_check(path: &Path, points: usize) {
             .map(|v| {
                 let name = vars.name(v as u32);
                 match m.lookup(name) {
-                    Some(Sym::Total(t)) => m.totals[t].terms.iter().map(|(i, c)| ratewright::model::coef_f64(*c) * y[*i]).sum(),
+                    Some(Sym::Total(t)) => m.totals[t]
+                        .terms
+                        .iter()
+                        .map(|(i, c)| ratewright::model::coef_f64(*c) * y[*i])
+                        .sum(),
                     Some(s) => m.value_at(s, &y, 0.0),
                     None => panic!("`{name}` unknown"),
                 }
@@ -671,18 +810,31 @@ fn steady_check(path: &Path, points: usize) {
             .collect();
         let derived = r.eval(&|v| values[v as usize]);
         let rel = (derived - numeric).abs() / numeric.abs().max(1e-300);
-        assert!(rel <= 1e-8, "{}: point {point}: derived {derived} vs steady {numeric} (rel {rel:e})", path.display());
+        assert!(
+            rel <= 1e-8,
+            "{}: point {point}: derived {derived} vs steady {numeric} (rel {rel:e})",
+            path.display()
+        );
     }
 }
 
 fn touched(m: &Model, i: usize) -> bool {
-    m.steps.iter().any(|s| s.reactants.iter().chain(&s.products).any(|t| t.sym == Sym::Species(i)))
+    m.steps.iter().any(|s| {
+        s.reactants
+            .iter()
+            .chain(&s.products)
+            .any(|t| t.sym == Sym::Species(i))
+    })
 }
 
 fn models_with_assumptions() -> Vec<PathBuf> {
     models()
         .into_iter()
-        .filter(|p| std::fs::read_to_string(p).map(|t| t.lines().any(|l| l.trim_start().starts_with("assume"))).unwrap_or(false))
+        .filter(|p| {
+            std::fs::read_to_string(p)
+                .map(|t| t.lines().any(|l| l.trim_start().starts_with("assume")))
+                .unwrap_or(false)
+        })
         .collect()
 }
 
@@ -699,7 +851,12 @@ fn derived_rates_equal_numerical_steady_state_fluxes() {
         }
         steady_check(&path, 20);
     }
-    for (name, text) in [("bh", BRIGGS_HALDANE), ("pp", PING_PONG), ("tc", THEORELL_CHANCE), ("si", SUBSTRATE_INHIBITION)] {
+    for (name, text) in [
+        ("bh", BRIGGS_HALDANE),
+        ("pp", PING_PONG),
+        ("tc", THEORELL_CHANCE),
+        ("si", SUBSTRATE_INHIBITION),
+    ] {
         let m = write(name, text);
         steady_check(&m.path, 20);
     }
@@ -719,12 +876,25 @@ fn sympy_spec(path: &Path) -> Option<Value> {
                 terms
                     .iter()
                     .filter(|t| matches!(t.sym, Sym::Species(_) | Sym::Fixed(_)))
-                    .map(|t| (name(t.sym), serde_json::json!(ratewright::model::coef_f64(t.coefficient) as i64)))
+                    .map(|t| {
+                        (
+                            name(t.sym),
+                            serde_json::json!(ratewright::model::coef_f64(t.coefficient) as i64),
+                        )
+                    })
                     .collect(),
             )
         };
-        let Rate::MassAction { forward, reverse } = &st.rate else { return None };
-        let print = |e: &ratewright::model::Expr| ratewright::algebra::print::print_expr(e, &name, ratewright::algebra::print::Syntax::Mech);
+        let Rate::MassAction { forward, reverse } = &st.rate else {
+            return None;
+        };
+        let print = |e: &ratewright::model::Expr| {
+            ratewright::algebra::print::print_expr(
+                e,
+                &name,
+                ratewright::algebra::print::Syntax::Mech,
+            )
+        };
         steps.push(serde_json::json!({
             "name": st.name,
             "reactants": side(&st.reactants),
@@ -733,7 +903,11 @@ fn sympy_spec(path: &Path) -> Option<Value> {
             "kr": reverse.as_ref().map(print),
         }));
     }
-    let (product, nu) = j["rate_of"]["products"].as_object()?.iter().next().map(|(k, v)| (k.clone(), v.clone()))?;
+    let (product, nu) = j["rate_of"]["products"]
+        .as_object()?
+        .iter()
+        .next()
+        .map(|(k, v)| (k.clone(), v.clone()))?;
     Some(serde_json::json!({
         "forms": model.assumptions.steady.iter().map(|(i, _)| model.species[*i].name.clone()).collect::<Vec<_>>(),
         "total": j["totals"][0]["name"],
@@ -758,8 +932,18 @@ fn sympy_solution_of_the_same_linear_system_agrees() {
         ("pp", PING_PONG.to_string()),
         ("tc", THEORELL_CHANCE.to_string()),
         ("rerandom", RAPID_EQUILIBRIUM_RANDOM_BI_BI.to_string()),
-        ("mixed", inhibited("species EI\nspecies ESI", "step b1 E + I <=> EI with ki, kmi\nstep b2 ES + I <=> ESI with kiu, kmiu", "EI, ESI")
-            .replace("total Et = E + ES + EI, ESI", "total Et = E + ES + EI + ESI")),
+        (
+            "mixed",
+            inhibited(
+                "species EI\nspecies ESI",
+                "step b1 E + I <=> EI with ki, kmi\nstep b2 ES + I <=> ESI with kiu, kmiu",
+                "EI, ESI",
+            )
+            .replace(
+                "total Et = E + ES + EI, ESI",
+                "total Et = E + ES + EI + ESI",
+            ),
+        ),
     ] {
         let w = write(name, &text);
         paths.push(w.path.clone());
@@ -768,16 +952,30 @@ fn sympy_solution_of_the_same_linear_system_agrees() {
     let script = root().join("tests/python/derive_sympy.py");
     let mut failures = Vec::new();
     for (k, path) in paths.iter().enumerate() {
-        let spec = sympy_spec(path).unwrap_or_else(|| panic!("{}: mass-action model with an overall product", path.display()));
+        let spec = sympy_spec(path).unwrap_or_else(|| {
+            panic!(
+                "{}: mass-action model with an overall product",
+                path.display()
+            )
+        });
         let spec_path = dir.path().join(format!("spec{k}.json"));
         std::fs::write(&spec_path, spec.to_string()).unwrap();
         let out = python(&script, &[&spec_path.to_string_lossy()]);
         let stdout = String::from_utf8_lossy(&out.stdout);
-        assert!(out.status.success(), "SymPy script failed on {}:\n{}", path.display(), String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "SymPy script failed on {}:\n{}",
+            path.display(),
+            String::from_utf8_lossy(&out.stderr)
+        );
         let v: Value = serde_json::from_str(stdout.trim()).unwrap();
         if v["ok"] != true {
             failures.push(format!("{}: {}", path.display(), v["difference"]));
         }
     }
-    assert!(failures.is_empty(), "SymPy disagrees:\n{}", failures.join("\n"));
+    assert!(
+        failures.is_empty(),
+        "SymPy disagrees:\n{}",
+        failures.join("\n")
+    );
 }

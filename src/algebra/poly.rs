@@ -52,7 +52,11 @@ impl Monomial {
         self.0.iter().map(|(_, e)| e).sum()
     }
     pub fn exponent(&self, v: Var) -> u32 {
-        self.0.iter().find(|(w, _)| *w == v).map(|(_, e)| *e).unwrap_or(0)
+        self.0
+            .iter()
+            .find(|(w, _)| *w == v)
+            .map(|(_, e)| *e)
+            .unwrap_or(0)
     }
     pub fn mul(&self, other: &Monomial) -> Monomial {
         let (a, b) = (&self.0, &other.0);
@@ -149,7 +153,10 @@ impl Monomial {
         })
     }
     pub fn eval(&self, value: &dyn Fn(Var) -> f64) -> f64 {
-        self.0.iter().map(|&(v, e)| value(v).powi(e as i32)).product()
+        self.0
+            .iter()
+            .map(|&(v, e)| value(v).powi(e as i32))
+            .product()
     }
 }
 
@@ -255,7 +262,9 @@ impl Poly {
         self.add(&other.neg())
     }
     pub fn neg(&self) -> Poly {
-        Poly { terms: self.terms.iter().map(|(m, c)| (m.clone(), -c)).collect() }
+        Poly {
+            terms: self.terms.iter().map(|(m, c)| (m.clone(), -c)).collect(),
+        }
     }
     pub fn mul(&self, other: &Poly) -> Poly {
         // One side a single term: the products stay distinct, so no merging.
@@ -263,7 +272,11 @@ impl Poly {
             let rest = if other.terms.len() == 1 { self } else { other };
             let one = c.is_one();
             return Poly {
-                terms: rest.terms.iter().map(|(n, d)| (n.mul(m), if one { d.clone() } else { d * c })).collect(),
+                terms: rest
+                    .terms
+                    .iter()
+                    .map(|(n, d)| (n.mul(m), if one { d.clone() } else { d * c }))
+                    .collect(),
             };
         }
         let mut p = Poly::zero();
@@ -271,16 +284,28 @@ impl Poly {
         p
     }
     fn single_term(&self) -> Option<(&Monomial, &BigRational)> {
-        if self.terms.len() == 1 { self.terms.iter().next() } else { None }
+        if self.terms.len() == 1 {
+            self.terms.iter().next()
+        } else {
+            None
+        }
     }
     pub fn scale(&self, c: &BigRational) -> Poly {
         if c.is_zero() {
             return Poly::zero();
         }
-        Poly { terms: self.terms.iter().map(|(m, d)| (m.clone(), d * c)).collect() }
+        Poly {
+            terms: self.terms.iter().map(|(m, d)| (m.clone(), d * c)).collect(),
+        }
     }
     pub fn mul_monomial(&self, m: &Monomial) -> Poly {
-        Poly { terms: self.terms.iter().map(|(n, c)| (n.mul(m), c.clone())).collect() }
+        Poly {
+            terms: self
+                .terms
+                .iter()
+                .map(|(n, c)| (n.mul(m), c.clone()))
+                .collect(),
+        }
     }
     pub fn pow(&self, e: u32) -> Poly {
         let mut acc = Poly::one();
@@ -292,7 +317,10 @@ impl Poly {
 
     /// Every variable that occurs.
     pub fn vars(&self) -> BTreeSet<Var> {
-        self.terms.keys().flat_map(|m| m.0.iter().map(|(v, _)| *v)).collect()
+        self.terms
+            .keys()
+            .flat_map(|m| m.0.iter().map(|(v, _)| *v))
+            .collect()
     }
     pub fn degree_in(&self, v: Var) -> u32 {
         self.terms.keys().map(|m| m.exponent(v)).max().unwrap_or(0)
@@ -338,7 +366,10 @@ impl Poly {
         out
     }
     pub fn eval(&self, value: &dyn Fn(Var) -> f64) -> f64 {
-        self.terms.iter().map(|(m, c)| c.to_f64().unwrap_or(f64::NAN) * m.eval(value)).sum()
+        self.terms
+            .iter()
+            .map(|(m, c)| c.to_f64().unwrap_or(f64::NAN) * m.eval(value))
+            .sum()
     }
 
     /// Groups terms by their monomial in the variables `keep` selects:
@@ -355,7 +386,9 @@ impl Poly {
     /// The greatest monomial dividing every term (1 for zero).
     pub fn monomial_content(&self) -> Monomial {
         let mut it = self.terms.keys();
-        let Some(first) = it.next() else { return Monomial::one() };
+        let Some(first) = it.next() else {
+            return Monomial::one();
+        };
         it.fold(first.clone(), |g, m| g.gcd(m))
     }
     /// `self / m`; every term must be divisible.
@@ -375,7 +408,11 @@ impl Poly {
             num = num.gcd(c.numer());
             den = den.lcm(c.denom());
         }
-        if num.is_zero() { BigRational::one() } else { BigRational::new(num, den) }
+        if num.is_zero() {
+            BigRational::one()
+        } else {
+            BigRational::new(num, den)
+        }
     }
     /// Leading term in graded lexicographic order.
     pub fn leading(&self) -> Option<(&Monomial, &BigRational)> {
@@ -383,7 +420,9 @@ impl Poly {
     }
     /// Scales to coprime integer coefficients with a positive leading coefficient.
     pub fn normalized(&self) -> Poly {
-        let Some((_, lc)) = self.leading() else { return Poly::zero() };
+        let Some((_, lc)) = self.leading() else {
+            return Poly::zero();
+        };
         let mut c = self.content();
         if lc.is_negative() {
             c = -c;
@@ -425,9 +464,15 @@ impl Poly {
             return self.normalized();
         }
         let mono = self.monomial_content().gcd(&other.monomial_content());
-        let a = self.div_monomial(&self.monomial_content()).unwrap_or_else(|| self.clone());
-        let b = other.div_monomial(&other.monomial_content()).unwrap_or_else(|| other.clone());
-        gcd_monomial_free(&a.normalized(), &b.normalized()).mul_monomial(&mono).normalized()
+        let a = self
+            .div_monomial(&self.monomial_content())
+            .unwrap_or_else(|| self.clone());
+        let b = other
+            .div_monomial(&other.monomial_content())
+            .unwrap_or_else(|| other.clone());
+        gcd_monomial_free(&a.normalized(), &b.normalized())
+            .mul_monomial(&mono)
+            .normalized()
     }
 
     /// A fast test that `gcd(self, other)` has no factor beyond a
@@ -441,7 +486,10 @@ impl Poly {
         let all: BTreeSet<Var> = self.vars().union(&other.vars()).copied().collect();
         let size = all.iter().next_back().map(|v| *v as usize + 1).unwrap_or(0);
         let point: Vec<u64> = (0..size).map(|v| modp::random(v as u64 + 1)).collect();
-        let (Some(a), Some(b)) = (ImageTable::new(self, &point), ImageTable::new(other, &point)) else {
+        let (Some(a), Some(b)) = (
+            ImageTable::new(self, &point),
+            ImageTable::new(other, &point),
+        ) else {
             return false;
         };
         for &x in &shared {
@@ -459,7 +507,10 @@ impl Poly {
     /// constant); see [`super::rational::RationalFunction::parse`].
     pub fn parse(text: &str, vars: &mut Vars) -> Result<Poly, String> {
         let r = super::rational::RationalFunction::parse(text, vars)?;
-        let d = r.den.as_constant().ok_or_else(|| format!("`{text}` is not a polynomial"))?;
+        let d = r
+            .den
+            .as_constant()
+            .ok_or_else(|| format!("`{text}` is not a polynomial"))?;
         Ok(r.num.scale(&d.recip()))
     }
 }
@@ -477,7 +528,14 @@ impl<'a> ImageTable<'a> {
         for (m, c) in poly.terms() {
             let mut v = modp::from_rational(c)?;
             for &(w, e) in m.pairs() {
-                v = modp::mul(v, if e == 1 { point[w as usize] } else { modp::pow(point[w as usize], e as u64) });
+                v = modp::mul(
+                    v,
+                    if e == 1 {
+                        point[w as usize]
+                    } else {
+                        modp::pow(point[w as usize], e as u64)
+                    },
+                );
             }
             values.push(v);
         }
@@ -605,7 +663,9 @@ fn gcd_monomial_free(a: &Poly, b: &Poly) -> Poly {
     }
     let va = a.vars();
     let vb = b.vars();
-    let Some(&x) = va.iter().chain(vb.iter()).min() else { return Poly::one() };
+    let Some(&x) = va.iter().chain(vb.iter()).min() else {
+        return Poly::one();
+    };
     if !va.contains(&x) {
         return gcd_monomial_free(a, &content_in(b, x));
     }
@@ -617,7 +677,11 @@ fn gcd_monomial_free(a: &Poly, b: &Poly) -> Poly {
     let pa = a.div_exact(&ca).unwrap_or_else(|| a.clone());
     let pb = b.div_exact(&cb).unwrap_or_else(|| b.clone());
     let g_content = gcd_monomial_free(&ca, &cb);
-    let (mut p, mut q) = if pa.degree_in(x) >= pb.degree_in(x) { (pa, pb) } else { (pb, pa) };
+    let (mut p, mut q) = if pa.degree_in(x) >= pb.degree_in(x) {
+        (pa, pb)
+    } else {
+        (pb, pa)
+    };
     loop {
         let r = pseudo_remainder(&p, &q, x);
         if r.is_zero() {
@@ -642,7 +706,11 @@ fn content_in(p: &Poly, x: Var) -> Poly {
         if c.is_zero() {
             continue;
         }
-        g = if g.is_zero() { c.normalized() } else { c.gcd(&g) };
+        g = if g.is_zero() {
+            c.normalized()
+        } else {
+            c.gcd(&g)
+        };
         if g.as_constant().is_some() {
             return Poly::one();
         }
@@ -689,7 +757,10 @@ impl Vars {
         self.index.get(name).copied()
     }
     pub fn name(&self, v: Var) -> &str {
-        self.names.get(v as usize).map(String::as_str).unwrap_or("?")
+        self.names
+            .get(v as usize)
+            .map(String::as_str)
+            .unwrap_or("?")
     }
     pub fn len(&self) -> usize {
         self.names.len()
@@ -725,7 +796,11 @@ impl Printer<'_> {
             Syntax::Mech | Syntax::Plain => name.to_string(),
             Syntax::Latex => {
                 let body = super::print::latex_name(name);
-                if (self.is_concentration)(v) { format!("[{body}]") } else { body }
+                if (self.is_concentration)(v) {
+                    format!("[{body}]")
+                } else {
+                    body
+                }
             }
         }
     }
@@ -803,7 +878,10 @@ impl Printer<'_> {
         if lead_negative {
             c = -c;
         }
-        let rest = p.div_monomial(&mono).unwrap_or_else(|| p.clone()).scale(&c.recip());
+        let rest = p
+            .div_monomial(&mono)
+            .unwrap_or_else(|| p.clone())
+            .scale(&c.recip());
         let mut factors: Vec<String> = Vec::new();
         if !c.abs().is_one() {
             factors.push(self.number(&c.abs()));
@@ -816,7 +894,11 @@ impl Printer<'_> {
         if factors.is_empty() {
             return format!("{sign}{rest_text}");
         }
-        let paren = if self.syntax == Syntax::Latex { format!("\\left({rest_text}\\right)") } else { format!("({rest_text})") };
+        let paren = if self.syntax == Syntax::Latex {
+            format!("\\left({rest_text}\\right)")
+        } else {
+            format!("({rest_text})")
+        };
         factors.push(paren);
         format!("{sign}{}", factors.join(self.times()))
     }
@@ -824,7 +906,9 @@ impl Printer<'_> {
     pub fn factor(&self, p: &Poly) -> String {
         let text = self.factored(p);
         let is_product = p.len() <= 1 && !p.terms().next().is_some_and(|(_, c)| c.is_negative());
-        if is_product || (p.len() > 1 && p.monomial_content() != Monomial::one() && !text.starts_with('-')) {
+        if is_product
+            || (p.len() > 1 && p.monomial_content() != Monomial::one() && !text.starts_with('-'))
+        {
             text
         } else if self.syntax == Syntax::Latex {
             format!("\\left({text}\\right)")
@@ -844,14 +928,19 @@ impl Printer<'_> {
         let mut out = String::new();
         for (i, m) in keys.iter().enumerate() {
             let coef = &groups[*m];
-            let negative = coef.len() == 1 && coef.terms().next().is_some_and(|(_, c)| c.is_negative());
+            let negative =
+                coef.len() == 1 && coef.terms().next().is_some_and(|(_, c)| c.is_negative());
             let coef = if negative { coef.neg() } else { coef.clone() };
             if i > 0 {
                 out.push_str(if negative { " - " } else { " + " });
             } else if negative {
                 out.push('-');
             }
-            let c = if coef.len() > 1 && !m.is_one() { self.factor(&coef) } else { self.factored(&coef) };
+            let c = if coef.len() > 1 && !m.is_one() {
+                self.factor(&coef)
+            } else {
+                self.factored(&coef)
+            };
             if m.is_one() {
                 out.push_str(&c);
             } else if coef.is_one() {
@@ -887,13 +976,19 @@ mod tests {
         let f = p("(k4 + k5)*(k2 + k7*S)", &mut v);
         let g = p("(k4 + k5)*(k1 + S)*k3", &mut v);
         assert_eq!(f.gcd(&g), p("k4 + k5", &mut v));
-        assert_eq!(f.div_exact(&p("k4 + k5", &mut v)), Some(p("k2 + k7*S", &mut v)));
+        assert_eq!(
+            f.div_exact(&p("k4 + k5", &mut v)),
+            Some(p("k2 + k7*S", &mut v))
+        );
         assert_eq!(f.div_exact(&p("k1 + S", &mut v)), None);
         // x^2 - y^2 and x^2 + 2xy + y^2 share x + y (common practice)
         let a = p("x^2 - y^2", &mut v);
         let b = p("x^2 + 2*x*y + y^2", &mut v);
         assert_eq!(a.gcd(&b), p("x + y", &mut v));
-        assert_eq!(p("3*x*y^2", &mut v).gcd(&p("6*x^2*y", &mut v)), p("x*y", &mut v));
+        assert_eq!(
+            p("3*x*y^2", &mut v).gcd(&p("6*x^2*y", &mut v)),
+            p("x*y", &mut v)
+        );
         assert!(p("x + 1", &mut v).gcd(&p("y + 1", &mut v)).is_one());
         // The modular test proves coprimality and never claims it falsely.
         assert!(p("x*y + 1", &mut v).coprime_up_to_monomials(&p("x + y", &mut v)));
@@ -910,9 +1005,23 @@ mod tests {
         let s = v.intern("S");
         let poly = p("k1*k2 + k1*k3 + k2*S + 2*k3*S^2", &mut v);
         let conc = |x: Var| x == s;
-        let pr = Printer { vars: &v, syntax: Syntax::Mech, is_concentration: &conc };
-        assert_eq!(pr.collected(&poly, &|x| x == s), "k1*(k2 + k3) + k2*S + 2*k3*S^2");
-        let tex = Printer { vars: &v, syntax: Syntax::Latex, is_concentration: &conc };
-        assert_eq!(tex.monomial(&Monomial::from_pairs([(k1, 1), (s, 2)])), "\\mathrm{k1} [S]^{2}");
+        let pr = Printer {
+            vars: &v,
+            syntax: Syntax::Mech,
+            is_concentration: &conc,
+        };
+        assert_eq!(
+            pr.collected(&poly, &|x| x == s),
+            "k1*(k2 + k3) + k2*S + 2*k3*S^2"
+        );
+        let tex = Printer {
+            vars: &v,
+            syntax: Syntax::Latex,
+            is_concentration: &conc,
+        };
+        assert_eq!(
+            tex.monomial(&Monomial::from_pairs([(k1, 1), (s, 2)])),
+            "\\mathrm{k1} [S]^{2}"
+        );
     }
 }

@@ -73,16 +73,28 @@ impl RationalFunction {
         if self.den == o.den {
             return RationalFunction::raw(self.num.add(&o.num), self.den.clone());
         }
-        RationalFunction::raw(self.num.mul(&o.den).add(&o.num.mul(&self.den)), self.den.mul(&o.den))
+        RationalFunction::raw(
+            self.num.mul(&o.den).add(&o.num.mul(&self.den)),
+            self.den.mul(&o.den),
+        )
     }
     pub fn zero() -> RationalFunction {
-        RationalFunction { num: Poly::zero(), den: Poly::one() }
+        RationalFunction {
+            num: Poly::zero(),
+            den: Poly::one(),
+        }
     }
     pub fn one() -> RationalFunction {
-        RationalFunction { num: Poly::one(), den: Poly::one() }
+        RationalFunction {
+            num: Poly::one(),
+            den: Poly::one(),
+        }
     }
     pub fn from_poly(p: Poly) -> RationalFunction {
-        RationalFunction { num: p, den: Poly::one() }
+        RationalFunction {
+            num: p,
+            den: Poly::one(),
+        }
     }
     pub fn constant(c: BigRational) -> RationalFunction {
         RationalFunction::from_poly(Poly::constant(c))
@@ -92,13 +104,17 @@ impl RationalFunction {
     }
     pub fn add(&self, o: &RationalFunction) -> RationalFunction {
         if self.den == o.den {
-            return RationalFunction::new(self.num.add(&o.num), self.den.clone()).unwrap_or_else(Self::zero);
+            return RationalFunction::new(self.num.add(&o.num), self.den.clone())
+                .unwrap_or_else(Self::zero);
         }
         let num = self.num.mul(&o.den).add(&o.num.mul(&self.den));
         RationalFunction::new(num, self.den.mul(&o.den)).unwrap_or_else(Self::zero)
     }
     pub fn neg(&self) -> RationalFunction {
-        RationalFunction { num: self.num.neg(), den: self.den.clone() }
+        RationalFunction {
+            num: self.num.neg(),
+            den: self.den.clone(),
+        }
     }
     pub fn sub(&self, o: &RationalFunction) -> RationalFunction {
         self.add(&o.neg())
@@ -115,9 +131,16 @@ impl RationalFunction {
     }
     /// Integer power; `None` for a negative power of zero.
     pub fn powi(&self, e: i64) -> Option<RationalFunction> {
-        let base = if e < 0 { RationalFunction::one().div(self)? } else { self.clone() };
+        let base = if e < 0 {
+            RationalFunction::one().div(self)?
+        } else {
+            self.clone()
+        };
         let n = e.unsigned_abs().min(u32::MAX as u64) as u32;
-        Some(RationalFunction { num: base.num.pow(n), den: base.den.pow(n) })
+        Some(RationalFunction {
+            num: base.num.pow(n),
+            den: base.den.pow(n),
+        })
     }
     /// Whether two rational functions are equal (cross-multiplied).
     pub fn equals(&self, o: &RationalFunction) -> bool {
@@ -132,10 +155,17 @@ impl RationalFunction {
     /// parentheses. `**` is accepted for `^`.
     pub fn parse(text: &str, vars: &mut Vars) -> Result<RationalFunction, String> {
         let tokens = tokenize(text)?;
-        let mut p = Parser { tokens, pos: 0, vars };
+        let mut p = Parser {
+            tokens,
+            pos: 0,
+            vars,
+        };
         let r = p.sum()?;
         if p.pos != p.tokens.len() {
-            return Err(format!("unexpected `{}` in `{text}`", p.tokens[p.pos].show()));
+            return Err(format!(
+                "unexpected `{}` in `{text}`",
+                p.tokens[p.pos].show()
+            ));
         }
         Ok(r)
     }
@@ -152,12 +182,20 @@ pub fn parse_decimal(text: &str) -> Option<BigRational> {
         return None;
     }
     let digits = format!("{int}{frac}");
-    let digits = if digits.is_empty() { "0".to_string() } else { digits };
+    let digits = if digits.is_empty() {
+        "0".to_string()
+    } else {
+        digits
+    };
     let n: BigInt = digits.parse().ok()?;
     let scale = exp - frac.len() as i32;
     let ten = BigInt::from(10);
     let p = num_traits::pow(ten, scale.unsigned_abs() as usize);
-    Some(if scale >= 0 { BigRational::from_integer(n * p) } else { BigRational::new(n, p) })
+    Some(if scale >= 0 {
+        BigRational::from_integer(n * p)
+    } else {
+        BigRational::new(n, p)
+    })
 }
 
 /// An exact rational for a float as a person wrote it (shortest decimal
@@ -194,7 +232,9 @@ fn tokenize(text: &str) -> Result<Vec<Token>, String> {
         let c = chars[i];
         if c.is_whitespace() {
             i += 1;
-        } else if c.is_ascii_digit() || (c == '.' && chars.get(i + 1).is_some_and(|d| d.is_ascii_digit())) {
+        } else if c.is_ascii_digit()
+            || (c == '.' && chars.get(i + 1).is_some_and(|d| d.is_ascii_digit()))
+        {
             let start = i;
             while i < chars.len() && (chars[i].is_ascii_digit() || chars[i] == '.') {
                 i += 1;
@@ -249,7 +289,11 @@ impl Parser<'_> {
         while let Some(op @ ('+' | '-')) = self.peek_op() {
             self.pos += 1;
             let rhs = self.product()?;
-            acc = if op == '+' { acc.add(&rhs) } else { acc.sub(&rhs) };
+            acc = if op == '+' {
+                acc.add(&rhs)
+            } else {
+                acc.sub(&rhs)
+            };
         }
         Ok(acc)
     }
@@ -258,7 +302,11 @@ impl Parser<'_> {
         while let Some(op @ ('*' | '/')) = self.peek_op() {
             self.pos += 1;
             let rhs = self.unary()?;
-            acc = if op == '*' { acc.mul(&rhs) } else { acc.div(&rhs).ok_or("division by zero")? };
+            acc = if op == '*' {
+                acc.mul(&rhs)
+            } else {
+                acc.div(&rhs).ok_or("division by zero")?
+            };
         }
         Ok(acc)
     }
@@ -286,10 +334,16 @@ impl Parser<'_> {
                 false
             };
             let e = match self.tokens.get(self.pos) {
-                Some(Token::Number(n)) => n.parse::<i64>().map_err(|_| format!("exponent `{n}` is not an integer"))?,
+                Some(Token::Number(n)) => n
+                    .parse::<i64>()
+                    .map_err(|_| format!("exponent `{n}` is not an integer"))?,
                 Some(Token::Op('(')) => {
                     let r = self.atom()?;
-                    let c = r.num.as_constant().filter(|_| r.den.is_one()).ok_or("exponent is not a number")?;
+                    let c = r
+                        .num
+                        .as_constant()
+                        .filter(|_| r.den.is_one())
+                        .ok_or("exponent is not a number")?;
                     if !c.is_integer() {
                         return Err("exponent is not an integer".into());
                     }
@@ -303,19 +357,27 @@ impl Parser<'_> {
             if e.abs() > 64 {
                 return Err("exponent too large".into());
             }
-            return base.powi(e).ok_or_else(|| "negative power of zero".to_string());
+            return base
+                .powi(e)
+                .ok_or_else(|| "negative power of zero".to_string());
         }
         Ok(base)
     }
     fn atom(&mut self) -> Result<RationalFunction, String> {
-        let tok = self.tokens.get(self.pos).cloned().ok_or("unexpected end of expression")?;
+        let tok = self
+            .tokens
+            .get(self.pos)
+            .cloned()
+            .ok_or("unexpected end of expression")?;
         self.pos += 1;
         match tok {
             Token::Number(n) => {
                 let q = parse_decimal(&n).ok_or_else(|| format!("bad number `{n}`"))?;
                 Ok(RationalFunction::constant(q))
             }
-            Token::Name(name) => Ok(RationalFunction::from_poly(Poly::var(self.vars.intern(&name)))),
+            Token::Name(name) => Ok(RationalFunction::from_poly(Poly::var(
+                self.vars.intern(&name),
+            ))),
             Token::Op('(') => {
                 let r = self.sum()?;
                 if self.peek_op() != Some(')') {
@@ -346,10 +408,22 @@ mod tests {
 
     #[test]
     fn decimals_are_exact() {
-        assert_eq!(parse_decimal("0.1"), Some(BigRational::new(1.into(), 10.into())));
-        assert_eq!(parse_decimal("2.5e3"), Some(BigRational::from_integer(2500.into())));
-        assert_eq!(rational_from_f64(0.1), Some(BigRational::new(1.into(), 10.into())));
-        assert_eq!(rational_from_f64(1e-6), Some(BigRational::new(1.into(), 1_000_000.into())));
+        assert_eq!(
+            parse_decimal("0.1"),
+            Some(BigRational::new(1.into(), 10.into()))
+        );
+        assert_eq!(
+            parse_decimal("2.5e3"),
+            Some(BigRational::from_integer(2500.into()))
+        );
+        assert_eq!(
+            rational_from_f64(0.1),
+            Some(BigRational::new(1.into(), 10.into()))
+        );
+        assert_eq!(
+            rational_from_f64(1e-6),
+            Some(BigRational::new(1.into(), 1_000_000.into()))
+        );
     }
 
     #[test]

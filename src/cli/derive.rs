@@ -3,7 +3,9 @@
 //! Options override the file's `assume` lines; the output is a readable
 //! report, LaTeX, JSON (schema in docs/derive.md) or a new mechanism file.
 
-use super::common::{self, EXIT_MODEL, EXIT_USAGE, load_model, print_diagnostics, usage_error, write_atomic};
+use super::common::{
+    self, EXIT_MODEL, EXIT_USAGE, load_model, print_diagnostics, usage_error, write_atomic,
+};
 use crate::diagnostics::{Code, render_json};
 use crate::ratelaw::{self, Progress, Request, Target, output};
 use clap::ValueEnum;
@@ -60,7 +62,13 @@ pub fn run(args: &Args) -> ExitCode {
     };
     let loaded = start.elapsed();
     let clean = |v: &Option<Vec<String>>| {
-        v.as_ref().map(|names| names.iter().map(|s| s.trim().to_string()).filter(|s| !s.is_empty()).collect::<Vec<_>>())
+        v.as_ref().map(|names| {
+            names
+                .iter()
+                .map(|s| s.trim().to_string())
+                .filter(|s| !s.is_empty())
+                .collect::<Vec<_>>()
+        })
     };
     let request = Request {
         steady: clean(&args.steady),
@@ -80,7 +88,10 @@ pub fn run(args: &Args) -> ExitCode {
         Progress::Trees(n) => {
             if total > 1e6 {
                 shown = true;
-                eprint!("\rderive: {n} of about {total:.0} spanning-tree terms ({:.0}%)", 100.0 * n as f64 / total);
+                eprint!(
+                    "\rderive: {n} of about {total:.0} spanning-tree terms ({:.0}%)",
+                    100.0 * n as f64 / total
+                );
             }
         }
     };
@@ -106,12 +117,17 @@ pub fn run(args: &Args) -> ExitCode {
         DeriveFormat::Human => output::human(&derivation, &model),
         DeriveFormat::Latex => output::latex(&derivation, &model),
         DeriveFormat::Json => {
-            let mut s = serde_json::to_string_pretty(&output::json(&derivation, &model)).unwrap_or_default();
+            let mut s = serde_json::to_string_pretty(&output::json(&derivation, &model))
+                .unwrap_or_default();
             s.push('\n');
             s
         }
         DeriveFormat::Mech => {
-            let source = args.file.file_name().map(|s| s.to_string_lossy().to_string()).unwrap_or_default();
+            let source = args
+                .file
+                .file_name()
+                .map(|s| s.to_string_lossy().to_string())
+                .unwrap_or_default();
             match output::mechanism(&derivation, &model, &source) {
                 Ok(s) => s,
                 Err(e) => return usage_error(e),

@@ -4,7 +4,8 @@
 
 use super::trees::{FormGraph, expanded_term_count, tree_sums};
 use super::{
-    Derivation, Derived, FormTotal, Overall, Progress, Request, Target, VarKind, constants, unknown_name,
+    Derivation, Derived, FormTotal, Overall, Progress, Request, Target, VarKind, constants,
+    unknown_name,
 };
 use crate::algebra::poly::{Monomial, Poly, Var, Vars};
 use crate::algebra::rational::{RationalFunction, rational_from_f64};
@@ -47,7 +48,9 @@ pub fn derive_with_progress(
     let steady = resolve_steady(model, request)?;
     let equilibrium = resolve_equilibrium(model, request)?;
     let mut cx = Context::new(model, &steady);
-    let views: Vec<StepView> = (0..model.steps.len()).map(|j| cx.view(j)).collect::<Result<_, _>>()?;
+    let views: Vec<StepView> = (0..model.steps.len())
+        .map(|j| cx.view(j))
+        .collect::<Result<_, _>>()?;
     for &j in &equilibrium {
         check_fast_step(model, j, &views[j])?;
     }
@@ -78,7 +81,14 @@ pub fn derive_with_progress(
     // The work bound for all components, checked before any expansion.
     let mut plans = Vec::new();
     for forms in groups.values() {
-        plans.push(plan_component(&cx, forms, &views, &equilibrium, &mut lump, &mut notes)?);
+        plans.push(plan_component(
+            &cx,
+            forms,
+            &views,
+            &equilibrium,
+            &mut lump,
+            &mut notes,
+        )?);
     }
     let estimate: f64 = plans.iter().map(|p| expanded_term_count(&p.graph)).sum();
     if estimate > request.max_terms as f64 {
@@ -95,20 +105,30 @@ pub fn derive_with_progress(
             (estimate.ceil() as u64).saturating_add(1)
         )));
     }
-    progress(Progress::Start { estimated_trees: estimate });
+    progress(Progress::Start {
+        estimated_trees: estimate,
+    });
 
     for (forms, plan) in groups.values().zip(&plans) {
-        let (sums, visited) = tree_sums(&plan.graph, cx.vars.len(), &mut |n| progress(Progress::Trees(trees_visited + n)));
+        let (sums, visited) = tree_sums(&plan.graph, cx.vars.len(), &mut |n| {
+            progress(Progress::Trees(trees_visited + n))
+        });
         trees_visited += visited;
         // Share of each lump: its out-edge scale times its tree sum.
-        let weights: Vec<Poly> =
-            sums.into_iter().zip(&plan.scale).map(|(t, c)| if c.is_one() { t } else { t.mul(c) }).collect();
+        let weights: Vec<Poly> = sums
+            .into_iter()
+            .zip(&plan.scale)
+            .map(|(t, c)| if c.is_one() { t } else { t.mul(c) })
+            .collect();
         let mut q = Poly::zero();
         for w in &weights {
             q.add_assign_poly(w);
         }
         if q.is_zero() {
-            let names: Vec<&str> = forms.iter().map(|&f| model.species[f].name.as_str()).collect();
+            let names: Vec<&str> = forms
+                .iter()
+                .map(|&f| model.species[f].name.as_str())
+                .collect();
             return Err(Diagnostic::error(
                 Code::NonlinearSteadyState,
                 format!("the forms {} have no unique steady state: no form can be reached from all the others", names.join(", ")),
@@ -125,7 +145,14 @@ pub fn derive_with_progress(
             let g = plan.lump_of[&f];
             let share = &plan.share[&f];
             let num = tpoly.mul(&share.num).mul(&weights[g]);
-            form_conc.insert(f, FormConc { num, den: share.den.clone(), component: qs.len() });
+            form_conc.insert(
+                f,
+                FormConc {
+                    num,
+                    den: share.den.clone(),
+                    component: qs.len(),
+                },
+            );
         }
         drop(weights);
         qs.push(q);
@@ -134,14 +161,33 @@ pub fn derive_with_progress(
     // Net rates only of the steps the requested rate needs.
     let needed: Vec<bool> = match &request.target {
         Target::Flux(name) => model.steps.iter().map(|s| &s.name == name).collect(),
-        _ => (0..model.steps.len()).map(|j| !model.net_change(j).iter().all(|(i, _)| cx.is_form[*i])).collect(),
+        _ => (0..model.steps.len())
+            .map(|j| !model.net_change(j).iter().all(|(i, _)| cx.is_form[*i]))
+            .collect(),
     };
-    let rates: Vec<Part> =
-        views.iter().zip(&needed).map(|(v, need)| if *need { step_net_rate(v, &form_conc) } else { Part::zero() }).collect();
+    let rates: Vec<Part> = views
+        .iter()
+        .zip(&needed)
+        .map(|(v, need)| {
+            if *need {
+                step_net_rate(v, &form_conc)
+            } else {
+                Part::zero()
+            }
+        })
+        .collect();
     let (derived, rate) = match &request.target {
         Target::Flux(name) => {
             let j = model.step_index(name).ok_or_else(|| {
-                unknown_name("step", name, &model.steps.iter().map(|s| s.name.clone()).collect::<Vec<_>>())
+                unknown_name(
+                    "step",
+                    name,
+                    &model
+                        .steps
+                        .iter()
+                        .map(|s| s.name.clone())
+                        .collect::<Vec<_>>(),
+                )
             })?;
             (Derived::Flux(j), sum_parts(vec![rates[j].clone()], &qs))
         }
@@ -156,13 +202,27 @@ pub fn derive_with_progress(
                 }
                 Some(Sym::Species(i)) => i,
                 Some(_) => {
-                    return Err(Diagnostic::error(Code::BadDerivationRequest, format!("`{name}` is not a dynamic species")));
+                    return Err(Diagnostic::error(
+                        Code::BadDerivationRequest,
+                        format!("`{name}` is not a dynamic species"),
+                    ));
                 }
                 None => {
-                    return Err(unknown_name("species", name, &model.species.iter().map(|s| s.name.clone()).collect::<Vec<_>>()));
+                    return Err(unknown_name(
+                        "species",
+                        name,
+                        &model
+                            .species
+                            .iter()
+                            .map(|s| s.name.clone())
+                            .collect::<Vec<_>>(),
+                    ));
                 }
             };
-            (Derived::Species(i), species_rate(model, i, &rates, &BigRational::one(), &qs))
+            (
+                Derived::Species(i),
+                species_rate(model, i, &rates, &BigRational::one(), &qs),
+            )
         }
         Target::Overall => {
             let overall = overall_reaction(model, &cx.is_form)?;
@@ -177,7 +237,10 @@ pub fn derive_with_progress(
         }
     };
     let rate = RationalFunction::new(rate.num, rate.den).ok_or_else(|| {
-        Diagnostic::error(Code::NonlinearSteadyState, "the steady-state denominator vanishes identically")
+        Diagnostic::error(
+            Code::NonlinearSteadyState,
+            "the steady-state denominator vanishes identically",
+        )
     })?;
 
     // The forms' own expressions are kept only while they are small: each
@@ -190,7 +253,12 @@ pub fn derive_with_progress(
         steady
             .iter()
             .filter_map(|f| {
-                form_conc.get(f).map(|c| (*f, RationalFunction::raw(c.num.clone(), c.den.mul(&qs[c.component]))))
+                form_conc.get(f).map(|c| {
+                    (
+                        *f,
+                        RationalFunction::raw(c.num.clone(), c.den.mul(&qs[c.component])),
+                    )
+                })
             })
             .collect()
     } else {
@@ -217,7 +285,11 @@ pub fn derive_with_progress(
 }
 
 fn format_count(x: f64) -> String {
-    if x < 1e6 { format!("{}", x.round()) } else { format!("{x:.2e}") }
+    if x < 1e6 {
+        format!("{}", x.round())
+    } else {
+        format!("{x:.2e}")
+    }
 }
 
 fn resolve_steady(model: &Model, request: &Request) -> Result<Vec<usize>, Diagnostic> {
@@ -231,7 +303,9 @@ fn resolve_steady(model: &Model, request: &Request) -> Result<Vec<usize>, Diagno
                     Some(_) => {
                         return Err(Diagnostic::error(
                             Code::BadDerivationRequest,
-                            format!("`{n}` is not a dynamic species; only species can be at quasi-steady state"),
+                            format!(
+                                "`{n}` is not a dynamic species; only species can be at quasi-steady state"
+                            ),
                         ));
                     }
                     None => return Err(unknown_name("species", n, &all)),
@@ -243,8 +317,12 @@ fn resolve_steady(model: &Model, request: &Request) -> Result<Vec<usize>, Diagno
     out.sort_unstable();
     out.dedup();
     if out.is_empty() {
-        return Err(Diagnostic::error(Code::BadDerivationRequest, "no intermediates to eliminate")
-            .with_help("name the enzyme forms with `assume steady E, ES` in the file or --steady E,ES"));
+        return Err(
+            Diagnostic::error(Code::BadDerivationRequest, "no intermediates to eliminate")
+                .with_help(
+                    "name the enzyme forms with `assume steady E, ES` in the file or --steady E,ES",
+                ),
+        );
     }
     Ok(out)
 }
@@ -255,10 +333,19 @@ fn resolve_equilibrium(model: &Model, request: &Request) -> Result<Vec<usize>, D
             let all: Vec<String> = model.steps.iter().map(|s| s.name.clone()).collect();
             names
                 .iter()
-                .map(|n| model.step_index(n).ok_or_else(|| unknown_name("step", n, &all)))
+                .map(|n| {
+                    model
+                        .step_index(n)
+                        .ok_or_else(|| unknown_name("step", n, &all))
+                })
                 .collect::<Result<_, _>>()?
         }
-        None => model.assumptions.equilibrium.iter().map(|(j, _)| *j).collect(),
+        None => model
+            .assumptions
+            .equilibrium
+            .iter()
+            .map(|(j, _)| *j)
+            .collect(),
     };
     out.sort_unstable();
     out.dedup();
@@ -281,7 +368,9 @@ fn check_fast_step(model: &Model, j: usize, v: &StepView) -> Result<(), Diagnost
             format!("step `{}` cannot be at rapid equilibrium: {why}", step.name),
         )
         .with_label(step.span, "assumed at equilibrium")
-        .with_help("rapid equilibrium applies to reversible mass-action steps between two intermediates")),
+        .with_help(
+            "rapid equilibrium applies to reversible mass-action steps between two intermediates",
+        )),
     }
 }
 
@@ -322,7 +411,15 @@ impl<'a> Context<'a> {
                 })
             })
             .collect();
-        Context { model, vars, kinds, param_var, fixed_var, species_var, is_form }
+        Context {
+            model,
+            vars,
+            kinds,
+            param_var,
+            fixed_var,
+            species_var,
+            is_form,
+        }
     }
 
     fn view(&mut self, j: usize) -> Result<StepView, Diagnostic> {
@@ -330,7 +427,11 @@ impl<'a> Context<'a> {
         let left = self.side_form(j, &step.reactants, "left")?;
         let right = self.side_form(j, &step.products, "right")?;
         if let Rate::Law(law) = &step.rate {
-            if let Some(f) = law.names().into_iter().find(|s| matches!(s, Sym::Species(i) if self.is_form[*i])) {
+            if let Some(f) = law
+                .names()
+                .into_iter()
+                .find(|s| matches!(s, Sym::Species(i) if self.is_form[*i]))
+            {
                 return Err(Diagnostic::error(
                     Code::NonlinearSteadyState,
                     format!(
@@ -345,13 +446,22 @@ impl<'a> Context<'a> {
             if left.is_some() || right.is_some() {
                 return Err(Diagnostic::error(
                     Code::BadDerivationRequest,
-                    format!("step `{}` changes an intermediate at a rate given by an explicit law", step.name),
+                    format!(
+                        "step `{}` changes an intermediate at a rate given by an explicit law",
+                        step.name
+                    ),
                 )
                 .with_label(step.rate_span, "explicit law")
                 .with_help("write the step with mass-action constants (`with k`)"));
             }
             let law = self.rational(law, step.rate_span)?;
-            return Ok(StepView { left, right, forward: RationalFunction::zero(), reverse: None, law: Some(law) });
+            return Ok(StepView {
+                left,
+                right,
+                forward: RationalFunction::zero(),
+                reverse: None,
+                law: Some(law),
+            });
         }
         if left.is_some() != right.is_some() {
             let f = left.or(right).unwrap_or(0);
@@ -369,26 +479,51 @@ impl<'a> Context<'a> {
             Rate::MassAction { forward, reverse } => (forward, reverse.as_ref()),
             Rate::Law(_) => unreachable!("handled above"),
         };
-        let forward = self.rational(fwd_k, step.rate_span)?.mul(&self.others(j, &step.reactants)?);
+        let forward = self
+            .rational(fwd_k, step.rate_span)?
+            .mul(&self.others(j, &step.reactants)?);
         let reverse = match rev_k {
-            Some(k) => Some(self.rational(k, step.rate_span)?.mul(&self.others(j, &step.products)?)),
+            Some(k) => Some(
+                self.rational(k, step.rate_span)?
+                    .mul(&self.others(j, &step.products)?),
+            ),
             None => None,
         };
-        Ok(StepView { left, right, forward, reverse, law: None })
+        Ok(StepView {
+            left,
+            right,
+            forward,
+            reverse,
+            law: None,
+        })
     }
 
     /// The one intermediate on a side, or a diagnostic if there are more.
-    fn side_form(&self, j: usize, terms: &[crate::model::Term], side: &str) -> Result<Option<usize>, Diagnostic> {
+    fn side_form(
+        &self,
+        j: usize,
+        terms: &[crate::model::Term],
+        side: &str,
+    ) -> Result<Option<usize>, Diagnostic> {
         let step = &self.model.steps[j];
-        let forms: Vec<&crate::model::Term> =
-            terms.iter().filter(|t| matches!(t.sym, Sym::Species(i) if self.is_form[i])).collect();
+        let forms: Vec<&crate::model::Term> = terms
+            .iter()
+            .filter(|t| matches!(t.sym, Sym::Species(i) if self.is_form[i]))
+            .collect();
         let count: num_rational::Rational64 = forms.iter().map(|t| t.coefficient).sum();
         if count > num_rational::Rational64::one() {
             let names: Vec<&str> = forms.iter().map(|t| self.model.name_of(t.sym)).collect();
             let what = if forms.len() == 1 {
                 format!("the intermediate `{}` enters squared", names[0])
             } else {
-                format!("the intermediates {} meet", names.iter().map(|n| format!("`{n}`")).collect::<Vec<_>>().join(" and "))
+                format!(
+                    "the intermediates {} meet",
+                    names
+                        .iter()
+                        .map(|n| format!("`{n}`"))
+                        .collect::<Vec<_>>()
+                        .join(" and ")
+                )
             };
             let mut d = Diagnostic::error(
                 Code::NonlinearSteadyState,
@@ -412,7 +547,11 @@ impl<'a> Context<'a> {
     }
 
     /// Product of the non-intermediate concentrations of a side.
-    fn others(&self, j: usize, terms: &[crate::model::Term]) -> Result<RationalFunction, Diagnostic> {
+    fn others(
+        &self,
+        j: usize,
+        terms: &[crate::model::Term],
+    ) -> Result<RationalFunction, Diagnostic> {
         let mut m = Monomial::one();
         for t in terms {
             let var = match t.sym {
@@ -445,7 +584,9 @@ impl<'a> Context<'a> {
                 .with_help("derive needs rate constants built from params and numbers with + - * / and whole-number powers")
         };
         Ok(match e {
-            Expr::Number(v) => RationalFunction::constant(rational_from_f64(*v).ok_or_else(|| bad(format!("{v} is not finite")))?),
+            Expr::Number(v) => RationalFunction::constant(
+                rational_from_f64(*v).ok_or_else(|| bad(format!("{v} is not finite")))?,
+            ),
             Expr::Name(s) => {
                 let v = match *s {
                     Sym::Param(i) => self.param_var[i],
@@ -463,7 +604,12 @@ impl<'a> Context<'a> {
                             .with_label(span, "rate uses an intermediate"));
                         }
                     },
-                    other => return Err(bad(format!("`{}` is a total or observable", self.model.name_of(other)))),
+                    other => {
+                        return Err(bad(format!(
+                            "`{}` is a total or observable",
+                            self.model.name_of(other)
+                        )));
+                    }
                 };
                 RationalFunction::from_poly(Poly::var(v))
             }
@@ -481,8 +627,11 @@ impl<'a> Context<'a> {
                             .filter(|c| c.is_integer() && y.den.is_one())
                             .and_then(|c| c.to_integer().to_i64())
                             .filter(|e| e.abs() <= 64)
-                            .ok_or_else(|| bad("a power that is not a small whole number".into()))?;
-                        x.powi(exponent).ok_or_else(|| bad("a negative power of zero".into()))?
+                            .ok_or_else(
+                                || bad("a power that is not a small whole number".into()),
+                            )?;
+                        x.powi(exponent)
+                            .ok_or_else(|| bad("a negative power of zero".into()))?
                     }
                     _ => {
                         let y = self.rational(b, span)?;
@@ -544,20 +693,27 @@ fn plan_component(
             changed = false;
             for &j in equilibrium {
                 let v = &views[j];
-                let (Some(a), Some(b)) = (v.left, v.right) else { continue };
+                let (Some(a), Some(b)) = (v.left, v.right) else {
+                    continue;
+                };
                 if used[j] || !members.contains(&a) {
                     continue;
                 }
                 let reverse = v.reverse.as_ref().expect("checked fast step");
                 match (rel.get(&a).cloned(), rel.get(&b).cloned()) {
                     (Some(x), None) => {
-                        let k = v.forward.div(reverse).unwrap_or_else(RationalFunction::zero);
+                        let k = v
+                            .forward
+                            .div(reverse)
+                            .unwrap_or_else(RationalFunction::zero);
                         rel.insert(b, x.mul(&k));
                         used[j] = true;
                         changed = true;
                     }
                     (None, Some(y)) => {
-                        let k = reverse.div(&v.forward).unwrap_or_else(RationalFunction::zero);
+                        let k = reverse
+                            .div(&v.forward)
+                            .unwrap_or_else(RationalFunction::zero);
                         rel.insert(a, y.mul(&k));
                         used[j] = true;
                         changed = true;
@@ -593,8 +749,12 @@ fn plan_component(
         if equilibrium.contains(&j) {
             continue;
         }
-        let (Some(a), Some(b)) = (v.left, v.right) else { continue };
-        let (Some(&ga), Some(&gb)) = (lump_of.get(&a), lump_of.get(&b)) else { continue };
+        let (Some(a), Some(b)) = (v.left, v.right) else {
+            continue;
+        };
+        let (Some(&ga), Some(&gb)) = (lump_of.get(&a), lump_of.get(&b)) else {
+            continue;
+        };
         if ga == gb {
             continue;
         }
@@ -621,7 +781,12 @@ fn plan_component(
         }
         scale.push(c);
     }
-    Ok(Plan { graph, lump_of, share, scale })
+    Ok(Plan {
+        graph,
+        lump_of,
+        share,
+        scale,
+    })
 }
 
 fn name_total(model: &Model, forms: &[usize], existing: &[FormTotal]) -> FormTotal {
@@ -631,7 +796,12 @@ fn name_total(model: &Model, forms: &[usize], existing: &[FormTotal]) -> FormTot
         species.sort_unstable();
         let unit = t.terms.iter().all(|(_, c)| c.is_one());
         if unit && species == forms {
-            return FormTotal { name: t.name.clone(), forms: forms.to_vec(), declared: Some(ti), value: t.value };
+            return FormTotal {
+                name: t.name.clone(),
+                forms: forms.to_vec(),
+                declared: Some(ti),
+                value: t.value,
+            };
         }
     }
     let base = format!("{}_total", model.species[forms[0]].name);
@@ -641,7 +811,12 @@ fn name_total(model: &Model, forms: &[usize], existing: &[FormTotal]) -> FormTot
         name = format!("{base}{k}");
         k += 1;
     }
-    FormTotal { name, forms: forms.to_vec(), declared: None, value }
+    FormTotal {
+        name,
+        forms: forms.to_vec(),
+        declared: None,
+        value,
+    }
 }
 
 /// Above this many denominator terms the forms' expressions are not kept.
@@ -665,7 +840,11 @@ struct Part {
 
 impl Part {
     fn zero() -> Part {
-        Part { num: Poly::zero(), den: Poly::one(), component: None }
+        Part {
+            num: Poly::zero(),
+            den: Poly::one(),
+            component: None,
+        }
     }
     /// The sum, without cancelling; `None` when the two do not share the
     /// component's denominator.
@@ -680,9 +859,17 @@ impl Part {
             return None;
         }
         if self.den == o.den {
-            return Some(Part { num: self.num.add(&o.num), den: self.den.clone(), component: self.component });
+            return Some(Part {
+                num: self.num.add(&o.num),
+                den: self.den.clone(),
+                component: self.component,
+            });
         }
-        Some(Part { num: self.num.mul(&o.den).add(&o.num.mul(&self.den)), den: self.den.mul(&o.den), component: self.component })
+        Some(Part {
+            num: self.num.mul(&o.den).add(&o.num.mul(&self.den)),
+            den: self.den.mul(&o.den),
+            component: self.component,
+        })
     }
     fn into_rational(self, qs: &[Poly]) -> RationalFunction {
         let den = match self.component {
@@ -698,15 +885,27 @@ impl Part {
 /// concentrations; nothing is cancelled here (that happens once, at the end).
 fn step_net_rate(v: &StepView, conc: &BTreeMap<usize, FormConc>) -> Part {
     if let Some(law) = &v.law {
-        return Part { num: law.num.clone(), den: law.den.clone(), component: None };
+        return Part {
+            num: law.num.clone(),
+            den: law.den.clone(),
+            component: None,
+        };
     }
     let side = |k: &RationalFunction, f: Option<usize>| match f.and_then(|f| conc.get(&f)) {
         Some(x) => Part {
             num: k.num.mul(&x.num),
-            den: if k.den.is_one() { x.den.clone() } else { k.den.mul(&x.den) },
+            den: if k.den.is_one() {
+                x.den.clone()
+            } else {
+                k.den.mul(&x.den)
+            },
             component: Some(x.component),
         },
-        None => Part { num: k.num.clone(), den: k.den.clone(), component: None },
+        None => Part {
+            num: k.num.clone(),
+            den: k.den.clone(),
+            component: None,
+        },
     };
     let fwd = side(&v.forward, v.left);
     match &v.reverse {
@@ -744,13 +943,23 @@ fn sum_parts(parts: Vec<Part>, qs: &[Poly]) -> RationalFunction {
 }
 
 /// d(species)/dt divided by `nu`.
-fn species_rate(model: &Model, i: usize, rates: &[Part], nu: &BigRational, qs: &[Poly]) -> RationalFunction {
+fn species_rate(
+    model: &Model,
+    i: usize,
+    rates: &[Part],
+    nu: &BigRational,
+    qs: &[Poly],
+) -> RationalFunction {
     let mut parts = Vec::new();
     for (j, r) in rates.iter().enumerate() {
         for (k, c) in model.net_change(j) {
             if k == i {
                 let c = BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom())) / nu;
-                parts.push(Part { num: r.num.scale(&c), den: r.den.clone(), component: r.component });
+                parts.push(Part {
+                    num: r.num.scale(&c),
+                    den: r.den.clone(),
+                    component: r.component,
+                });
             }
         }
     }
@@ -759,8 +968,11 @@ fn species_rate(model: &Model, i: usize, rates: &[Part], nu: &BigRational, qs: &
 
 fn no_overall(model: &Model) -> Diagnostic {
     let _ = model;
-    Diagnostic::error(Code::NoOverallReaction, "the steady-state fluxes change no species other than the intermediates")
-        .with_help("there is no overall reaction to give a rate for; use --flux STEP for a step's rate")
+    Diagnostic::error(
+        Code::NoOverallReaction,
+        "the steady-state fluxes change no species other than the intermediates",
+    )
+    .with_help("there is no overall reaction to give a rate for; use --flux STEP for a step's rate")
 }
 
 /// The overall reaction: the net change of the non-intermediate species
@@ -768,7 +980,9 @@ fn no_overall(model: &Model) -> Diagnostic {
 /// stoichiometry). Exactly one is required.
 fn overall_reaction(model: &Model, is_form: &[bool]) -> Result<Overall, Diagnostic> {
     let n = model.stoichiometry();
-    let to_big = |c: num_rational::Rational64| BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom()));
+    let to_big = |c: num_rational::Rational64| {
+        BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom()))
+    };
     let steps = model.steps.len();
     let internal: Vec<Vec<BigRational>> = (0..model.species.len())
         .filter(|&i| is_form[i])
@@ -779,18 +993,31 @@ fn overall_reaction(model: &Model, is_form: &[bool]) -> Result<Overall, Diagnost
     let image = |b: &[BigRational]| -> Vec<BigRational> {
         external
             .iter()
-            .map(|&i| (0..steps).map(|j| to_big(n[i][j]) * &b[j]).fold(BigRational::zero(), |a, x| a + x))
+            .map(|&i| {
+                (0..steps)
+                    .map(|j| to_big(n[i][j]) * &b[j])
+                    .fold(BigRational::zero(), |a, x| a + x)
+            })
             .collect()
     };
-    let images: Vec<(Vec<BigRational>, &Vec<BigRational>)> =
-        basis.iter().map(|b| (image(b), b)).filter(|(v, _)| v.iter().any(|x| !x.is_zero())).collect();
-    let rank = null_space(images.iter().map(|(v, _)| v.clone()).collect(), external.len());
+    let images: Vec<(Vec<BigRational>, &Vec<BigRational>)> = basis
+        .iter()
+        .map(|b| (image(b), b))
+        .filter(|(v, _)| v.iter().any(|x| !x.is_zero()))
+        .collect();
+    let rank = null_space(
+        images.iter().map(|(v, _)| v.clone()).collect(),
+        external.len(),
+    );
     let dim = external.len() - rank.len();
     if dim == 0 {
         return Err(no_overall(model));
     }
     if dim > 1 {
-        let list: Vec<String> = images.iter().map(|(v, _)| reaction_text(model, &external, v)).collect();
+        let list: Vec<String> = images
+            .iter()
+            .map(|(v, _)| reaction_text(model, &external, v))
+            .collect();
         return Err(Diagnostic::error(
             Code::NoOverallReaction,
             format!("the mechanism has {dim} independent overall reactions ({}), so there is no single rate", list.join("; ")),
@@ -798,10 +1025,16 @@ fn overall_reaction(model: &Model, is_form: &[bool]) -> Result<Overall, Diagnost
         .with_help("choose a rate with --species NAME (rate of change of one species) or --flux STEP (net rate of one step)"));
     }
     let (v, b) = &images[0];
-    let flip = b.iter().fold(BigRational::zero(), |a, x| a + x).is_negative();
+    let flip = b
+        .iter()
+        .fold(BigRational::zero(), |a, x| a + x)
+        .is_negative();
     // Scale to coprime integers.
     let lcm = v.iter().fold(BigInt::one(), |a, x| a.lcm(x.denom()));
-    let ints: Vec<BigInt> = v.iter().map(|x| (x * BigRational::from_integer(lcm.clone())).to_integer()).collect();
+    let ints: Vec<BigInt> = v
+        .iter()
+        .map(|x| (x * BigRational::from_integer(lcm.clone())).to_integer())
+        .collect();
     let g = ints.iter().fold(BigInt::zero(), |a, x| a.gcd(x));
     let mut overall = Overall::default();
     for (k, x) in ints.iter().enumerate() {
@@ -820,14 +1053,28 @@ fn reaction_text(model: &Model, external: &[usize], v: &[BigRational]) -> String
         let parts: Vec<String> = v
             .iter()
             .enumerate()
-            .filter(|(_, x)| if pos { x.is_positive() } else { x.is_negative() })
+            .filter(|(_, x)| {
+                if pos {
+                    x.is_positive()
+                } else {
+                    x.is_negative()
+                }
+            })
             .map(|(k, x)| {
                 let c = x.abs();
                 let name = &model.species[external[k]].name;
-                if c.is_one() { name.clone() } else { format!("{c} {name}") }
+                if c.is_one() {
+                    name.clone()
+                } else {
+                    format!("{c} {name}")
+                }
             })
             .collect();
-        if parts.is_empty() { "0".to_string() } else { parts.join(" + ") }
+        if parts.is_empty() {
+            "0".to_string()
+        } else {
+            parts.join(" + ")
+        }
     };
     format!("{} -> {}", side(false), side(true))
 }
@@ -837,7 +1084,9 @@ fn null_space(mut rows: Vec<Vec<BigRational>>, cols: usize) -> Vec<Vec<BigRation
     let mut pivots = Vec::new();
     let mut r = 0;
     for c in 0..cols {
-        let Some(p) = (r..rows.len()).find(|&i| !rows[i][c].is_zero()) else { continue };
+        let Some(p) = (r..rows.len()).find(|&i| !rows[i][c].is_zero()) else {
+            continue;
+        };
         rows.swap(r, p);
         let inv = rows[r][c].recip();
         for x in rows[r].iter_mut() {

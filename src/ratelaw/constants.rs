@@ -22,15 +22,23 @@ use std::collections::BTreeMap;
 
 /// Fills in the derivation's constants, relations and notes.
 pub fn name_constants(d: &mut Derivation, model: &Model) {
-    let Derived::Overall(overall) = &d.derived else { return };
+    let Derived::Overall(overall) = &d.derived else {
+        return;
+    };
     let overall = overall.clone();
     if d.totals.len() != 1 {
         d.notes.push("kinetic constants are named only for a mechanism with one enzyme (one total of intermediates)".into());
         return;
     }
-    let Some(tvar) = d.vars.get(&d.totals[0].name) else { return };
+    let Some(tvar) = d.vars.get(&d.totals[0].name) else {
+        return;
+    };
     let t_mono = Monomial::var(tvar);
-    let Some(num) = d.rate.num.div_monomial(&t_mono).filter(|n| n.degree_in(tvar) == 0 && d.rate.den.degree_in(tvar) == 0)
+    let Some(num) = d
+        .rate
+        .num
+        .div_monomial(&t_mono)
+        .filter(|n| n.degree_in(tvar) == 0 && d.rate.den.degree_in(tvar) == 0)
     else {
         d.notes.push(format!(
             "the rate is not proportional to {}, so no kinetic constants are named (is there a step that bypasses the enzyme?)",
@@ -44,24 +52,47 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
         model
             .steps
             .iter()
-            .position(|s| s.reactants.iter().chain(&s.products).any(|t| t.sym == crate::model::Sym::Species(i)))
+            .position(|s| {
+                s.reactants
+                    .iter()
+                    .chain(&s.products)
+                    .any(|t| t.sym == crate::model::Sym::Species(i))
+            })
             .unwrap_or(usize::MAX)
     };
     let last_step = |i: usize| {
         model
             .steps
             .iter()
-            .rposition(|s| s.reactants.iter().chain(&s.products).any(|t| t.sym == crate::model::Sym::Species(i)))
+            .rposition(|s| {
+                s.reactants
+                    .iter()
+                    .chain(&s.products)
+                    .any(|t| t.sym == crate::model::Sym::Species(i))
+            })
             .unwrap_or(0)
     };
-    let mut substrates: Vec<(Var, String, usize)> =
-        overall.reactants.iter().filter_map(|(i, _)| var_of(*i).map(|v| (v, model.species[*i].name.clone(), first_step(*i)))).collect();
+    let mut substrates: Vec<(Var, String, usize)> = overall
+        .reactants
+        .iter()
+        .filter_map(|(i, _)| {
+            var_of(*i).map(|v| (v, model.species[*i].name.clone(), first_step(*i)))
+        })
+        .collect();
     substrates.sort_by_key(|s| s.2);
     // Reverse direction: the product released last binds free enzyme first.
     let mut products: Vec<(Var, String, usize)> = overall
         .products
         .iter()
-        .filter_map(|(i, _)| var_of(*i).map(|v| (v, model.species[*i].name.clone(), usize::MAX - last_step(*i))))
+        .filter_map(|(i, _)| {
+            var_of(*i).map(|v| {
+                (
+                    v,
+                    model.species[*i].name.clone(),
+                    usize::MAX - last_step(*i),
+                )
+            })
+        })
         .collect();
     products.sort_by_key(|s| s.2);
     let in_reaction: Vec<Var> = substrates.iter().chain(&products).map(|s| s.0).collect();
@@ -80,15 +111,26 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
     let ratio = |a: &Poly, b: &Poly| RationalFunction::new(a.clone(), b.clone());
 
     let mut directions = Vec::new();
-    for (forward, side, other) in [(true, &substrates, &products), (false, &products, &substrates)] {
-        let absent: Vec<Var> = other.iter().map(|s| s.0).chain(modifiers.iter().copied()).collect();
+    for (forward, side, other) in [
+        (true, &substrates, &products),
+        (false, &products, &substrates),
+    ] {
+        let absent: Vec<Var> = other
+            .iter()
+            .map(|s| s.0)
+            .chain(modifiers.iter().copied())
+            .collect();
         let zero = |v: Var| absent.contains(&v);
         let n = num.set_zero(&zero);
         let n = if forward { n } else { n.neg() };
         let nc = n.collect(&conc);
         let dc = den.set_zero(&zero).collect(&conc);
         let dir = Direction::read(&nc, &dc, side);
-        let (kcat_name, label) = if forward { ("kcat", "forward") } else { ("kcat_r", "reverse") };
+        let (kcat_name, label) = if forward {
+            ("kcat", "forward")
+        } else {
+            ("kcat_r", "reverse")
+        };
         match &dir {
             None if forward || !nc.is_empty() => notes.push(format!(
                 "no {label} turnover number: the {label} numerator has no single saturating term in {}",
@@ -148,9 +190,15 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
             constants.push(Constant {
                 name: "Keq".into(),
                 value: keq.clone(),
-                meaning: "equilibrium constant of the overall reaction (products over substrates)".into(),
+                meaning: "equilibrium constant of the overall reaction (products over substrates)"
+                    .into(),
             });
-            let find = |name: &str| constants.iter().find(|c| c.name == name).map(|c| c.value.clone());
+            let find = |name: &str| {
+                constants
+                    .iter()
+                    .find(|c| c.name == name)
+                    .map(|c| c.value.clone())
+            };
             let k_side = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
                 match side {
                     [(_, a, _)] => Some((format!("Km_{a}"), find(&format!("Km_{a}"))?)),
@@ -161,9 +209,12 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                     _ => None,
                 }
             };
-            if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) =
-                (k_side(&substrates), k_side(&products), find("kcat"), find("kcat_r"))
-            {
+            if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
+                k_side(&substrates),
+                k_side(&products),
+                find("kcat"),
+                find("kcat_r"),
+            ) {
                 let rhs = kf.mul(&kp_v).div(&kr.mul(&ks_v));
                 let holds = rhs.is_some_and(|r| r.equals(&keq));
                 relations.push(Relation {
@@ -180,7 +231,11 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
     if let Some(f) = &directions[0] {
         for &i in &modifiers {
             let name = d.vars.name(i).to_string();
-            let absent: Vec<Var> = products.iter().map(|s| s.0).chain(modifiers.iter().copied().filter(|&m| m != i)).collect();
+            let absent: Vec<Var> = products
+                .iter()
+                .map(|s| s.0)
+                .chain(modifiers.iter().copied().filter(|&m| m != i))
+                .collect();
             let zero = |v: Var| absent.contains(&v);
             let dc = den.set_zero(&zero).collect(&conc);
             let nc = num.set_zero(&zero).collect(&conc);
@@ -210,7 +265,9 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
             if nc.keys().any(|m| m.exponent(i) > 0) {
                 notes.push(format!("{name} also appears in the numerator (partial inhibition or activation); its constants describe the denominator only"));
             } else if !named {
-                notes.push(format!("{name} enters the rate in a way that has no standard inhibition constant"));
+                notes.push(format!(
+                    "{name} enters the rate in a way that has no standard inhibition constant"
+                ));
             }
         }
     }
@@ -229,20 +286,32 @@ struct Direction {
 }
 
 impl Direction {
-    fn read(nc: &BTreeMap<Monomial, Poly>, dc: &BTreeMap<Monomial, Poly>, side: &[(Var, String, usize)]) -> Option<Direction> {
+    fn read(
+        nc: &BTreeMap<Monomial, Poly>,
+        dc: &BTreeMap<Monomial, Poly>,
+        side: &[(Var, String, usize)],
+    ) -> Option<Direction> {
         let mut it = nc.iter().filter(|(_, p)| !p.is_zero());
         let (top, n) = it.next()?;
         if it.next().is_some() || top.is_one() {
             return None;
         }
         // The numerator's monomial must be made of this direction's species.
-        if !top.pairs().iter().all(|(v, _)| side.iter().any(|s| s.0 == *v)) {
+        if !top
+            .pairs()
+            .iter()
+            .all(|(v, _)| side.iter().any(|s| s.0 == *v))
+        {
             return None;
         }
         if !dc.contains_key(top) {
             return None;
         }
-        Some(Direction { top: top.clone(), n: n.clone(), den: dc.clone() })
+        Some(Direction {
+            top: top.clone(),
+            n: n.clone(),
+            den: dc.clone(),
+        })
     }
     fn get(&self, m: &Monomial) -> Option<&Poly> {
         self.den.get(m).filter(|p| !p.is_zero())

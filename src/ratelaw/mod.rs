@@ -38,7 +38,12 @@ pub struct Request {
 
 impl Default for Request {
     fn default() -> Self {
-        Request { steady: None, equilibrium: None, target: Target::Overall, max_terms: DEFAULT_MAX_TERMS }
+        Request {
+            steady: None,
+            equilibrium: None,
+            target: Target::Overall,
+            max_terms: DEFAULT_MAX_TERMS,
+        }
     }
 }
 
@@ -167,7 +172,10 @@ pub fn derive(model: &Model, request: &Request) -> Result<Derivation, Diagnostic
 /// An error about a name given on the command line.
 pub(crate) fn unknown_name(what: &str, name: &str, candidates: &[String]) -> Diagnostic {
     let hint = did_you_mean(name, candidates.iter().map(String::as_str));
-    let d = Diagnostic::error(Code::BadDerivationRequest, format!("no {what} named `{name}`"));
+    let d = Diagnostic::error(
+        Code::BadDerivationRequest,
+        format!("no {what} named `{name}`"),
+    );
     match hint {
         Some(h) => d.with_help(format!("did you mean `{h}`?")),
         None => d,

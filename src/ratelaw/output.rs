@@ -15,7 +15,11 @@ use serde_json::{Value, json};
 use std::collections::BTreeSet;
 
 fn printer<'a>(d: &'a Derivation, syntax: Syntax, conc: &'a dyn Fn(Var) -> bool) -> Printer<'a> {
-    Printer { vars: &d.vars, syntax, is_concentration: conc }
+    Printer {
+        vars: &d.vars,
+        syntax,
+        is_concentration: conc,
+    }
 }
 
 /// The numerator with the total pulled out: `E_t*(k1*k2*S - ...)`, and
@@ -28,13 +32,21 @@ fn numerator_text(d: &Derivation, p: &Printer, keys: &dyn Fn(Var) -> bool) -> (S
         Syntax::Mech => "*",
     };
     for t in d.totals.iter().filter_map(|t| d.vars.get(&t.name)) {
-        let Some(rest) = num.div_monomial(&Monomial::var(t)).filter(|r| r.degree_in(t) == 0) else { continue };
+        let Some(rest) = num
+            .div_monomial(&Monomial::var(t))
+            .filter(|r| r.degree_in(t) == 0)
+        else {
+            continue;
+        };
         let name = p.var(t);
         if rest.is_one() {
             return (name, true);
         }
         let body = p.collected(&rest, keys);
-        let single = rest.collect(keys).len() == 1 && !body.starts_with('-') && !body.contains(" + ") && !body.contains(" - ");
+        let single = rest.collect(keys).len() == 1
+            && !body.starts_with('-')
+            && !body.contains(" + ")
+            && !body.contains(" - ");
         let text = if single {
             format!("{name}{times}{body}")
         } else if p.syntax == Syntax::Latex {
@@ -74,8 +86,14 @@ fn rational_text(r: &RationalFunction, p: &Printer) -> String {
     }
     let den = p.factored(&r.den);
     let den_atomic = r.den.len() == 1
-        && r.den.terms().all(|(m, c)| num_traits::One::is_one(c) && m.pairs().len() == 1 && m.pairs()[0].1 == 1);
-    if den_atomic { format!("{num}/{den}") } else { format!("{num}/({})", den) }
+        && r.den.terms().all(|(m, c)| {
+            num_traits::One::is_one(c) && m.pairs().len() == 1 && m.pairs()[0].1 == 1
+        });
+    if den_atomic {
+        format!("{num}/{den}")
+    } else {
+        format!("{num}/({})", den)
+    }
 }
 
 fn keys_for<'a>(d: &'a Derivation) -> impl Fn(Var) -> bool + 'a {
@@ -94,7 +112,11 @@ pub fn target_text(d: &Derivation, model: &Model) -> String {
                     .iter()
                     .map(|(i, c)| {
                         let name = &model.species[*i].name;
-                        if *c == num_bigint::BigInt::from(1) { name.clone() } else { format!("{c} {name}") }
+                        if *c == num_bigint::BigInt::from(1) {
+                            name.clone()
+                        } else {
+                            format!("{c} {name}")
+                        }
                     })
                     .collect::<Vec<_>>()
                     .join(" + ")
@@ -110,8 +132,15 @@ pub fn target_text(d: &Derivation, model: &Model) -> String {
 /// Whether the overall rate can run backwards (its numerator has a
 /// product term).
 fn reversible(d: &Derivation, o: &super::Overall) -> bool {
-    let products: BTreeSet<Var> = o.products.iter().filter_map(|(i, _)| d.vars.get(&d_name(d, *i))).collect();
-    d.rate.num.terms().any(|(m, _)| m.pairs().iter().any(|(v, _)| products.contains(v)))
+    let products: BTreeSet<Var> = o
+        .products
+        .iter()
+        .filter_map(|(i, _)| d.vars.get(&d_name(d, *i)))
+        .collect();
+    d.rate
+        .num
+        .terms()
+        .any(|(m, _)| m.pairs().iter().any(|(v, _)| products.contains(v)))
 }
 
 fn d_name(d: &Derivation, species: usize) -> String {
@@ -123,11 +152,22 @@ fn d_name(d: &Derivation, species: usize) -> String {
 }
 
 fn method_text(d: &Derivation, model: &Model) -> String {
-    let forms: Vec<&str> = d.steady.iter().map(|&i| model.species[i].name.as_str()).collect();
+    let forms: Vec<&str> = d
+        .steady
+        .iter()
+        .map(|&i| model.species[i].name.as_str())
+        .collect();
     let mut s = format!("quasi-steady state of {} (King–Altman)", forms.join(", "));
     if !d.equilibrium.is_empty() {
-        let steps: Vec<&str> = d.equilibrium.iter().map(|&j| model.steps[j].name.as_str()).collect();
-        s.push_str(&format!("; rapid equilibrium of {} (Cha)", steps.join(", ")));
+        let steps: Vec<&str> = d
+            .equilibrium
+            .iter()
+            .map(|&j| model.steps[j].name.as_str())
+            .collect();
+        s.push_str(&format!(
+            "; rapid equilibrium of {} (Cha)",
+            steps.join(", ")
+        ));
     }
     s
 }
@@ -142,23 +182,49 @@ pub fn human(d: &Derivation, model: &Model) -> String {
     out.push_str(&format!("rate of: {}\n\n", target_text(d, model)));
     out.push_str(&format!("  v = {}\n\n", rate_text(d, &p, &keys)));
     out.push_str("coefficient form (collected by concentration):\n");
-    out.push_str(&format!("  numerator   = {}\n", numerator_text(d, &p, &keys).0));
-    out.push_str(&format!("  denominator = {}\n", p.collected(&d.rate.den, &keys)));
+    out.push_str(&format!(
+        "  numerator   = {}\n",
+        numerator_text(d, &p, &keys).0
+    ));
+    out.push_str(&format!(
+        "  denominator = {}\n",
+        p.collected(&d.rate.den, &keys)
+    ));
     for t in &d.totals {
-        let forms: Vec<&str> = t.forms.iter().map(|&i| model.species[i].name.as_str()).collect();
-        let how = if t.declared.is_some() { "declared" } else { "named here" };
+        let forms: Vec<&str> = t
+            .forms
+            .iter()
+            .map(|&i| model.species[i].name.as_str())
+            .collect();
+        let how = if t.declared.is_some() {
+            "declared"
+        } else {
+            "named here"
+        };
         out.push_str(&format!("  {} = {} ({how})\n", t.name, forms.join(" + ")));
     }
     if !d.constants.is_empty() {
         out.push_str("\nkinetic constants:\n");
         let width = d.constants.iter().map(|c| c.name.len()).max().unwrap_or(0);
         for c in &d.constants {
-            out.push_str(&format!("  {:width$} = {}    ({})\n", c.name, rational_text(&c.value, &p), c.meaning));
+            out.push_str(&format!(
+                "  {:width$} = {}    ({})\n",
+                c.name,
+                rational_text(&c.value, &p),
+                c.meaning
+            ));
         }
     }
     for r in &d.relations {
-        let status = if r.holds { "holds identically" } else { "DOES NOT HOLD" };
-        out.push_str(&format!("\n{} relation: {} = {}  ({status})\n", r.name, r.lhs, r.rhs));
+        let status = if r.holds {
+            "holds identically"
+        } else {
+            "DOES NOT HOLD"
+        };
+        out.push_str(&format!(
+            "\n{} relation: {} = {}  ({status})\n",
+            r.name, r.lhs, r.rhs
+        ));
     }
     if !d.notes.is_empty() {
         out.push('\n');
@@ -174,14 +240,25 @@ pub fn latex(d: &Derivation, model: &Model) -> String {
     let keys = keys_for(d);
     let p = printer(d, Syntax::Latex, &keys);
     let mut out = String::new();
-    out.push_str(&format!("% {}\n% rate of: {}\n", method_text(d, model), target_text(d, model)));
+    out.push_str(&format!(
+        "% {}\n% rate of: {}\n",
+        method_text(d, model),
+        target_text(d, model)
+    ));
     out.push_str("\\begin{align*}\n");
     out.push_str(&format!("  v &= {}", rate_text(d, &p, &keys)));
     for c in &d.constants {
-        out.push_str(&format!(" \\\\\n  {} &= {}", latex_constant_name(&c.name), rational_text(&c.value, &p)));
+        out.push_str(&format!(
+            " \\\\\n  {} &= {}",
+            latex_constant_name(&c.name),
+            rational_text(&c.value, &p)
+        ));
     }
     for r in &d.relations {
-        out.push_str(&format!(" \\\\\n  % {} relation: {} = {}", r.name, r.lhs, r.rhs));
+        out.push_str(&format!(
+            " \\\\\n  % {} relation: {} = {}",
+            r.name, r.lhs, r.rhs
+        ));
     }
     out.push_str("\n\\end{align*}\n");
     out
@@ -195,7 +272,11 @@ fn latex_constant_name(name: &str) -> String {
         _ => match name.split_once('_') {
             Some((head, species)) => {
                 let sub = head.trim_start_matches('K');
-                format!("K_{{\\mathrm{{{}}},\\mathrm{{{}}}}}", print::latex_escape(sub), print::latex_escape(species))
+                format!(
+                    "K_{{\\mathrm{{{}}},\\mathrm{{{}}}}}",
+                    print::latex_escape(sub),
+                    print::latex_escape(species)
+                )
             }
             None => print::latex_name(name),
         },
@@ -209,7 +290,11 @@ pub fn json(d: &Derivation, model: &Model) -> Value {
     let coefficients = |poly: &Poly| -> Value {
         let groups = poly.collect(&keys);
         let mut list: Vec<(&Monomial, &Poly)> = groups.iter().collect();
-        list.sort_by(|a, b| a.0.degree().cmp(&b.0.degree()).then_with(|| b.0.grlex_cmp(a.0)));
+        list.sort_by(|a, b| {
+            a.0.degree()
+                .cmp(&b.0.degree())
+                .then_with(|| b.0.grlex_cmp(a.0))
+        });
         Value::Array(
             list.into_iter()
                 .map(|(m, c)| json!({ "concentrations": if m.is_one() { "1".to_string() } else { p.monomial(m) }, "coefficient": p.factored(c) }))
@@ -219,7 +304,17 @@ pub fn json(d: &Derivation, model: &Model) -> Value {
     let rate_of = match &d.derived {
         Derived::Overall(o) => {
             let map = |terms: &[(usize, num_bigint::BigInt)]| -> Value {
-                Value::Object(terms.iter().map(|(i, c)| (model.species[*i].name.clone(), json!(c.to_string().parse::<i64>().unwrap_or(0)))).collect())
+                Value::Object(
+                    terms
+                        .iter()
+                        .map(|(i, c)| {
+                            (
+                                model.species[*i].name.clone(),
+                                json!(c.to_string().parse::<i64>().unwrap_or(0)),
+                            )
+                        })
+                        .collect(),
+                )
             };
             json!({ "kind": "overall", "reaction": target_text(d, model), "reactants": map(&o.reactants), "products": map(&o.products) })
         }
@@ -263,17 +358,33 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
     let keys = keys_for(d);
     let p = printer(d, Syntax::Mech, &keys);
     let mut out = String::new();
-    out.push_str(&format!("# Derived by `ratewright derive` from {source}:\n# {}.\n", method_text(d, model)));
+    out.push_str(&format!(
+        "# Derived by `ratewright derive` from {source}:\n# {}.\n",
+        method_text(d, model)
+    ));
     out.push_str("# The intermediates are eliminated; their totals are params here.\n");
     let name = model.name.clone().unwrap_or_else(|| "mechanism".into());
-    let desc = model.description.clone().map(|s| format!("{s}, ")).unwrap_or_default();
-    out.push_str(&format!("mechanism {name}_derived \"{}derived rate law\"\n\n", desc.replace('"', "'")));
+    let desc = model
+        .description
+        .clone()
+        .map(|s| format!("{s}, "))
+        .unwrap_or_default();
+    out.push_str(&format!(
+        "mechanism {name}_derived \"{}derived rate law\"\n\n",
+        desc.replace('"', "'")
+    ));
     out.push_str(&format!(
         "units concentration {}, time {}\n\n",
         model.units.concentration.symbol(),
         model.units.time.symbol()
     ));
-    let used: BTreeSet<Var> = d.rate.num.vars().union(&d.rate.den.vars()).copied().collect();
+    let used: BTreeSet<Var> = d
+        .rate
+        .num
+        .vars()
+        .union(&d.rate.den.vars())
+        .copied()
+        .collect();
     let is_form = |i: usize| d.steady.contains(&i);
     for (i, s) in model.species.iter().enumerate() {
         if is_form(i) {
@@ -284,12 +395,25 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
         if !touched {
             continue;
         }
-        let value = if s.initial != 0.0 { format!(" = {}", plain_literal(s.initial)) } else { String::new() };
-        out.push_str(&format!("species {}{value}{}\n", s.name, describe(&s.description)));
+        let value = if s.initial != 0.0 {
+            format!(" = {}", plain_literal(s.initial))
+        } else {
+            String::new()
+        };
+        out.push_str(&format!(
+            "species {}{value}{}\n",
+            s.name,
+            describe(&s.description)
+        ));
     }
     for f in &model.fixed {
         if used.iter().any(|v| d.vars.name(*v) == f.name) {
-            out.push_str(&format!("fixed {} = {}{}\n", f.name, plain_literal(f.value), describe(&f.description)));
+            out.push_str(&format!(
+                "fixed {} = {}{}\n",
+                f.name,
+                plain_literal(f.value),
+                describe(&f.description)
+            ));
         }
     }
     out.push('\n');
@@ -329,11 +453,24 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
             ParamDef::Value(v) => plain_literal(*v),
             ParamDef::Expr(e) => print::print_expr(e, &name_of, print::Syntax::Mech),
         };
-        out.push_str(&format!("param {} = {def}{}\n", prm.name, describe(&prm.description)));
+        out.push_str(&format!(
+            "param {} = {def}{}\n",
+            prm.name,
+            describe(&prm.description)
+        ));
     }
     for t in &d.totals {
-        let forms: Vec<&str> = t.forms.iter().map(|&i| model.species[i].name.as_str()).collect();
-        out.push_str(&format!("param {} = {} \"total of {}\"\n", t.name, plain_literal(t.value), forms.join(" + ")));
+        let forms: Vec<&str> = t
+            .forms
+            .iter()
+            .map(|&i| model.species[i].name.as_str())
+            .collect();
+        out.push_str(&format!(
+            "param {} = {} \"total of {}\"\n",
+            t.name,
+            plain_literal(t.value),
+            forms.join(" + ")
+        ));
     }
     let side = |terms: &[(usize, num_bigint::BigInt)]| {
         if terms.is_empty() {
@@ -343,7 +480,11 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
             .iter()
             .map(|(i, c)| {
                 let n = &model.species[*i].name;
-                if *c == num_bigint::BigInt::from(1) { n.clone() } else { format!("{c} {n}") }
+                if *c == num_bigint::BigInt::from(1) {
+                    n.clone()
+                } else {
+                    format!("{c} {n}")
+                }
             })
             .collect::<Vec<_>>()
             .join(" + ")

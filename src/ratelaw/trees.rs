@@ -16,6 +16,10 @@ use crate::algebra::poly::{Monomial, Poly, Var};
 use num_rational::BigRational;
 use num_traits::One;
 
+/// One term of an edge weight: target form, monomial as (variable,
+/// exponent) pairs, coefficient.
+type ExpandedEdge = (usize, Vec<(Var, u32)>, BigRational);
+
 /// A graph of (lumped) forms; `out[u]` lists edges `u → v` with a polynomial weight.
 #[derive(Clone, Debug, Default)]
 pub struct FormGraph {
@@ -24,7 +28,9 @@ pub struct FormGraph {
 
 impl FormGraph {
     pub fn new(n: usize) -> FormGraph {
-        FormGraph { out: vec![Vec::new(); n] }
+        FormGraph {
+            out: vec![Vec::new(); n],
+        }
     }
     pub fn len(&self) -> usize {
         self.out.len()
@@ -75,13 +81,16 @@ pub fn expanded_term_count(g: &FormGraph) -> f64 {
 pub fn tree_sums(g: &FormGraph, nvars: usize, progress: &mut dyn FnMut(u64)) -> (Vec<Poly>, u64) {
     let n = g.len();
     // Expanded edges: (target, monomial exponents as pairs, coefficient).
-    let expanded: Vec<Vec<(usize, Vec<(Var, u32)>, BigRational)>> = g
+    let expanded: Vec<Vec<ExpandedEdge>> = g
         .out
         .iter()
         .map(|edges| {
             edges
                 .iter()
-                .flat_map(|(v, p)| p.terms().map(move |(m, c)| (*v, m.pairs().to_vec(), c.clone())))
+                .flat_map(|(v, p)| {
+                    p.terms()
+                        .map(move |(m, c)| (*v, m.pairs().to_vec(), c.clone()))
+                })
                 .collect()
         })
         .collect();
@@ -110,7 +119,7 @@ pub fn tree_sums(g: &FormGraph, nvars: usize, progress: &mut dyn FnMut(u64)) -> 
 
 /// Non-root nodes that can reach `root`, nearest first (so each node has an
 /// edge to an earlier one and dead ends in the search are rare).
-fn order_towards(root: usize, edges: &[Vec<(usize, Vec<(Var, u32)>, BigRational)>]) -> Vec<usize> {
+fn order_towards(root: usize, edges: &[Vec<ExpandedEdge>]) -> Vec<usize> {
     let n = edges.len();
     let mut dist = vec![usize::MAX; n];
     dist[root] = 0;
@@ -129,7 +138,7 @@ fn order_towards(root: usize, edges: &[Vec<(usize, Vec<(Var, u32)>, BigRational)
 }
 
 struct Enumeration<'a> {
-    edges: &'a [Vec<(usize, Vec<(Var, u32)>, BigRational)>],
+    edges: &'a [Vec<ExpandedEdge>],
     parent: Vec<usize>,
     exponents: Vec<u32>,
     coef: BigRational,
@@ -144,7 +153,12 @@ impl Enumeration<'_> {
     fn descend(&mut self, depth: usize) {
         if depth == self.order.len() {
             let m = Monomial::from_sorted(
-                self.exponents.iter().enumerate().filter(|(_, e)| **e > 0).map(|(v, e)| (v as Var, *e)).collect(),
+                self.exponents
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, e)| **e > 0)
+                    .map(|(v, e)| (v as Var, *e))
+                    .collect(),
             );
             self.sum.add_term(self.coef.clone(), m);
             *self.visited += 1;
