@@ -673,3 +673,19 @@ fn outputs_come_in_every_format_and_plots_are_drawn() {
     let out = run_ok(&["run", m, "--set", "S=5mM", "--times", "0"]);
     assert!(out.contains("5.000000e3"), "{out}");
 }
+
+#[test]
+fn robertson_steady_state_is_found_despite_its_singular_jacobian() {
+    // Robertson (1966): adding the three rate equations gives d(A+B+C)/dt = 0,
+    // and the sum of dA/dt and dB/dt is -3e7 B², so the only steady state in
+    // the class A + B + C = 1 is (0, 0, 1), where the reduced Jacobian is
+    // singular (a derivation, common practice). Newton's method cannot
+    // confirm it; the integrated state must be accepted there.
+    let out = run_ok(&["steady", "models/robertson.mech", "--format", "json"]);
+    let v: serde_json::Value = serde_json::from_str(&out).expect("json");
+    let state = &v["state"];
+    assert!((state["C"].as_f64().unwrap() - 1.0).abs() < 1e-6, "{state}");
+    assert!(state["A"].as_f64().unwrap().abs() < 1e-6, "{state}");
+    assert!(state["B"].as_f64().unwrap().abs() < 1e-6, "{state}");
+    assert_eq!(v["stable"], true);
+}

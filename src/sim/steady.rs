@@ -39,6 +39,11 @@ pub struct SteadyState {
     pub newton_iterations: usize,
 }
 
+/// How little an integrated state may move, relative to its largest
+/// species, when the integrated time grows tenfold, to count as a steady
+/// state when Newton's method cannot confirm it.
+const STATIONARY_FRACTION: f64 = 1e-6;
+
 /// Finds the steady state of `prepared` from its initial state.
 pub fn steady_state(prepared: &Prepared, settings: &Settings) -> Result<SteadyState, SimError> {
     steady_state_of(&prepared.model, &prepared.system, settings)
@@ -62,6 +67,7 @@ pub fn steady_state_of(
     };
     let mut until = default_until(&model, system);
     let mut last_reason = String::new();
+    let mut previous: Option<Vec<f64>> = None;
     for _attempt in 0..10 {
         let tr = simulate(&model, system, &tight, &[until]).map_err(|e| e.named(&model))?;
         let Some(row) = tr.rows.last() else {
@@ -98,7 +104,33 @@ pub fn steady_state_of(
                     });
                 }
             }
-            Err(reason) => last_reason = reason,
+            Err(reason) => {
+                // A degenerate steady state (a singular Jacobian there, as in
+                // Robertson's problem, whose state (0, 0, 1) is approached
+                // like 1/t) defeats Newton's method. The integration has
+                // still arrived when ten times more integrated time moved no
+                // species by more than a small fraction of the largest one
+                // (the residual itself is no test: it is bounded below by
+                // the solver's absolute tolerance times the fast rates).
+                let species = &row[..system.species_count()];
+                let scale = species.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+                let moved = previous.as_ref().map(|p: &Vec<f64>| p.iter().zip(species).fold(0.0f64, |a, (x, y)| a.max((x - y).abs())));
+                if let Some(moved) = moved
+                    && scale > 0.0
+                    && moved <= STATIONARY_FRACTION * scale
+                {
+                    let x = system.state_from_species(species);
+                    let mut f = vec![0.0; system.nstates];
+                    system.rhs(&mut w, &x, until, &mut f);
+                    let residual = f.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+                    let mut values = Vec::new();
+                    system.outputs(&mut w, &x, until, &mut values);
+                    let (eigenvalues, stability) = eigen(system, &mut w, &x, until);
+                    return Ok(SteadyState { values, eigenvalues, stability, residual, integrated_to: until, newton_iterations: 0 });
+                }
+                previous = Some(species.to_vec());
+                last_reason = reason;
+            }
         }
         until *= 10.0;
     }
