@@ -399,7 +399,7 @@ impl<'s> Lowerer<'s> {
             None => Some((value, None)),
             Some((text, span)) => match parse_unit(text) {
                 Ok(u) => {
-                    let v = value * u.factor_to(self.model.units);
+                    let v = u.convert(value, self.model.units);
                     if !v.is_finite() {
                         self.error(Diagnostic::error(Code::BadNumber, "value overflows after unit conversion").with_label(q.span, "too large"));
                         return None;
@@ -424,7 +424,7 @@ impl<'s> Lowerer<'s> {
     /// dimension `dim` to the model's units.
     fn in_model_units(&self, value: f64, dim: Dim, file_units: Units) -> f64 {
         let u = UnitExpr { conc: Some((file_units.concentration, dim.conc)), time: Some((file_units.time, dim.time)) };
-        value * u.factor_to(self.model.units)
+        u.convert(value, self.model.units)
     }
 
     fn concentration(&mut self, q: &Quantity, file_units: Units, what: &str) -> Option<f64> {

@@ -175,14 +175,93 @@ impl UnitExpr {
     }
     /// The factor that converts a value in this unit to the default units.
     pub fn factor_to(&self, units: Units) -> f64 {
-        let mut f = 1.0;
+        self.convert(1.0, units)
+    }
+
+    /// Converts a value in this unit to the default units. The unit sizes
+    /// are exact rationals (powers of ten, 60, 3600), so the factor is
+    /// formed exactly and applied as one multiplication and one division:
+    /// `1 mM` becomes exactly `1000 uM` (a float factor of 1e-3/1e-6 would
+    /// give 1000.0000000000001).
+    pub fn convert(&self, value: f64, units: Units) -> f64 {
+        let mut num: i128 = 1;
+        let mut den: i128 = 1;
+        let mut exact = true;
+        let mut scale = |size: (i128, i128), default: (i128, i128), power: i32| {
+            // (size / default)^power, as num/den.
+            let (mut a, mut b) = (size.0 * default.1, size.1 * default.0);
+            if power < 0 {
+                std::mem::swap(&mut a, &mut b);
+            }
+            for _ in 0..power.unsigned_abs() {
+                match (num.checked_mul(a), den.checked_mul(b)) {
+                    (Some(x), Some(y)) => {
+                        num = x;
+                        den = y;
+                    }
+                    _ => exact = false,
+                }
+            }
+        };
         if let Some((c, p)) = self.conc {
-            f *= (c.molar() / units.concentration.molar()).powi(p);
+            scale(c.exact_molar(), units.concentration.exact_molar(), p);
         }
         if let Some((t, p)) = self.time {
-            f *= (t.seconds() / units.time.seconds()).powi(p);
+            scale(t.exact_seconds(), units.time.exact_seconds(), p);
         }
-        f
+        if !exact {
+            let mut f = 1.0;
+            if let Some((c, p)) = self.conc {
+                f *= (c.molar() / units.concentration.molar()).powi(p);
+            }
+            if let Some((t, p)) = self.time {
+                f *= (t.seconds() / units.time.seconds()).powi(p);
+            }
+            return value * f;
+        }
+        let g = gcd_i128(num, den);
+        let (num, den) = (num / g, den / g);
+        if num == 1 && den == 1 {
+            value
+        } else if den == 1 {
+            value * num as f64
+        } else if num == 1 {
+            value / den as f64
+        } else {
+            value * num as f64 / den as f64
+        }
+    }
+}
+
+fn gcd_i128(mut a: i128, mut b: i128) -> i128 {
+    while b != 0 {
+        (a, b) = (b, a % b);
+    }
+    a.abs().max(1)
+}
+
+impl ConcUnit {
+    /// Size in mol/L as an exact fraction.
+    fn exact_molar(self) -> (i128, i128) {
+        match self {
+            ConcUnit::M => (1, 1),
+            ConcUnit::MilliM => (1, 1_000),
+            ConcUnit::MicroM => (1, 1_000_000),
+            ConcUnit::NanoM => (1, 1_000_000_000),
+            ConcUnit::PicoM => (1, 1_000_000_000_000),
+        }
+    }
+}
+
+impl TimeUnit {
+    /// Size in seconds as an exact fraction.
+    fn exact_seconds(self) -> (i128, i128) {
+        match self {
+            TimeUnit::S => (1, 1),
+            TimeUnit::Ms => (1, 1_000),
+            TimeUnit::Min => (60, 1),
+            TimeUnit::H => (3_600, 1),
+        }
     }
 }
 
@@ -264,7 +343,7 @@ pub fn parse_quantity(text: &str, units: Units) -> Result<(f64, Option<Dim>), St
         return Ok((value, None));
     }
     let u = parse_unit(unit)?;
-    Ok((value * u.factor_to(units), Some(u.dim())))
+    Ok((u.convert(value, units), Some(u.dim())))
 }
 
 #[cfg(test)]
@@ -291,6 +370,18 @@ mod tests {
         let mm = Units { concentration: ConcUnit::MilliM, time: TimeUnit::Min };
         assert!(close(parse_quantity("1 uM", mm).unwrap().0, 1e-3));
         assert!(close(parse_quantity("2 /uM/s", mm).unwrap().0, 2.0 * 1000.0 * 60.0));
+    }
+
+    #[test]
+    fn decimal_prefixes_convert_exactly() {
+        // SI prefixes are exact powers of ten: 1 mM is exactly 1000 uM and
+        // 20 min exactly 1200 s, with no rounding left in the float.
+        let u = Units::default();
+        assert_eq!(parse_quantity("1 mM", u).unwrap().0, 1000.0);
+        assert_eq!(parse_quantity("1.5 mM", u).unwrap().0, 1500.0);
+        assert_eq!(parse_quantity("300 nM", u).unwrap().0, 0.3);
+        assert_eq!(parse_quantity("20 min", u).unwrap().0, 1200.0);
+        assert_eq!(parse_quantity("1e6 /M/s", u).unwrap().0, 1.0);
     }
 
     #[test]
