@@ -561,6 +561,7 @@ fn quiet_horizon(model: &Model) -> f64 {
 
 #[test]
 fn emitted_octave_runs_under_octave_cli_with_ode15s() {
+    common::ensure_octave();
     let dir = temp();
     for path in models() {
         let model = load(&path);

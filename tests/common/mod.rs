@@ -45,13 +45,26 @@ static PYTHON_READY: OnceLock<Result<(), String>> = OnceLock::new();
 pub fn ensure_python() {
     let ready = PYTHON_READY.get_or_init(|| {
         let probe = |py: &str| {
-            Command::new("python3").args(["-c", py]).output().map(|o| o.status.success()).unwrap_or(false)
+            Command::new("python3")
+                .args(["-c", py])
+                .output()
+                .map(|o| o.status.success())
+                .unwrap_or(false)
         };
         if probe("import numpy, scipy, sympy, libsbml") {
             return Ok(());
         }
         let out = Command::new("python3")
-            .args(["-m", "pip", "install", "--quiet", "numpy", "scipy", "sympy", "python-libsbml"])
+            .args([
+                "-m",
+                "pip",
+                "install",
+                "--quiet",
+                "numpy",
+                "scipy",
+                "sympy",
+                "python-libsbml",
+            ])
             .output()
             .map_err(|e| format!("cannot run pip: {e}"))?;
         if !out.status.success() || !probe("import numpy, scipy, sympy, libsbml") {
@@ -78,4 +91,40 @@ pub fn python(script: &Path, args: &[&str]) -> Output {
         .current_dir(root())
         .output()
         .expect("python3 runs")
+}
+
+static OCTAVE_READY: OnceLock<Result<(), String>> = OnceLock::new();
+
+/// Makes sure `octave-cli` runs, installing GNU Octave from the system's
+/// package manager (Debian's apt-get, as root or through sudo) if needed.
+/// Panics if that is impossible: the Octave check must fail, not skip.
+pub fn ensure_octave() {
+    let ready = OCTAVE_READY.get_or_init(|| {
+        let works = || Command::new("octave-cli").arg("--version").output().map(|o| o.status.success()).unwrap_or(false);
+        if works() {
+            return Ok(());
+        }
+        let root = Command::new("id").arg("-u").output().map(|o| String::from_utf8_lossy(&o.stdout).trim() == "0").unwrap_or(false);
+        let apt = |args: &[&str]| {
+            let mut cmd = if root { Command::new("apt-get") } else { Command::new("sudo") };
+            if !root {
+                cmd.arg("apt-get");
+            }
+            cmd.args(args).env("DEBIAN_FRONTEND", "noninteractive").output()
+        };
+        let update = apt(&["update", "-qq"]).map_err(|e| format!("cannot run apt-get: {e}"))?;
+        let install = apt(&["install", "-y", "-qq", "octave"]).map_err(|e| format!("cannot run apt-get: {e}"))?;
+        if works() {
+            Ok(())
+        } else {
+            Err(format!(
+                "installing GNU Octave failed (apt-get install -y octave):\n{}{}",
+                String::from_utf8_lossy(&update.stderr),
+                String::from_utf8_lossy(&install.stderr)
+            ))
+        }
+    });
+    if let Err(e) = ready {
+        panic!("{e}");
+    }
 }
