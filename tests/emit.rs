@@ -893,6 +893,7 @@ fn abc(s: Sym) -> String {
 
 #[test]
 fn printed_expressions_evaluate_the_same_in_python_c_octave_rust_and_the_mechanism_language() {
+    common::ensure_octave();
     use ratewright::algebra::print::{Syntax, print_expr};
     let samples = sample_printed_exprs();
     let dir = temp();
