@@ -928,8 +928,9 @@ impl Printer<'_> {
         let mut out = String::new();
         for (i, m) in keys.iter().enumerate() {
             let coef = &groups[*m];
-            let negative =
-                coef.len() == 1 && coef.terms().next().is_some_and(|(_, c)| c.is_negative());
+            // A coefficient whose factored form leads with a minus sign
+            // prints as a subtraction.
+            let negative = self.factored(coef).starts_with('-');
             let coef = if negative { coef.neg() } else { coef.clone() };
             if i > 0 {
                 out.push_str(if negative { " - " } else { " + " });

@@ -1014,10 +1014,17 @@ fn overall_reaction(model: &Model, is_form: &[bool]) -> Result<Overall, Diagnost
         return Err(no_overall(model));
     }
     if dim > 1 {
-        let list: Vec<String> = images
-            .iter()
-            .map(|(v, _)| reaction_text(model, &external, v))
-            .collect();
+        // A basis of the overall reactions: keep each image that raises the rank.
+        let mut basis: Vec<Vec<BigRational>> = Vec::new();
+        let mut list: Vec<String> = Vec::new();
+        for (v, _) in &images {
+            let mut trial = basis.clone();
+            trial.push(v.clone());
+            if external.len() - null_space(trial.clone(), external.len()).len() > basis.len() {
+                basis = trial;
+                list.push(reaction_text(model, &external, v));
+            }
+        }
         return Err(Diagnostic::error(
             Code::NoOverallReaction,
             format!("the mechanism has {dim} independent overall reactions ({}), so there is no single rate", list.join("; ")),
