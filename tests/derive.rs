@@ -578,9 +578,10 @@ assume steady E, ES
 fn size_limit_is_reported_and_can_be_raised() {
     let m = write("rerandom", RAPID_EQUILIBRIUM_RANDOM_BI_BI);
     let p = m.path.to_string_lossy().to_string();
-    // Without the rapid-equilibrium lumping, four forms in a square with a
-    // diagonal-free ring have 4 trees per root (16 terms) and more with the
-    // product step: a limit of 5 is exceeded.
+    // Without the rapid-equilibrium lumping the four forms make a ring
+    // (E, EA, EAB, EB) with the product step as a chord: a ring of n forms
+    // alone has n spanning trees per root (King & Altman 1956), so there are
+    // at least 16 single-term trees and a limit of 5 is exceeded.
     let out = ratewright(&["derive", &p, "--equilibrium", "", "--max-terms", "5"]);
     assert_eq!(out.status.code(), Some(1));
     let err = String::from_utf8_lossy(&out.stderr);
