@@ -482,18 +482,14 @@ impl Poly {
     /// true one while the leading coefficients survive, so `true` is a proof;
     /// `false` means "maybe", and the caller computes the full gcd.
     pub fn coprime_up_to_monomials(&self, other: &Poly) -> bool {
-        let shared: Vec<Var> = self.vars().intersection(&other.vars()).copied().collect();
-        let all: BTreeSet<Var> = self.vars().union(&other.vars()).copied().collect();
-        let size = all.iter().next_back().map(|v| *v as usize + 1).unwrap_or(0);
-        let point: Vec<u64> = (0..size).map(|v| modp::random(v as u64 + 1)).collect();
-        let (Some(a), Some(b)) = (
-            ImageTable::new(self, &point),
-            ImageTable::new(other, &point),
-        ) else {
+        let (Some(a), Some(b)) = (ImageTable::new(self), ImageTable::new(other)) else {
             return false;
         };
-        for &x in &shared {
-            let (Some(ia), Some(ib)) = (a.univariate(x, &point), b.univariate(x, &point)) else {
+        for x in 0..a.by_var.len().min(b.by_var.len()) {
+            if a.by_var[x].is_empty() || b.by_var[x].is_empty() {
+                continue;
+            }
+            let (Some(ia), Some(ib)) = (a.univariate(x), b.univariate(x)) else {
                 return false;
             };
             if modp::gcd_degree(ia, ib) > 0 {
@@ -515,17 +511,31 @@ impl Poly {
     }
 }
 
-/// Each term's value (mod p) at a point, for univariate images in any
-/// variable without re-walking the monomials.
-struct ImageTable<'a> {
-    poly: &'a Poly,
+/// Each term's value (mod p) at a fixed pseudo-random point, and for each
+/// variable the terms that contain it, so univariate images in every
+/// variable cost one pass over the terms in all.
+struct ImageTable {
+    point: Vec<u64>,
     values: Vec<u64>,
+    total: u64,
+    /// For each variable: (term index, exponent) of the terms containing it.
+    by_var: Vec<Vec<(usize, u32)>>,
 }
 
-impl<'a> ImageTable<'a> {
-    fn new(poly: &'a Poly, point: &[u64]) -> Option<ImageTable<'a>> {
+impl ImageTable {
+    fn new(poly: &Poly) -> Option<ImageTable> {
+        let size = poly
+            .terms
+            .keys()
+            .filter_map(|m| m.pairs().last())
+            .map(|(v, _)| *v as usize + 1)
+            .max()
+            .unwrap_or(0);
+        let point: Vec<u64> = (0..size).map(|v| modp::random(v as u64 + 1)).collect();
         let mut values = Vec::with_capacity(poly.len());
-        for (m, c) in poly.terms() {
+        let mut by_var: Vec<Vec<(usize, u32)>> = vec![Vec::new(); size];
+        let mut total = 0;
+        for (t, (m, c)) in poly.terms().enumerate() {
             let mut v = modp::from_rational(c)?;
             for &(w, e) in m.pairs() {
                 v = modp::mul(
@@ -536,28 +546,47 @@ impl<'a> ImageTable<'a> {
                         modp::pow(point[w as usize], e as u64)
                     },
                 );
+                by_var[w as usize].push((t, e));
             }
+            total = modp::add(total, v);
             values.push(v);
         }
-        Some(ImageTable { poly, values })
+        Some(ImageTable {
+            point,
+            values,
+            total,
+            by_var,
+        })
     }
 
     /// Coefficients of the image in `x` (the other variables at the point),
     /// after dividing out the lowest power of `x`; `None` if the leading or
     /// trailing coefficient vanishes.
-    fn univariate(&self, x: Var, point: &[u64]) -> Option<Vec<u64>> {
-        let exps: Vec<u32> = self.poly.terms.keys().map(|m| m.exponent(x)).collect();
-        let lo = *exps.iter().min()?;
-        let hi = *exps.iter().max()?;
-        let inv_x = modp::inv(point[x as usize]);
+    fn univariate(&self, x: usize) -> Option<Vec<u64>> {
+        let with_x = &self.by_var[x];
+        let hi = with_x.iter().map(|(_, e)| *e).max()?;
+        let all_have_x = with_x.len() == self.values.len();
+        let lo = if all_have_x {
+            with_x.iter().map(|(_, e)| *e).min()?
+        } else {
+            0
+        };
+        let inv_x = modp::inv(self.point[x]);
         let mut inv_pow = vec![1u64; hi as usize + 1];
         for k in 1..inv_pow.len() {
             inv_pow[k] = modp::mul(inv_pow[k - 1], inv_x);
         }
         let mut coef = vec![0u64; (hi - lo + 1) as usize];
-        for (&e, &v) in exps.iter().zip(&self.values) {
+        // Terms without x sit in the constant bucket: all values minus those with x.
+        let mut rest = self.total;
+        for &(t, e) in with_x {
+            let v = self.values[t];
+            rest = modp::sub(rest, v);
             let k = (e - lo) as usize;
             coef[k] = modp::add(coef[k], modp::mul(v, inv_pow[e as usize]));
+        }
+        if !all_have_x {
+            coef[0] = modp::add(coef[0], rest);
         }
         (coef[0] != 0 && *coef.last()? != 0).then_some(coef)
     }
