@@ -959,7 +959,7 @@ impl Printer<'_> {
             let coef = &groups[*m];
             // A coefficient whose factored form leads with a minus sign
             // prints as a subtraction.
-            let negative = self.factored(coef).starts_with('-');
+            let negative = coef.leading().is_some_and(|(_, c)| c.is_negative());
             let coef = if negative { coef.neg() } else { coef.clone() };
             if i > 0 {
                 out.push_str(if negative { " - " } else { " + " });
