@@ -60,7 +60,8 @@ pub enum Command {
 
 /// Parses arguments and runs one command. Usage errors exit with 2.
 pub fn main() -> ExitCode {
-    let cli = match Cli::try_parse() {
+    let args = join_spaced_units(std::env::args_os().collect());
+    let cli = match Cli::try_parse_from(args) {
         Ok(cli) => cli,
         Err(e) => {
             let code = if e.use_stderr() { 2 } else { 0 };
@@ -83,3 +84,50 @@ pub fn main() -> ExitCode {
 
 #[allow(dead_code)]
 pub(crate) type Paths = Vec<PathBuf>;
+
+/// Options whose value is a quantity, which users write as the language
+/// writes quantities: `--until 20 min`, `--set S=5 mM`.
+const QUANTITY_OPTIONS: [&str; 4] = ["--until", "--every", "--at", "--set"];
+
+/// Joins a quantity option's number and a following unit word given as two
+/// arguments (`--until 20 min` → `--until` `20 min`), so the spelling of the
+/// design works unquoted. Only a bare number (or `NAME=number`) followed by
+/// a word that parses as a unit is joined.
+fn join_spaced_units(args: Vec<std::ffi::OsString>) -> Vec<std::ffi::OsString> {
+    let mut out: Vec<std::ffi::OsString> = Vec::with_capacity(args.len());
+    let mut i = 0;
+    while i < args.len() {
+        out.push(args[i].clone());
+        let is_quantity_option = args[i].to_str().is_some_and(|a| QUANTITY_OPTIONS.contains(&a));
+        if is_quantity_option
+            && let (Some(value), Some(unit)) = (args.get(i + 1).and_then(|v| v.to_str()), args.get(i + 2).and_then(|u| u.to_str()))
+        {
+            let number = value.rsplit('=').next().unwrap_or(value);
+            let unit_like = !unit.starts_with('-') && crate::model::units::parse_unit(unit).is_ok();
+            if number.trim().parse::<f64>().is_ok() && unit_like {
+                out.push(format!("{value} {unit}").into());
+                i += 3;
+                continue;
+            }
+        }
+        i += 1;
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::join_spaced_units;
+
+    fn joined(args: &[&str]) -> Vec<String> {
+        join_spaced_units(args.iter().map(|a| (*a).into()).collect()).into_iter().map(|a| a.into_string().unwrap()).collect()
+    }
+
+    #[test]
+    fn a_unit_after_a_quantity_option_joins_its_number() {
+        assert_eq!(joined(&["rw", "run", "m.mech", "--until", "20", "min"]), ["rw", "run", "m.mech", "--until", "20 min"]);
+        assert_eq!(joined(&["rw", "run", "m.mech", "--set", "S=5", "mM", "-o", "x.csv"]), ["rw", "run", "m.mech", "--set", "S=5 mM", "-o", "x.csv"]);
+        assert_eq!(joined(&["rw", "run", "--until", "20", "m.mech"]), ["rw", "run", "--until", "20", "m.mech"]);
+        assert_eq!(joined(&["rw", "run", "--until", "20min", "--points", "5"]), ["rw", "run", "--until", "20min", "--points", "5"]);
+    }
+}
