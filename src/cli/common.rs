@@ -137,10 +137,10 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let input = dir.path().join("m.mech");
         std::fs::write(&input, "species A").unwrap();
-        assert!(write_atomic(&input, b"x", &[input.clone()]).is_err());
+        assert!(write_atomic(&input, b"x", std::slice::from_ref(&input)).is_err());
         assert_eq!(std::fs::read_to_string(&input).unwrap(), "species A");
         let out = dir.path().join("out.csv");
-        write_atomic(&out, b"a,b\n", &[input.clone()]).unwrap();
+        write_atomic(&out, b"a,b\n", std::slice::from_ref(&input)).unwrap();
         assert_eq!(std::fs::read_to_string(&out).unwrap(), "a,b\n");
         let leftovers = std::fs::read_dir(dir.path()).unwrap().filter(|e| e.as_ref().unwrap().file_name().to_string_lossy().ends_with(".tmp")).count();
         assert_eq!(leftovers, 0);

@@ -85,6 +85,10 @@ pub enum Expr {
     Call(Func, Vec<Expr>),
 }
 
+// Constructors named after the operation they build (`Expr::mul(a, b)`
+// makes a product node); they are not arithmetic on values, so the
+// operator traits would mislead.
+#[allow(clippy::should_implement_trait)]
 impl Expr {
     pub fn num(v: f64) -> Expr {
         Expr::Number(v)

@@ -255,7 +255,7 @@ impl Model {
     /// Stoichiometric matrix (species × steps) as a dense exact matrix.
     pub fn stoichiometry(&self) -> Vec<Vec<Coef>> {
         let mut n = vec![vec![Coef::zero(); self.steps.len()]; self.species.len()];
-        for j in 0..self.steps.len() {
+        for (j, _) in self.steps.iter().enumerate() {
             for (i, c) in self.net_change(j) {
                 n[i][j] = c;
             }

@@ -105,6 +105,9 @@ pub struct Dim {
     pub time: i32,
 }
 
+// `mul`/`div` combine dimensions as units multiply; plain methods keep
+// call sites explicit (`a.mul(b)`) without importing operator traits.
+#[allow(clippy::should_implement_trait)]
 impl Dim {
     pub const NONE: Dim = Dim { conc: 0, time: 0 };
     pub const CONC: Dim = Dim { conc: 1, time: 0 };

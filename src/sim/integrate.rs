@@ -556,9 +556,9 @@ pub(crate) mod tests {
             0.8333360770334713e-13,
             0.9999999791665050,
         ];
-        for k in 0..3 {
-            assert!((sparse.rows[0][k] - reference[k]).abs() < 1e-3 * reference[k]);
-            assert!((sparse.rows[0][k] - dense.rows[0][k]).abs() < 1e-4 * reference[k]);
+        for (k, want) in reference.iter().enumerate() {
+            assert!((sparse.rows[0][k] - want).abs() < 1e-3 * want);
+            assert!((sparse.rows[0][k] - dense.rows[0][k]).abs() < 1e-4 * want);
         }
     }
 
