@@ -196,13 +196,22 @@ impl UnitExpr {
             if power < 0 {
                 std::mem::swap(&mut a, &mut b);
             }
+            // Powers beyond what i128 can hold exactly (and absurd ones such
+            // as `uM^2147483647`) fall back to floating point at once.
+            if power.unsigned_abs() > 12 {
+                exact = false;
+                return;
+            }
             for _ in 0..power.unsigned_abs() {
                 match (num.checked_mul(a), den.checked_mul(b)) {
                     (Some(x), Some(y)) => {
                         num = x;
                         den = y;
                     }
-                    _ => exact = false,
+                    _ => {
+                        exact = false;
+                        return;
+                    }
                 }
             }
         };
