@@ -110,15 +110,15 @@ fn corpus_diagnostics_are_located_and_snapshotted() {
 }
 
 /// The user's view: `ratewright check FILE` exits 1 and prints a located
-/// diagnostic. The 10 s bound only catches hangs; the speed of each file is
-/// measured by bench/hardening.sh (docs/reliability.md), not asserted here.
+/// diagnostic. A run still going after 300 s counts as a hang; the speed of
+/// each file is measured by bench/hardening.sh (docs/reliability.md), not
+/// asserted here.
 #[test]
 fn corpus_check_exits_1_with_a_located_diagnostic() {
     for path in corpus() {
         let p = path.to_str().expect("UTF-8 path");
-        let started = Instant::now();
-        let out = ratewright(&["check", p]);
-        let elapsed = started.elapsed();
+        let out = ratewright_within(&["check", p], Duration::from_secs(300))
+            .unwrap_or_else(|| panic!("{p}: check still running after 300 s"));
         let stderr = String::from_utf8_lossy(&out.stderr);
         assert_eq!(
             out.status.code(),
@@ -133,10 +133,6 @@ fn corpus_check_exits_1_with_a_located_diagnostic() {
         assert!(
             !stderr.contains("internal failure") && !stderr.contains("panicked"),
             "{p}: crashed\n{stderr}"
-        );
-        assert!(
-            elapsed < Duration::from_secs(10),
-            "{p}: took {elapsed:?} (a hang?)"
         );
     }
 }
@@ -1181,7 +1177,7 @@ fn written_files_keep_or_get_ordinary_permissions() {
 /// fuzzed (fuzz/regressions/derive_small_hangs/). Each must finish (with a
 /// rate or a diagnostic) within 60 s: a hang guard, not a speed target.
 #[test]
-#[ignore = "ratelaw/algebra (src/algebra/poly.rs Poly::gcd → gcd_monomial_free → content_in → pseudo_remainder): the recursive pseudo-remainder GCD blows up on small mechanisms (4 forms, 8 steps, one rapid-equilibrium step, --species P): 6.5 s, 6.6 s, 16.6 s and over 120 s in a release build"]
+#[ignore = "ratelaw/algebra (src/algebra/poly.rs Poly::gcd -> gcd_monomial_free -> content_in -> pseudo_remainder): the recursive pseudo-remainder GCD blows up on small mechanisms (4-6 forms, 8 steps, rapid-equilibrium steps; fuzz/regressions/derive_small_hangs/): in a release build 7 of the 13 run over 30 s, the others take 1.3-26.6 s"]
 fn derive_finishes_on_the_fuzzed_slow_mechanisms() {
     let dir = root().join("fuzz/regressions/derive_small_hangs");
     let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
