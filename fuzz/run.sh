@@ -1,8 +1,10 @@
 #!/usr/bin/env bash
-# Runs both fuzz targets for SECONDS each (default 60), in libFuzzer's fork
-# mode so that one crash does not stop the run; crashes land in
-# fuzz/artifacts/<target>/. Needs cargo-fuzz (`cargo install cargo-fuzz`);
-# on a stable toolchain RUSTC_BOOTSTRAP=1 lets it use the flags it needs.
+# Runs both fuzz targets for SECONDS each (default 60) and fails on the
+# first crash, timeout (> 10 s per input) or out-of-memory, which lands in
+# fuzz/artifacts/<target>/: a bounded check for CI. For long runs that go
+# on past findings, see docs/reliability.md (libFuzzer's fork mode). Needs
+# cargo-fuzz (`cargo install cargo-fuzz`); on a stable toolchain
+# RUSTC_BOOTSTRAP=1 lets it use the flags it needs.
 # Usage: fuzz/run.sh [SECONDS] [TARGET...]
 set -euo pipefail
 cd "$(dirname "$0")"
