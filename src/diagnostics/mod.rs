@@ -51,6 +51,25 @@ impl Span {
 pub struct SourceFile {
     pub path: PathBuf,
     pub text: String,
+    /// Byte offsets where lines start, built on first use: locating a
+    /// diagnostic is then a binary search, not a scan from the file's start
+    /// (a file with 100,000 diagnostics would otherwise take quadratic time).
+    line_starts: std::sync::OnceLock<Vec<usize>>,
+}
+
+impl SourceFile {
+    pub fn new(path: PathBuf, text: String) -> SourceFile {
+        SourceFile { path, text, line_starts: std::sync::OnceLock::new() }
+    }
+
+    fn line_starts(&self) -> &[usize] {
+        self.line_starts.get_or_init(|| std::iter::once(0).chain(self.text.match_indices('\n').map(|(i, _)| i + 1)).collect())
+    }
+
+    /// 0-based line index of a byte offset.
+    pub fn line_index(&self, offset: usize) -> usize {
+        self.line_starts().partition_point(|&start| start <= offset).saturating_sub(1)
+    }
 }
 
 /// All files read for one compilation (the main file and its `use`d files).
@@ -64,7 +83,7 @@ impl SourceMap {
         Self::default()
     }
     pub fn add(&mut self, path: PathBuf, text: String) -> FileId {
-        self.files.push(SourceFile { path, text });
+        self.files.push(SourceFile::new(path, text));
         FileId((self.files.len() - 1) as u32)
     }
     pub fn get(&self, id: FileId) -> Option<&SourceFile> {
@@ -79,12 +98,11 @@ impl SourceMap {
     /// 1-based line and column (in characters) of a byte offset.
     pub fn line_col(&self, id: FileId, offset: usize) -> (usize, usize) {
         let Some(file) = self.get(id) else { return (1, 1) };
-        let offset = offset.min(file.text.len());
-        let before = &file.text[..floor_char_boundary(&file.text, offset)];
-        let line = before.matches('\n').count() + 1;
-        let line_start = before.rfind('\n').map(|i| i + 1).unwrap_or(0);
-        let col = before[line_start..].chars().count() + 1;
-        (line, col)
+        let offset = floor_char_boundary(&file.text, offset.min(file.text.len()));
+        let line = file.line_index(offset);
+        let line_start = file.line_starts()[line];
+        let col = file.text[line_start..offset].chars().count() + 1;
+        (line + 1, col)
     }
     /// The text a span covers ("" if out of range).
     pub fn snippet(&self, span: Span) -> &str {

@@ -15,7 +15,7 @@ pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
             Severity::Warning => miette::Severity::Warning,
         });
     let mut elsewhere = Vec::new();
-    let window = primary_file.and_then(|f| sources.get(f)).map(|file| WindowSource::around(&file.path.display().to_string(), &file.text, &diag.labels));
+    let window = primary_file.and_then(|f| sources.get(f)).map(|file| WindowSource::around(file, &diag.labels));
     let too_long = window.as_ref().is_some_and(|w| w.text.lines().any(|l| l.len() > MAX_DRAWN_LINE));
     for label in &diag.labels {
         if too_long {
@@ -135,7 +135,8 @@ struct WindowSource {
 impl WindowSource {
     const CONTEXT_LINES: usize = 3;
 
-    fn around(name: &str, text: &str, labels: &[super::Label]) -> WindowSource {
+    fn around(file: &super::SourceFile, labels: &[super::Label]) -> WindowSource {
+        let text = file.text.as_str();
         let first = labels.iter().map(|l| l.span.start).min().unwrap_or(0).min(text.len());
         let last = labels.iter().map(|l| l.span.end).max().unwrap_or(0).min(text.len());
         let line_start = |pos: usize| text[..pos].rfind('\n').map(|i| i + 1).unwrap_or(0);
@@ -156,8 +157,8 @@ impl WindowSource {
                 }
             }
         }
-        let base_line = text.as_bytes()[..start].iter().filter(|&&b| b == b'\n').count();
-        WindowSource { name: name.to_string(), text: shown(&text[start..end]), base_offset: start, base_line }
+        let base_line = file.line_index(start);
+        WindowSource { name: file.path.display().to_string(), text: shown(&text[start..end]), base_offset: start, base_line }
     }
 }
 
