@@ -7,11 +7,16 @@
 const COMMAND_STACK_BYTES: usize = 1 << 30;
 
 fn main() -> std::process::ExitCode {
-    let worker = std::thread::Builder::new().name("ratewright".into()).stack_size(COMMAND_STACK_BYTES).spawn(ratewright::cli::main);
+    let worker = std::thread::Builder::new()
+        .name("ratewright".into())
+        .stack_size(COMMAND_STACK_BYTES)
+        .spawn(ratewright::cli::main);
     match worker.map(|handle| handle.join()) {
         Ok(Ok(code)) => code,
         Ok(Err(_)) => {
-            eprintln!("error: internal failure (a bug: please report it with the input that caused it)");
+            eprintln!(
+                "error: internal failure (a bug: please report it with the input that caused it)"
+            );
             std::process::ExitCode::from(1)
         }
         Err(e) => {

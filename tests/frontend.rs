@@ -14,7 +14,12 @@ fn load(text: &str) -> Loaded {
 
 /// All diagnostics of `text`, rendered as the terminal shows them.
 fn rendered(loaded: &Loaded) -> String {
-    loaded.diagnostics.iter().map(|d| render_human(d, &loaded.sources)).collect::<Vec<_>>().join("\n")
+    loaded
+        .diagnostics
+        .iter()
+        .map(|d| render_human(d, &loaded.sources))
+        .collect::<Vec<_>>()
+        .join("\n")
 }
 
 fn codes(loaded: &Loaded) -> Vec<Code> {
@@ -28,13 +33,22 @@ macro_rules! diagnostic_snapshot {
         #[test]
         fn $name() {
             let loaded = load($text);
-            assert!(codes(&loaded).contains(&$code), "expected {:?}, got {:?}", $code, codes(&loaded));
+            assert!(
+                codes(&loaded).contains(&$code),
+                "expected {:?}, got {:?}",
+                $code,
+                codes(&loaded)
+            );
             insta::assert_snapshot!(rendered(&loaded));
         }
     };
 }
 
-diagnostic_snapshot!(syntax_error_says_what_was_expected, Code::Syntax, "species S = 20 uM\nstep bind S -> with k1\n");
+diagnostic_snapshot!(
+    syntax_error_says_what_was_expected,
+    Code::Syntax,
+    "species S = 20 uM\nstep bind S -> with k1\n"
+);
 diagnostic_snapshot!(misspelt_keyword, Code::Syntax, "specis S = 20 uM\n");
 diagnostic_snapshot!(
     unknown_name_with_suggestion,
@@ -44,12 +58,16 @@ diagnostic_snapshot!(
 diagnostic_snapshot!(
     duplicate_name,
     Code::DuplicateName,
-    &format!("{GOOD_HEAD}param k2 = 3 /s\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n")
+    &format!(
+        "{GOOD_HEAD}param k2 = 3 /s\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n"
+    )
 );
 diagnostic_snapshot!(
     reversible_without_reverse_constant,
     Code::MissingReverseConstant,
-    &format!("{GOOD_HEAD}step bind E + S <=> ES with k1\nstep cat ES -> E + P with k2\nobserve x = km1\n")
+    &format!(
+        "{GOOD_HEAD}step bind E + S <=> ES with k1\nstep cat ES -> E + P with k2\nobserve x = km1\n"
+    )
 );
 diagnostic_snapshot!(
     irreversible_with_two_constants,
@@ -61,11 +79,17 @@ diagnostic_snapshot!(
     Code::DimensionMismatch,
     "species S = 20 uM, E = 0.1 uM, ES, P\nparam k1 = 2 /s\nparam km1 = 40 /s\nparam k2 = 12 /s\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n"
 );
-diagnostic_snapshot!(cyclic_params, Code::ParamCycle, "species A = 1 uM\nparam a = b * 2\nparam b = c + 1\nparam c = a / 3\nstep decay A -> 0 with a\n");
+diagnostic_snapshot!(
+    cyclic_params,
+    Code::ParamCycle,
+    "species A = 1 uM\nparam a = b * 2\nparam b = c + 1\nparam c = a / 3\nstep decay A -> 0 with a\n"
+);
 diagnostic_snapshot!(
     total_not_conserved,
     Code::TotalNotConserved,
-    &format!("{GOOD_HEAD}step bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\ntotal wrong = E + ES + S\n")
+    &format!(
+        "{GOOD_HEAD}step bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\ntotal wrong = E + ES + S\n"
+    )
 );
 diagnostic_snapshot!(
     total_value_inconsistent,
@@ -75,31 +99,55 @@ diagnostic_snapshot!(
 diagnostic_snapshot!(
     event_on_a_param,
     Code::EventTarget,
-    &format!("{GOOD_HEAD}step bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\nadd 5 uM k1 at 10 s\n")
+    &format!(
+        "{GOOD_HEAD}step bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\nadd 5 uM k1 at 10 s\n"
+    )
 );
-diagnostic_snapshot!(negative_initial_value, Code::NegativeInitial, "species A = -1 uM\nparam k = 1 /s\nstep decay A -> 0 with k\n");
+diagnostic_snapshot!(
+    negative_initial_value,
+    Code::NegativeInitial,
+    "species A = -1 uM\nparam k = 1 /s\nstep decay A -> 0 with k\n"
+);
 diagnostic_snapshot!(
     unused_param_warning,
     Code::UnusedParam,
-    &format!("{GOOD_HEAD}param spare = 3 /s\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n")
+    &format!(
+        "{GOOD_HEAD}param spare = 3 /s\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n"
+    )
 );
 diagnostic_snapshot!(
     untouched_species_warning,
     Code::UntouchedSpecies,
-    &format!("{GOOD_HEAD}species Lonely = 1 uM\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n")
+    &format!(
+        "{GOOD_HEAD}species Lonely = 1 uM\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n"
+    )
 );
 diagnostic_snapshot!(
     equal_sides_warning,
     Code::NoOpStep,
-    &format!("{GOOD_HEAD}step bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\nstep idle E -> E with k2\n")
+    &format!(
+        "{GOOD_HEAD}step bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\nstep idle E -> E with k2\n"
+    )
 );
-diagnostic_snapshot!(unknown_unit, Code::UnknownUnit, "species A = 1 uMol\nparam k = 1 /s\nstep decay A -> 0 with k\n");
-diagnostic_snapshot!(ambiguous_quantity, Code::AmbiguousQuantity, "species A = 1 uM\nparam h = 2 \"a Hill coefficient\"\nparam k = 1 /h\nstep decay A -> 0 with k\n");
+diagnostic_snapshot!(
+    unknown_unit,
+    Code::UnknownUnit,
+    "species A = 1 uMol\nparam k = 1 /s\nstep decay A -> 0 with k\n"
+);
+diagnostic_snapshot!(
+    ambiguous_quantity,
+    Code::AmbiguousQuantity,
+    "species A = 1 uM\nparam h = 2 \"a Hill coefficient\"\nparam k = 1 /h\nstep decay A -> 0 with k\n"
+);
 
 #[test]
 fn cyclic_use_points_into_the_right_file() {
     let loaded = load_path(Path::new("tests/fixtures/use_cycle_a.mech"));
-    assert!(codes(&loaded).contains(&Code::UseCycle), "{:?}", codes(&loaded));
+    assert!(
+        codes(&loaded).contains(&Code::UseCycle),
+        "{:?}",
+        codes(&loaded)
+    );
     insta::assert_snapshot!(rendered(&loaded));
 }
 
@@ -109,9 +157,19 @@ fn demo_models_pass_check_deny_warnings_and_are_fmt_stable() {
     assert!(models.len() >= 6, "models/ holds the demo set");
     for path in &models {
         let out = common::ratewright(&["check", "--deny-warnings", path.to_str().unwrap()]);
-        assert!(out.status.success(), "{}: {}", path.display(), String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "{}: {}",
+            path.display(),
+            String::from_utf8_lossy(&out.stderr)
+        );
         let out = common::ratewright(&["fmt", "--check", path.to_str().unwrap()]);
-        assert!(out.status.success(), "{} is not fmt-stable: {}", path.display(), String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "{} is not fmt-stable: {}",
+            path.display(),
+            String::from_utf8_lossy(&out.stderr)
+        );
     }
 }
 
@@ -134,14 +192,43 @@ fn check_json_carries_positions_and_codes() {
 
 #[test]
 fn exit_codes_follow_the_cli_design() {
-    assert_eq!(common::ratewright(&["check", "models/robertson.mech"]).status.code(), Some(0));
-    assert_eq!(common::ratewright(&["check", "no/such/file.mech"]).status.code(), Some(2));
-    assert_eq!(common::ratewright(&["check", "--bogus-flag", "models/robertson.mech"]).status.code(), Some(2));
+    assert_eq!(
+        common::ratewright(&["check", "models/robertson.mech"])
+            .status
+            .code(),
+        Some(0)
+    );
+    assert_eq!(
+        common::ratewright(&["check", "no/such/file.mech"])
+            .status
+            .code(),
+        Some(2)
+    );
+    assert_eq!(
+        common::ratewright(&["check", "--bogus-flag", "models/robertson.mech"])
+            .status
+            .code(),
+        Some(2)
+    );
     let dir = tempfile::tempdir().unwrap();
     let file = dir.path().join("w.mech");
-    std::fs::write(&file, "species A = 1 uM\nparam k = 1 /s\nparam unused = 2 /s\nstep decay A -> 0 with k\n").unwrap();
-    assert_eq!(common::ratewright(&["check", file.to_str().unwrap()]).status.code(), Some(0));
-    assert_eq!(common::ratewright(&["check", "--deny-warnings", file.to_str().unwrap()]).status.code(), Some(1));
+    std::fs::write(
+        &file,
+        "species A = 1 uM\nparam k = 1 /s\nparam unused = 2 /s\nstep decay A -> 0 with k\n",
+    )
+    .unwrap();
+    assert_eq!(
+        common::ratewright(&["check", file.to_str().unwrap()])
+            .status
+            .code(),
+        Some(0)
+    );
+    assert_eq!(
+        common::ratewright(&["check", "--deny-warnings", file.to_str().unwrap()])
+            .status
+            .code(),
+        Some(1)
+    );
 }
 
 #[test]
@@ -150,19 +237,38 @@ fn fmt_rewrites_atomically_and_check_mode_writes_nothing() {
     let file = dir.path().join("m.mech");
     let messy = "species   A=1 uM   # start\nparam k=1 /s\nstep decay  A->0 with k\n";
     std::fs::write(&file, messy).unwrap();
-    assert_eq!(common::ratewright(&["fmt", "--check", file.to_str().unwrap()]).status.code(), Some(1));
+    assert_eq!(
+        common::ratewright(&["fmt", "--check", file.to_str().unwrap()])
+            .status
+            .code(),
+        Some(1)
+    );
     assert_eq!(std::fs::read_to_string(&file).unwrap(), messy);
-    assert!(common::ratewright(&["fmt", file.to_str().unwrap()]).status.success());
+    assert!(
+        common::ratewright(&["fmt", file.to_str().unwrap()])
+            .status
+            .success()
+    );
     let formatted = std::fs::read_to_string(&file).unwrap();
-    assert_eq!(formatted, "species A = 1 uM  # start\nparam k = 1 /s\nstep decay A -> 0 with k\n");
-    assert_eq!(common::ratewright(&["fmt", "--check", file.to_str().unwrap()]).status.code(), Some(0));
+    assert_eq!(
+        formatted,
+        "species A = 1 uM  # start\nparam k = 1 /s\nstep decay A -> 0 with k\n"
+    );
+    assert_eq!(
+        common::ratewright(&["fmt", "--check", file.to_str().unwrap()])
+            .status
+            .code(),
+        Some(0)
+    );
 }
 
 #[test]
 fn unit_conversion_follows_si_definitions() {
     // SI Brochure (BIPM, 9th ed.): 1 mM = 1000 uM, 1 min = 60 s; hence
     // 1e6 /M/s = 1 /uM/s and 0.5 /min = 1/120 /s.
-    let loaded = load("units concentration uM, time s\nspecies A = 1 mM\nspecies B\nparam kf = 1e6 /M/s\nparam kr = 0.5 /min\nstep s 2 A <=> B with kf, kr\n");
+    let loaded = load(
+        "units concentration uM, time s\nspecies A = 1 mM\nspecies B\nparam kf = 1e6 /M/s\nparam kr = 0.5 /min\nstep s 2 A <=> B with kf, kr\n",
+    );
     let m = loaded.model.expect("valid");
     assert!((m.species[0].initial - 1000.0).abs() < 1e-9);
     assert!((m.params[0].value - 1.0).abs() < 1e-12);
@@ -175,15 +281,23 @@ fn events_convert_and_totals_fix_start_values() {
         "units concentration uM, time min\nspecies S = 20 uM, E, ES, P\nparam k1 = 2 /uM/s\nparam km1 = 40 /s\nparam k2 = 12 /s\nstep bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\ntotal E_t = E + ES = 50 nM\nadd 1 mM S at 90 s\n",
     );
     let m = loaded.model.expect("valid");
-    assert!((m.species[1].initial - 0.05).abs() < 1e-15, "E follows from E_t");
+    assert!(
+        (m.species[1].initial - 0.05).abs() < 1e-15,
+        "E follows from E_t"
+    );
     assert!((m.events[0].time - 1.5).abs() < 1e-15, "90 s = 1.5 min");
     assert!((m.events[0].amount - 1000.0).abs() < 1e-9);
-    assert!((m.params[0].value - 120.0).abs() < 1e-9, "2 /uM/s = 120 /uM/min");
+    assert!(
+        (m.params[0].value - 120.0).abs() < 1e-9,
+        "2 /uM/s = 120 /uM/min"
+    );
 }
 
 #[test]
 fn unicode_arrows_empty_sides_and_continued_lines() {
-    let loaded = load("species A = 1 uM, B\nparam k = 1 /s\nparam kin = 0.1 uM/s\nparam kk = (k +   # continued\n    k)\nstep make ∅ → A with kin\nstep conv A ⇌ B with k, kk\nstep gone B -> 0 with k\n");
+    let loaded = load(
+        "species A = 1 uM, B\nparam k = 1 /s\nparam kin = 0.1 uM/s\nparam kk = (k +   # continued\n    k)\nstep make ∅ → A with kin\nstep conv A ⇌ B with k, kk\nstep gone B -> 0 with k\n",
+    );
     assert!(loaded.model.is_some(), "{}", rendered(&loaded));
     let m = loaded.model.unwrap();
     assert!(m.steps[1].reversible);
@@ -192,26 +306,38 @@ fn unicode_arrows_empty_sides_and_continued_lines() {
 }
 
 fn model_files() -> Vec<String> {
-    common::models().iter().map(|p| std::fs::read_to_string(p).unwrap()).collect()
+    common::models()
+        .iter()
+        .map(|p| std::fs::read_to_string(p).unwrap())
+        .collect()
 }
 
 /// A generated mechanism with `n` species in a chain of mixed steps.
 fn generated(seed: u64, n: usize) -> String {
-    let mut x = seed.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+    let mut x = seed
+        .wrapping_mul(6364136223846793005)
+        .wrapping_add(1442695040888963407);
     let mut next = || {
-        x = x.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+        x = x
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
         (x >> 33) as usize
     };
     let mut s = String::from("units concentration uM, time s\n");
     for i in 0..n {
-        s.push_str(&format!("species X{i} = {} uM  \"form {i}\"\n", next() % 10));
+        s.push_str(&format!(
+            "species X{i} = {} uM  \"form {i}\"\n",
+            next() % 10
+        ));
     }
     s.push_str("param kf1 = 1.5 /s\nparam kf2 = 0.2 /uM/s\nparam kr = 3 /s\n");
     for j in 0..n.saturating_sub(1) {
         let (a, b) = (j, j + 1);
         match next() % 3 {
             0 => s.push_str(&format!("step r{j} X{a} -> X{b} with kf1\n")),
-            1 => s.push_str(&format!("step r{j} X{a} <=> X{b}   with kf1, kr   # reversible\n")),
+            1 => s.push_str(&format!(
+                "step r{j} X{a} <=> X{b}   with kf1, kr   # reversible\n"
+            )),
             _ => s.push_str(&format!("step r{j} X{a} + X{b} -> 2 X{b} with kf2\n")),
         }
     }
@@ -260,7 +386,11 @@ fn check_fmt_round_trip(text: &str) {
     assert_eq!(once, twice, "fmt is idempotent");
     let a = load(text).model.expect("original is valid");
     let b = load(&once).model.expect("formatted is valid");
-    assert_eq!(a.without_spans(), b.without_spans(), "fmt keeps the meaning");
+    assert_eq!(
+        a.without_spans(),
+        b.without_spans(),
+        "fmt keeps the meaning"
+    );
 }
 
 #[test]

@@ -34,7 +34,12 @@ pub fn run(args: &Args) -> ExitCode {
             }
         }
         match args.format {
-            Format::Json => all_json.extend(loaded.diagnostics.iter().map(|d| to_json_value(d, &loaded.sources))),
+            Format::Json => all_json.extend(
+                loaded
+                    .diagnostics
+                    .iter()
+                    .map(|d| to_json_value(d, &loaded.sources)),
+            ),
             Format::Human => {
                 print_diagnostics(&loaded.diagnostics, &loaded.sources);
                 if loaded.diagnostics.is_empty() {
@@ -57,7 +62,14 @@ pub fn run(args: &Args) -> ExitCode {
         }
         Format::Human => {
             if errors + warnings > 0 {
-                eprintln!("{errors} error(s), {warnings} warning(s){}", if args.deny_warnings && warnings > 0 { " (warnings denied)" } else { "" });
+                eprintln!(
+                    "{errors} error(s), {warnings} warning(s){}",
+                    if args.deny_warnings && warnings > 0 {
+                        " (warnings denied)"
+                    } else {
+                        ""
+                    }
+                );
             }
         }
     }

@@ -30,7 +30,10 @@ pub fn load_model(path: &Path, json: bool) -> Result<(Model, SourceMap), ExitCod
         } else {
             print_diagnostics(&loaded.diagnostics, &loaded.sources);
         }
-        let usage = loaded.diagnostics.iter().any(|d| d.code == crate::diagnostics::Code::FileRead);
+        let usage = loaded
+            .diagnostics
+            .iter()
+            .any(|d| d.code == crate::diagnostics::Code::FileRead);
         return Err(ExitCode::from(if usage { EXIT_USAGE } else { EXIT_MODEL }));
     }
     if !json {
@@ -54,7 +57,9 @@ pub fn run_error(message: impl std::fmt::Display) -> ExitCode {
 /// Parses `NAME=VALUE[unit]` as given to `--set`, converting to the model's
 /// default units.
 pub fn parse_assignment(text: &str, units: Units) -> Result<(String, f64), String> {
-    let (name, value) = text.split_once('=').ok_or_else(|| format!("`{text}` is not NAME=VALUE"))?;
+    let (name, value) = text
+        .split_once('=')
+        .ok_or_else(|| format!("`{text}` is not NAME=VALUE"))?;
     let (v, _) = model::units::parse_quantity(value, units)?;
     Ok((name.trim().to_string(), v))
 }
@@ -65,7 +70,9 @@ pub fn parse_time(text: &str, units: Units) -> Result<f64, String> {
     match dim {
         None => Ok(v),
         Some(d) if d == model::Dim::TIME => Ok(v),
-        Some(d) => Err(format!("`{text}` is not a time (its unit has dimension {d})")),
+        Some(d) => Err(format!(
+            "`{text}` is not a time (its unit has dimension {d})"
+        )),
     }
 }
 
@@ -86,13 +93,21 @@ pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(),
     builder.prefix(".ratewright-").suffix(".tmp");
     #[cfg(unix)]
     builder.permissions(std::os::unix::fs::PermissionsExt::from_mode(0o666));
-    let mut tmp = builder.tempfile_in(&dir).map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
+    let mut tmp = builder
+        .tempfile_in(&dir)
+        .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
     if let Some(mode) = existing_mode {
-        tmp.as_file().set_permissions(mode).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+        tmp.as_file()
+            .set_permissions(mode)
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     }
-    tmp.write_all(bytes).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
-    tmp.as_file().sync_all().map_err(|e| format!("cannot write {}: {e}", path.display()))?;
-    tmp.persist(path).map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
+    tmp.write_all(bytes)
+        .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    tmp.as_file()
+        .sync_all()
+        .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    tmp.persist(path)
+        .map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
     Ok(())
 }
 
@@ -113,7 +128,9 @@ pub fn writing_guard() -> std::sync::MutexGuard<'static, ()> {
             std::process::exit(130);
         });
     });
-    WRITING.lock().unwrap_or_else(std::sync::PoisonError::into_inner)
+    WRITING
+        .lock()
+        .unwrap_or_else(std::sync::PoisonError::into_inner)
 }
 
 /// Errors if `out` names the same file as one of `inputs`.
@@ -123,7 +140,10 @@ pub fn refuse_input_overwrite(out: &Path, inputs: &[PathBuf]) -> Result<(), Stri
         _ => a == b,
     };
     if let Some(input) = inputs.iter().find(|i| same(out, i)) {
-        return Err(format!("refusing to overwrite the input file {}", input.display()));
+        return Err(format!(
+            "refusing to overwrite the input file {}",
+            input.display()
+        ));
     }
     Ok(())
 }
@@ -142,7 +162,16 @@ mod tests {
         let out = dir.path().join("out.csv");
         write_atomic(&out, b"a,b\n", std::slice::from_ref(&input)).unwrap();
         assert_eq!(std::fs::read_to_string(&out).unwrap(), "a,b\n");
-        let leftovers = std::fs::read_dir(dir.path()).unwrap().filter(|e| e.as_ref().unwrap().file_name().to_string_lossy().ends_with(".tmp")).count();
+        let leftovers = std::fs::read_dir(dir.path())
+            .unwrap()
+            .filter(|e| {
+                e.as_ref()
+                    .unwrap()
+                    .file_name()
+                    .to_string_lossy()
+                    .ends_with(".tmp")
+            })
+            .count();
         assert_eq!(leftovers, 0);
     }
 }

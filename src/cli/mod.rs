@@ -23,7 +23,11 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 #[derive(Parser, Debug)]
-#[command(name = "ratewright", version, about = "Compile, analyse, derive and simulate reaction mechanisms written in .mech files")]
+#[command(
+    name = "ratewright",
+    version,
+    about = "Compile, analyse, derive and simulate reaction mechanisms written in .mech files"
+)]
 pub struct Cli {
     #[command(subcommand)]
     pub command: Command,
@@ -98,9 +102,14 @@ fn join_spaced_units(args: Vec<std::ffi::OsString>) -> Vec<std::ffi::OsString> {
     let mut i = 0;
     while i < args.len() {
         out.push(args[i].clone());
-        let is_quantity_option = args[i].to_str().is_some_and(|a| QUANTITY_OPTIONS.contains(&a));
+        let is_quantity_option = args[i]
+            .to_str()
+            .is_some_and(|a| QUANTITY_OPTIONS.contains(&a));
         if is_quantity_option
-            && let (Some(value), Some(unit)) = (args.get(i + 1).and_then(|v| v.to_str()), args.get(i + 2).and_then(|u| u.to_str()))
+            && let (Some(value), Some(unit)) = (
+                args.get(i + 1).and_then(|v| v.to_str()),
+                args.get(i + 2).and_then(|u| u.to_str()),
+            )
         {
             let number = value.rsplit('=').next().unwrap_or(value);
             let unit_like = !unit.starts_with('-') && crate::model::units::parse_unit(unit).is_ok();
@@ -120,14 +129,29 @@ mod tests {
     use super::join_spaced_units;
 
     fn joined(args: &[&str]) -> Vec<String> {
-        join_spaced_units(args.iter().map(|a| (*a).into()).collect()).into_iter().map(|a| a.into_string().unwrap()).collect()
+        join_spaced_units(args.iter().map(|a| (*a).into()).collect())
+            .into_iter()
+            .map(|a| a.into_string().unwrap())
+            .collect()
     }
 
     #[test]
     fn a_unit_after_a_quantity_option_joins_its_number() {
-        assert_eq!(joined(&["rw", "run", "m.mech", "--until", "20", "min"]), ["rw", "run", "m.mech", "--until", "20 min"]);
-        assert_eq!(joined(&["rw", "run", "m.mech", "--set", "S=5", "mM", "-o", "x.csv"]), ["rw", "run", "m.mech", "--set", "S=5 mM", "-o", "x.csv"]);
-        assert_eq!(joined(&["rw", "run", "--until", "20", "m.mech"]), ["rw", "run", "--until", "20", "m.mech"]);
-        assert_eq!(joined(&["rw", "run", "--until", "20min", "--points", "5"]), ["rw", "run", "--until", "20min", "--points", "5"]);
+        assert_eq!(
+            joined(&["rw", "run", "m.mech", "--until", "20", "min"]),
+            ["rw", "run", "m.mech", "--until", "20 min"]
+        );
+        assert_eq!(
+            joined(&["rw", "run", "m.mech", "--set", "S=5", "mM", "-o", "x.csv"]),
+            ["rw", "run", "m.mech", "--set", "S=5 mM", "-o", "x.csv"]
+        );
+        assert_eq!(
+            joined(&["rw", "run", "--until", "20", "m.mech"]),
+            ["rw", "run", "--until", "20", "m.mech"]
+        );
+        assert_eq!(
+            joined(&["rw", "run", "--until", "20min", "--points", "5"]),
+            ["rw", "run", "--until", "20min", "--points", "5"]
+        );
     }
 }

@@ -35,7 +35,11 @@ impl Span {
         if self.file != other.file {
             return self;
         }
-        Span { file: self.file, start: self.start.min(other.start), end: self.end.max(other.end) }
+        Span {
+            file: self.file,
+            start: self.start.min(other.start),
+            end: self.end.max(other.end),
+        }
     }
     pub fn len(&self) -> usize {
         self.end.saturating_sub(self.start)
@@ -59,16 +63,26 @@ pub struct SourceFile {
 
 impl SourceFile {
     pub fn new(path: PathBuf, text: String) -> SourceFile {
-        SourceFile { path, text, line_starts: std::sync::OnceLock::new() }
+        SourceFile {
+            path,
+            text,
+            line_starts: std::sync::OnceLock::new(),
+        }
     }
 
     fn line_starts(&self) -> &[usize] {
-        self.line_starts.get_or_init(|| std::iter::once(0).chain(self.text.match_indices('\n').map(|(i, _)| i + 1)).collect())
+        self.line_starts.get_or_init(|| {
+            std::iter::once(0)
+                .chain(self.text.match_indices('\n').map(|(i, _)| i + 1))
+                .collect()
+        })
     }
 
     /// 0-based line index of a byte offset.
     pub fn line_index(&self, offset: usize) -> usize {
-        self.line_starts().partition_point(|&start| start <= offset).saturating_sub(1)
+        self.line_starts()
+            .partition_point(|&start| start <= offset)
+            .saturating_sub(1)
     }
 }
 
@@ -93,11 +107,16 @@ impl SourceMap {
         &self.files
     }
     pub fn find(&self, path: &std::path::Path) -> Option<FileId> {
-        self.files.iter().position(|f| f.path == path).map(|i| FileId(i as u32))
+        self.files
+            .iter()
+            .position(|f| f.path == path)
+            .map(|i| FileId(i as u32))
     }
     /// 1-based line and column (in characters) of a byte offset.
     pub fn line_col(&self, id: FileId, offset: usize) -> (usize, usize) {
-        let Some(file) = self.get(id) else { return (1, 1) };
+        let Some(file) = self.get(id) else {
+            return (1, 1);
+        };
         let offset = floor_char_boundary(&file.text, offset.min(file.text.len()));
         let line = file.line_index(offset);
         let line_start = file.line_starts()[line];
@@ -146,13 +165,28 @@ pub struct Diagnostic {
 
 impl Diagnostic {
     pub fn error(code: Code, message: impl Into<String>) -> Self {
-        Diagnostic { code, severity: Severity::Error, message: message.into(), labels: vec![], help: None }
+        Diagnostic {
+            code,
+            severity: Severity::Error,
+            message: message.into(),
+            labels: vec![],
+            help: None,
+        }
     }
     pub fn warning(code: Code, message: impl Into<String>) -> Self {
-        Diagnostic { code, severity: Severity::Warning, message: message.into(), labels: vec![], help: None }
+        Diagnostic {
+            code,
+            severity: Severity::Warning,
+            message: message.into(),
+            labels: vec![],
+            help: None,
+        }
     }
     pub fn with_label(mut self, span: Span, message: impl Into<String>) -> Self {
-        self.labels.push(Label { span, message: message.into() });
+        self.labels.push(Label {
+            span,
+            message: message.into(),
+        });
         self
     }
     pub fn with_help(mut self, help: impl Into<String>) -> Self {
@@ -195,7 +229,10 @@ impl Diagnostics {
 
 /// The closest candidate to `name` by edit distance, if close enough to be a
 /// plausible typo ("did you mean").
-pub fn did_you_mean<'a>(name: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
+pub fn did_you_mean<'a>(
+    name: &str,
+    candidates: impl IntoIterator<Item = &'a str>,
+) -> Option<&'a str> {
     let limit = (name.chars().count() / 3).max(1);
     candidates
         .into_iter()
@@ -226,7 +263,10 @@ mod tests {
 
     #[test]
     fn suggests_close_names_only() {
-        assert_eq!(did_you_mean("k_of", ["k_on", "k_off", "k_cat"]), Some("k_off"));
+        assert_eq!(
+            did_you_mean("k_of", ["k_on", "k_off", "k_cat"]),
+            Some("k_off")
+        );
         assert_eq!(did_you_mean("zzz", ["k_on", "k_off"]), None);
     }
 

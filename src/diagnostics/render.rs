@@ -2,11 +2,15 @@
 //! colour so output is stable) and for programs (JSON).
 
 use super::{Diagnostic, Severity, SourceMap};
-use miette::{GraphicalReportHandler, GraphicalTheme, LabeledSpan, MietteDiagnostic, MietteError, MietteSpanContents, SourceCode, SourceSpan, SpanContents};
+use miette::{
+    GraphicalReportHandler, GraphicalTheme, LabeledSpan, MietteDiagnostic, MietteError,
+    MietteSpanContents, SourceCode, SourceSpan, SpanContents,
+};
 
 /// Renders one diagnostic as a user sees it in a terminal (no colour).
 pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
-    let handler = GraphicalReportHandler::new_themed(GraphicalTheme::unicode_nocolor()).with_width(90);
+    let handler =
+        GraphicalReportHandler::new_themed(GraphicalTheme::unicode_nocolor()).with_width(90);
     let primary_file = diag.labels.first().map(|l| l.span.file);
     let mut report = MietteDiagnostic::new(diag.message.clone())
         .with_code(diag.code.as_str())
@@ -15,18 +19,35 @@ pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
             Severity::Warning => miette::Severity::Warning,
         });
     let mut elsewhere = Vec::new();
-    let window = primary_file.and_then(|f| sources.get(f)).map(|file| WindowSource::around(file, &diag.labels));
-    let too_long = window.as_ref().is_some_and(|w| w.text.lines().any(|l| l.len() > MAX_DRAWN_LINE));
+    let window = primary_file
+        .and_then(|f| sources.get(f))
+        .map(|file| WindowSource::around(file, &diag.labels));
+    let too_long = window
+        .as_ref()
+        .is_some_and(|w| w.text.lines().any(|l| l.len() > MAX_DRAWN_LINE));
     for label in &diag.labels {
         if too_long {
-            let path = sources.get(label.span.file).map(|f| f.path.display().to_string()).unwrap_or_default();
+            let path = sources
+                .get(label.span.file)
+                .map(|f| f.path.display().to_string())
+                .unwrap_or_default();
             let (line, col) = sources.line_col(label.span.file, label.span.start);
-            elsewhere.push(format!("{}: {path}:{line}:{col} (the line is too long to show)", label.message));
+            elsewhere.push(format!(
+                "{}: {path}:{line}:{col} (the line is too long to show)",
+                label.message
+            ));
         } else if Some(label.span.file) == primary_file {
             let len = label.span.len();
-            report = report.and_label(LabeledSpan::new(Some(label.message.clone()), label.span.start, len));
+            report = report.and_label(LabeledSpan::new(
+                Some(label.message.clone()),
+                label.span.start,
+                len,
+            ));
         } else {
-            let path = sources.get(label.span.file).map(|f| f.path.display().to_string()).unwrap_or_default();
+            let path = sources
+                .get(label.span.file)
+                .map(|f| f.path.display().to_string())
+                .unwrap_or_default();
             let (line, col) = sources.line_col(label.span.file, label.span.start);
             elsewhere.push(format!("{}: {path}:{line}:{col}", label.message));
         }
@@ -50,7 +71,12 @@ pub fn render_human(diag: &Diagnostic, sources: &SourceMap) -> String {
         None => handler.render_report(&mut out, &report),
     };
     if result.is_err() {
-        out = format!("{}: {} [{}]\n", severity_word(diag.severity), diag.message, diag.code.as_str());
+        out = format!(
+            "{}: {} [{}]\n",
+            severity_word(diag.severity),
+            diag.message,
+            diag.code.as_str()
+        );
     }
     out
 }
@@ -137,8 +163,18 @@ impl WindowSource {
 
     fn around(file: &super::SourceFile, labels: &[super::Label]) -> WindowSource {
         let text = file.text.as_str();
-        let first = labels.iter().map(|l| l.span.start).min().unwrap_or(0).min(text.len());
-        let last = labels.iter().map(|l| l.span.end).max().unwrap_or(0).min(text.len());
+        let first = labels
+            .iter()
+            .map(|l| l.span.start)
+            .min()
+            .unwrap_or(0)
+            .min(text.len());
+        let last = labels
+            .iter()
+            .map(|l| l.span.end)
+            .max()
+            .unwrap_or(0)
+            .min(text.len());
         let line_start = |pos: usize| text[..pos].rfind('\n').map(|i| i + 1).unwrap_or(0);
         let mut start = line_start(super::floor_char_boundary(text, first));
         for _ in 0..Self::CONTEXT_LINES {
@@ -158,7 +194,12 @@ impl WindowSource {
             }
         }
         let base_line = file.line_index(start);
-        WindowSource { name: file.path.display().to_string(), text: shown(&text[start..end]), base_offset: start, base_line }
+        WindowSource {
+            name: file.path.display().to_string(),
+            text: shown(&text[start..end]),
+            base_offset: start,
+            base_line,
+        }
     }
 }
 
@@ -185,11 +226,25 @@ fn shown(text: &str) -> String {
 }
 
 impl SourceCode for WindowSource {
-    fn read_span<'a>(&'a self, span: &SourceSpan, before: usize, after: usize) -> Result<Box<dyn SpanContents<'a> + 'a>, MietteError> {
-        let local_offset = span.offset().saturating_sub(self.base_offset).min(self.text.len());
-        let local = SourceSpan::new(local_offset.into(), span.len().min(self.text.len() - local_offset));
+    fn read_span<'a>(
+        &'a self,
+        span: &SourceSpan,
+        before: usize,
+        after: usize,
+    ) -> Result<Box<dyn SpanContents<'a> + 'a>, MietteError> {
+        let local_offset = span
+            .offset()
+            .saturating_sub(self.base_offset)
+            .min(self.text.len());
+        let local = SourceSpan::new(
+            local_offset.into(),
+            span.len().min(self.text.len() - local_offset),
+        );
         let inner = self.text.as_str().read_span(&local, before, after)?;
-        let shifted = SourceSpan::new((inner.span().offset() + self.base_offset).into(), inner.span().len());
+        let shifted = SourceSpan::new(
+            (inner.span().offset() + self.base_offset).into(),
+            inner.span().len(),
+        );
         Ok(Box::new(MietteSpanContents::new_named(
             self.name.clone(),
             inner.data(),

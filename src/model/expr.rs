@@ -178,7 +178,9 @@ impl Expr {
             Expr::Number(_) | Expr::Time => self.clone(),
             Expr::Neg(e) => Expr::Neg(Box::new(e.substitute(f))),
             Expr::Binary(op, a, b) => Expr::bin(*op, a.substitute(f), b.substitute(f)),
-            Expr::Call(func, args) => Expr::Call(*func, args.iter().map(|a| a.substitute(f)).collect()),
+            Expr::Call(func, args) => {
+                Expr::Call(*func, args.iter().map(|a| a.substitute(f)).collect())
+            }
         }
     }
 

@@ -81,7 +81,10 @@ pub struct Term {
 #[derive(Debug, Clone, PartialEq)]
 pub enum Rate {
     /// Forward constant and, for a reversible step, the reverse constant.
-    MassAction { forward: Expr, reverse: Option<Expr> },
+    MassAction {
+        forward: Expr,
+        reverse: Option<Expr>,
+    },
     /// An explicit net forward rate.
     Law(Expr),
 }
@@ -205,7 +208,9 @@ impl Model {
             Sym::Fixed(i) => self.fixed[i].value,
             Sym::Param(i) => self.params[i].value,
             Sym::Total(i) => self.totals[i].value,
-            Sym::Observable(i) => self.observables[i].expr.eval(&|s| self.initial_value(s), 0.0),
+            Sym::Observable(i) => self.observables[i]
+                .expr
+                .eval(&|s| self.initial_value(s), 0.0),
         }
     }
 
@@ -293,7 +298,10 @@ impl Model {
 
     /// Total reactant order of a side (dynamic and fixed species count).
     pub fn order(terms: &[Term]) -> Coef {
-        terms.iter().map(|t| t.coefficient).fold(Coef::zero(), |a, b| a + b)
+        terms
+            .iter()
+            .map(|t| t.coefficient)
+            .fold(Coef::zero(), |a, b| a + b)
     }
 
     /// Right-hand side d(species)/dt as one expression per species
@@ -319,7 +327,9 @@ impl Model {
                 });
             }
         }
-        rhs.into_iter().map(|e| e.unwrap_or(Expr::Number(0.0))).collect()
+        rhs.into_iter()
+            .map(|e| e.unwrap_or(Expr::Number(0.0)))
+            .collect()
     }
 
     /// Returns a copy with values replaced by name (params, species initial
@@ -344,13 +354,18 @@ impl Model {
                 }
                 Some(Sym::Fixed(i)) => m.fixed[i].value = *value,
                 Some(Sym::Total(i)) => set_totals.push((i, *value)),
-                Some(Sym::Observable(_)) => return Err(format!("`{name}` is an observable and cannot be set")),
+                Some(Sym::Observable(_)) => {
+                    return Err(format!("`{name}` is an observable and cannot be set"));
+                }
                 None => {
                     let names = m.all_names();
-                    let hint = crate::diagnostics::did_you_mean(name, names.iter().map(|s| s.as_str()))
-                        .map(|s| format!(" (did you mean `{s}`?)"))
-                        .unwrap_or_default();
-                    return Err(format!("no param, species, fixed species or total named `{name}`{hint}"));
+                    let hint =
+                        crate::diagnostics::did_you_mean(name, names.iter().map(|s| s.as_str()))
+                            .map(|s| format!(" (did you mean `{s}`?)"))
+                            .unwrap_or_default();
+                    return Err(format!(
+                        "no param, species, fixed species or total named `{name}`{hint}"
+                    ));
                 }
             }
         }
@@ -385,7 +400,11 @@ impl Model {
 
     /// The value of a total computed from the species' initial values.
     pub fn total_from_initial(&self, total: usize) -> f64 {
-        self.totals[total].terms.iter().map(|(i, c)| coef_f64(*c) * self.species[*i].initial).sum()
+        self.totals[total]
+            .terms
+            .iter()
+            .map(|(i, c)| coef_f64(*c) * self.species[*i].initial)
+            .sum()
     }
 
     /// Makes the initial values agree with a total's given value by adjusting
@@ -393,10 +412,23 @@ impl Model {
     pub fn apply_total_value(&mut self, total: usize) -> Result<(), String> {
         let t = &self.totals[total];
         let Some(k) = self.total_adjusted_species(total) else {
-            return Err(format!("total `{}` has no species whose start value could follow from it", t.name));
+            return Err(format!(
+                "total `{}` has no species whose start value could follow from it",
+                t.name
+            ));
         };
-        let ck = t.terms.iter().find(|(i, _)| *i == k).map(|(_, c)| coef_f64(*c)).unwrap_or(1.0);
-        let others: f64 = t.terms.iter().filter(|(i, _)| *i != k).map(|(i, c)| coef_f64(*c) * self.species[*i].initial).sum();
+        let ck = t
+            .terms
+            .iter()
+            .find(|(i, _)| *i == k)
+            .map(|(_, c)| coef_f64(*c))
+            .unwrap_or(1.0);
+        let others: f64 = t
+            .terms
+            .iter()
+            .filter(|(i, _)| *i != k)
+            .map(|(i, c)| coef_f64(*c) * self.species[*i].initial)
+            .sum();
         let v = (t.value - others) / ck;
         if v < -1e-12 * t.value.abs().max(1.0) {
             return Err(format!(
@@ -435,7 +467,11 @@ fn mass_action_term(constant: &Expr, terms: &[Term]) -> Expr {
     let mut e = constant.clone();
     for t in terms {
         let base = Expr::Name(t.sym);
-        let factor = if t.coefficient == Coef::one() { base } else { Expr::pow(base, Expr::Number(coef_f64(t.coefficient))) };
+        let factor = if t.coefficient == Coef::one() {
+            base
+        } else {
+            Expr::pow(base, Expr::Number(coef_f64(t.coefficient)))
+        };
         e = Expr::mul(e, factor);
     }
     e
@@ -458,13 +494,19 @@ impl Model {
         for s in &mut m.steps {
             s.span = none;
             s.rate_span = none;
-            s.reactants.iter_mut().chain(s.products.iter_mut()).for_each(|t| t.span = none);
+            s.reactants
+                .iter_mut()
+                .chain(s.products.iter_mut())
+                .for_each(|t| t.span = none);
         }
         m.totals.iter_mut().for_each(|s| s.span = none);
         m.observables.iter_mut().for_each(|s| s.span = none);
         m.events.iter_mut().for_each(|s| s.span = none);
         m.assumptions.steady.iter_mut().for_each(|s| s.1 = none);
-        m.assumptions.equilibrium.iter_mut().for_each(|s| s.1 = none);
+        m.assumptions
+            .equilibrium
+            .iter_mut()
+            .for_each(|s| s.1 = none);
         m
     }
 }

@@ -11,7 +11,10 @@ use super::ir::*;
 use super::load::Loaded;
 use super::units::{ConcUnit, Dim, TimeUnit, UnitExpr, Units, parse_unit};
 use crate::diagnostics::{Code, Diagnostic, FileId, SourceMap, Span, did_you_mean};
-use crate::syntax::{self, AstBinOp, AstExpr, Ident, ParamValue, Quantity, RateAst, Side, StatementKind, StepTerm, UnitKey};
+use crate::syntax::{
+    self, AstBinOp, AstExpr, Ident, ParamValue, Quantity, RateAst, Side, StatementKind, StepTerm,
+    UnitKey,
+};
 use num_traits::{CheckedAdd, CheckedDiv, CheckedSub, One, Signed, ToPrimitive, Zero};
 use std::collections::{HashMap, HashSet};
 use std::path::{Path, PathBuf};
@@ -25,7 +28,11 @@ pub fn load_path(path: &Path) -> Loaded {
         }
         Err(d) => {
             let d = locate_bad_bytes(d, path, &mut sources);
-            Loaded { sources, model: None, diagnostics: vec![d] }
+            Loaded {
+                sources,
+                model: None,
+                diagnostics: vec![d],
+            }
         }
     }
 }
@@ -45,7 +52,9 @@ pub fn load_str(text: &str, path: &Path) -> Loaded {
 fn locate_bad_bytes(d: Diagnostic, path: &Path, sources: &mut SourceMap) -> Diagnostic {
     if d.code == Code::InputTooLarge {
         let mut head = Vec::new();
-        let Ok(file) = std::fs::File::open(path) else { return d };
+        let Ok(file) = std::fs::File::open(path) else {
+            return d;
+        };
         if std::io::Read::read_to_end(&mut std::io::Read::take(file, 256), &mut head).is_err() {
             return d;
         }
@@ -57,23 +66,50 @@ fn locate_bad_bytes(d: Diagnostic, path: &Path, sources: &mut SourceMap) -> Diag
     if d.code != Code::NotUtf8 {
         return d;
     }
-    let Ok(bytes) = std::fs::read(path) else { return d };
-    let Err(e) = std::str::from_utf8(&bytes) else { return d };
+    let Ok(bytes) = std::fs::read(path) else {
+        return d;
+    };
+    let Err(e) = std::str::from_utf8(&bytes) else {
+        return d;
+    };
     let at = e.valid_up_to();
-    let id = sources.add(path.to_path_buf(), String::from_utf8_lossy(&bytes).into_owned());
+    let id = sources.add(
+        path.to_path_buf(),
+        String::from_utf8_lossy(&bytes).into_owned(),
+    );
     d.with_label(Span::new(id, at, at + '\u{FFFD}'.len_utf8()), "not UTF-8")
 }
 
 /// Reads a file as UTF-8 text, dropping a byte-order mark.
 fn read_source(path: &Path) -> Result<String, Diagnostic> {
-    let read_error = |e: std::io::Error| Diagnostic::error(Code::FileRead, format!("cannot read {}: {e}", path.display())).with_help("check the path and the file's permissions");
+    let read_error = |e: std::io::Error| {
+        Diagnostic::error(
+            Code::FileRead,
+            format!("cannot read {}: {e}", path.display()),
+        )
+        .with_help("check the path and the file's permissions")
+    };
     // Read at most one byte past the limit, so an endless source (a device
     // such as /dev/zero) ends in a size error instead of exhausting memory.
     let mut bytes = Vec::new();
-    std::io::Read::read_to_end(&mut std::io::Read::take(std::fs::File::open(path).map_err(read_error)?, syntax::parse::MAX_FILE_BYTES as u64 + 1), &mut bytes).map_err(read_error)?;
+    std::io::Read::read_to_end(
+        &mut std::io::Read::take(
+            std::fs::File::open(path).map_err(read_error)?,
+            syntax::parse::MAX_FILE_BYTES as u64 + 1,
+        ),
+        &mut bytes,
+    )
+    .map_err(read_error)?;
     if bytes.len() > syntax::parse::MAX_FILE_BYTES {
-        return Err(Diagnostic::error(Code::InputTooLarge, format!("{} is larger than {} bytes, the limit", path.display(), syntax::parse::MAX_FILE_BYTES))
-            .with_help("split the mechanism into several files joined with `use`"));
+        return Err(Diagnostic::error(
+            Code::InputTooLarge,
+            format!(
+                "{} is larger than {} bytes, the limit",
+                path.display(),
+                syntax::parse::MAX_FILE_BYTES
+            ),
+        )
+        .with_help("split the mechanism into several files joined with `use`"));
     }
     match String::from_utf8(bytes) {
         Ok(s) => Ok(s.strip_prefix('\u{FEFF}').map(str::to_string).unwrap_or(s)),
@@ -81,10 +117,27 @@ fn read_source(path: &Path) -> Result<String, Diagnostic> {
             let at = e.utf8_error().valid_up_to();
             let before = &e.as_bytes()[..at];
             let line = before.iter().filter(|&&b| b == b'\n').count() + 1;
-            let col = at - before.iter().rposition(|&b| b == b'\n').map(|p| p + 1).unwrap_or(0) + 1;
-            let utf16 = e.as_bytes().starts_with(&[0xFF, 0xFE]) || e.as_bytes().starts_with(&[0xFE, 0xFF]);
-            Err(Diagnostic::error(Code::NotUtf8, format!("{} is not UTF-8 text: invalid byte at line {line}, column {col} (byte {at})", path.display()))
-                .with_help(if utf16 { "the file starts with a UTF-16 byte-order mark: save it as UTF-8" } else { "save the file as UTF-8" }))
+            let col = at
+                - before
+                    .iter()
+                    .rposition(|&b| b == b'\n')
+                    .map(|p| p + 1)
+                    .unwrap_or(0)
+                + 1;
+            let utf16 =
+                e.as_bytes().starts_with(&[0xFF, 0xFE]) || e.as_bytes().starts_with(&[0xFE, 0xFF]);
+            Err(Diagnostic::error(
+                Code::NotUtf8,
+                format!(
+                    "{} is not UTF-8 text: invalid byte at line {line}, column {col} (byte {at})",
+                    path.display()
+                ),
+            )
+            .with_help(if utf16 {
+                "the file starts with a UTF-16 byte-order mark: save it as UTF-8"
+            } else {
+                "save the file as UTF-8"
+            }))
         }
     }
 }
@@ -106,26 +159,52 @@ fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
     let mut stack = Vec::new();
     collect_files(&mut sources, main, &mut stack, &mut trees, &mut diags);
     if diags.iter().any(Diagnostic::is_error) {
-        return Loaded { sources, model: None, diagnostics: diags };
+        return Loaded {
+            sources,
+            model: None,
+            diagnostics: diags,
+        };
     }
-    let main_units = file_units(trees.iter().find(|(f, _)| *f == main).map(|(_, t)| t), &mut diags).units;
+    let main_units = file_units(
+        trees.iter().find(|(f, _)| *f == main).map(|(_, t)| t),
+        &mut diags,
+    )
+    .units;
     let mut items = Vec::new();
     for (_, tree) in &trees {
         let units = file_units(Some(tree), &mut Vec::new()).units;
         for st in tree.statements() {
-            items.push(Item { kind: &st.kind, span: st.span, units });
+            items.push(Item {
+                kind: &st.kind,
+                span: st.span,
+                units,
+            });
         }
     }
     let mut lowerer = Lowerer::new(main_units, &sources);
     lowerer.lower(&items, main);
     diags.extend(lowerer.diags);
-    let model = if diags.iter().any(Diagnostic::is_error) { None } else { Some(lowerer.model) };
-    Loaded { sources, model, diagnostics: diags }
+    let model = if diags.iter().any(Diagnostic::is_error) {
+        None
+    } else {
+        Some(lowerer.model)
+    };
+    Loaded {
+        sources,
+        model,
+        diagnostics: diags,
+    }
 }
 
 /// Parses `file` and, depth first, every file it `use`s. `trees` gets each
 /// file once; a file reached again through the current chain is a cycle.
-fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<(PathBuf, PathBuf)>, trees: &mut Vec<(FileId, syntax::File)>, diags: &mut Vec<Diagnostic>) {
+fn collect_files(
+    sources: &mut SourceMap,
+    file: FileId,
+    stack: &mut Vec<(PathBuf, PathBuf)>,
+    trees: &mut Vec<(FileId, syntax::File)>,
+    diags: &mut Vec<Diagnostic>,
+) {
     let Some(src) = sources.get(file) else { return };
     let path = src.path.clone();
     let canonical = path.canonicalize().unwrap_or_else(|_| path.clone());
@@ -151,17 +230,29 @@ fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<(PathBuf
         let canonical = target.canonicalize().unwrap_or_else(|_| target.clone());
         if let Some(pos) = stack.iter().position(|(c, _)| *c == canonical) {
             diags.push(
-                Diagnostic::error(Code::UseCycle, format!("`use \"{rel}\"` makes a cycle: the file includes itself"))
-                    .with_label(span, "this file is already being included")
-                    .with_help(format!(
-                        "chain: {} → {}",
-                        stack[pos..].iter().map(|(_, shown)| shown.display().to_string()).collect::<Vec<_>>().join(" → "),
-                        stack[pos].1.display()
-                    )),
+                Diagnostic::error(
+                    Code::UseCycle,
+                    format!("`use \"{rel}\"` makes a cycle: the file includes itself"),
+                )
+                .with_label(span, "this file is already being included")
+                .with_help(format!(
+                    "chain: {} → {}",
+                    stack[pos..]
+                        .iter()
+                        .map(|(_, shown)| shown.display().to_string())
+                        .collect::<Vec<_>>()
+                        .join(" → "),
+                    stack[pos].1.display()
+                )),
             );
             continue;
         }
-        if trees.iter().any(|(f, _)| sources.get(*f).map(|s| s.path.canonicalize().unwrap_or_else(|_| s.path.clone())) == Some(canonical.clone())) {
+        if trees.iter().any(|(f, _)| {
+            sources
+                .get(*f)
+                .map(|s| s.path.canonicalize().unwrap_or_else(|_| s.path.clone()))
+                == Some(canonical.clone())
+        }) {
             continue; // already included through another path: declarations once
         }
         match read_source(&target) {
@@ -171,10 +262,21 @@ fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<(PathBuf
             }
             Err(d) => {
                 let mut d = locate_bad_bytes(d, &target, sources);
-                d.code = if d.code == Code::FileRead { Code::FileRead } else { d.code };
-                d.labels.push(crate::diagnostics::Label { span, message: "included here".into() });
+                d.code = if d.code == Code::FileRead {
+                    Code::FileRead
+                } else {
+                    d.code
+                };
+                d.labels.push(crate::diagnostics::Label {
+                    span,
+                    message: "included here".into(),
+                });
                 // A missing included file is a model error, not a usage error.
-                d.code = if d.code == Code::FileRead { Code::UnknownName } else { d.code };
+                d.code = if d.code == Code::FileRead {
+                    Code::UnknownName
+                } else {
+                    d.code
+                };
                 d.message = format!("cannot include \"{rel}\": {}", d.message);
                 diags.push(d);
             }
@@ -185,23 +287,39 @@ fn collect_files(sources: &mut SourceMap, file: FileId, stack: &mut Vec<(PathBuf
 
 fn file_units(tree: Option<&syntax::File>, diags: &mut Vec<Diagnostic>) -> FileUnits {
     let mut units = Units::default();
-    let Some(tree) = tree else { return FileUnits { units } };
+    let Some(tree) = tree else {
+        return FileUnits { units };
+    };
     let mut seen = false;
     for st in tree.statements() {
         if let StatementKind::Units(settings) = &st.kind {
             if seen {
-                diags.push(Diagnostic::error(Code::DuplicateStatement, "`units` is given more than once").with_label(st.span, "second `units`").with_help("give each default unit once, in one `units` line"));
+                diags.push(
+                    Diagnostic::error(Code::DuplicateStatement, "`units` is given more than once")
+                        .with_label(st.span, "second `units`")
+                        .with_help("give each default unit once, in one `units` line"),
+                );
             }
             seen = true;
             for (key, text, span) in settings {
                 match key {
                     UnitKey::Concentration => match ConcUnit::parse(text) {
                         Some(u) => units.concentration = u,
-                        None => diags.push(unknown_unit(text, *span, "a concentration unit", &["M", "mM", "uM", "nM", "pM"])),
+                        None => diags.push(unknown_unit(
+                            text,
+                            *span,
+                            "a concentration unit",
+                            &["M", "mM", "uM", "nM", "pM"],
+                        )),
                     },
                     UnitKey::Time => match TimeUnit::parse(text) {
                         Some(u) => units.time = u,
-                        None => diags.push(unknown_unit(text, *span, "a time unit", &["s", "ms", "min", "h"])),
+                        None => diags.push(unknown_unit(
+                            text,
+                            *span,
+                            "a time unit",
+                            &["s", "ms", "min", "h"],
+                        )),
                     },
                 }
             }
@@ -211,7 +329,9 @@ fn file_units(tree: Option<&syntax::File>, diags: &mut Vec<Diagnostic>) -> FileU
 }
 
 fn unknown_unit(text: &str, span: Span, what: &str, choices: &[&str]) -> Diagnostic {
-    let hint = did_you_mean(text, choices.iter().copied()).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
+    let hint = did_you_mean(text, choices.iter().copied())
+        .map(|c| format!("did you mean `{c}`? "))
+        .unwrap_or_default();
     Diagnostic::error(Code::UnknownUnit, format!("`{text}` is not {what}"))
         .with_label(span, "unknown unit")
         .with_help(format!("{hint}{what} is one of: {}", choices.join(", ")))
@@ -244,7 +364,18 @@ const SUGGESTION_COMPARISONS: usize = 2_000_000;
 
 impl<'s> Lowerer<'s> {
     fn new(units: Units, sources: &'s SourceMap) -> Self {
-        Lowerer { model: Model { units, ..Model::default() }, names: HashMap::new(), diags: Vec::new(), param_sources: Vec::new(), used: HashSet::new(), sources, suggestion_budget: SUGGESTION_COMPARISONS }
+        Lowerer {
+            model: Model {
+                units,
+                ..Model::default()
+            },
+            names: HashMap::new(),
+            diags: Vec::new(),
+            param_sources: Vec::new(),
+            used: HashSet::new(),
+            sources,
+            suggestion_budget: SUGGESTION_COMPARISONS,
+        }
     }
 
     fn error(&mut self, d: Diagnostic) {
@@ -254,9 +385,14 @@ impl<'s> Lowerer<'s> {
     fn declare(&mut self, ident: &Ident, decl: Decl) -> bool {
         if RESERVED.contains(&ident.name.as_str()) {
             self.error(
-                Diagnostic::error(Code::ReservedName, format!("`{}` is a reserved name", ident.name))
-                    .with_label(ident.span, "reserved")
-                    .with_help("`t` is time and `pi` is the constant π in expressions; choose another name"),
+                Diagnostic::error(
+                    Code::ReservedName,
+                    format!("`{}` is a reserved name", ident.name),
+                )
+                .with_label(ident.span, "reserved")
+                .with_help(
+                    "`t` is time and `pi` is the constant π in expressions; choose another name",
+                ),
             );
             return false;
         }
@@ -289,7 +425,9 @@ impl<'s> Lowerer<'s> {
             match item.kind {
                 StatementKind::Total { .. } => self.lower_total(item),
                 StatementKind::Event { .. } | StatementKind::Set { .. } => self.lower_event(item),
-                StatementKind::AssumeSteady(_) | StatementKind::AssumeEquilibrium(_) => self.lower_assumption(item),
+                StatementKind::AssumeSteady(_) | StatementKind::AssumeEquilibrium(_) => {
+                    self.lower_assumption(item)
+                }
                 _ => {}
             }
         }
@@ -309,7 +447,15 @@ impl<'s> Lowerer<'s> {
                         continue; // an included file's name does not rename the model
                     }
                     if let Some(first) = mechanism_seen {
-                        self.error(Diagnostic::error(Code::DuplicateStatement, "`mechanism` is given more than once").with_label(item.span, "second name").with_label(first, "first name").with_help("a file names its mechanism at most once"));
+                        self.error(
+                            Diagnostic::error(
+                                Code::DuplicateStatement,
+                                "`mechanism` is given more than once",
+                            )
+                            .with_label(item.span, "second name")
+                            .with_label(first, "first name")
+                            .with_help("a file names its mechanism at most once"),
+                        );
                     }
                     mechanism_seen = Some(item.span);
                     self.model.name = Some(name.name.clone());
@@ -322,15 +468,32 @@ impl<'s> Lowerer<'s> {
                             continue;
                         }
                         let (initial, given) = match &d.value {
-                            Some(q) => (self.concentration(q, item.units, "an initial value").unwrap_or(0.0), true),
+                            Some(q) => (
+                                self.concentration(q, item.units, "an initial value")
+                                    .unwrap_or(0.0),
+                                true,
+                            ),
                             None => (0.0, false),
                         };
                         if initial < 0.0 {
-                            self.negative_value(&d.name, d.value.as_ref().map(|q| q.span).unwrap_or(d.name.span));
+                            self.negative_value(
+                                &d.name,
+                                d.value.as_ref().map(|q| q.span).unwrap_or(d.name.span),
+                            );
                         }
-                        let span = d.value.as_ref().map(|q| d.name.span.join(q.span)).unwrap_or(d.name.span);
+                        let span = d
+                            .value
+                            .as_ref()
+                            .map(|q| d.name.span.join(q.span))
+                            .unwrap_or(d.name.span);
                         let span = if decls.len() == 1 { item.span } else { span };
-                        self.model.species.push(Species { name: d.name.name.clone(), initial, initial_given: given, description: d.description.clone(), span });
+                        self.model.species.push(Species {
+                            name: d.name.name.clone(),
+                            initial,
+                            initial_given: given,
+                            description: d.description.clone(),
+                            span,
+                        });
                     }
                 }
                 StatementKind::Fixed(d) => {
@@ -338,37 +501,79 @@ impl<'s> Lowerer<'s> {
                     if !self.declare(&d.name, Decl::Sym(Sym::Fixed(idx))) {
                         continue;
                     }
-                    let value = d.value.as_ref().and_then(|q| self.concentration(q, item.units, "a fixed concentration")).unwrap_or(0.0);
+                    let value = d
+                        .value
+                        .as_ref()
+                        .and_then(|q| self.concentration(q, item.units, "a fixed concentration"))
+                        .unwrap_or(0.0);
                     if value < 0.0 {
-                        self.negative_value(&d.name, d.value.as_ref().map(|q| q.span).unwrap_or(d.name.span));
+                        self.negative_value(
+                            &d.name,
+                            d.value.as_ref().map(|q| q.span).unwrap_or(d.name.span),
+                        );
                     }
-                    self.model.fixed.push(Fixed { name: d.name.name.clone(), value, description: d.description.clone(), span: item.span });
+                    self.model.fixed.push(Fixed {
+                        name: d.name.name.clone(),
+                        value,
+                        description: d.description.clone(),
+                        span: item.span,
+                    });
                 }
-                StatementKind::Param { name, value, description } => {
+                StatementKind::Param {
+                    name,
+                    value,
+                    description,
+                } => {
                     let idx = self.model.params.len();
                     if !self.declare(name, Decl::Sym(Sym::Param(idx))) {
                         continue;
                     }
-                    self.model.params.push(Param { name: name.name.clone(), definition: ParamDef::Value(0.0), value: 0.0, dim: None, description: description.clone(), span: item.span });
+                    self.model.params.push(Param {
+                        name: name.name.clone(),
+                        definition: ParamDef::Value(0.0),
+                        value: 0.0,
+                        dim: None,
+                        description: description.clone(),
+                        span: item.span,
+                    });
                     self.param_sources.push((value.clone(), item.units));
                 }
                 StatementKind::Step { name, .. } => {
                     let idx = self.model.steps.len();
                     if self.declare(name, Decl::Step(idx)) {
                         // Placeholder entry keeps indices aligned; filled by lower_step.
-                        self.model.steps.push(Step { name: name.name.clone(), reactants: vec![], products: vec![], reversible: false, rate: Rate::Law(Expr::Number(0.0)), description: None, span: item.span, rate_span: item.span });
+                        self.model.steps.push(Step {
+                            name: name.name.clone(),
+                            reactants: vec![],
+                            products: vec![],
+                            reversible: false,
+                            rate: Rate::Law(Expr::Number(0.0)),
+                            description: None,
+                            span: item.span,
+                            rate_span: item.span,
+                        });
                     }
                 }
                 StatementKind::Total { name, .. } => {
                     let idx = self.model.totals.len();
                     if self.declare(name, Decl::Sym(Sym::Total(idx))) {
-                        self.model.totals.push(Total { name: name.name.clone(), terms: vec![], value: 0.0, value_given: false, span: item.span });
+                        self.model.totals.push(Total {
+                            name: name.name.clone(),
+                            terms: vec![],
+                            value: 0.0,
+                            value_given: false,
+                            span: item.span,
+                        });
                     }
                 }
                 StatementKind::Observe { name, .. } => {
                     let idx = self.model.observables.len();
                     if self.declare(name, Decl::Sym(Sym::Observable(idx))) {
-                        self.model.observables.push(Observable { name: name.name.clone(), expr: Expr::Number(0.0), span: item.span });
+                        self.model.observables.push(Observable {
+                            name: name.name.clone(),
+                            expr: Expr::Number(0.0),
+                            span: item.span,
+                        });
                     }
                 }
                 _ => {}
@@ -389,7 +594,11 @@ impl<'s> Lowerer<'s> {
         match text.parse::<f64>() {
             Ok(v) if v.is_finite() => Some(v),
             _ => {
-                self.error(Diagnostic::error(Code::BadNumber, format!("`{text}` is not a finite number")).with_label(span, "out of range").with_help("numbers must lie within about ±1.8e308"));
+                self.error(
+                    Diagnostic::error(Code::BadNumber, format!("`{text}` is not a finite number"))
+                        .with_label(span, "out of range")
+                        .with_help("numbers must lie within about ±1.8e308"),
+                );
                 None
             }
         }
@@ -407,15 +616,27 @@ impl<'s> Lowerer<'s> {
                 Ok(u) => {
                     let v = u.convert(value, self.model.units);
                     if !v.is_finite() {
-                        self.error(Diagnostic::error(Code::BadNumber, "value overflows after unit conversion").with_label(q.span, "too large"));
+                        self.error(
+                            Diagnostic::error(
+                                Code::BadNumber,
+                                "value overflows after unit conversion",
+                            )
+                            .with_label(q.span, "too large"),
+                        );
                         return None;
                     }
                     Some((v, Some(u.dim())))
                 }
                 Err(msg) => {
-                    let word = text.trim_start_matches(['1', '/']).split(['/', '*', '^', '·']).next().unwrap_or(text);
+                    let word = text
+                        .trim_start_matches(['1', '/'])
+                        .split(['/', '*', '^', '·'])
+                        .next()
+                        .unwrap_or(text);
                     let all = ["M", "mM", "uM", "nM", "pM", "s", "ms", "min", "h"];
-                    let hint = did_you_mean(word, all).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
+                    let hint = did_you_mean(word, all)
+                        .map(|c| format!("did you mean `{c}`? "))
+                        .unwrap_or_default();
                     let _ = file_units;
                     self.error(Diagnostic::error(Code::UnknownUnit, msg).with_label(*span, "not a unit").with_help(format!(
                         "{hint}units are products of concentration (M, mM, uM, nM, pM) and time (s, ms, min, h) powers, e.g. `/uM/s`"
@@ -429,7 +650,10 @@ impl<'s> Lowerer<'s> {
     /// Converts a unitless number written in `file_units` for a quantity of
     /// dimension `dim` to the model's units.
     fn in_model_units(&self, value: f64, dim: Dim, file_units: Units) -> f64 {
-        let u = UnitExpr { conc: Some((file_units.concentration, dim.conc)), time: Some((file_units.time, dim.time)) };
+        let u = UnitExpr {
+            conc: Some((file_units.concentration, dim.conc)),
+            time: Some((file_units.time, dim.time)),
+        };
         u.convert(value, self.model.units)
     }
 
@@ -441,7 +665,13 @@ impl<'s> Lowerer<'s> {
         self.quantity_of(q, file_units, Dim::TIME, "a time")
     }
 
-    fn quantity_of(&mut self, q: &Quantity, file_units: Units, dim: Dim, what: &str) -> Option<f64> {
+    fn quantity_of(
+        &mut self,
+        q: &Quantity,
+        file_units: Units,
+        dim: Dim,
+        what: &str,
+    ) -> Option<f64> {
         let (v, d) = self.quantity(q, file_units)?;
         match d {
             None => Some(self.in_model_units(v, dim, file_units)),
@@ -449,9 +679,20 @@ impl<'s> Lowerer<'s> {
             Some(d) => {
                 let units = self.model.units;
                 self.error(
-                    Diagnostic::error(Code::DimensionMismatch, format!("{what} needs a unit of dimension {}, but `{}` has dimension {}", dim.display_in(units), q.unit.as_ref().map(|u| u.0.as_str()).unwrap_or(""), d.display_in(units)))
-                        .with_label(q.span, "wrong dimension")
-                        .with_help(format!("write it in {} (or leave the unit out to use the default)", dim.display_in(units))),
+                    Diagnostic::error(
+                        Code::DimensionMismatch,
+                        format!(
+                            "{what} needs a unit of dimension {}, but `{}` has dimension {}",
+                            dim.display_in(units),
+                            q.unit.as_ref().map(|u| u.0.as_str()).unwrap_or(""),
+                            d.display_in(units)
+                        ),
+                    )
+                    .with_label(q.span, "wrong dimension")
+                    .with_help(format!(
+                        "write it in {} (or leave the unit out to use the default)",
+                        dim.display_in(units)
+                    )),
                 );
                 None
             }
@@ -469,11 +710,19 @@ impl<'s> Lowerer<'s> {
             // of `did_you_mean` cannot be suggested: skip it cheaply.
             let len = ident.name.chars().count();
             let limit = (len / 3).max(1);
-            did_you_mean(&ident.name, self.names.keys().map(String::as_str).filter(|c| c.chars().count().abs_diff(len) <= limit)).map(str::to_string)
+            did_you_mean(
+                &ident.name,
+                self.names
+                    .keys()
+                    .map(String::as_str)
+                    .filter(|c| c.chars().count().abs_diff(len) <= limit),
+            )
+            .map(str::to_string)
         } else {
             None
         };
-        let mut d = Diagnostic::error(Code::UnknownName, format!("unknown name `{}`", ident.name)).with_label(ident.span, format!("not declared as {what}"));
+        let mut d = Diagnostic::error(Code::UnknownName, format!("unknown name `{}`", ident.name))
+            .with_label(ident.span, format!("not declared as {what}"));
         d = match hint {
             Some(h) => d.with_help(format!("did you mean `{h}`?")),
             None if ConcUnit::parse(&ident.name).is_some() || TimeUnit::parse(&ident.name).is_some() => {
@@ -485,7 +734,12 @@ impl<'s> Lowerer<'s> {
     }
 
     /// Resolves an expression. `allowed` filters which kinds may appear.
-    fn resolve(&mut self, e: &AstExpr, allowed: &dyn Fn(Sym) -> bool, context: &str) -> Option<Expr> {
+    fn resolve(
+        &mut self,
+        e: &AstExpr,
+        allowed: &dyn Fn(Sym) -> bool,
+        context: &str,
+    ) -> Option<Expr> {
         Some(match e {
             AstExpr::Number(text, span) => Expr::Number(self.number(text, *span)?),
             AstExpr::Paren(inner, _) => self.resolve(inner, allowed, context)?,
@@ -503,18 +757,42 @@ impl<'s> Lowerer<'s> {
                 Expr::bin(op, a?, b?)
             }
             AstExpr::Call(name, args, span) => {
-                let resolved: Vec<Option<Expr>> = args.iter().map(|a| self.resolve(a, allowed, context)).collect();
+                let resolved: Vec<Option<Expr>> = args
+                    .iter()
+                    .map(|a| self.resolve(a, allowed, context))
+                    .collect();
                 let Some(func) = Func::from_name(&name.name) else {
                     let all = ["exp", "ln", "log10", "sqrt", "abs", "min", "max", "pow"];
-                    let hint = did_you_mean(&name.name, all).map(|c| format!("did you mean `{c}`? ")).unwrap_or_default();
-                    self.error(Diagnostic::error(Code::UnknownFunction, format!("unknown function `{}`", name.name)).with_label(name.span, "not a function").with_help(format!("{hint}the functions are {}", all.join(", "))));
+                    let hint = did_you_mean(&name.name, all)
+                        .map(|c| format!("did you mean `{c}`? "))
+                        .unwrap_or_default();
+                    self.error(
+                        Diagnostic::error(
+                            Code::UnknownFunction,
+                            format!("unknown function `{}`", name.name),
+                        )
+                        .with_label(name.span, "not a function")
+                        .with_help(format!("{hint}the functions are {}", all.join(", "))),
+                    );
                     return None;
                 };
                 if args.len() != func.arity() {
                     self.error(
-                        Diagnostic::error(Code::WrongArity, format!("`{}` takes {} argument(s), not {}", func.name(), func.arity(), args.len()))
-                            .with_label(*span, "here")
-                            .with_help(format!("write `{}({})`", func.name(), if func.arity() == 1 { "x" } else { "x, y" })),
+                        Diagnostic::error(
+                            Code::WrongArity,
+                            format!(
+                                "`{}` takes {} argument(s), not {}",
+                                func.name(),
+                                func.arity(),
+                                args.len()
+                            ),
+                        )
+                        .with_label(*span, "here")
+                        .with_help(format!(
+                            "write `{}({})`",
+                            func.name(),
+                            if func.arity() == 1 { "x" } else { "x, y" }
+                        )),
                     );
                     return None;
                 }
@@ -530,9 +808,15 @@ impl<'s> Lowerer<'s> {
                     }
                     Some(Decl::Sym(sym)) => {
                         self.error(
-                            Diagnostic::error(Code::WrongKind, format!("`{name}` is {} and cannot appear in {context}", kind_word(sym)))
-                                .with_label(ident.span, "not allowed here")
-                                .with_help(context_help(context)),
+                            Diagnostic::error(
+                                Code::WrongKind,
+                                format!(
+                                    "`{name}` is {} and cannot appear in {context}",
+                                    kind_word(sym)
+                                ),
+                            )
+                            .with_label(ident.span, "not allowed here")
+                            .with_help(context_help(context)),
                         );
                         return None;
                     }
@@ -574,7 +858,16 @@ impl<'s> Lowerer<'s> {
         // Topological order (depth-first), reporting cycles once.
         let deps: Vec<Vec<usize>> = exprs
             .iter()
-            .map(|e| e.as_ref().map(|e| e.names().into_iter().filter_map(|s| if let Sym::Param(j) = s { Some(j) } else { None }).collect()).unwrap_or_default())
+            .map(|e| {
+                e.as_ref()
+                    .map(|e| {
+                        e.names()
+                            .into_iter()
+                            .filter_map(|s| if let Sym::Param(j) = s { Some(j) } else { None })
+                            .collect()
+                    })
+                    .unwrap_or_default()
+            })
             .collect();
         let mut state = vec![0u8; n]; // 0 new, 1 on stack, 2 done
         let mut order = Vec::with_capacity(n);
@@ -598,12 +891,26 @@ impl<'s> Lowerer<'s> {
                             reported = true;
                             let from = stack.iter().position(|(x, _)| *x == d).unwrap_or(0);
                             let cycle: Vec<usize> = stack[from..].iter().map(|(x, _)| *x).collect();
-                            let names: Vec<&str> = cycle.iter().chain([&d]).map(|&k| self.model.params[k].name.as_str()).collect();
-                            let mut diag = Diagnostic::error(Code::ParamCycle, format!("params are defined in a cycle: {}", names.join(" → ")));
+                            let names: Vec<&str> = cycle
+                                .iter()
+                                .chain([&d])
+                                .map(|&k| self.model.params[k].name.as_str())
+                                .collect();
+                            let mut diag = Diagnostic::error(
+                                Code::ParamCycle,
+                                format!("params are defined in a cycle: {}", names.join(" → ")),
+                            );
                             for &k in &cycle {
-                                diag = diag.with_label(self.model.params[k].span, format!("`{}` depends on the next", self.model.params[k].name));
+                                diag = diag.with_label(
+                                    self.model.params[k].span,
+                                    format!("`{}` depends on the next", self.model.params[k].name),
+                                );
                             }
-                            self.error(diag.with_help("give one of them a number instead of an expression"));
+                            self.error(
+                                diag.with_help(
+                                    "give one of them a number instead of an expression",
+                                ),
+                            );
                         }
                         _ => {}
                     }
@@ -623,7 +930,14 @@ impl<'s> Lowerer<'s> {
                 let v = e.eval(&|s| self.model.initial_value(s), 0.0);
                 let dim = self.infer_dim(&e);
                 if !v.is_finite() {
-                    self.error(Diagnostic::error(Code::BadParamValue, format!("param `{}` evaluates to {v}", self.model.params[i].name)).with_label(self.model.params[i].span, "not a finite number").with_help("check for division by zero or overflow"));
+                    self.error(
+                        Diagnostic::error(
+                            Code::BadParamValue,
+                            format!("param `{}` evaluates to {v}", self.model.params[i].name),
+                        )
+                        .with_label(self.model.params[i].span, "not a finite number")
+                        .with_help("check for division by zero or overflow"),
+                    );
                 }
                 let p = &mut self.model.params[i];
                 p.value = v;
@@ -637,7 +951,11 @@ impl<'s> Lowerer<'s> {
     /// a quantity and as an expression.
     fn check_quantity_ambiguity(&mut self, q: &Quantity) {
         let Some((unit, span)) = &q.unit else { return };
-        let words: Vec<&str> = unit.split(['/', '*', '·']).map(|w| w.split('^').next().unwrap_or(w)).filter(|w| !w.is_empty() && *w != "1").collect();
+        let words: Vec<&str> = unit
+            .split(['/', '*', '·'])
+            .map(|w| w.split('^').next().unwrap_or(w))
+            .filter(|w| !w.is_empty() && *w != "1")
+            .collect();
         // The expression reading is valid only if every word is a param
         // (a param's expression may use params only).
         let is_param = |w: &str| matches!(self.names.get(w), Some((Decl::Sym(Sym::Param(_)), _)));
@@ -645,7 +963,11 @@ impl<'s> Lowerer<'s> {
             return;
         }
         let w = words[0];
-        let as_expr = format!("({} / {})", q.number, unit.trim_start_matches('/').replace('/', " / "));
+        let as_expr = format!(
+            "({} / {})",
+            q.number,
+            unit.trim_start_matches('/').replace('/', " / ")
+        );
         self.error(
             Diagnostic::error(Code::AmbiguousQuantity, format!("`{} {unit}` reads both as a quantity with unit `{unit}` and as an expression over the param `{w}`", q.number))
                 .with_label(*span, "unit or name?")
@@ -676,7 +998,9 @@ impl<'s> Lowerer<'s> {
                     BinOp::Mul => Some(da?.mul(db?)),
                     BinOp::Div => Some(da?.div(db?)),
                     BinOp::Pow => match (**b).clone() {
-                        Expr::Number(p) if p == p.trunc() && p.abs() < 100.0 => Some(da?.powi(p as i32)),
+                        Expr::Number(p) if p == p.trunc() && p.abs() < 100.0 => {
+                            Some(da?.powi(p as i32))
+                        }
                         _ if da == Some(Dim::NONE) => Some(Dim::NONE),
                         _ => None,
                     },
@@ -685,11 +1009,19 @@ impl<'s> Lowerer<'s> {
             Expr::Call(f, args) => match f {
                 Func::Abs | Func::Min | Func::Max => {
                     let d = self.infer_dim(args.first()?)?;
-                    if args.iter().skip(1).all(|a| self.infer_dim(a) == Some(d)) { Some(d) } else { None }
+                    if args.iter().skip(1).all(|a| self.infer_dim(a) == Some(d)) {
+                        Some(d)
+                    } else {
+                        None
+                    }
                 }
                 Func::Sqrt => {
                     let d = self.infer_dim(args.first()?)?;
-                    if d.conc % 2 == 0 && d.time % 2 == 0 { Some(Dim::new(d.conc / 2, d.time / 2)) } else { None }
+                    if d.conc % 2 == 0 && d.time % 2 == 0 {
+                        Some(Dim::new(d.conc / 2, d.time / 2))
+                    } else {
+                        None
+                    }
                 }
                 _ => {
                     if args.iter().all(|a| self.infer_dim(a) == Some(Dim::NONE)) {
@@ -705,15 +1037,26 @@ impl<'s> Lowerer<'s> {
     fn lower_terms(&mut self, side: &Side) -> Vec<Term> {
         let mut terms: Vec<Term> = Vec::new();
         for t in &side.terms {
-            let Some(sym) = self.participant(&t.name, "a step's species") else { continue };
-            let Some(c) = self.coefficient(t) else { continue };
+            let Some(sym) = self.participant(&t.name, "a step's species") else {
+                continue;
+            };
+            let Some(c) = self.coefficient(t) else {
+                continue;
+            };
             self.used.insert(sym);
             match terms.iter_mut().find(|x| x.sym == sym) {
                 Some(x) => match x.coefficient.checked_add(&c) {
                     Some(sum) => x.coefficient = sum,
-                    None => self.error(coefficient_overflow(t.span, "the coefficients of this species on one side")),
+                    None => self.error(coefficient_overflow(
+                        t.span,
+                        "the coefficients of this species on one side",
+                    )),
                 },
-                None => terms.push(Term { sym, coefficient: c, span: t.span }),
+                None => terms.push(Term {
+                    sym,
+                    coefficient: c,
+                    span: t.span,
+                }),
             }
         }
         terms
@@ -724,14 +1067,24 @@ impl<'s> Lowerer<'s> {
             Some(Decl::Sym(s @ (Sym::Species(_) | Sym::Fixed(_)))) => Some(s),
             Some(Decl::Sym(s)) => {
                 self.error(
-                    Diagnostic::error(Code::WrongKind, format!("`{}` is {}, not a species", ident.name, kind_word(s)))
-                        .with_label(ident.span, format!("used as {what}"))
-                        .with_help("only `species` and `fixed` names take part in steps"),
+                    Diagnostic::error(
+                        Code::WrongKind,
+                        format!("`{}` is {}, not a species", ident.name, kind_word(s)),
+                    )
+                    .with_label(ident.span, format!("used as {what}"))
+                    .with_help("only `species` and `fixed` names take part in steps"),
                 );
                 None
             }
             Some(Decl::Step(_)) => {
-                self.error(Diagnostic::error(Code::WrongKind, format!("`{}` is a step, not a species", ident.name)).with_label(ident.span, "a step name").with_help("only `species` and `fixed` names take part in steps"));
+                self.error(
+                    Diagnostic::error(
+                        Code::WrongKind,
+                        format!("`{}` is a step, not a species", ident.name),
+                    )
+                    .with_label(ident.span, "a step name")
+                    .with_help("only `species` and `fixed` names take part in steps"),
+                );
                 None
             }
             None => {
@@ -742,8 +1095,12 @@ impl<'s> Lowerer<'s> {
     }
 
     fn coefficient(&mut self, t: &StepTerm) -> Option<Coef> {
-        let Some((text, span)) = &t.coefficient else { return Some(Coef::one()) };
-        let bad = |msg: String| Diagnostic::error(Code::BadCoefficient, msg).with_label(*span, "this coefficient").with_help("coefficients are positive whole numbers, decimals or fractions such as `2`, `0.5`, `1/2`, at most 18 digits");
+        let Some((text, span)) = &t.coefficient else {
+            return Some(Coef::one());
+        };
+        let bad = |msg: String| {
+            Diagnostic::error(Code::BadCoefficient, msg).with_label(*span, "this coefficient").with_help("coefficients are positive whole numbers, decimals or fractions such as `2`, `0.5`, `1/2`, at most 18 digits")
+        };
         let parsed = parse_coefficient(text);
         match parsed {
             Some(c) if c.is_positive() => Some(c),
@@ -752,15 +1109,32 @@ impl<'s> Lowerer<'s> {
                 None
             }
             None => {
-                self.error(bad(format!("coefficient `{text}` is not a number this tool can hold exactly")));
+                self.error(bad(format!(
+                    "coefficient `{text}` is not a number this tool can hold exactly"
+                )));
                 None
             }
         }
     }
 
     fn lower_step(&mut self, item: &Item) {
-        let StatementKind::Step { name, lhs, reversible, arrow_span, rhs, rate, rate_span, description, .. } = item.kind else { return };
-        let Some(Decl::Step(idx)) = self.lookup(&name.name) else { return };
+        let StatementKind::Step {
+            name,
+            lhs,
+            reversible,
+            arrow_span,
+            rhs,
+            rate,
+            rate_span,
+            description,
+            ..
+        } = item.kind
+        else {
+            return;
+        };
+        let Some(Decl::Step(idx)) = self.lookup(&name.name) else {
+            return;
+        };
         if self.model.steps[idx].span != item.span {
             return; // a duplicate name, already reported
         }
@@ -778,34 +1152,69 @@ impl<'s> Lowerer<'s> {
                 Rate::Law(resolved.unwrap_or(Expr::Number(0.0)))
             }
             RateAst::MassAction(constants) => {
-                let resolved: Vec<Option<Expr>> = constants.iter().map(|c| self.resolve(c, &|s| matches!(s, Sym::Param(_) | Sym::Fixed(_) | Sym::Total(_)), "a rate constant")).collect();
+                let resolved: Vec<Option<Expr>> = constants
+                    .iter()
+                    .map(|c| {
+                        self.resolve(
+                            c,
+                            &|s| matches!(s, Sym::Param(_) | Sym::Fixed(_) | Sym::Total(_)),
+                            "a rate constant",
+                        )
+                    })
+                    .collect();
                 match (*reversible, constants.len()) {
                     (true, 1) => self.error(
-                        Diagnostic::error(Code::MissingReverseConstant, format!("reversible step `{}` has no reverse rate constant", name.name))
-                            .with_label(*arrow_span, "reversible")
-                            .with_label(*rate_span, "only a forward constant")
-                            .with_help("write `with KF, KR`, or use `->` for an irreversible step"),
+                        Diagnostic::error(
+                            Code::MissingReverseConstant,
+                            format!(
+                                "reversible step `{}` has no reverse rate constant",
+                                name.name
+                            ),
+                        )
+                        .with_label(*arrow_span, "reversible")
+                        .with_label(*rate_span, "only a forward constant")
+                        .with_help("write `with KF, KR`, or use `->` for an irreversible step"),
                     ),
                     (false, 2) => self.error(
-                        Diagnostic::error(Code::ExtraReverseConstant, format!("irreversible step `{}` has two rate constants", name.name))
-                            .with_label(*arrow_span, "irreversible")
-                            .with_label(constants[1].span(), "a reverse constant")
-                            .with_help("use `<=>` for a reversible step, or drop the second constant"),
+                        Diagnostic::error(
+                            Code::ExtraReverseConstant,
+                            format!("irreversible step `{}` has two rate constants", name.name),
+                        )
+                        .with_label(*arrow_span, "irreversible")
+                        .with_label(constants[1].span(), "a reverse constant")
+                        .with_help("use `<=>` for a reversible step, or drop the second constant"),
                     ),
                     (_, n) if n > 2 => self.error(
-                        Diagnostic::error(Code::ExtraReverseConstant, format!("step `{}` has {n} rate constants", name.name))
-                            .with_label(constants[2].span(), "one too many")
-                            .with_help("a step takes one constant (`->`) or two (`<=>`)"),
+                        Diagnostic::error(
+                            Code::ExtraReverseConstant,
+                            format!("step `{}` has {n} rate constants", name.name),
+                        )
+                        .with_label(constants[2].span(), "one too many")
+                        .with_help("a step takes one constant (`->`) or two (`<=>`)"),
                     ),
                     _ => {}
                 }
-                let forward = resolved.first().cloned().flatten().unwrap_or(Expr::Number(0.0));
-                let reverse = if *reversible { resolved.get(1).cloned().flatten().or(Some(Expr::Number(0.0))) } else { None };
+                let forward = resolved
+                    .first()
+                    .cloned()
+                    .flatten()
+                    .unwrap_or(Expr::Number(0.0));
+                let reverse = if *reversible {
+                    resolved
+                        .get(1)
+                        .cloned()
+                        .flatten()
+                        .or(Some(Expr::Number(0.0)))
+                } else {
+                    None
+                };
                 // Dimension check per direction.
                 let units = self.model.units;
                 let directions = [(0usize, &reactants, "forward"), (1, &products, "reverse")];
                 for (k, side, dir) in directions {
-                    let Some(Some(expr)) = resolved.get(k) else { continue };
+                    let Some(Some(expr)) = resolved.get(k) else {
+                        continue;
+                    };
                     if k == 1 && !*reversible {
                         continue;
                     }
@@ -813,7 +1222,9 @@ impl<'s> Lowerer<'s> {
                     if !order.is_integer() {
                         continue;
                     }
-                    let Some(order) = order.to_integer().to_i32() else { continue };
+                    let Some(order) = order.to_integer().to_i32() else {
+                        continue;
+                    };
                     let want = Dim::mass_action_constant(order);
                     if let Some(have) = self.infer_dim(expr)
                         && have != want
@@ -861,8 +1272,12 @@ impl<'s> Lowerer<'s> {
     }
 
     fn lower_observable(&mut self, item: &Item) {
-        let StatementKind::Observe { name, expr } = item.kind else { return };
-        let Some(Decl::Sym(Sym::Observable(i))) = self.lookup(&name.name) else { return };
+        let StatementKind::Observe { name, expr } = item.kind else {
+            return;
+        };
+        let Some(Decl::Sym(Sym::Observable(i))) = self.lookup(&name.name) else {
+            return;
+        };
         if self.model.observables[i].span != item.span {
             return;
         }
@@ -882,7 +1297,14 @@ impl<'s> Lowerer<'s> {
                     if let Sym::Observable(j) = s {
                         if j == start {
                             let o = &self.model.observables[start];
-                            let d = Diagnostic::error(Code::ParamCycle, format!("observable `{}` depends on itself", o.name)).with_label(o.span, "part of a cycle").with_help("an observable may use other observables, but not in a circle");
+                            let d = Diagnostic::error(
+                                Code::ParamCycle,
+                                format!("observable `{}` depends on itself", o.name),
+                            )
+                            .with_label(o.span, "part of a cycle")
+                            .with_help(
+                                "an observable may use other observables, but not in a circle",
+                            );
                             self.error(d);
                             return;
                         }
@@ -897,19 +1319,37 @@ impl<'s> Lowerer<'s> {
     }
 
     fn lower_total(&mut self, item: &Item) {
-        let StatementKind::Total { name, terms, value } = item.kind else { return };
-        let Some(Decl::Sym(Sym::Total(i))) = self.lookup(&name.name) else { return };
+        let StatementKind::Total { name, terms, value } = item.kind else {
+            return;
+        };
+        let Some(Decl::Sym(Sym::Total(i))) = self.lookup(&name.name) else {
+            return;
+        };
         if self.model.totals[i].span != item.span {
             return;
         }
         let mut lowered: Vec<(usize, Coef)> = Vec::new();
         for t in terms {
-            let Some(sym) = self.participant(&t.name, "a term of a total") else { continue };
-            let Sym::Species(k) = sym else {
-                self.error(Diagnostic::error(Code::WrongKind, format!("`{}` is a fixed species; totals sum dynamic species", t.name.name)).with_label(t.name.span, "fixed").with_help("a fixed species never changes, so it needs no total"));
+            let Some(sym) = self.participant(&t.name, "a term of a total") else {
                 continue;
             };
-            let Some(mut c) = self.coefficient(t) else { continue };
+            let Sym::Species(k) = sym else {
+                self.error(
+                    Diagnostic::error(
+                        Code::WrongKind,
+                        format!(
+                            "`{}` is a fixed species; totals sum dynamic species",
+                            t.name.name
+                        ),
+                    )
+                    .with_label(t.name.span, "fixed")
+                    .with_help("a fixed species never changes, so it needs no total"),
+                );
+                continue;
+            };
+            let Some(mut c) = self.coefficient(t) else {
+                continue;
+            };
             if t.negative {
                 c = -c;
             }
@@ -920,12 +1360,30 @@ impl<'s> Lowerer<'s> {
         }
         lowered.retain(|(_, c)| !c.is_zero());
         if lowered.is_empty() {
-            self.error(Diagnostic::error(Code::TotalEmpty, format!("total `{}` sums no species", name.name)).with_label(item.span, "empty").with_help("write the species it sums, e.g. `total E_t = E + ES`"));
+            self.error(
+                Diagnostic::error(
+                    Code::TotalEmpty,
+                    format!("total `{}` sums no species", name.name),
+                )
+                .with_label(item.span, "empty")
+                .with_help("write the species it sums, e.g. `total E_t = E + ES`"),
+            );
             return;
         }
         // Conserved by every step?
         for (j, step) in self.model.steps.iter().enumerate() {
-            let change: Coef = self.model.net_change(j).iter().map(|(k, c)| lowered.iter().find(|(x, _)| x == k).map(|(_, w)| *w * *c).unwrap_or_else(Coef::zero)).fold(Coef::zero(), |a, b| a + b);
+            let change: Coef = self
+                .model
+                .net_change(j)
+                .iter()
+                .map(|(k, c)| {
+                    lowered
+                        .iter()
+                        .find(|(x, _)| x == k)
+                        .map(|(_, w)| *w * *c)
+                        .unwrap_or_else(Coef::zero)
+                })
+                .fold(Coef::zero(), |a, b| a + b);
             if !change.is_zero() {
                 let d = Diagnostic::error(Code::TotalNotConserved, format!("total `{}` is not conserved: step `{}` changes it by {} per firing", name.name, step.name, change))
                     .with_label(item.span, "this total")
@@ -958,7 +1416,9 @@ impl<'s> Lowerer<'s> {
             if !self.model.totals[i].value_given {
                 continue;
             }
-            let Some(k) = self.model.total_adjusted_species(i) else { continue };
+            let Some(k) = self.model.total_adjusted_species(i) else {
+                continue;
+            };
             if self.model.species[k].initial_given || adjusted.contains_key(&k) {
                 continue; // all given: only checked below
             }
@@ -969,7 +1429,13 @@ impl<'s> Lowerer<'s> {
                 }
                 Err(msg) => {
                     let span = self.model.totals[i].span;
-                    self.error(Diagnostic::error(Code::TotalInconsistent, msg).with_label(span, "this total").with_help("raise the total or lower the initial values of its species"));
+                    self.error(
+                        Diagnostic::error(Code::TotalInconsistent, msg)
+                            .with_label(span, "this total")
+                            .with_help(
+                                "raise the total or lower the initial values of its species",
+                            ),
+                    );
                 }
             }
         }
@@ -982,12 +1448,23 @@ impl<'s> Lowerer<'s> {
             }
             let scale = t.value.abs().max(from_initial.abs()).max(1e-300);
             if (t.value - from_initial).abs() > 1e-9 * scale {
-                let mut d = Diagnostic::error(Code::TotalInconsistent, format!("total `{}` is given as {} but its species start at a sum of {}", t.name, fmt_num(t.value), fmt_num(from_initial)))
-                    .with_label(t.span, "this total");
+                let mut d = Diagnostic::error(
+                    Code::TotalInconsistent,
+                    format!(
+                        "total `{}` is given as {} but its species start at a sum of {}",
+                        t.name,
+                        fmt_num(t.value),
+                        fmt_num(from_initial)
+                    ),
+                )
+                .with_label(t.span, "this total");
                 for (k, _) in &t.terms {
                     let s = &self.model.species[*k];
                     if s.initial_given {
-                        d = d.with_label(s.span, format!("`{}` starts at {}", s.name, fmt_num(s.initial)));
+                        d = d.with_label(
+                            s.span,
+                            format!("`{}` starts at {}", s.name, fmt_num(s.initial)),
+                        );
                     }
                 }
                 self.diags.push(d.with_help("leave out one species' initial value so it follows from the total, or correct the numbers"));
@@ -997,7 +1474,12 @@ impl<'s> Lowerer<'s> {
 
     fn lower_event(&mut self, item: &Item) {
         let (kind, target, amount, time) = match item.kind {
-            StatementKind::Event { kind, amount, target, time } => (
+            StatementKind::Event {
+                kind,
+                amount,
+                target,
+                time,
+            } => (
                 match kind {
                     syntax::EventKindAst::Add => EventKind::Add,
                     syntax::EventKindAst::Remove => EventKind::Remove,
@@ -1006,7 +1488,11 @@ impl<'s> Lowerer<'s> {
                 amount,
                 time,
             ),
-            StatementKind::Set { target, value, time } => (EventKind::Set, target, value, time),
+            StatementKind::Set {
+                target,
+                value,
+                time,
+            } => (EventKind::Set, target, value, time),
             _ => return,
         };
         let species = match self.lookup(&target.name) {
@@ -1020,7 +1506,14 @@ impl<'s> Lowerer<'s> {
                 None
             }
             Some(Decl::Step(_)) => {
-                self.error(Diagnostic::error(Code::EventTarget, format!("`{}` is a step; events change species only", target.name)).with_label(target.span, "not a species").with_help("name a species"));
+                self.error(
+                    Diagnostic::error(
+                        Code::EventTarget,
+                        format!("`{}` is a step; events change species only", target.name),
+                    )
+                    .with_label(target.span, "not a species")
+                    .with_help("name a species"),
+                );
                 None
             }
             None => {
@@ -1033,15 +1526,29 @@ impl<'s> Lowerer<'s> {
         if let Some(v) = amount_v
             && v < 0.0
         {
-            self.error(Diagnostic::error(Code::BadEvent, "event amounts cannot be negative").with_label(amount.span, "negative").with_help("use `remove` to take material away"));
+            self.error(
+                Diagnostic::error(Code::BadEvent, "event amounts cannot be negative")
+                    .with_label(amount.span, "negative")
+                    .with_help("use `remove` to take material away"),
+            );
         }
         if let Some(t) = time_v
             && t < 0.0
         {
-            self.error(Diagnostic::error(Code::BadEvent, "events cannot happen before time 0").with_label(time.span, "negative time").with_help("runs start at t = 0"));
+            self.error(
+                Diagnostic::error(Code::BadEvent, "events cannot happen before time 0")
+                    .with_label(time.span, "negative time")
+                    .with_help("runs start at t = 0"),
+            );
         }
         if let (Some(species), Some(amount), Some(time)) = (species, amount_v, time_v) {
-            self.model.events.push(Event { kind, species, amount, time, span: item.span });
+            self.model.events.push(Event {
+                kind,
+                species,
+                amount,
+                time,
+                span: item.span,
+            });
         }
     }
 
@@ -1060,11 +1567,28 @@ impl<'s> Lowerer<'s> {
                 for n in names {
                     match self.lookup(&n.name) {
                         Some(Decl::Step(k)) => self.model.assumptions.equilibrium.push((k, n.span)),
-                        Some(_) => self.error(Diagnostic::error(Code::BadAssumption, format!("`{}` is not a step", n.name)).with_label(n.span, "not a step").with_help("`assume equilibrium` names the steps at rapid equilibrium")),
+                        Some(_) => self.error(
+                            Diagnostic::error(
+                                Code::BadAssumption,
+                                format!("`{}` is not a step", n.name),
+                            )
+                            .with_label(n.span, "not a step")
+                            .with_help("`assume equilibrium` names the steps at rapid equilibrium"),
+                        ),
                         None => {
-                            let steps: Vec<&str> = self.model.steps.iter().map(|s| s.name.as_str()).collect();
-                            let hint = did_you_mean(&n.name, steps.iter().copied()).map(|h| format!("did you mean `{h}`?")).unwrap_or_else(|| "name a declared step".into());
-                            self.error(Diagnostic::error(Code::UnknownName, format!("unknown step `{}`", n.name)).with_label(n.span, "not a step").with_help(hint));
+                            let steps: Vec<&str> =
+                                self.model.steps.iter().map(|s| s.name.as_str()).collect();
+                            let hint = did_you_mean(&n.name, steps.iter().copied())
+                                .map(|h| format!("did you mean `{h}`?"))
+                                .unwrap_or_else(|| "name a declared step".into());
+                            self.error(
+                                Diagnostic::error(
+                                    Code::UnknownName,
+                                    format!("unknown step `{}`", n.name),
+                                )
+                                .with_label(n.span, "not a step")
+                                .with_help(hint),
+                            );
                         }
                     }
                 }
@@ -1079,9 +1603,12 @@ impl<'s> Lowerer<'s> {
         for (i, p) in self.model.params.iter().enumerate() {
             if !self.used.contains(&Sym::Param(i)) {
                 self.diags.push(
-                    Diagnostic::warning(Code::UnusedParam, format!("param `{}` is never used", p.name))
-                        .with_label(p.span, "unused")
-                        .with_help("use it in a rate, law, observable or another param, or remove it"),
+                    Diagnostic::warning(
+                        Code::UnusedParam,
+                        format!("param `{}` is never used", p.name),
+                    )
+                    .with_label(p.span, "unused")
+                    .with_help("use it in a rate, law, observable or another param, or remove it"),
                 );
             }
         }
@@ -1128,15 +1655,28 @@ impl<'s> Lowerer<'s> {
         for (k, s) in self.model.species.iter().enumerate() {
             if !touched[k] {
                 self.diags.push(
-                    Diagnostic::warning(Code::UntouchedSpecies, format!("species `{}` takes part in no step", s.name))
-                        .with_label(s.span, "never changes")
-                        .with_help("use it in a step, declare it `fixed` if it is a constant, or remove it"),
+                    Diagnostic::warning(
+                        Code::UntouchedSpecies,
+                        format!("species `{}` takes part in no step", s.name),
+                    )
+                    .with_label(s.span, "never changes")
+                    .with_help(
+                        "use it in a step, declare it `fixed` if it is a constant, or remove it",
+                    ),
                 );
             } else if consumed[k] && !produced[k] && s.initial == 0.0 {
                 self.diags.push(
-                    Diagnostic::warning(Code::ConsumedOnly, format!("species `{}` is consumed but starts at 0 and nothing produces it", s.name))
-                        .with_label(s.span, "no source")
-                        .with_help("give it an initial value, an `add` event, or a step that produces it"),
+                    Diagnostic::warning(
+                        Code::ConsumedOnly,
+                        format!(
+                            "species `{}` is consumed but starts at 0 and nothing produces it",
+                            s.name
+                        ),
+                    )
+                    .with_label(s.span, "no source")
+                    .with_help(
+                        "give it an initial value, an `add` event, or a step that produces it",
+                    ),
                 );
             }
         }
@@ -1176,7 +1716,11 @@ fn coefficient_overflow(span: Span, what: &str) -> Diagnostic {
 /// Which sum of a step's coefficients (side orders, net change of a
 /// species) does not fit in 64-bit rationals, if any.
 fn coefficient_sums_overflow(reactants: &[Term], products: &[Term]) -> Option<&'static str> {
-    let sum = |terms: &[Term]| terms.iter().try_fold(Coef::zero(), |a, t| a.checked_add(&t.coefficient));
+    let sum = |terms: &[Term]| {
+        terms
+            .iter()
+            .try_fold(Coef::zero(), |a, t| a.checked_add(&t.coefficient))
+    };
     if sum(reactants).is_none() || sum(products).is_none() {
         return Some("the coefficients of one side of this step");
     }

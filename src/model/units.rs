@@ -94,7 +94,10 @@ pub struct Units {
 
 impl Default for Units {
     fn default() -> Self {
-        Units { concentration: ConcUnit::MicroM, time: TimeUnit::S }
+        Units {
+            concentration: ConcUnit::MicroM,
+            time: TimeUnit::S,
+        }
     }
 }
 
@@ -118,18 +121,30 @@ impl Dim {
     // Saturating: absurd powers (`uM^2147483647`) must give a dimension
     // that matches nothing, never an overflow.
     pub fn mul(self, o: Dim) -> Dim {
-        Dim { conc: self.conc.saturating_add(o.conc), time: self.time.saturating_add(o.time) }
+        Dim {
+            conc: self.conc.saturating_add(o.conc),
+            time: self.time.saturating_add(o.time),
+        }
     }
     pub fn div(self, o: Dim) -> Dim {
-        Dim { conc: self.conc.saturating_sub(o.conc), time: self.time.saturating_sub(o.time) }
+        Dim {
+            conc: self.conc.saturating_sub(o.conc),
+            time: self.time.saturating_sub(o.time),
+        }
     }
     pub fn powi(self, n: i32) -> Dim {
-        Dim { conc: self.conc.saturating_mul(n), time: self.time.saturating_mul(n) }
+        Dim {
+            conc: self.conc.saturating_mul(n),
+            time: self.time.saturating_mul(n),
+        }
     }
     /// The dimension a mass-action constant of total order `n` must have:
     /// concentration^(1-n) / time.
     pub fn mass_action_constant(order: i32) -> Dim {
-        Dim { conc: 1 - order, time: -1 }
+        Dim {
+            conc: 1 - order,
+            time: -1,
+        }
     }
     /// Concentration per time: the dimension of a rate.
     pub const RATE: Dim = Dim { conc: 1, time: -1 };
@@ -139,7 +154,13 @@ impl Dim {
         let mut num = Vec::new();
         let mut den = Vec::new();
         let mut put = |sym: &str, p: i32| {
-            let part = |p: i32| if p.unsigned_abs() == 1 { sym.to_string() } else { format!("{sym}^{}", p.unsigned_abs()) };
+            let part = |p: i32| {
+                if p.unsigned_abs() == 1 {
+                    sym.to_string()
+                } else {
+                    format!("{sym}^{}", p.unsigned_abs())
+                }
+            };
             if p > 0 {
                 num.push(part(p));
             } else if p < 0 {
@@ -153,7 +174,11 @@ impl Dim {
             out.push('/');
             out.push_str(&d);
         }
-        if out.is_empty() { "1 (dimensionless)".into() } else { out }
+        if out.is_empty() {
+            "1 (dimensionless)".into()
+        } else {
+            out
+        }
     }
 }
 
@@ -174,7 +199,10 @@ pub struct UnitExpr {
 
 impl UnitExpr {
     pub fn dim(&self) -> Dim {
-        Dim { conc: self.conc.map(|c| c.1).unwrap_or(0), time: self.time.map(|t| t.1).unwrap_or(0) }
+        Dim {
+            conc: self.conc.map(|c| c.1).unwrap_or(0),
+            time: self.time.map(|t| t.1).unwrap_or(0),
+        }
     }
     /// The factor that converts a value in this unit to the default units.
     pub fn factor_to(&self, units: Units) -> f64 {
@@ -293,13 +321,19 @@ pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
     }
     loop {
         let rest_trim = rest.trim_start();
-        let end = rest_trim.find(['/', '*', '·', ' ']).unwrap_or(rest_trim.len());
+        let end = rest_trim
+            .find(['/', '*', '·', ' '])
+            .unwrap_or(rest_trim.len());
         let word_pow = &rest_trim[..end];
         if word_pow.is_empty() {
             return Err(format!("missing unit in `{text}`"));
         }
         let (word, power) = match word_pow.split_once('^') {
-            Some((w, p)) => (w, p.parse::<i32>().map_err(|_| format!("bad power `{p}` in `{text}`"))?),
+            Some((w, p)) => (
+                w,
+                p.parse::<i32>()
+                    .map_err(|_| format!("bad power `{p}` in `{text}`"))?,
+            ),
             None => (word_pow, 1),
         };
         let power = power.saturating_mul(sign);
@@ -341,12 +375,22 @@ pub fn parse_quantity(text: &str, units: Units) -> Result<(f64, Option<Dim>), St
     let split = text
         .char_indices()
         .find(|&(i, c)| {
-            !(c.is_ascii_digit() || c == '.' || c == '+' || c == '-' || ((c == 'e' || c == 'E') && i > 0 && text[i + 1..].starts_with(|d: char| d.is_ascii_digit() || d == '-' || d == '+')))
+            !(c.is_ascii_digit()
+                || c == '.'
+                || c == '+'
+                || c == '-'
+                || ((c == 'e' || c == 'E')
+                    && i > 0
+                    && text[i + 1..]
+                        .starts_with(|d: char| d.is_ascii_digit() || d == '-' || d == '+')))
         })
         .map(|(i, _)| i)
         .unwrap_or(text.len());
     let (num, unit) = text.split_at(split);
-    let value: f64 = num.trim().parse().map_err(|_| format!("`{text}` is not a number with an optional unit"))?;
+    let value: f64 = num
+        .trim()
+        .parse()
+        .map_err(|_| format!("`{text}` is not a number with an optional unit"))?;
     if !value.is_finite() {
         return Err(format!("`{text}` is not a finite number"));
     }
@@ -379,9 +423,15 @@ mod tests {
         assert!(close(parse_quantity("1e6 /M/s", u).unwrap().0, 1.0));
         assert!(close(parse_quantity("0.5 /min", u).unwrap().0, 0.5 / 60.0));
         assert!(close(parse_quantity("5mM", u).unwrap().0, 5000.0));
-        let mm = Units { concentration: ConcUnit::MilliM, time: TimeUnit::Min };
+        let mm = Units {
+            concentration: ConcUnit::MilliM,
+            time: TimeUnit::Min,
+        };
         assert!(close(parse_quantity("1 uM", mm).unwrap().0, 1e-3));
-        assert!(close(parse_quantity("2 /uM/s", mm).unwrap().0, 2.0 * 1000.0 * 60.0));
+        assert!(close(
+            parse_quantity("2 /uM/s", mm).unwrap().0,
+            2.0 * 1000.0 * 60.0
+        ));
     }
 
     #[test]

@@ -114,7 +114,11 @@ pub fn steady_state_of(
                 // the solver's absolute tolerance times the fast rates).
                 let species = &row[..system.species_count()];
                 let scale = species.iter().fold(0.0f64, |a, v| a.max(v.abs()));
-                let moved = previous.as_ref().map(|p: &Vec<f64>| p.iter().zip(species).fold(0.0f64, |a, (x, y)| a.max((x - y).abs())));
+                let moved = previous.as_ref().map(|p: &Vec<f64>| {
+                    p.iter()
+                        .zip(species)
+                        .fold(0.0f64, |a, (x, y)| a.max((x - y).abs()))
+                });
                 if let Some(moved) = moved
                     && scale > 0.0
                     && moved <= STATIONARY_FRACTION * scale
@@ -126,7 +130,14 @@ pub fn steady_state_of(
                     let mut values = Vec::new();
                     system.outputs(&mut w, &x, until, &mut values);
                     let (eigenvalues, stability) = eigen(system, &mut w, &x, until);
-                    return Ok(SteadyState { values, eigenvalues, stability, residual, integrated_to: until, newton_iterations: 0 });
+                    return Ok(SteadyState {
+                        values,
+                        eigenvalues,
+                        stability,
+                        residual,
+                        integrated_to: until,
+                        newton_iterations: 0,
+                    });
                 }
                 previous = Some(species.to_vec());
                 last_reason = reason;

@@ -54,7 +54,11 @@ pub enum AstExpr {
 impl AstExpr {
     pub fn span(&self) -> Span {
         match self {
-            AstExpr::Number(_, s) | AstExpr::Neg(_, s) | AstExpr::Binary(_, _, _, s) | AstExpr::Call(_, _, s) | AstExpr::Paren(_, s) => *s,
+            AstExpr::Number(_, s)
+            | AstExpr::Neg(_, s)
+            | AstExpr::Binary(_, _, _, s)
+            | AstExpr::Call(_, _, s)
+            | AstExpr::Paren(_, s) => *s,
             AstExpr::Name(i) => i.span,
         }
     }
@@ -112,19 +116,55 @@ pub enum EventKindAst {
 
 #[derive(Debug, Clone, PartialEq)]
 pub enum StatementKind {
-    Mechanism { name: Ident, description: Option<String> },
+    Mechanism {
+        name: Ident,
+        description: Option<String>,
+    },
     Units(Vec<(UnitKey, String, Span)>),
     Species(Vec<SpeciesDecl>),
     Fixed(SpeciesDecl),
-    Param { name: Ident, value: ParamValue, description: Option<String> },
-    Step { name: Ident, lhs: Side, reversible: bool, arrow_text: String, arrow_span: Span, rhs: Side, rate: RateAst, rate_span: Span, description: Option<String> },
-    Total { name: Ident, terms: Vec<StepTerm>, value: Option<Quantity> },
-    Observe { name: Ident, expr: AstExpr },
+    Param {
+        name: Ident,
+        value: ParamValue,
+        description: Option<String>,
+    },
+    Step {
+        name: Ident,
+        lhs: Side,
+        reversible: bool,
+        arrow_text: String,
+        arrow_span: Span,
+        rhs: Side,
+        rate: RateAst,
+        rate_span: Span,
+        description: Option<String>,
+    },
+    Total {
+        name: Ident,
+        terms: Vec<StepTerm>,
+        value: Option<Quantity>,
+    },
+    Observe {
+        name: Ident,
+        expr: AstExpr,
+    },
     AssumeSteady(Vec<Ident>),
     AssumeEquilibrium(Vec<Ident>),
-    Event { kind: EventKindAst, amount: Quantity, target: Ident, time: Quantity },
-    Set { target: Ident, value: Quantity, time: Quantity },
-    Use { path: String, span: Span },
+    Event {
+        kind: EventKindAst,
+        amount: Quantity,
+        target: Ident,
+        time: Quantity,
+    },
+    Set {
+        target: Ident,
+        value: Quantity,
+        time: Quantity,
+    },
+    Use {
+        path: String,
+        span: Span,
+    },
 }
 
 impl StatementKind {
@@ -140,8 +180,14 @@ impl StatementKind {
             StatementKind::Total { .. } => "total",
             StatementKind::Observe { .. } => "observe",
             StatementKind::AssumeSteady(_) | StatementKind::AssumeEquilibrium(_) => "assume",
-            StatementKind::Event { kind: EventKindAst::Add, .. } => "add",
-            StatementKind::Event { kind: EventKindAst::Remove, .. } => "remove",
+            StatementKind::Event {
+                kind: EventKindAst::Add,
+                ..
+            } => "add",
+            StatementKind::Event {
+                kind: EventKindAst::Remove,
+                ..
+            } => "remove",
             StatementKind::Set { .. } => "set",
             StatementKind::Use { .. } => "use",
         }

@@ -21,7 +21,11 @@ pub fn format_file(tree: &File, text: &str) -> String {
     };
 
     for line in &tree.lines {
-        let verbatim = line.statement.as_ref().map(|s| text.get(s.span.start..s.span.end).unwrap_or("")).filter(|t| t.contains('\n'));
+        let verbatim = line
+            .statement
+            .as_ref()
+            .map(|s| text.get(s.span.start..s.span.end).unwrap_or(""))
+            .filter(|t| t.contains('\n'));
         match (&line.statement, verbatim) {
             (None, _) if line.comment.is_none() => {
                 flush(&mut run, &mut out);
@@ -47,7 +51,8 @@ pub fn format_file(tree: &File, text: &str) -> String {
                     out.push(String::new());
                     pending_blank = false;
                 }
-                let mut lines: Vec<String> = verbatim.lines().map(|l| l.trim_end().to_string()).collect();
+                let mut lines: Vec<String> =
+                    verbatim.lines().map(|l| l.trim_end().to_string()).collect();
                 if let (Some(last), Some(c)) = (lines.last_mut(), &line.comment) {
                     last.push_str("  ");
                     last.push_str(c.trim());
@@ -64,7 +69,10 @@ pub fn format_file(tree: &File, text: &str) -> String {
                     pending_blank = false;
                 }
                 run_kind = Some(kind);
-                run.push((cells(&st.kind), line.comment.as_ref().map(|c| c.trim().to_string())));
+                run.push((
+                    cells(&st.kind),
+                    line.comment.as_ref().map(|c| c.trim().to_string()),
+                ));
             }
         }
     }
@@ -111,7 +119,13 @@ fn align(run: &[(Vec<String>, Option<String>)]) -> Vec<String> {
             line.trim_end().to_string()
         })
         .collect();
-    let comment_col = run.iter().zip(&rows).filter(|((_, c), _)| c.is_some()).map(|(_, r)| width(r)).max().unwrap_or(0);
+    let comment_col = run
+        .iter()
+        .zip(&rows)
+        .filter(|((_, c), _)| c.is_some())
+        .map(|(_, r)| width(r))
+        .max()
+        .unwrap_or(0);
     rows.into_iter()
         .zip(run)
         .map(|(row, (_, comment))| match comment {
@@ -155,7 +169,10 @@ fn side(s: &Side) -> String {
 }
 
 fn names(list: &[Ident]) -> String {
-    list.iter().map(|i| i.name.as_str()).collect::<Vec<_>>().join(", ")
+    list.iter()
+        .map(|i| i.name.as_str())
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 fn species_decl(d: &SpeciesDecl) -> String {
@@ -175,7 +192,9 @@ fn species_decl(d: &SpeciesDecl) -> String {
 fn cells(kind: &StatementKind) -> Vec<String> {
     let kw = kind.keyword().to_string();
     match kind {
-        StatementKind::Mechanism { name, description } => vec![kw, name.name.clone(), quoted(description)],
+        StatementKind::Mechanism { name, description } => {
+            vec![kw, name.name.clone(), quoted(description)]
+        }
         StatementKind::Units(settings) => {
             let parts: Vec<String> = settings
                 .iter()
@@ -188,23 +207,69 @@ fn cells(kind: &StatementKind) -> Vec<String> {
         }
         StatementKind::Species(decls) if decls.len() == 1 => {
             let d = &decls[0];
-            vec![kw, d.name.name.clone(), d.value.as_ref().map(|q| format!("= {}", quantity(q))).unwrap_or_default(), quoted(&d.description)]
+            vec![
+                kw,
+                d.name.name.clone(),
+                d.value
+                    .as_ref()
+                    .map(|q| format!("= {}", quantity(q)))
+                    .unwrap_or_default(),
+                quoted(&d.description),
+            ]
         }
-        StatementKind::Species(decls) => vec![kw, decls.iter().map(species_decl).collect::<Vec<_>>().join(", ")],
-        StatementKind::Fixed(d) => vec![kw, d.name.name.clone(), d.value.as_ref().map(|q| format!("= {}", quantity(q))).unwrap_or_default(), quoted(&d.description)],
-        StatementKind::Param { name, value, description } => {
+        StatementKind::Species(decls) => vec![
+            kw,
+            decls
+                .iter()
+                .map(species_decl)
+                .collect::<Vec<_>>()
+                .join(", "),
+        ],
+        StatementKind::Fixed(d) => vec![
+            kw,
+            d.name.name.clone(),
+            d.value
+                .as_ref()
+                .map(|q| format!("= {}", quantity(q)))
+                .unwrap_or_default(),
+            quoted(&d.description),
+        ],
+        StatementKind::Param {
+            name,
+            value,
+            description,
+        } => {
             let v = match value {
                 ParamValue::Quantity(q) => quantity(q),
                 ParamValue::Expr(e) => expr(e),
             };
             vec![kw, name.name.clone(), format!("= {v}"), quoted(description)]
         }
-        StatementKind::Step { name, lhs, arrow_text, rhs, rate, description, .. } => {
+        StatementKind::Step {
+            name,
+            lhs,
+            arrow_text,
+            rhs,
+            rate,
+            description,
+            ..
+        } => {
             let rate = match rate {
-                RateAst::MassAction(cs) => format!("with {}", cs.iter().map(expr).collect::<Vec<_>>().join(", ")),
+                RateAst::MassAction(cs) => format!(
+                    "with {}",
+                    cs.iter().map(expr).collect::<Vec<_>>().join(", ")
+                ),
                 RateAst::Law(e) => format!("law {}", expr(e)),
             };
-            vec![kw, name.name.clone(), side(lhs), arrow_text.clone(), side(rhs), rate, quoted(description)]
+            vec![
+                kw,
+                name.name.clone(),
+                side(lhs),
+                arrow_text.clone(),
+                side(rhs),
+                rate,
+                quoted(description),
+            ]
         }
         StatementKind::Total { name, terms, value } => {
             let mut comb = String::new();
@@ -217,13 +282,40 @@ fn cells(kind: &StatementKind) -> Vec<String> {
                 }
                 comb.push_str(&term(t));
             }
-            vec![kw, name.name.clone(), format!("= {comb}"), value.as_ref().map(|q| format!("= {}", quantity(q))).unwrap_or_default()]
+            vec![
+                kw,
+                name.name.clone(),
+                format!("= {comb}"),
+                value
+                    .as_ref()
+                    .map(|q| format!("= {}", quantity(q)))
+                    .unwrap_or_default(),
+            ]
         }
-        StatementKind::Observe { name, expr: e } => vec![kw, name.name.clone(), format!("= {}", expr(e))],
+        StatementKind::Observe { name, expr: e } => {
+            vec![kw, name.name.clone(), format!("= {}", expr(e))]
+        }
         StatementKind::AssumeSteady(list) => vec![kw, format!("steady {}", names(list))],
         StatementKind::AssumeEquilibrium(list) => vec![kw, format!("equilibrium {}", names(list))],
-        StatementKind::Event { amount, target, time, .. } => vec![kw, format!("{} {}", quantity(amount), target.name), format!("at {}", quantity(time))],
-        StatementKind::Set { target, value, time } => vec![kw, format!("{} = {}", target.name, quantity(value)), format!("at {}", quantity(time))],
+        StatementKind::Event {
+            amount,
+            target,
+            time,
+            ..
+        } => vec![
+            kw,
+            format!("{} {}", quantity(amount), target.name),
+            format!("at {}", quantity(time)),
+        ],
+        StatementKind::Set {
+            target,
+            value,
+            time,
+        } => vec![
+            kw,
+            format!("{} = {}", target.name, quantity(value)),
+            format!("at {}", quantity(time)),
+        ],
         StatementKind::Use { path, .. } => vec![kw, format!("\"{path}\"")],
     }
 }
@@ -236,7 +328,11 @@ pub fn expr(e: &AstExpr) -> String {
         AstExpr::Neg(x, _) => format!("-{}", expr(x)),
         AstExpr::Binary(AstBinOp::Pow, a, b, _) => format!("{}^{}", expr(a), expr(b)),
         AstExpr::Binary(op, a, b, _) => format!("{} {} {}", expr(a), op.symbol(), expr(b)),
-        AstExpr::Call(f, args, _) => format!("{}({})", f.name, args.iter().map(expr).collect::<Vec<_>>().join(", ")),
+        AstExpr::Call(f, args, _) => format!(
+            "{}({})",
+            f.name,
+            args.iter().map(expr).collect::<Vec<_>>().join(", ")
+        ),
         AstExpr::Paren(x, _) => format!("({})", expr(x)),
     }
 }

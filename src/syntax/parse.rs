@@ -23,27 +23,52 @@ pub const MAX_NESTING: usize = 200;
 pub fn parse(text: &str, file: FileId) -> Result<File, Vec<Diagnostic>> {
     if text.len() > MAX_FILE_BYTES {
         return Err(vec![
-            Diagnostic::error(Code::InputTooLarge, format!("file is {} bytes; the limit is {} bytes", text.len(), MAX_FILE_BYTES))
-                .with_label(Span::new(file, 0, 0), "file starts here")
-                .with_help("split the mechanism into several files joined with `use`"),
+            Diagnostic::error(
+                Code::InputTooLarge,
+                format!(
+                    "file is {} bytes; the limit is {} bytes",
+                    text.len(),
+                    MAX_FILE_BYTES
+                ),
+            )
+            .with_label(Span::new(file, 0, 0), "file starts here")
+            .with_help("split the mechanism into several files joined with `use`"),
         ]);
     }
     let prepared = blank_inside_parentheses(text, file)?;
-    let pairs = MechanismParser::parse(Rule::file, &prepared).map_err(|e| vec![syntax_error(e, file, text)])?;
-    let mut builder = Builder { file, errors: Vec::new() };
+    let pairs = MechanismParser::parse(Rule::file, &prepared)
+        .map_err(|e| vec![syntax_error(e, file, text)])?;
+    let mut builder = Builder {
+        file,
+        errors: Vec::new(),
+    };
     let mut out = File::default();
     for pair in pairs.flatten().filter(|p| p.as_rule() == Rule::line) {
         let span = builder.span(&pair);
-        let mut line = Line { statement: None, comment: None, span };
+        let mut line = Line {
+            statement: None,
+            comment: None,
+            span,
+        };
         for inner in pair.into_inner() {
             match inner.as_rule() {
-                Rule::comment => line.comment = Some(text[inner.as_span().start()..inner.as_span().end()].trim_end().to_string()),
+                Rule::comment => {
+                    line.comment = Some(
+                        text[inner.as_span().start()..inner.as_span().end()]
+                            .trim_end()
+                            .to_string(),
+                    )
+                }
                 _ => line.statement = builder.statement(inner),
             }
         }
         out.lines.push(line);
     }
-    if builder.errors.is_empty() { Ok(out) } else { Err(builder.errors) }
+    if builder.errors.is_empty() {
+        Ok(out)
+    } else {
+        Err(builder.errors)
+    }
 }
 
 /// Replaces line breaks and comments inside parentheses by spaces (same
@@ -67,7 +92,11 @@ fn blank_inside_parentheses(text: &str, file: FileId) -> Result<String, Vec<Diag
         match b {
             b'"' => in_string = true,
             b'#' => {
-                let end = bytes[i..].iter().position(|&c| c == b'\n').map(|p| i + p).unwrap_or(bytes.len());
+                let end = bytes[i..]
+                    .iter()
+                    .position(|&c| c == b'\n')
+                    .map(|p| i + p)
+                    .unwrap_or(bytes.len());
                 if depth > 0 {
                     out[i..end].iter_mut().for_each(|c| *c = b' ');
                 }
@@ -79,9 +108,12 @@ fn blank_inside_parentheses(text: &str, file: FileId) -> Result<String, Vec<Diag
                 open_at.push(i);
                 if depth > MAX_NESTING {
                     return Err(vec![
-                        Diagnostic::error(Code::NestingTooDeep, format!("parentheses are nested more than {MAX_NESTING} deep"))
-                            .with_label(Span::new(file, i, i + 1), "this parenthesis is too deep")
-                            .with_help("split the expression into named params or observables"),
+                        Diagnostic::error(
+                            Code::NestingTooDeep,
+                            format!("parentheses are nested more than {MAX_NESTING} deep"),
+                        )
+                        .with_label(Span::new(file, i, i + 1), "this parenthesis is too deep")
+                        .with_help("split the expression into named params or observables"),
                     ]);
                 }
             }
@@ -109,7 +141,12 @@ fn blank_inside_parentheses(text: &str, file: FileId) -> Result<String, Vec<Diag
         ]);
     }
     // Only ASCII bytes were replaced by ASCII spaces, so this stays UTF-8.
-    String::from_utf8(out).map_err(|_| vec![Diagnostic::error(Code::NotUtf8, "internal: text stopped being UTF-8")])
+    String::from_utf8(out).map_err(|_| {
+        vec![Diagnostic::error(
+            Code::NotUtf8,
+            "internal: text stopped being UTF-8",
+        )]
+    })
 }
 
 fn rule_word(rule: &Rule) -> String {
@@ -172,8 +209,15 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
     let start = crate::diagnostics::floor_char_boundary(text, start);
     // Point at the offending token (up to the next space), or one character.
     let rest = &text[start..];
-    let token_len = rest.find(|c: char| c.is_whitespace()).unwrap_or(rest.len()).min(40);
-    let end = if end > start { end } else { start + token_len.max(rest.chars().next().map(char::len_utf8).unwrap_or(0)) };
+    let token_len = rest
+        .find(|c: char| c.is_whitespace())
+        .unwrap_or(rest.len())
+        .min(40);
+    let end = if end > start {
+        end
+    } else {
+        start + token_len.max(rest.chars().next().map(char::len_utf8).unwrap_or(0))
+    };
     let found = if rest.is_empty() || rest.starts_with(['\n', '\r']) {
         "the end of the line".to_string()
     } else {
@@ -181,11 +225,27 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
         // overrides, zero-width spaces) are shown escaped, so the message
         // never drives or misleads the user's terminal.
         let token = &text[start..crate::diagnostics::floor_char_boundary(text, end)];
-        let invisible = |c: char| c.is_control() || matches!(c, '\u{200B}'..='\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2060}'..='\u{2069}' | '\u{FEFF}');
-        format!("`{}`", token.chars().map(|c| if invisible(c) { c.escape_default().to_string() } else { c.to_string() }).collect::<String>())
+        let invisible = |c: char| {
+            c.is_control()
+                || matches!(c, '\u{200B}'..='\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2060}'..='\u{2069}' | '\u{FEFF}')
+        };
+        format!(
+            "`{}`",
+            token
+                .chars()
+                .map(|c| if invisible(c) {
+                    c.escape_default().to_string()
+                } else {
+                    c.to_string()
+                })
+                .collect::<String>()
+        )
     };
     let message = match &e.variant {
-        ErrorVariant::ParsingError { positives, negatives: _ } => {
+        ErrorVariant::ParsingError {
+            positives,
+            negatives: _,
+        } => {
             let mut words: Vec<String> = positives.iter().map(rule_word).collect();
             words.sort();
             words.dedup();
@@ -203,15 +263,34 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
     let line_start = text[..start].rfind('\n').map(|i| i + 1).unwrap_or(0);
     let first_word = text[line_start..].split_whitespace().next().unwrap_or("");
     let help = if start == line_start || text[line_start..start].trim().is_empty() {
-        const KEYWORDS: [&str; 13] = ["mechanism", "units", "species", "fixed", "param", "step", "total", "observe", "assume", "add", "remove", "set", "use"];
+        const KEYWORDS: [&str; 13] = [
+            "mechanism",
+            "units",
+            "species",
+            "fixed",
+            "param",
+            "step",
+            "total",
+            "observe",
+            "assume",
+            "add",
+            "remove",
+            "set",
+            "use",
+        ];
         match crate::diagnostics::did_you_mean(first_word, KEYWORDS) {
             Some(k) => format!("did you mean `{k}`? Every line starts with a statement keyword"),
-            None => format!("a line starts with one of: {}; `#` starts a comment", KEYWORDS.join(", ")),
+            None => format!(
+                "a line starts with one of: {}; `#` starts a comment",
+                KEYWORDS.join(", ")
+            ),
         }
     } else {
         "see docs/language.md for the form of each statement".to_string()
     };
-    Diagnostic::error(Code::Syntax, message).with_label(Span::new(file, start, end), "here").with_help(help)
+    Diagnostic::error(Code::Syntax, message)
+        .with_label(Span::new(file, start, end), "here")
+        .with_help(help)
 }
 
 fn pratt() -> &'static PrattParser<Rule> {
@@ -231,7 +310,10 @@ struct Builder {
 }
 
 fn string_text(pair: Pair<Rule>) -> String {
-    pair.into_inner().next().map(|p| p.as_str().to_string()).unwrap_or_default()
+    pair.into_inner()
+        .next()
+        .map(|p| p.as_str().to_string())
+        .unwrap_or_default()
 }
 
 impl Builder {
@@ -240,12 +322,20 @@ impl Builder {
     }
 
     fn ident(&self, pair: Pair<Rule>) -> Ident {
-        Ident { name: pair.as_str().to_string(), span: self.span(&pair) }
+        Ident {
+            name: pair.as_str().to_string(),
+            span: self.span(&pair),
+        }
     }
 
     fn quantity(&self, pair: Pair<Rule>) -> Quantity {
         let span = self.span(&pair);
-        let mut q = Quantity { number: String::new(), number_span: span, unit: None, span };
+        let mut q = Quantity {
+            number: String::new(),
+            number_span: span,
+            unit: None,
+            span,
+        };
         for p in pair.into_inner() {
             match p.as_rule() {
                 Rule::signed_number => {
@@ -262,12 +352,17 @@ impl Builder {
     fn statement(&mut self, pair: Pair<Rule>) -> Option<Statement> {
         let span = self.span(&pair);
         let rule = pair.as_rule();
-        let mut it = pair.into_inner().filter(|p| !matches!(p.as_rule(), Rule::equals | Rule::comma));
+        let mut it = pair
+            .into_inner()
+            .filter(|p| !matches!(p.as_rule(), Rule::equals | Rule::comma));
         let kind = match rule {
             Rule::mechanism_stmt => {
                 it.next();
                 let name = self.ident(it.next()?);
-                StatementKind::Mechanism { name, description: it.next().map(string_text) }
+                StatementKind::Mechanism {
+                    name,
+                    description: it.next().map(string_text),
+                }
             }
             Rule::units_stmt => {
                 it.next();
@@ -279,7 +374,9 @@ impl Builder {
                             _ => UnitKey::Concentration,
                         };
                         let unit = inner.next();
-                        let (text, span) = unit.map(|u| (u.as_str().to_string(), self.span(&u))).unwrap_or_default();
+                        let (text, span) = unit
+                            .map(|u| (u.as_str().to_string(), self.span(&u)))
+                            .unwrap_or_default();
                         (key, text, span)
                     })
                     .collect();
@@ -293,7 +390,11 @@ impl Builder {
                 it.next();
                 let name = self.ident(it.next()?);
                 let value = Some(self.quantity(it.next()?));
-                StatementKind::Fixed(SpeciesDecl { name, value, description: it.next().map(string_text) })
+                StatementKind::Fixed(SpeciesDecl {
+                    name,
+                    value,
+                    description: it.next().map(string_text),
+                })
             }
             Rule::param_stmt => {
                 it.next();
@@ -303,7 +404,11 @@ impl Builder {
                     Rule::quantity => ParamValue::Quantity(self.quantity(value_pair)),
                     _ => ParamValue::Expr(self.expr(value_pair)),
                 };
-                StatementKind::Param { name, value, description: it.next().map(string_text) }
+                StatementKind::Param {
+                    name,
+                    value,
+                    description: it.next().map(string_text),
+                }
             }
             Rule::step_stmt => {
                 it.next();
@@ -312,16 +417,41 @@ impl Builder {
                 let arrow = it.next()?;
                 let arrow_span = self.span(&arrow);
                 let arrow_text = arrow.as_str().to_string();
-                let reversible = arrow.into_inner().next().is_some_and(|a| a.as_rule() == Rule::reversible_arrow);
+                let reversible = arrow
+                    .into_inner()
+                    .next()
+                    .is_some_and(|a| a.as_rule() == Rule::reversible_arrow);
                 let rhs = self.side(it.next()?);
                 let rate_pair = it.next()?;
                 let rate_span = self.span(&rate_pair);
                 let rate_inner = rate_pair.into_inner().next()?;
                 let rate = match rate_inner.as_rule() {
-                    Rule::mass_action => RateAst::MassAction(rate_inner.into_inner().filter(|p| p.as_rule() == Rule::expr).map(|p| self.expr(p)).collect()),
-                    _ => RateAst::Law(self.expr(rate_inner.into_inner().find(|p| p.as_rule() == Rule::expr)?)),
+                    Rule::mass_action => RateAst::MassAction(
+                        rate_inner
+                            .into_inner()
+                            .filter(|p| p.as_rule() == Rule::expr)
+                            .map(|p| self.expr(p))
+                            .collect(),
+                    ),
+                    _ => RateAst::Law(
+                        self.expr(
+                            rate_inner
+                                .into_inner()
+                                .find(|p| p.as_rule() == Rule::expr)?,
+                        ),
+                    ),
                 };
-                StatementKind::Step { name, lhs, reversible, arrow_text, arrow_span, rhs, rate, rate_span, description: it.next().map(string_text) }
+                StatementKind::Step {
+                    name,
+                    lhs,
+                    reversible,
+                    arrow_text,
+                    arrow_span,
+                    rhs,
+                    rate,
+                    rate_span,
+                    description: it.next().map(string_text),
+                }
             }
             Rule::total_stmt => {
                 it.next();
@@ -341,7 +471,12 @@ impl Builder {
                                 }
                             }
                         }
-                        Rule::sign => negative_next = p.into_inner().next().is_some_and(|s| s.as_rule() == Rule::minus),
+                        Rule::sign => {
+                            negative_next = p
+                                .into_inner()
+                                .next()
+                                .is_some_and(|s| s.as_rule() == Rule::minus)
+                        }
                         Rule::term => terms.push(self.term(p, negative_next)),
                         _ => {}
                     }
@@ -352,36 +487,63 @@ impl Builder {
             Rule::observe_stmt => {
                 it.next();
                 let name = self.ident(it.next()?);
-                StatementKind::Observe { name, expr: self.expr(it.next()?) }
+                StatementKind::Observe {
+                    name,
+                    expr: self.expr(it.next()?),
+                }
             }
             Rule::assume_stmt => {
                 it.next();
                 let which = it.next()?;
                 let steady = which.as_rule() == Rule::assume_steady;
-                let names: Vec<Ident> = which.into_inner().filter(|p| p.as_rule() == Rule::ident).map(|p| self.ident(p)).collect();
-                if steady { StatementKind::AssumeSteady(names) } else { StatementKind::AssumeEquilibrium(names) }
+                let names: Vec<Ident> = which
+                    .into_inner()
+                    .filter(|p| p.as_rule() == Rule::ident)
+                    .map(|p| self.ident(p))
+                    .collect();
+                if steady {
+                    StatementKind::AssumeSteady(names)
+                } else {
+                    StatementKind::AssumeEquilibrium(names)
+                }
             }
             Rule::add_stmt | Rule::remove_stmt => {
-                let kind = if rule == Rule::add_stmt { EventKindAst::Add } else { EventKindAst::Remove };
+                let kind = if rule == Rule::add_stmt {
+                    EventKindAst::Add
+                } else {
+                    EventKindAst::Remove
+                };
                 it.next();
                 let mut amount_it = it.next()?.into_inner();
                 let amount = self.quantity(amount_it.next()?);
                 let target = self.ident(amount_it.next()?);
                 let time = self.quantity(it.find(|p| p.as_rule() == Rule::quantity)?);
-                StatementKind::Event { kind, amount, target, time }
+                StatementKind::Event {
+                    kind,
+                    amount,
+                    target,
+                    time,
+                }
             }
             Rule::set_stmt => {
                 it.next();
                 let target = self.ident(it.next()?);
                 let value = self.quantity(it.next()?);
                 let time = self.quantity(it.find(|p| p.as_rule() == Rule::quantity)?);
-                StatementKind::Set { target, value, time }
+                StatementKind::Set {
+                    target,
+                    value,
+                    time,
+                }
             }
             Rule::use_stmt => {
                 it.next();
                 let s = it.next()?;
                 let span = self.span(&s);
-                StatementKind::Use { path: string_text(s), span }
+                StatementKind::Use {
+                    path: string_text(s),
+                    span,
+                }
             }
             _ => return None,
         };
@@ -389,7 +551,14 @@ impl Builder {
     }
 
     fn species_decl(&self, pair: Pair<Rule>) -> SpeciesDecl {
-        let mut decl = SpeciesDecl { name: Ident { name: String::new(), span: self.span(&pair) }, value: None, description: None };
+        let mut decl = SpeciesDecl {
+            name: Ident {
+                name: String::new(),
+                span: self.span(&pair),
+            },
+            value: None,
+            description: None,
+        };
         for p in pair.into_inner() {
             match p.as_rule() {
                 Rule::ident => decl.name = self.ident(p),
@@ -403,7 +572,11 @@ impl Builder {
 
     fn side(&self, pair: Pair<Rule>) -> Side {
         let span = self.span(&pair);
-        let mut side = Side { terms: Vec::new(), empty_text: None, span };
+        let mut side = Side {
+            terms: Vec::new(),
+            empty_text: None,
+            span,
+        };
         for p in pair.into_inner() {
             match p.as_rule() {
                 Rule::empty_side => side.empty_text = Some(p.as_str().to_string()),
@@ -417,7 +590,10 @@ impl Builder {
     fn term(&self, pair: Pair<Rule>, negative: bool) -> StepTerm {
         let span = self.span(&pair);
         let mut coefficient = None;
-        let mut name = Ident { name: String::new(), span };
+        let mut name = Ident {
+            name: String::new(),
+            span,
+        };
         for p in pair.into_inner() {
             match p.as_rule() {
                 Rule::coefficient => coefficient = Some((p.as_str().to_string(), self.span(&p))),
@@ -425,7 +601,12 @@ impl Builder {
                 _ => {}
             }
         }
-        StepTerm { coefficient, name, negative, span }
+        StepTerm {
+            coefficient,
+            name,
+            negative,
+            span,
+        }
     }
 
     fn expr(&self, pair: Pair<Rule>) -> AstExpr {
@@ -464,8 +645,14 @@ impl Builder {
             }
             Rule::call => {
                 let mut inner = pair.into_inner();
-                let name = inner.next().map(|p| self.ident(p)).unwrap_or(Ident { name: String::new(), span });
-                let args = inner.filter(|p| p.as_rule() == Rule::expr).map(|p| self.expr(p)).collect();
+                let name = inner.next().map(|p| self.ident(p)).unwrap_or(Ident {
+                    name: String::new(),
+                    span,
+                });
+                let args = inner
+                    .filter(|p| p.as_rule() == Rule::expr)
+                    .map(|p| self.expr(p))
+                    .collect();
                 AstExpr::Call(name, args, span)
             }
             Rule::expr => self.expr(pair),

@@ -100,20 +100,37 @@ static OCTAVE_READY: OnceLock<Result<(), String>> = OnceLock::new();
 /// Panics if that is impossible: the Octave check must fail, not skip.
 pub fn ensure_octave() {
     let ready = OCTAVE_READY.get_or_init(|| {
-        let works = || Command::new("octave-cli").arg("--version").output().map(|o| o.status.success()).unwrap_or(false);
+        let works = || {
+            Command::new("octave-cli")
+                .arg("--version")
+                .output()
+                .map(|o| o.status.success())
+                .unwrap_or(false)
+        };
         if works() {
             return Ok(());
         }
-        let root = Command::new("id").arg("-u").output().map(|o| String::from_utf8_lossy(&o.stdout).trim() == "0").unwrap_or(false);
+        let root = Command::new("id")
+            .arg("-u")
+            .output()
+            .map(|o| String::from_utf8_lossy(&o.stdout).trim() == "0")
+            .unwrap_or(false);
         let apt = |args: &[&str]| {
-            let mut cmd = if root { Command::new("apt-get") } else { Command::new("sudo") };
+            let mut cmd = if root {
+                Command::new("apt-get")
+            } else {
+                Command::new("sudo")
+            };
             if !root {
                 cmd.arg("apt-get");
             }
-            cmd.args(args).env("DEBIAN_FRONTEND", "noninteractive").output()
+            cmd.args(args)
+                .env("DEBIAN_FRONTEND", "noninteractive")
+                .output()
         };
         let update = apt(&["update", "-qq"]).map_err(|e| format!("cannot run apt-get: {e}"))?;
-        let install = apt(&["install", "-y", "-qq", "octave"]).map_err(|e| format!("cannot run apt-get: {e}"))?;
+        let install = apt(&["install", "-y", "-qq", "octave"])
+            .map_err(|e| format!("cannot run apt-get: {e}"))?;
         if works() {
             Ok(())
         } else {
