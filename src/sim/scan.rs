@@ -119,8 +119,20 @@ pub fn check_axes(model: &Model, axes: &[Axis]) -> Result<(), String> {
             }
         }
     }
+    // Each axis is capped on its own; the grid is their product.
+    let points = axes
+        .iter()
+        .fold(1u128, |n, a| n.saturating_mul(a.values.len() as u128));
+    if points > MAX_SCAN_POINTS {
+        return Err(format!(
+            "the grid has {points} points; at most {MAX_SCAN_POINTS} are run (use fewer points per axis)"
+        ));
+    }
     Ok(())
 }
+
+/// Largest grid (product of the axes' points) a scan runs.
+pub const MAX_SCAN_POINTS: u128 = 1_000_000;
 
 /// Runs the scan on the current rayon pool; `tick` is called once per point.
 pub fn run_scan(scan: &Scan<'_>, tick: &(dyn Fn() + Sync)) -> Result<ScanResult, SimError> {
