@@ -7,7 +7,7 @@
 use super::names::{JULIA_RESERVED, Names};
 use super::system::{Needs, System};
 use super::{EmitOptions, EmittedFile, Target, banner};
-use crate::algebra::print::{Syntax, float_literal, plain_literal, print_expr};
+use crate::algebra::print::{Syntax, float_literal, print_expr};
 use crate::diagnostics::Diagnostic;
 use crate::model::{EventKind, Expr, Sym};
 use std::fmt::Write;
@@ -154,22 +154,8 @@ fn source(sys: &System, options: &EmitOptions) -> String {
     o.push_str("    return nothing\nend\n");
 
     o.push_str("\n# Every species (SPECIES order) from the state u.\nfunction full_state(u, p)\n");
-    let needs = sys.needs(sys.dependent.iter().map(|d| &d.formula));
-    let needs = Needs {
-        state: (0..sys.n()).collect(),
-        dependent: (0..sys.dependent.len()).collect(),
-        ..needs
-    };
-    prelude(&mut o, sys, &names, &needs);
-    let all: Vec<String> = (0..m.species.len())
-        .map(|i| {
-            if sys.slot(i).is_some() || sys.dependent_of(i).is_some() {
-                names.get(Sym::Species(i))
-            } else {
-                plain_literal(m.species[i].initial)
-            }
-        })
-        .collect();
+    prelude(&mut o, sys, &names, &sys.full_state_needs());
+    let all = sys.full_state_terms(m, &|s| names.get(s));
     let _ = writeln!(o, "    return [{}]\nend", all.join(", "));
     o
 }

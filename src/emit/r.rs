@@ -6,7 +6,7 @@
 use super::names::{Names, R_RESERVED, quoted};
 use super::system::{Needs, System};
 use super::{EmitOptions, EmittedFile, Target, banner};
-use crate::algebra::print::{Syntax, float_literal, plain_literal, print_expr};
+use crate::algebra::print::{Syntax, float_literal, print_expr};
 use crate::diagnostics::Diagnostic;
 use crate::model::{EventKind, Expr, Sym};
 use std::fmt::Write;
@@ -136,22 +136,12 @@ fn source(sys: &System, options: &EmitOptions) -> String {
     o.push_str("  J\n}\n");
 
     o.push_str("\nfull_state <- function(y, parms) {\n");
-    let needs = sys.needs(sys.dependent.iter().map(|d| &d.formula));
-    let needs = Needs {
-        state: (0..sys.n()).collect(),
-        dependent: (0..sys.dependent.len()).collect(),
-        ..needs
-    };
-    prelude(&mut o, sys, &names, &needs);
-    let all: Vec<String> = (0..m.species.len())
-        .map(|i| {
-            let v = if sys.slot(i).is_some() || sys.dependent_of(i).is_some() {
-                names.get(Sym::Species(i))
-            } else {
-                plain_literal(m.species[i].initial)
-            };
-            format!("{} = {v}", quoted(&m.species[i].name))
-        })
+    prelude(&mut o, sys, &names, &sys.full_state_needs());
+    let all: Vec<String> = sys
+        .full_state_terms(m, &|s| names.get(s))
+        .into_iter()
+        .zip(&m.species)
+        .map(|(v, species)| format!("{} = {v}", quoted(&species.name)))
         .collect();
     let _ = writeln!(o, "  c({})\n}}", all.join(", "));
     o

@@ -300,6 +300,32 @@ impl System {
         self.needs_with(exprs, true)
     }
 
+    /// What a `full_state` function must define: every state slot and every
+    /// dependent species (with what the formulas use).
+    pub fn full_state_needs(&self) -> Needs {
+        let needs = self.needs(self.dependent.iter().map(|d| &d.formula));
+        Needs {
+            state: (0..self.n()).collect(),
+            dependent: (0..self.dependent.len()).collect(),
+            ..needs
+        }
+    }
+
+    /// Every species (model order) as `full_state` returns it: the name of a
+    /// state or dependent species, or the constant start value of a species
+    /// that no step changes (not in the state).
+    pub fn full_state_terms(&self, model: &Model, name_of: &dyn Fn(Sym) -> String) -> Vec<String> {
+        (0..model.species.len())
+            .map(|i| {
+                if self.slot(i).is_some() || self.dependent_of(i).is_some() {
+                    name_of(Sym::Species(i))
+                } else {
+                    crate::algebra::print::plain_literal(model.species[i].initial)
+                }
+            })
+            .collect()
+    }
+
     /// Like [`System::needs`] for code that reads every species from a full
     /// species vector: dependent species are not computed from formulas.
     pub fn needs_over_full<'a>(&self, exprs: impl IntoIterator<Item = &'a Expr>) -> Needs {
