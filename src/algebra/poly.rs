@@ -213,6 +213,13 @@ impl Poly {
     pub fn len(&self) -> usize {
         self.terms.len()
     }
+    /// Machine words held by all coefficients (numerators and denominators).
+    fn coefficient_words(&self) -> u64 {
+        self.terms
+            .values()
+            .map(|c| (c.numer().bits() + c.denom().bits()).div_ceil(64))
+            .sum()
+    }
     pub fn is_empty(&self) -> bool {
         self.terms.is_empty()
     }
@@ -457,22 +464,40 @@ impl Poly {
     /// Greatest common divisor (normalized: coprime integer coefficients,
     /// positive leading coefficient). `gcd(0, 0) = 0`.
     pub fn gcd(&self, other: &Poly) -> Poly {
+        let mut unlimited = GcdBudget::unlimited();
+        self.gcd_within(other, &mut unlimited)
+            .expect("an unlimited budget is never exhausted")
+    }
+
+    /// [`Poly::gcd`] that gives up (`None`) once the pseudo-remainder
+    /// sequence has spent `budget`: on some small inputs its intermediate
+    /// polynomials swell far beyond both inputs and the answer.
+    pub fn gcd_within(&self, other: &Poly, budget: &mut GcdBudget) -> Option<Poly> {
         if self.is_zero() {
-            return other.normalized();
+            return Some(other.normalized());
         }
         if other.is_zero() {
-            return self.normalized();
+            return Some(self.normalized());
         }
         let mono = self.monomial_content().gcd(&other.monomial_content());
+        budget.spend((self.len() + other.len()) as u64)?;
+        // The recursion takes a gcd of contents at every variable, so without
+        // this cheap proof of coprimality its calls multiply with the number
+        // of variables even when every content is 1.
+        if self.coprime_up_to_monomials(other) {
+            return Some(Poly::monomial(mono).normalized());
+        }
         let a = self
             .div_monomial(&self.monomial_content())
             .unwrap_or_else(|| self.clone());
         let b = other
             .div_monomial(&other.monomial_content())
             .unwrap_or_else(|| other.clone());
-        gcd_monomial_free(&a.normalized(), &b.normalized())
-            .mul_monomial(&mono)
-            .normalized()
+        Some(
+            gcd_monomial_free(&a.normalized(), &b.normalized(), budget)?
+                .mul_monomial(&mono)
+                .normalized(),
+        )
     }
 
     /// A fast test that `gcd(self, other)` has no factor beyond a
@@ -677,42 +702,64 @@ mod modp {
     }
 }
 
+/// Work allowed to one gcd, counted in term products (a product of an
+/// m-term and an n-term polynomial costs m·n) plus the size in machine
+/// words of every coefficient produced, so both term swell and
+/// coefficient swell use it up.
+pub struct GcdBudget {
+    left: u64,
+}
+
+impl GcdBudget {
+    pub fn new(work: u64) -> GcdBudget {
+        GcdBudget { left: work }
+    }
+    pub fn unlimited() -> GcdBudget {
+        GcdBudget { left: u64::MAX }
+    }
+    fn spend(&mut self, work: u64) -> Option<()> {
+        self.left = self.left.checked_sub(work)?;
+        Some(())
+    }
+}
+
 /// GCD of two polynomials given with no common monomial factor extracted:
 /// content in the first shared variable, then a primitive pseudo-remainder
 /// sequence in that variable.
-fn gcd_monomial_free(a: &Poly, b: &Poly) -> Poly {
+fn gcd_monomial_free(a: &Poly, b: &Poly, budget: &mut GcdBudget) -> Option<Poly> {
     if a.is_zero() {
-        return b.normalized();
+        return Some(b.normalized());
     }
     if b.is_zero() {
-        return a.normalized();
+        return Some(a.normalized());
     }
     if a.as_constant().is_some() || b.as_constant().is_some() {
-        return Poly::one();
+        return Some(Poly::one());
     }
     let va = a.vars();
     let vb = b.vars();
     let Some(&x) = va.iter().chain(vb.iter()).min() else {
-        return Poly::one();
+        return Some(Poly::one());
     };
     if !va.contains(&x) {
-        return gcd_monomial_free(a, &content_in(b, x));
+        return gcd_monomial_free(a, &content_in(b, x, budget)?, budget);
     }
     if !vb.contains(&x) {
-        return gcd_monomial_free(&content_in(a, x), b);
+        return gcd_monomial_free(&content_in(a, x, budget)?, b, budget);
     }
-    let ca = content_in(a, x);
-    let cb = content_in(b, x);
+    let ca = content_in(a, x, budget)?;
+    let cb = content_in(b, x, budget)?;
+    budget.spend((a.len() * ca.len() + b.len() * cb.len()) as u64)?;
     let pa = a.div_exact(&ca).unwrap_or_else(|| a.clone());
     let pb = b.div_exact(&cb).unwrap_or_else(|| b.clone());
-    let g_content = gcd_monomial_free(&ca, &cb);
+    let g_content = gcd_monomial_free(&ca, &cb, budget)?;
     let (mut p, mut q) = if pa.degree_in(x) >= pb.degree_in(x) {
         (pa, pb)
     } else {
         (pb, pa)
     };
     loop {
-        let r = pseudo_remainder(&p, &q, x);
+        let r = pseudo_remainder(&p, &q, x, budget)?;
         if r.is_zero() {
             break;
         }
@@ -720,15 +767,17 @@ fn gcd_monomial_free(a: &Poly, b: &Poly) -> Poly {
             q = Poly::one();
             break;
         }
-        let rc = content_in(&r, x);
+        let rc = content_in(&r, x, budget)?;
+        budget.spend((r.len() * rc.len()) as u64)?;
         p = q;
         q = r.div_exact(&rc).unwrap_or(r).normalized();
     }
-    q.mul(&g_content).normalized()
+    budget.spend((q.len() * g_content.len()) as u64)?;
+    Some(q.mul(&g_content).normalized())
 }
 
 /// GCD of the coefficients of `p` as a polynomial in `x`.
-fn content_in(p: &Poly, x: Var) -> Poly {
+fn content_in(p: &Poly, x: Var, budget: &mut GcdBudget) -> Option<Poly> {
     let mut g = Poly::zero();
     for k in 0..=p.degree_in(x) {
         let c = p.coeff_of_power(x, k);
@@ -738,27 +787,29 @@ fn content_in(p: &Poly, x: Var) -> Poly {
         g = if g.is_zero() {
             c.normalized()
         } else {
-            c.gcd(&g)
+            c.gcd_within(&g, budget)?
         };
         if g.as_constant().is_some() {
-            return Poly::one();
+            return Some(Poly::one());
         }
     }
-    if g.is_zero() { Poly::one() } else { g }
+    Some(if g.is_zero() { Poly::one() } else { g })
 }
 
-fn pseudo_remainder(a: &Poly, b: &Poly, x: Var) -> Poly {
+fn pseudo_remainder(a: &Poly, b: &Poly, x: Var, budget: &mut GcdBudget) -> Option<Poly> {
     let db = b.degree_in(x);
     let lcb = b.coeff_of_power(x, db);
     let mut r = a.clone();
     while !r.is_zero() && r.degree_in(x) >= db {
         let dr = r.degree_in(x);
         let lcr = r.coeff_of_power(x, dr);
+        budget.spend((r.len() * lcb.len() + b.len() * lcr.len()) as u64)?;
         let shift = Poly::monomial(Monomial::from_pairs([(x, dr - db)]));
         let next = r.mul(&lcb).sub(&b.mul(&lcr).mul(&shift));
+        budget.spend(next.coefficient_words())?;
         r = next;
     }
-    r
+    Some(r)
 }
 
 /// The names of the variables, in index order.
@@ -1020,6 +1071,13 @@ mod tests {
             p("x*y", &mut v)
         );
         assert!(p("x + 1", &mut v).gcd(&p("y + 1", &mut v)).is_one());
+        // A budget too small for the sequence gives up instead of running on;
+        // an ample one finds the same gcd as the unlimited version.
+        assert_eq!(a.gcd_within(&b, &mut GcdBudget::new(3)), None);
+        assert_eq!(
+            a.gcd_within(&b, &mut GcdBudget::new(1_000)),
+            Some(p("x + y", &mut v))
+        );
         // The modular test proves coprimality and never claims it falsely.
         assert!(p("x*y + 1", &mut v).coprime_up_to_monomials(&p("x + y", &mut v)));
         assert!(p("x^2*y + x*y^2", &mut v).coprime_up_to_monomials(&p("x*y*z", &mut v)));

@@ -4,10 +4,11 @@
 //!
 //! Invariants: the denominator is never zero; after [`RationalFunction::new`]
 //! the numerator and denominator share no common factor (full polynomial
-//! gcd when both are small, else content and monomial factors only), and the
+//! gcd when both are small and it stays within a work budget, else content
+//! and monomial factors only, which [`RationalFunction::cancelled`] reports), and the
 //! denominator has coprime integer coefficients with a positive leading one.
 
-use super::poly::{Poly, Vars};
+use super::poly::{GcdBudget, Poly, Vars};
 use num_bigint::BigInt;
 use num_rational::BigRational;
 use num_traits::Zero;
@@ -15,6 +16,12 @@ use num_traits::Zero;
 /// Above this many terms (numerator times denominator) the full gcd is
 /// skipped: the pseudo-remainder sequence can grow faster than it saves.
 const GCD_TERM_LIMIT: usize = 40_000;
+
+/// Work one full gcd may spend (see [`GcdBudget`]) before cancellation
+/// falls back to content and monomial factors. Fuzzed mechanisms of four
+/// enzyme forms drove the pseudo-remainder sequence past a minute; this
+/// bound keeps any one gcd to a fraction of a second in a release build.
+const GCD_WORK_LIMIT: u64 = 2_000_000;
 
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct RationalFunction {
@@ -25,18 +32,29 @@ pub struct RationalFunction {
 impl RationalFunction {
     /// `num / den` in lowest terms; `None` if `den` is zero.
     pub fn new(num: Poly, den: Poly) -> Option<RationalFunction> {
+        RationalFunction::cancelled(num, den).map(|(r, _)| r)
+    }
+
+    /// [`RationalFunction::new`], also telling whether every common factor
+    /// was cancelled (`false` when the gcd was too large or too costly to
+    /// compute, and only content and monomial factors were divided out).
+    pub fn cancelled(num: Poly, den: Poly) -> Option<(RationalFunction, bool)> {
         if den.is_zero() {
             return None;
         }
         if num.is_zero() {
-            return Some(RationalFunction::zero());
+            return Some((RationalFunction::zero(), true));
         }
-        let g = if num.coprime_up_to_monomials(&den) {
-            Poly::monomial(num.monomial_content().gcd(&den.monomial_content()))
+        let monomial_gcd = || Poly::monomial(num.monomial_content().gcd(&den.monomial_content()));
+        let (g, complete) = if num.coprime_up_to_monomials(&den) {
+            (monomial_gcd(), true)
         } else if num.len().saturating_mul(den.len()) <= GCD_TERM_LIMIT {
-            num.gcd(&den)
+            match num.gcd_within(&den, &mut GcdBudget::new(GCD_WORK_LIMIT)) {
+                Some(g) => (g, true),
+                None => (monomial_gcd(), false),
+            }
         } else {
-            Poly::monomial(num.monomial_content().gcd(&den.monomial_content()))
+            (monomial_gcd(), false)
         };
         let (mut num, mut den) = if g.is_one() {
             (num, den)
@@ -55,7 +73,7 @@ impl RationalFunction {
         let inv = c.recip();
         den = den.scale(&inv);
         num = num.scale(&inv);
-        Some(RationalFunction { num, den })
+        Some((RationalFunction { num, den }, complete))
     }
     /// `num / den` exactly as given, without cancelling: for sums whose
     /// terms share a denominator and are cancelled once, at the end.

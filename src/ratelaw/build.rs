@@ -236,12 +236,18 @@ pub fn derive_with_progress(
             (Derived::Overall(overall), rate)
         }
     };
-    let rate = RationalFunction::new(rate.num, rate.den).ok_or_else(|| {
-        Diagnostic::error(
-            Code::NonlinearSteadyState,
-            "the steady-state denominator vanishes identically",
-        )
-    })?;
+    let (rate, fully_cancelled) =
+        RationalFunction::cancelled(rate.num, rate.den).ok_or_else(|| {
+            Diagnostic::error(
+                Code::NonlinearSteadyState,
+                "the steady-state denominator vanishes identically",
+            )
+        })?;
+    if !fully_cancelled {
+        notes.push(
+            "numerator and denominator may share a common factor: their polynomial gcd was too costly to compute, so only constant and monomial factors were cancelled".into(),
+        );
+    }
 
     // The forms' own expressions are kept only while they are small: each
     // would hold its own copy of the denominator.
