@@ -1167,6 +1167,138 @@ fn written_files_keep_or_get_ordinary_permissions() {
         got, expected,
         "new output has mode {got:o}, a new file here gets {expected:o}"
     );
+    // A figure goes through the same atomic path: ordinary mode, no
+    // temporary file left, and never over the input.
+    let svg = dir.path().join("fig.svg");
+    let out = ratewright(&[
+        "run",
+        m.to_str().expect("UTF-8"),
+        "--points",
+        "3",
+        "--plot",
+        svg.to_str().expect("UTF-8"),
+    ]);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let got = std::fs::metadata(&svg)
+        .expect("the figure")
+        .permissions()
+        .mode()
+        & 0o777;
+    assert_eq!(got, expected, "new figure has mode {got:o}");
+    assert!(temp_files_in(dir.path()).is_empty());
+    let before = std::fs::read(&m).expect("read");
+    let out = ratewright(&[
+        "run",
+        m.to_str().expect("UTF-8"),
+        "--plot",
+        m.to_str().expect("UTF-8"),
+    ]);
+    assert_ne!(out.status.code(), Some(0));
+    assert_eq!(std::fs::read(&m).expect("read"), before);
+}
+
+/// Old Mac line endings (a lone CR): a diagnostic names the right line and
+/// shows it as a line, not the whole file as one.
+#[test]
+fn cr_only_files_are_located_by_line() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let m = write_temp(
+        dir.path(),
+        "cr.mech",
+        b"species A = 1 uM\rparam k = 1 /s\rstep r A -> Q with k\r",
+    );
+    let (code, text) = check_file(&m);
+    assert_eq!(code, Some(1), "{text}");
+    assert!(text.contains("cr.mech:3:13"), "{text}");
+    assert!(
+        !text.contains("species A = 1 uM\rparam"),
+        "the file is shown as one line: {text}"
+    );
+}
+
+/// A named pipe that nobody writes to reads as empty at once instead of
+/// blocking `check` forever; one with a writer is read to its end.
+#[test]
+fn a_named_pipe_without_a_writer_does_not_block() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let fifo = dir.path().join("pipe.mech");
+    let made = Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .expect("mkfifo runs");
+    assert!(made.success());
+    let path = fifo.to_str().expect("UTF-8");
+    let out = ratewright_within(&["check", path], Duration::from_secs(20));
+    assert!(out.is_some(), "check blocked on a pipe without a writer");
+    let writer = {
+        let fifo = fifo.clone();
+        std::thread::spawn(move || {
+            std::fs::write(&fifo, "species A = 1 uM\nstep r A -> Q with k\n").expect("write")
+        })
+    };
+    let out = ratewright_within(&["check", path], Duration::from_secs(20)).expect("check finishes");
+    writer.join().expect("the writer");
+    // The writer's text was read: its unknown names are reported.
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("unknown name `Q`"));
+}
+
+/// A measured expression that is not a finite number fails the point like
+/// a failed run (left empty); when it fails everywhere, the scan fails
+/// with a message and writes nothing. Tolerances must be finite.
+#[test]
+fn scans_refuse_non_finite_measurements_and_tolerances() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let m = model_file(
+        dir.path(),
+        "m.mech",
+        "species A = 1 uM\nparam k = 1 /s\nstep r A -> 0 with k\n",
+    );
+    let csv = dir.path().join("scan.csv");
+    let o = csv.to_str().expect("UTF-8");
+    let out = ratewright(&[
+        "scan",
+        &m,
+        "--vary",
+        "k=0.5..2:3",
+        "--measure",
+        "1/0",
+        "--at",
+        "1",
+        "-o",
+        o,
+    ]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(err.contains("not a finite number"), "{err}");
+    assert!(!csv.exists());
+    // Finite at some points only: those are kept, the rest left empty.
+    let out = ratewright(&[
+        "scan",
+        &m,
+        "--vary",
+        "k=0..2:3",
+        "--measure",
+        "1/k",
+        "--at",
+        "1",
+        "-o",
+        o,
+    ]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{err}");
+    let text = std::fs::read_to_string(&csv).expect("the scan");
+    assert!(!text.contains("inf") && !text.contains("NaN"), "{text}");
+    assert!(err.contains("1 of 3 points failed"), "{err}");
+    for flag in ["--atol", "--rtol"] {
+        let out = ratewright(&["run", &m, flag, "inf"]);
+        assert_eq!(out.status.code(), Some(2), "{flag} inf accepted");
+    }
 }
 
 /// Small mechanisms on which `derive` ran for seconds to minutes when

@@ -80,6 +80,23 @@ pub fn parse_time(text: &str, units: Units) -> Result<f64, String> {
 /// directory, then renamed over the target. Refuses to overwrite any of
 /// `inputs` (the files the command read).
 pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(), String> {
+    replace_atomically(path, inputs, ".tmp", |tmp| {
+        tmp.write_all(bytes)
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))
+    })
+}
+
+/// Creates `path` through `fill`, which writes a temporary file in the same
+/// directory (ending in `suffix`, for writers that go by the extension);
+/// the temporary file is then renamed over the target, under the interrupt
+/// guard, so `path` holds either its old content or all of the new.
+/// Refuses to overwrite any of `inputs`.
+pub fn replace_atomically(
+    path: &Path,
+    inputs: &[PathBuf],
+    suffix: &str,
+    fill: impl FnOnce(&mut tempfile::NamedTempFile) -> Result<(), String>,
+) -> Result<(), String> {
     refuse_input_overwrite(path, inputs)?;
     let _no_interrupt = writing_guard();
     let dir = match path.parent() {
@@ -90,7 +107,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(),
     // file (0666 less the umask), not the temporary file's private 0600.
     let existing_mode = std::fs::metadata(path).ok().map(|m| m.permissions());
     let mut builder = tempfile::Builder::new();
-    builder.prefix(".ratewright-").suffix(".tmp");
+    builder.prefix(".ratewright-").suffix(suffix);
     #[cfg(unix)]
     builder.permissions(std::os::unix::fs::PermissionsExt::from_mode(0o666));
     let mut tmp = builder
@@ -101,8 +118,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(),
             .set_permissions(mode)
             .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     }
-    tmp.write_all(bytes)
-        .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    fill(&mut tmp)?;
     tmp.as_file()
         .sync_all()
         .map_err(|e| format!("cannot write {}: {e}", path.display()))?;

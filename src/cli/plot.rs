@@ -7,6 +7,7 @@
 //! font: the first of a few common system fonts is used (or the file named
 //! by the `RATEWRIGHT_FONT` environment variable).
 
+use super::common;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::path::{Path, PathBuf};
@@ -103,35 +104,25 @@ fn kind_of(path: &Path) -> Result<Kind, String> {
     }
 }
 
-/// Draws through `draw` into a temporary file, then renames it to `path`.
+/// Draws through `draw` into a temporary file, then renames it to `path`
+/// (see [`super::common::replace_atomically`]); never over one of `inputs`.
 fn write_figure(
     path: &Path,
+    inputs: &[PathBuf],
     draw: impl Fn(&Path, &Kind) -> Result<(), String>,
 ) -> Result<(), String> {
     let kind = kind_of(path)?;
     ensure_font()?;
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
     let suffix = match kind {
         Kind::Svg => ".svg",
         Kind::Png => ".png",
     };
-    let tmp = tempfile::Builder::new()
-        .prefix(".ratewright-")
-        .suffix(suffix)
-        .tempfile_in(&dir)
-        .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
-    draw(tmp.path(), &kind)?;
-    tmp.persist(path)
-        .map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
-    Ok(())
+    common::replace_atomically(path, inputs, suffix, |tmp| draw(tmp.path(), &kind))
 }
 
 /// Draws a line plot to an .svg or .png file.
-pub fn draw_lines(path: &Path, spec: &LinePlot) -> Result<(), String> {
-    write_figure(path, |tmp, kind| match kind {
+pub fn draw_lines(path: &Path, inputs: &[PathBuf], spec: &LinePlot) -> Result<(), String> {
+    write_figure(path, inputs, |tmp, kind| match kind {
         Kind::Svg => lines_on(SVGBackend::new(tmp, (960, 640)).into_drawing_area(), spec),
         Kind::Png => lines_on(
             BitMapBackend::new(tmp, (1440, 960)).into_drawing_area(),
@@ -141,8 +132,8 @@ pub fn draw_lines(path: &Path, spec: &LinePlot) -> Result<(), String> {
 }
 
 /// Draws a heat map to an .svg or .png file.
-pub fn draw_heat_map(path: &Path, spec: &HeatMap) -> Result<(), String> {
-    write_figure(path, |tmp, kind| match kind {
+pub fn draw_heat_map(path: &Path, inputs: &[PathBuf], spec: &HeatMap) -> Result<(), String> {
+    write_figure(path, inputs, |tmp, kind| match kind {
         Kind::Svg => heat_on(SVGBackend::new(tmp, (960, 720)).into_drawing_area(), spec),
         Kind::Png => heat_on(
             BitMapBackend::new(tmp, (1440, 1080)).into_drawing_area(),

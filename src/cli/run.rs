@@ -144,10 +144,12 @@ pub fn run(args: &Args) -> ExitCode {
     if args.rtol.is_nan()
         || args.rtol <= 0.0
         || args.rtol >= 1.0
-        || args.atol.is_nan()
+        || !args.atol.is_finite()
         || args.atol <= 0.0
     {
-        return usage_error("--rtol must lie in (0, 1) and --atol must be positive");
+        return usage_error(
+            "--rtol must lie in (0, 1) and --atol must be a positive finite number",
+        );
     }
     let model = match model_with_overrides(&args.file, &args.set) {
         Ok(m) => m,
@@ -240,7 +242,7 @@ pub fn run(args: &Args) -> ExitCode {
         if let Err(e) = common::refuse_input_overwrite(plot_path, &inputs) {
             return usage_error(e);
         }
-        if let Err(e) = super::plot::draw_lines(plot_path, &spec) {
+        if let Err(e) = super::plot::draw_lines(plot_path, &inputs, &spec) {
             return run_error(format!("[E0803] {e}"));
         }
     }

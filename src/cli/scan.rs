@@ -85,10 +85,12 @@ pub fn run(args: &Args) -> ExitCode {
     if args.rtol.is_nan()
         || args.rtol <= 0.0
         || args.rtol >= 1.0
-        || args.atol.is_nan()
+        || !args.atol.is_finite()
         || args.atol <= 0.0
     {
-        return usage_error("--rtol must lie in (0, 1) and --atol must be positive");
+        return usage_error(
+            "--rtol must lie in (0, 1) and --atol must be a positive finite number",
+        );
     }
     // The measured expression is parsed and resolved by the front end as an
     // observable appended to the model, so it follows the language exactly.
@@ -232,6 +234,7 @@ pub fn run(args: &Args) -> ExitCode {
         let drawn = if axes.len() == 1 {
             super::plot::draw_lines(
                 plot,
+                &inputs,
                 &super::plot::LinePlot {
                     title: format!("{} {where_}", args.measure.trim()),
                     x_label: label(&axes[0]),
@@ -254,6 +257,7 @@ pub fn run(args: &Args) -> ExitCode {
                 .collect();
             super::plot::draw_heat_map(
                 plot,
+                &inputs,
                 &super::plot::HeatMap {
                     title: format!("{} {where_}", args.measure.trim()),
                     x_label: label(&axes[0]),

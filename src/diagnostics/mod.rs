@@ -96,7 +96,15 @@ impl SourceMap {
     pub fn new() -> Self {
         Self::default()
     }
+    /// Adds a file's text. A lone carriage return (old Mac line endings)
+    /// becomes a line feed: the same one byte, so every span still points
+    /// at the same text, but diagnostics show lines instead of one long one.
     pub fn add(&mut self, path: PathBuf, text: String) -> FileId {
+        let text = if text.contains('\r') {
+            lone_carriage_returns_to_line_feeds(text)
+        } else {
+            text
+        };
         self.files.push(SourceFile::new(path, text));
         FileId((self.files.len() - 1) as u32)
     }
@@ -255,6 +263,17 @@ fn edit_distance(a: &str, b: &str) -> usize {
         prev = cur;
     }
     prev[b.len()]
+}
+
+fn lone_carriage_returns_to_line_feeds(text: String) -> String {
+    let mut bytes = text.into_bytes();
+    for i in 0..bytes.len() {
+        if bytes[i] == b'\r' && bytes.get(i + 1) != Some(&b'\n') {
+            bytes[i] = b'\n';
+        }
+    }
+    // Replacing one ASCII byte by another keeps the text valid UTF-8.
+    String::from_utf8(bytes).expect("ASCII-for-ASCII replacement")
 }
 
 #[cfg(test)]

@@ -80,6 +80,36 @@ fn locate_bad_bytes(d: Diagnostic, path: &Path, sources: &mut SourceMap) -> Diag
     d.with_label(Span::new(id, at, at + '\u{FFFD}'.len_utf8()), "not UTF-8")
 }
 
+/// Opens a file for reading. Opening a named pipe waits until something
+/// opens it for writing, which may be never: a pipe is opened without
+/// waiting and then switched back to blocking reads, so a pipe with a
+/// writer is read to its end and one without reads as empty at once.
+fn open_without_waiting_for_a_writer(path: &Path) -> std::io::Result<std::fs::File> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::{FileTypeExt, OpenOptionsExt};
+        use std::os::unix::io::AsRawFd;
+        if std::fs::metadata(path).is_ok_and(|m| m.file_type().is_fifo()) {
+            let file = std::fs::OpenOptions::new()
+                .read(true)
+                .custom_flags(libc::O_NONBLOCK)
+                .open(path)?;
+            // SAFETY: fcntl on a descriptor this function owns, with flags
+            // read from it a moment before.
+            let cleared = unsafe {
+                let fd = file.as_raw_fd();
+                let flags = libc::fcntl(fd, libc::F_GETFL);
+                flags >= 0 && libc::fcntl(fd, libc::F_SETFL, flags & !libc::O_NONBLOCK) >= 0
+            };
+            if !cleared {
+                return Err(std::io::Error::last_os_error());
+            }
+            return Ok(file);
+        }
+    }
+    std::fs::File::open(path)
+}
+
 /// Reads a file as UTF-8 text, dropping a byte-order mark.
 fn read_source(path: &Path) -> Result<String, Diagnostic> {
     let read_error = |e: std::io::Error| {
@@ -94,7 +124,7 @@ fn read_source(path: &Path) -> Result<String, Diagnostic> {
     let mut bytes = Vec::new();
     std::io::Read::read_to_end(
         &mut std::io::Read::take(
-            std::fs::File::open(path).map_err(read_error)?,
+            open_without_waiting_for_a_writer(path).map_err(read_error)?,
             syntax::parse::MAX_FILE_BYTES as u64 + 1,
         ),
         &mut bytes,

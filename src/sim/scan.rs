@@ -175,7 +175,26 @@ pub fn run_scan(scan: &Scan<'_>, tick: &(dyn Fn() + Sync)) -> Result<ScanResult,
     Ok(ScanResult { points, values })
 }
 
+/// The measured value at one grid point; a value that is not a finite
+/// number (`1/0`, `log(0)`) fails the point like a failed run, so no `inf`
+/// or `NaN` reaches the CSV as if it were a measurement.
 fn point(
+    scan: &Scan<'_>,
+    system: &CompiledSystem,
+    steady: bool,
+    p: &[f64],
+) -> Result<f64, SimError> {
+    let v = measure_at(scan, system, steady, p)?;
+    if v.is_finite() {
+        Ok(v)
+    } else {
+        Err(SimError::input(format!(
+            "the measured expression evaluates to {v} (not a finite number)"
+        )))
+    }
+}
+
+fn measure_at(
     scan: &Scan<'_>,
     system: &CompiledSystem,
     steady: bool,
