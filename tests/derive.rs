@@ -432,6 +432,29 @@ fn ping_pong_bi_bi_cleland_1963() {
     assert_same("V1/Et", constant(&j, "kcat"), "k3*k7/(k3 + k7)");
     assert_same("Ka", constant(&j, "Km_A"), "k7*(k2 + k3)/(k1*(k3 + k7))");
     assert_same("Kb", constant(&j, "Km_B"), "k3*(k6 + k7)/(k5*(k3 + k7))");
+    // Kia and Kiq: the dissociation constants of EA and of EQ's reverse
+    // binding (E + Q), from the A·P and B·Q cross terms (Cleland 1963;
+    // Segel 1975, ch. 9, from memory).
+    assert_same("Kia", constant(&j, "Ki_A"), "k2/k1");
+    assert_same("Kiq", constant(&j, "Ki_Q"), "k7/k8");
+    // The ping-pong Haldane relation Keq = (V1/V2)^2 Kp Kq / (Ka Kb)
+    // (Segel 1975, ch. 9, from memory), as printed, evaluated from the
+    // constants' definitions.
+    let haldane = &j["relations"][0];
+    assert_eq!(haldane["name"], "Haldane");
+    assert_eq!(haldane["holds"], true);
+    let rhs = haldane["rhs"].as_str().unwrap();
+    let mut text = rhs.to_string();
+    for name in ["kcat_r", "kcat", "Km_A", "Km_B", "Km_P", "Km_Q"] {
+        text = text.replace(name, &format!("({})", constant(&j, name)));
+    }
+    let mut vars = Vars::new();
+    let keq = rational("k1*k3*k5*k7/(k2*k4*k6*k8)", &mut vars);
+    assert!(rational(constant(&j, "Keq"), &mut vars).equals(&keq));
+    assert!(
+        keq.equals(&rational(&text, &mut vars)),
+        "Haldane relation {rhs} does not reproduce Keq"
+    );
 }
 
 /// Theorell & Chance (1951): ordered bi-bi without a kinetically significant

@@ -177,6 +177,26 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                                 meaning: format!("inhibition (dissociation) constant of {name}, the first to bind, from the constant term"),
                             });
                         }
+                    } else if dir.get(&one).is_none() {
+                        // No constant term: a ping-pong (double-displacement)
+                        // pattern. The first to bind meets the other side's
+                        // species x that leaves the same enzyme form in the
+                        // terms x and a·x of the full denominator, whose ratio
+                        // is a's dissociation constant (Cleland's Kia, Kiq).
+                        let full = den.collect(&conc);
+                        let get = |m: &Monomial| full.get(m).filter(|p| !p.is_zero());
+                        let found = other.iter().find_map(|(x, _, _)| {
+                            let dx = get(&Monomial::var(*x))?;
+                            let dax = get(&Monomial::var(*x).mul(&Monomial::var(a)))?;
+                            ratio(dx, dax)
+                        });
+                        if let Some(k) = found {
+                            constants.push(Constant {
+                                name: format!("Ki_{name}"),
+                                value: k,
+                                meaning: format!("inhibition (dissociation) constant of {name}, the first to bind, from the cross term with a species of the other side (ping-pong)"),
+                            });
+                        }
                     }
                 }
             }
@@ -209,7 +229,43 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                     _ => None,
                 }
             };
-            if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
+            // Ping-pong: no constant term, so no Ki_A·Km_B product; the
+            // relation over the four Michaelis constants holds instead
+            // (common practice, the ping-pong bi bi Haldane relation).
+            let ping_pong = substrates.len() == 2
+                && products.len() == 2
+                && den
+                    .collect(&conc)
+                    .get(&Monomial::one())
+                    .is_none_or(Poly::is_zero);
+            let km_product = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
+                let [(_, a, _), (_, b, _)] = side else {
+                    return None;
+                };
+                let v = find(&format!("Km_{a}"))?.mul(&find(&format!("Km_{b}"))?);
+                Some((format!("Km_{a}*Km_{b}"), v))
+            };
+            if ping_pong {
+                if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
+                    km_product(&substrates),
+                    km_product(&products),
+                    find("kcat"),
+                    find("kcat_r"),
+                ) {
+                    let ratio_v = kf.div(&kr);
+                    let rhs = ratio_v
+                        .as_ref()
+                        .map(|q| q.mul(q).mul(&kp_v))
+                        .and_then(|top| top.div(&ks_v));
+                    let holds = rhs.is_some_and(|r| r.equals(&keq));
+                    relations.push(Relation {
+                        name: "Haldane".into(),
+                        lhs: "Keq".into(),
+                        rhs: format!("(kcat/kcat_r)^2*{kp}/({ks})"),
+                        holds,
+                    });
+                }
+            } else if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
                 k_side(&substrates),
                 k_side(&products),
                 find("kcat"),
