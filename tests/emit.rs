@@ -1,6 +1,7 @@
 //! End-to-end checks of `ratewright emit`: the emitted code is run by the
 //! tools it targets and compared with outside references (SciPy's
-//! integrator, gcc-compiled C, libSBML's validator, GNU Octave, rustc) and
+//! integrator, gcc-compiled C, libSBML's validator, GNU Octave, R with
+//! deSolve, Graphviz, rustc) and
 //! with central finite differences of its own right-hand side.
 
 mod common;
@@ -1166,4 +1167,170 @@ fn usage_errors_are_clear() {
             .unwrap()
             .contains("mechanism protease_assay")
     );
+}
+
+/// The R target under R with deSolve (Debian's r-cran-desolve): its `rhs`
+/// matches the compiler, its `jacobian` matches central differences, and
+/// deSolve's LSODA with that Jacobian (`jactype = "fullusr"`) ends where
+/// `ratewright run` does, for every demo model, full and reduced.
+#[test]
+fn emitted_r_runs_under_desolve_and_matches_run() {
+    common::ensure_r();
+    let dir = temp();
+    for path in models() {
+        let model = load(&path);
+        for reduced in [false, true] {
+            let sub = dir.path().join(format!(
+                "{}_{reduced}",
+                path.file_stem().unwrap().to_string_lossy()
+            ));
+            std::fs::create_dir_all(&sub).unwrap();
+            emit(&path, "r", reduced, &sub.join("mech.R"));
+            let reference = Reference::new(&model, reduced);
+            let states = reference.states(3);
+            let horizon = quiet_horizon(&model);
+            let mut script = String::from(
+                "suppressMessages(library(deSolve))\nsource(\"mech.R\")\nshow <- function(x) cat(sprintf(\"%.17g\", as.vector(x)), \"\\n\")\n",
+            );
+            for y in &states {
+                let col = y
+                    .iter()
+                    .map(|v| format!("{v:?}"))
+                    .collect::<Vec<_>>()
+                    .join(", ");
+                script += &format!(
+                    "y <- c({col})\nshow(rhs(0.5, y, parms)[[1]])\nshow(jacobian(0.5, y, parms))\n"
+                );
+            }
+            script += &format!(
+                "out <- ode(y = y0, times = c(0, {horizon:?}), func = rhs, parms = parms, method = \"lsoda\", jacfunc = jacobian, jactype = \"fullusr\", rtol = 1e-10, atol = 1e-12)\nshow(out[nrow(out), -1])\n"
+            );
+            std::fs::write(sub.join("check.R"), script).unwrap();
+            let out = Command::new("Rscript")
+                .arg("check.R")
+                .current_dir(&sub)
+                .output()
+                .expect("Rscript runs (apt-get install -y r-base-core r-cran-desolve)");
+            let text = String::from_utf8_lossy(&out.stdout).to_string();
+            assert!(
+                out.status.success(),
+                "R on {}: {}{}",
+                path.display(),
+                text,
+                String::from_utf8_lossy(&out.stderr)
+            );
+            let lines: Vec<Vec<f64>> = text.lines().map(numbers).collect();
+            let f_rows: Vec<Vec<f64>> = (0..states.len()).map(|k| lines[2 * k].clone()).collect();
+            let j_rows: Vec<Vec<f64>> = (0..states.len())
+                .map(|k| lines[2 * k + 1].clone())
+                .collect();
+            let what = format!("R {} (reduced {reduced})", path.display());
+            check_rhs_and_jac(&what, &reference, &states, &f_rows, &j_rows);
+            let csv = sub.join("run.csv");
+            let t = format!("{horizon:?}");
+            let o = ratewright(&[
+                "run",
+                path.to_str().unwrap(),
+                "--times",
+                &t,
+                "--rtol",
+                "1e-10",
+                "--atol",
+                "1e-14",
+                "-o",
+                csv.to_str().unwrap(),
+            ]);
+            assert!(
+                o.status.success(),
+                "run: {}",
+                String::from_utf8_lossy(&o.stderr)
+            );
+            let (_, rows) = read_csv(&csv);
+            let run_state: Vec<f64> = reference
+                .state
+                .iter()
+                .map(|&i| rows[rows.len() - 1][1 + i])
+                .collect();
+            let end = &lines[2 * states.len()];
+            assert_eq!(end.len(), run_state.len(), "{what}: state length");
+            let scale = run_state.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+            for (i, (a, b)) in end.iter().zip(&run_state).enumerate() {
+                assert!(
+                    (a - b).abs() <= 1e-6 * scale,
+                    "{what}: deSolve y[{i}] = {a} vs run {b} at t = {t}"
+                );
+            }
+        }
+    }
+}
+
+/// The DOT target read by Graphviz (`dot -Tplain`): every species and step
+/// is a node, and the edges are exactly the reactant → step and
+/// step → product pairs of the model, for every demo model.
+#[test]
+fn emitted_dot_is_read_by_graphviz_with_the_model_edges() {
+    use std::collections::BTreeSet;
+    common::ensure_graphviz();
+    let dir = temp();
+    for path in models() {
+        let model = load(&path);
+        let file = dir.path().join(format!(
+            "{}.dot",
+            path.file_stem().unwrap().to_string_lossy()
+        ));
+        emit(&path, "dot", false, &file);
+        let out = Command::new("dot")
+            .args(["-Tplain", file.to_str().unwrap()])
+            .output()
+            .expect("dot runs (apt-get install -y graphviz)");
+        assert!(
+            out.status.success(),
+            "dot on {}: {}",
+            path.display(),
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let text = String::from_utf8_lossy(&out.stdout).to_string();
+        let unquote = |s: &str| s.trim_matches('"').to_string();
+        let mut nodes = BTreeSet::new();
+        let mut edges = BTreeSet::new();
+        for line in text.lines() {
+            let fields: Vec<&str> = line.split_whitespace().collect();
+            match fields.first() {
+                Some(&"node") => {
+                    nodes.insert(unquote(fields[1]));
+                }
+                Some(&"edge") => {
+                    edges.insert((unquote(fields[1]), unquote(fields[2])));
+                }
+                _ => {}
+            }
+        }
+        let mut want_edges = BTreeSet::new();
+        for step in &model.steps {
+            let s = format!("step:{}", step.name);
+            assert!(nodes.contains(&s), "{}: no node {s}", path.display());
+            for term in &step.reactants {
+                if let Sym::Species(i) = term.sym {
+                    want_edges.insert((format!("species:{}", model.species[i].name), s.clone()));
+                }
+            }
+            for term in &step.products {
+                if let Sym::Species(i) = term.sym {
+                    want_edges.insert((s.clone(), format!("species:{}", model.species[i].name)));
+                }
+            }
+        }
+        for sp in &model.species {
+            let n = format!("species:{}", sp.name);
+            assert!(nodes.contains(&n), "{}: no node {n}", path.display());
+        }
+        let drawn: BTreeSet<(String, String)> = edges
+            .into_iter()
+            .filter(|(a, b)| {
+                (a.starts_with("species:") && b.starts_with("step:"))
+                    || (a.starts_with("step:") && b.starts_with("species:"))
+            })
+            .collect();
+        assert_eq!(drawn, want_edges, "{}: edges", path.display());
+    }
 }

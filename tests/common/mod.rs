@@ -94,15 +94,45 @@ pub fn python(script: &Path, args: &[&str]) -> Output {
 }
 
 static OCTAVE_READY: OnceLock<Result<(), String>> = OnceLock::new();
+static R_READY: OnceLock<Result<(), String>> = OnceLock::new();
+static GRAPHVIZ_READY: OnceLock<Result<(), String>> = OnceLock::new();
 
 /// Makes sure `octave-cli` runs, installing GNU Octave from the system's
-/// package manager (Debian's apt-get, as root or through sudo) if needed.
-/// Panics if that is impossible: the Octave check must fail, not skip.
+/// package manager if needed. Panics if that is impossible: the Octave
+/// check must fail, not skip.
 pub fn ensure_octave() {
-    let ready = OCTAVE_READY.get_or_init(|| {
+    ensure_tool(&OCTAVE_READY, "octave-cli", &["--version"], &["octave"]);
+}
+
+/// Makes sure `Rscript` runs with the deSolve package (Debian's
+/// r-base-core and r-cran-desolve), installing them if needed.
+pub fn ensure_r() {
+    ensure_tool(
+        &R_READY,
+        "Rscript",
+        &["-e", "library(deSolve)"],
+        &["r-base-core", "r-cran-desolve"],
+    );
+}
+
+/// Makes sure Graphviz's `dot` runs, installing it if needed.
+pub fn ensure_graphviz() {
+    ensure_tool(&GRAPHVIZ_READY, "dot", &["-V"], &["graphviz"]);
+}
+
+/// Runs `program probe` once per test binary; if that fails, installs
+/// `packages` with Debian's apt-get (as root or through sudo) and probes
+/// again. Panics with the installer's output if the tool still does not run.
+fn ensure_tool(
+    ready: &OnceLock<Result<(), String>>,
+    program: &str,
+    probe: &[&str],
+    packages: &[&str],
+) {
+    let ready = ready.get_or_init(|| {
         let works = || {
-            Command::new("octave-cli")
-                .arg("--version")
+            Command::new(program)
+                .args(probe)
                 .output()
                 .map(|o| o.status.success())
                 .unwrap_or(false)
@@ -129,13 +159,16 @@ pub fn ensure_octave() {
                 .output()
         };
         let update = apt(&["update", "-qq"]).map_err(|e| format!("cannot run apt-get: {e}"))?;
-        let install = apt(&["install", "-y", "-qq", "octave"])
-            .map_err(|e| format!("cannot run apt-get: {e}"))?;
+        let mut args = vec!["install", "-y", "-qq"];
+        args.extend_from_slice(packages);
+        let install = apt(&args).map_err(|e| format!("cannot run apt-get: {e}"))?;
         if works() {
             Ok(())
         } else {
             Err(format!(
-                "installing GNU Octave failed (apt-get install -y octave):\n{}{}",
+                "installing {} failed (apt-get install -y {}):\n{}{}",
+                program,
+                packages.join(" "),
                 String::from_utf8_lossy(&update.stderr),
                 String::from_utf8_lossy(&install.stderr)
             ))
