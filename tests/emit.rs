@@ -1,7 +1,7 @@
 //! End-to-end checks of `ratewright emit`: the emitted code is run by the
 //! tools it targets and compared with outside references (SciPy's
 //! integrator, gcc-compiled C, libSBML's validator, GNU Octave, R with
-//! deSolve, Graphviz, rustc) and
+//! deSolve, Graphviz, pdflatex, rustc) and
 //! with central finite differences of its own right-hand side.
 
 mod common;
@@ -1332,5 +1332,65 @@ fn emitted_dot_is_read_by_graphviz_with_the_model_edges() {
             })
             .collect();
         assert_eq!(drawn, want_edges, "{}: edges", path.display());
+    }
+}
+
+/// The LaTeX target and `derive --format latex` compile with pdflatex and
+/// amsmath (Debian's texlive-latex-base) without errors, for every demo
+/// model (emit: full and reduced; derive: the models that state their
+/// assumptions).
+#[test]
+fn latex_output_compiles_with_pdflatex() {
+    common::ensure_latex();
+    let dir = temp();
+    for path in models() {
+        let stem = path.file_stem().unwrap().to_string_lossy().to_string();
+        let mut pieces = Vec::new();
+        for reduced in [false, true] {
+            let file = dir.path().join(format!("{stem}_{reduced}.tex"));
+            emit(&path, "latex", reduced, &file);
+            pieces.push(file);
+        }
+        let text = std::fs::read_to_string(&path).unwrap();
+        if text.contains("assume ") {
+            let o = ratewright(&["derive", path.to_str().unwrap(), "--format", "latex"]);
+            assert!(
+                o.status.success(),
+                "derive {}: {}",
+                path.display(),
+                String::from_utf8_lossy(&o.stderr)
+            );
+            let file = dir.path().join(format!("{stem}_derive.tex"));
+            std::fs::write(&file, &o.stdout).unwrap();
+            pieces.push(file);
+        }
+        for piece in pieces {
+            let name = piece.file_stem().unwrap().to_string_lossy().to_string();
+            let doc = dir.path().join(format!("doc_{name}.tex"));
+            std::fs::write(
+                &doc,
+                format!(
+                    "\\documentclass{{article}}\n\\usepackage{{amsmath}}\n\\begin{{document}}\n\\input{{{}}}\n\\end{{document}}\n",
+                    piece.file_name().unwrap().to_string_lossy()
+                ),
+            )
+            .unwrap();
+            let out = Command::new("pdflatex")
+                .args([
+                    "-interaction=nonstopmode",
+                    "-halt-on-error",
+                    doc.file_name().unwrap().to_str().unwrap(),
+                ])
+                .current_dir(dir.path())
+                .output()
+                .expect("pdflatex runs (apt-get install -y texlive-latex-base)");
+            assert!(
+                out.status.success(),
+                "pdflatex on {name} ({}): {}",
+                path.display(),
+                String::from_utf8_lossy(&out.stdout)
+            );
+            assert!(dir.path().join(format!("doc_{name}.pdf")).exists());
+        }
     }
 }

@@ -96,6 +96,7 @@ pub fn python(script: &Path, args: &[&str]) -> Output {
 static OCTAVE_READY: OnceLock<Result<(), String>> = OnceLock::new();
 static R_READY: OnceLock<Result<(), String>> = OnceLock::new();
 static GRAPHVIZ_READY: OnceLock<Result<(), String>> = OnceLock::new();
+static LATEX_READY: OnceLock<Result<(), String>> = OnceLock::new();
 
 /// Makes sure `octave-cli` runs, installing GNU Octave from the system's
 /// package manager if needed. Panics if that is impossible: the Octave
@@ -118,6 +119,17 @@ pub fn ensure_r() {
 /// Makes sure Graphviz's `dot` runs, installing it if needed.
 pub fn ensure_graphviz() {
     ensure_tool(&GRAPHVIZ_READY, "dot", &["-V"], &["graphviz"]);
+}
+
+/// Makes sure `pdflatex` runs (Debian's texlive-latex-base, which has
+/// amsmath), installing it if needed.
+pub fn ensure_latex() {
+    ensure_tool(
+        &LATEX_READY,
+        "pdflatex",
+        &["--version"],
+        &["texlive-latex-base"],
+    );
 }
 
 /// Runs `program probe` once per test binary; if that fails, installs
