@@ -145,6 +145,42 @@ total Et = E + EA + F + FB
 assume steady E, EA, F, FB
 "#;
 
+const ORDERED_TER_TER: &str = r#"
+mechanism ordered_ter_ter
+species A = 2 uM
+species B = 3 uM
+species C = 1.5 uM
+species P = 0.1 uM
+species Q = 0.2 uM
+species R = 0.3 uM
+species E = 0.01 uM
+species EA
+species EAB
+species EABC
+species EQR
+species ER
+param k1 = 1.5 /uM/s
+param km1 = 2 /s
+param k2 = 2.5 /uM/s
+param km2 = 3 /s
+param k3 = 0.7 /uM/s
+param km3 = 4 /s
+param k4 = 5 /s
+param km4 = 0.6 /uM/s
+param k5 = 6 /s
+param km5 = 0.8 /uM/s
+param k6 = 7 /s
+param km6 = 0.9 /uM/s
+step s1 E + A <=> EA with k1, km1
+step s2 EA + B <=> EAB with k2, km2
+step s3 EAB + C <=> EABC with k3, km3
+step s4 EABC <=> EQR + P with k4, km4
+step s5 EQR <=> ER + Q with k5, km5
+step s6 ER <=> E + R with k6, km6
+total Et = E + EA + EAB + EABC + EQR + ER
+assume steady E, EA, EAB, EABC, EQR, ER
+"#;
+
 const THEORELL_CHANCE: &str = r#"
 mechanism theorell_chance
 species A = 1 uM
@@ -455,6 +491,40 @@ fn ping_pong_bi_bi_cleland_1963() {
         keq.equals(&rational(&text, &mut vars)),
         "Haldane relation {rhs} does not reproduce Keq"
     );
+}
+
+/// Ordered ter-ter (Cleland 1963): the inhibition constants of the first
+/// two substrates and the first two products to bind in reverse are the
+/// dissociation constants Kia = k-1/k1, Kib = k-2/k2, Kir = k6/k-6 and
+/// Kiq = k5/k-5, and the Haldane relation
+/// Keq = V1 Kp Kiq Kir / (V2 Kia Kib Kc) holds (Segel 1975, ch. 9, from
+/// memory); V1/Et is the reciprocal sum over the three first-order steps
+/// after C binds (common practice).
+#[test]
+fn ordered_ter_ter_cleland_1963() {
+    let m = write("orderedter", ORDERED_TER_TER);
+    let j = derive_json(&m.path, &[]);
+    assert_same("V1/Et", constant(&j, "kcat"), "1/(1/k4 + 1/k5 + 1/k6)");
+    assert_same("V2/Et", constant(&j, "kcat_r"), "1/(1/km1 + 1/km2 + 1/km3)");
+    assert_same("Kia", constant(&j, "Ki_A"), "km1/k1");
+    assert_same("Kib", constant(&j, "Ki_B"), "km2/k2");
+    assert_same("Kir", constant(&j, "Ki_R"), "k6/km6");
+    assert_same("Kiq", constant(&j, "Ki_Q"), "k5/km5");
+    let haldane = &j["relations"][0];
+    assert_eq!(haldane["holds"], true);
+    let mut text = haldane["rhs"].as_str().unwrap().to_string();
+    assert!(
+        text.contains("Ki_A*Ki_B*Km_C") && text.contains("Ki_R*Ki_Q*Km_P"),
+        "{text}"
+    );
+    for name in [
+        "kcat_r", "kcat", "Ki_A", "Ki_B", "Km_C", "Ki_R", "Ki_Q", "Km_P",
+    ] {
+        text = text.replace(name, &format!("({})", constant(&j, name)));
+    }
+    let mut vars = Vars::new();
+    let keq = rational("k1*k2*k3*k4*k5*k6/(km1*km2*km3*km4*km5*km6)", &mut vars);
+    assert!(keq.equals(&rational(&text, &mut vars)), "Haldane: {text}");
 }
 
 /// Theorell & Chance (1951): ordered bi-bi without a kinetically significant
@@ -880,6 +950,7 @@ fn derived_rates_equal_numerical_steady_state_fluxes() {
         ("pp", PING_PONG),
         ("tc", THEORELL_CHANCE),
         ("si", SUBSTRATE_INHIBITION),
+        ("ott", ORDERED_TER_TER),
     ] {
         let m = write(name, text);
         steady_check(&m.path, 20);

@@ -166,37 +166,54 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                         });
                     }
                 }
-                if side.len() == 2 && dir.top.degree() == 2 {
+                let sequential = dir.get(&Monomial::one()).is_some();
+                if side.len() >= 2 && dir.top.degree() == side.len() as u32 && sequential {
+                    // Every species but the last to bind: d(m)/d(m·X) with m
+                    // the product of those bound before it (Cleland's Kia,
+                    // Kib, ... of sequential mechanisms).
+                    let mut before = Monomial::one();
+                    for (k, (x, name, _)) in side[..side.len() - 1].iter().enumerate() {
+                        let with_x = before.mul(&Monomial::var(*x));
+                        if let (Some(d_before), Some(d_with)) = (dir.get(&before), dir.get(&with_x)) {
+                            if let Some(value) = ratio(d_before, d_with) {
+                                let meaning = if k == 0 {
+                                    format!("inhibition (dissociation) constant of {name}, the first to bind, from the constant term")
+                                } else {
+                                    let order = ["second", "third", "fourth"]
+                                        .get(k - 1)
+                                        .copied()
+                                        .unwrap_or("next");
+                                    format!("inhibition (dissociation) constant of {name}, the {order} to bind, from the terms without and with it")
+                                };
+                                constants.push(Constant {
+                                    name: format!("Ki_{name}"),
+                                    value,
+                                    meaning,
+                                });
+                            }
+                        }
+                        before = with_x;
+                    }
+                } else if side.len() == 2 && dir.top.degree() == 2 {
+                    // No constant term: a ping-pong (double-displacement)
+                    // pattern. The first to bind meets the other side's
+                    // species x that leaves the same enzyme form in the
+                    // terms x and a·x of the full denominator, whose ratio
+                    // is a's dissociation constant (Cleland's Kia, Kiq).
                     let (a, name) = (side[0].0, &side[0].1);
-                    let one = Monomial::one();
-                    if let (Some(d1), Some(da)) = (dir.get(&one), dir.get(&Monomial::var(a))) {
-                        if let Some(k) = ratio(d1, da) {
-                            constants.push(Constant {
-                                name: format!("Ki_{name}"),
-                                value: k,
-                                meaning: format!("inhibition (dissociation) constant of {name}, the first to bind, from the constant term"),
-                            });
-                        }
-                    } else if dir.get(&one).is_none() {
-                        // No constant term: a ping-pong (double-displacement)
-                        // pattern. The first to bind meets the other side's
-                        // species x that leaves the same enzyme form in the
-                        // terms x and a·x of the full denominator, whose ratio
-                        // is a's dissociation constant (Cleland's Kia, Kiq).
-                        let full = den.collect(&conc);
-                        let get = |m: &Monomial| full.get(m).filter(|p| !p.is_zero());
-                        let found = other.iter().find_map(|(x, _, _)| {
-                            let dx = get(&Monomial::var(*x))?;
-                            let dax = get(&Monomial::var(*x).mul(&Monomial::var(a)))?;
-                            ratio(dx, dax)
+                    let full = den.collect(&conc);
+                    let get = |m: &Monomial| full.get(m).filter(|p| !p.is_zero());
+                    let found = other.iter().find_map(|(x, _, _)| {
+                        let dx = get(&Monomial::var(*x))?;
+                        let dax = get(&Monomial::var(*x).mul(&Monomial::var(a)))?;
+                        ratio(dx, dax)
+                    });
+                    if let Some(k) = found {
+                        constants.push(Constant {
+                            name: format!("Ki_{name}"),
+                            value: k,
+                            meaning: format!("inhibition (dissociation) constant of {name}, the first to bind, from the cross term with a species of the other side (ping-pong)"),
                         });
-                        if let Some(k) = found {
-                            constants.push(Constant {
-                                name: format!("Ki_{name}"),
-                                value: k,
-                                meaning: format!("inhibition (dissociation) constant of {name}, the first to bind, from the cross term with a species of the other side (ping-pong)"),
-                            });
-                        }
                     }
                 }
             }
@@ -219,15 +236,20 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                     .find(|c| c.name == name)
                     .map(|c| c.value.clone())
             };
+            // K_S of the relation: Km of a single substrate; for several,
+            // the Ki of each but the last to bind times the last one's Km
+            // (Ki_A*Km_B, Ki_A*Ki_B*Km_C).
             let k_side = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
-                match side {
-                    [(_, a, _)] => Some((format!("Km_{a}"), find(&format!("Km_{a}"))?)),
-                    [(_, a, _), (_, b, _)] => {
-                        let v = find(&format!("Ki_{a}"))?.mul(&find(&format!("Km_{b}"))?);
-                        Some((format!("Ki_{a}*Km_{b}"), v))
-                    }
-                    _ => None,
+                let ((_, last, _), rest) = side.split_last()?;
+                let mut names = Vec::new();
+                let mut value = RationalFunction::one();
+                for (_, x, _) in rest {
+                    names.push(format!("Ki_{x}"));
+                    value = value.mul(&find(&format!("Ki_{x}"))?);
                 }
+                names.push(format!("Km_{last}"));
+                value = value.mul(&find(&format!("Km_{last}"))?);
+                Some((names.join("*"), value))
             };
             // Ping-pong: no constant term, so no Ki_A·Km_B product; the
             // relation over the four Michaelis constants holds instead
