@@ -128,6 +128,14 @@ impl Reference {
     }
 }
 
+/// The demo models and a fixture whose names clash with the emitted code's
+/// own variables, target keywords and C's math.h macros.
+fn emit_models() -> Vec<PathBuf> {
+    let mut list = models();
+    list.push(root().join("tests/fixtures/clashing_names.mech"));
+    list
+}
+
 fn temp() -> tempfile::TempDir {
     tempfile::tempdir().expect("temp dir")
 }
@@ -160,7 +168,7 @@ fn close(a: f64, b: f64, rel: f64, scale: f64) -> bool {
 #[test]
 fn emitted_python_rhs_matches_the_compiler_and_its_jacobian_matches_central_differences() {
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         for reduced in [false, true] {
             let reference = Reference::new(&load(&path), reduced);
             let module = dir.path().join(format!(
@@ -218,7 +226,7 @@ fn emitted_python_main_reproduces_run_with_scipy() {
     // `ratewright run` on the same file; both at tight tolerances, so the
     // two solutions agree to 1e-6 relative (of each column's scale).
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let model = load(&path);
         let until = if model.name.as_deref() == Some("robertson") {
             "40"
@@ -417,7 +425,7 @@ fn numbers(line: &str) -> Vec<f64> {
 #[test]
 fn emitted_c_compiles_with_werror_and_matches_the_compiler() {
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         for reduced in [false, true] {
             let stem = "mech";
             let sub = dir.path().join(format!(
@@ -564,7 +572,7 @@ fn quiet_horizon(model: &Model) -> f64 {
 fn emitted_octave_runs_under_octave_cli_with_ode15s() {
     common::ensure_octave();
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let model = load(&path);
         for reduced in [false, true] {
             let sub = dir.path().join(format!(
@@ -654,7 +662,7 @@ fn emitted_octave_runs_under_octave_cli_with_ode15s() {
 #[test]
 fn emitted_rust_compiles_with_rustc_and_matches_the_compiler() {
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let model = load(&path);
         for reduced in [false, true] {
             let sub = dir.path().join(format!(
@@ -728,7 +736,7 @@ fn emitted_rust_compiles_with_rustc_and_matches_the_compiler() {
 #[test]
 fn emitted_sbml_validates_with_libsbml_and_reads_back() {
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let model = load(&path);
         let file = dir.path().join("model.xml");
         emit(&path, "sbml", false, &file);
@@ -1029,7 +1037,7 @@ fn printed_expressions_evaluate_the_same_in_python_c_octave_rust_and_the_mechani
 #[allow(clippy::needless_range_loop)]
 fn json_jacobian_reads_back_and_matches_central_differences() {
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let file = dir.path().join("m.json");
         emit(&path, "json", false, &file);
         let doc: serde_json::Value =
@@ -1177,7 +1185,7 @@ fn usage_errors_are_clear() {
 fn emitted_r_runs_under_desolve_and_matches_run() {
     common::ensure_r();
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let model = load(&path);
         for reduced in [false, true] {
             let sub = dir.path().join(format!(
@@ -1272,7 +1280,7 @@ fn emitted_dot_is_read_by_graphviz_with_the_model_edges() {
     use std::collections::BTreeSet;
     common::ensure_graphviz();
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let model = load(&path);
         let file = dir.path().join(format!(
             "{}.dot",
@@ -1343,7 +1351,7 @@ fn emitted_dot_is_read_by_graphviz_with_the_model_edges() {
 fn latex_output_compiles_with_pdflatex() {
     common::ensure_latex();
     let dir = temp();
-    for path in models() {
+    for path in emit_models() {
         let stem = path.file_stem().unwrap().to_string_lossy().to_string();
         let mut pieces = Vec::new();
         for reduced in [false, true] {
