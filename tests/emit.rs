@@ -511,6 +511,61 @@ fn emitted_c_compiles_with_werror_and_matches_the_compiler() {
     }
 }
 
+/// Reads what an emitted file's check script printed (per state: the rhs,
+/// then the column-major Jacobian; last: the state its integrator reached
+/// at `horizon`), checks rhs and Jacobian, and compares the end state with
+/// `ratewright run` at rtol 1e-10 to 1e-6 of the state's scale.
+fn check_printed_against_run(
+    what: &str,
+    path: &Path,
+    reference: &Reference,
+    states: &[Vec<f64>],
+    printed: &str,
+    horizon: f64,
+    dir: &Path,
+) {
+    let lines: Vec<Vec<f64>> = printed.lines().map(numbers).collect();
+    let f_rows: Vec<Vec<f64>> = (0..states.len()).map(|k| lines[2 * k].clone()).collect();
+    let j_rows: Vec<Vec<f64>> = (0..states.len())
+        .map(|k| lines[2 * k + 1].clone())
+        .collect();
+    check_rhs_and_jac(what, reference, states, &f_rows, &j_rows);
+    let csv = dir.join("run.csv");
+    let t = format!("{horizon:?}");
+    let o = ratewright(&[
+        "run",
+        path.to_str().unwrap(),
+        "--times",
+        &t,
+        "--rtol",
+        "1e-10",
+        "--atol",
+        "1e-14",
+        "-o",
+        csv.to_str().unwrap(),
+    ]);
+    assert!(
+        o.status.success(),
+        "run: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let (_, rows) = read_csv(&csv);
+    let run_state: Vec<f64> = reference
+        .state
+        .iter()
+        .map(|&i| rows[rows.len() - 1][1 + i])
+        .collect();
+    let end = &lines[2 * states.len()];
+    assert_eq!(end.len(), run_state.len(), "{what}: state length");
+    let scale = run_state.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+    for (i, (a, b)) in end.iter().zip(&run_state).enumerate() {
+        assert!(
+            (a - b).abs() <= 1e-6 * scale,
+            "{what}: y[{i}] = {a} vs run {b} at t = {t}"
+        );
+    }
+}
+
 /// Checks rhs values against the compiler and a dense column-major
 /// Jacobian against finite differences, at each state.
 #[allow(clippy::needless_range_loop)]
@@ -614,47 +669,8 @@ fn emitted_octave_runs_under_octave_cli_with_ode15s() {
                 text,
                 String::from_utf8_lossy(&out.stderr)
             );
-            let lines: Vec<Vec<f64>> = text.lines().map(numbers).collect();
-            let f_rows: Vec<Vec<f64>> = (0..states.len()).map(|k| lines[2 * k].clone()).collect();
-            let j_rows: Vec<Vec<f64>> = (0..states.len())
-                .map(|k| lines[2 * k + 1].clone())
-                .collect();
             let what = format!("octave {} (reduced {reduced})", path.display());
-            check_rhs_and_jac(&what, &reference, &states, &f_rows, &j_rows);
-            // ode15s with the Jacobian option against `ratewright run`.
-            let csv = sub.join("run.csv");
-            let t = format!("{horizon:?}");
-            let o = ratewright(&[
-                "run",
-                path.to_str().unwrap(),
-                "--times",
-                &t,
-                "--rtol",
-                "1e-10",
-                "--atol",
-                "1e-14",
-                "-o",
-                csv.to_str().unwrap(),
-            ]);
-            assert!(
-                o.status.success(),
-                "run: {}",
-                String::from_utf8_lossy(&o.stderr)
-            );
-            let (_, rows) = read_csv(&csv);
-            let run_state: Vec<f64> = reference
-                .state
-                .iter()
-                .map(|&i| rows[rows.len() - 1][1 + i])
-                .collect();
-            let end = &lines[2 * states.len()];
-            let scale = run_state.iter().fold(0.0f64, |a, v| a.max(v.abs()));
-            for (i, (a, b)) in end.iter().zip(&run_state).enumerate() {
-                assert!(
-                    (a - b).abs() <= 1e-6 * scale,
-                    "{what}: ode15s y[{i}] = {a} vs run {b} at t = {t}"
-                );
-            }
+            check_printed_against_run(&what, &path, &reference, &states, &text, horizon, &sub);
         }
     }
 }
@@ -1227,47 +1243,8 @@ fn emitted_r_runs_under_desolve_and_matches_run() {
                 text,
                 String::from_utf8_lossy(&out.stderr)
             );
-            let lines: Vec<Vec<f64>> = text.lines().map(numbers).collect();
-            let f_rows: Vec<Vec<f64>> = (0..states.len()).map(|k| lines[2 * k].clone()).collect();
-            let j_rows: Vec<Vec<f64>> = (0..states.len())
-                .map(|k| lines[2 * k + 1].clone())
-                .collect();
-            let what = format!("R {} (reduced {reduced})", path.display());
-            check_rhs_and_jac(&what, &reference, &states, &f_rows, &j_rows);
-            let csv = sub.join("run.csv");
-            let t = format!("{horizon:?}");
-            let o = ratewright(&[
-                "run",
-                path.to_str().unwrap(),
-                "--times",
-                &t,
-                "--rtol",
-                "1e-10",
-                "--atol",
-                "1e-14",
-                "-o",
-                csv.to_str().unwrap(),
-            ]);
-            assert!(
-                o.status.success(),
-                "run: {}",
-                String::from_utf8_lossy(&o.stderr)
-            );
-            let (_, rows) = read_csv(&csv);
-            let run_state: Vec<f64> = reference
-                .state
-                .iter()
-                .map(|&i| rows[rows.len() - 1][1 + i])
-                .collect();
-            let end = &lines[2 * states.len()];
-            assert_eq!(end.len(), run_state.len(), "{what}: state length");
-            let scale = run_state.iter().fold(0.0f64, |a, v| a.max(v.abs()));
-            for (i, (a, b)) in end.iter().zip(&run_state).enumerate() {
-                assert!(
-                    (a - b).abs() <= 1e-6 * scale,
-                    "{what}: deSolve y[{i}] = {a} vs run {b} at t = {t}"
-                );
-            }
+            let what = format!("R with deSolve {} (reduced {reduced})", path.display());
+            check_printed_against_run(&what, &path, &reference, &states, &text, horizon, &sub);
         }
     }
 }
