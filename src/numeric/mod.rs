@@ -9,6 +9,7 @@
 //! derivative of the right-hand side (symbolic, from `algebra::calculus`).
 
 pub mod program;
+pub mod static_lu;
 pub mod system;
 
 pub use system::{CompileError, CompiledSystem, StateLayout, Workspace, constants_of};

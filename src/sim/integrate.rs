@@ -12,8 +12,8 @@ use super::{Method, Settings, SimError};
 use crate::model::{EventKind, Model, coef_f64};
 use crate::numeric::{CompiledSystem, constants_of};
 use diffsol::{
-    FaerSparseLU, FaerSparseMat, NalgebraLU, NalgebraMat, OdeBuilder, OdeSolverMethod,
-    OdeSolverStopReason, Vector,
+    FaerSparseMat, NalgebraLU, NalgebraMat, OdeBuilder, OdeSolverMethod, OdeSolverStopReason,
+    Vector,
 };
 use std::cell::RefCell;
 
@@ -280,7 +280,11 @@ macro_rules! simulate_with {
 }
 
 simulate_with!(simulate_dense, NalgebraMat<f64>, NalgebraLU<f64>);
-simulate_with!(simulate_sparse, FaerSparseMat<f64>, FaerSparseLU<f64>);
+simulate_with!(
+    simulate_sparse,
+    FaerSparseMat<f64>,
+    crate::numeric::static_lu::StaticPivotLu
+);
 
 /// Steps one solver to `seg_end`, recording outputs on the way; returns the
 /// state at `seg_end`.
