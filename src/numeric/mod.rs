@@ -4,7 +4,8 @@
 //! same model millions of times, so the model is lowered once into flat
 //! register programs (`program`) and assembled into a right-hand side, an
 //! analytic Jacobian with a fixed sparsity pattern, and output functions
-//! (`system`). Invariants: nothing here walks an `Expr` or looks up a name at
+//! (`system`), and a fixed-pattern sparse LU for the solver's iteration
+//! matrix (`static_lu`). Invariants: nothing here walks an `Expr` or looks up a name at
 //! evaluation time; evaluation never allocates; the Jacobian is the exact
 //! derivative of the right-hand side (symbolic, from `algebra::calculus`).
 
