@@ -320,14 +320,6 @@ fn minimum_degree_order(a: &FaerSparseMat<f64>) -> Vec<usize> {
     }
 }
 
-impl StaticPivotLu {
-    /// Entries of L and U, once the pattern is known (for the choice between
-    /// this and faer's supernodal LU, and for benchmarks).
-    pub fn fill(&self) -> Option<usize> {
-        self.state.as_ref().map(Factors::fill)
-    }
-}
-
 impl LaLinearSolver<FaerSparseMat<f64>> for StaticPivotLu {
     fn set_linearisation<
         C: LaLinearOp<T = f64, V = FaerVec<f64>, M = FaerSparseMat<f64>, C = diffsol::FaerContext>,
