@@ -626,6 +626,47 @@ fn quiet_horizon(model: &Model) -> f64 {
 #[test]
 fn emitted_octave_runs_under_octave_cli_with_ode15s() {
     common::ensure_octave();
+    run_emitted_scripts(&Interpreter {
+        target: "octave",
+        file: "mech.m",
+        script: "check.m",
+        command: &[
+            "octave-cli",
+            "--no-gui",
+            "--quiet",
+            "--no-window-system",
+            "check.m",
+        ],
+        label: "octave",
+        header: "m = mech();\n",
+        separator: "; ",
+        // rhs, then the column-major Jacobian, at state `y = [{col}]`.
+        at_state: "y = [{col}];\nprintf('%.17g ', m.rhs(0.5, y, m.p)); printf('\\n');\nJ = m.jac(0.5, y, m.p); printf('%.17g ', J(:)); printf('\\n');\n",
+        // Octave 7's ode15s stops at t = 0 ("error test failed") on these
+        // models with AbsTol 1e-12 even without a Jacobian; 1e-10 works.
+        integrate: "opts = odeset(m.options, 'RelTol', 1e-8, 'AbsTol', 1e-10);\n[t, y] = ode15s(@(t, y) m.rhs(t, y, m.p), [0 {horizon}], m.y0, opts);\nprintf('%.17g ', y(end, :)); printf('\\n');\n",
+    });
+}
+
+/// An interpreter that runs an emitted file through a check script: the
+/// script prints, per state, the rhs then the column-major Jacobian, and
+/// last the state its integrator reached at the horizon. `{col}` and
+/// `{horizon}` in the templates are replaced by the state and the time.
+struct Interpreter {
+    target: &'static str,
+    file: &'static str,
+    script: &'static str,
+    command: &'static [&'static str],
+    label: &'static str,
+    header: &'static str,
+    separator: &'static str,
+    at_state: &'static str,
+    integrate: &'static str,
+}
+
+/// Emits every model (full and reduced) for `it.target`, runs its check
+/// script and checks what it printed ([`check_printed_against_run`]).
+fn run_emitted_scripts(it: &Interpreter) {
     let dir = temp();
     for path in emit_models() {
         let model = load(&path);
@@ -635,41 +676,36 @@ fn emitted_octave_runs_under_octave_cli_with_ode15s() {
                 path.file_stem().unwrap().to_string_lossy()
             ));
             std::fs::create_dir_all(&sub).unwrap();
-            emit(&path, "octave", reduced, &sub.join("mech.m"));
+            emit(&path, it.target, reduced, &sub.join(it.file));
             let reference = Reference::new(&model, reduced);
             let states = reference.states(3);
             let horizon = quiet_horizon(&model);
-            let mut script = String::from("m = mech();\n");
+            let mut script = it.header.to_string();
             for y in &states {
                 let col = y
                     .iter()
                     .map(|v| format!("{v:?}"))
                     .collect::<Vec<_>>()
-                    .join("; ");
-                script += &format!(
-                    "y = [{col}];\nprintf('%.17g ', m.rhs(0.5, y, m.p)); printf('\\n');\nJ = m.jac(0.5, y, m.p); printf('%.17g ', J(:)); printf('\\n');\n"
-                );
+                    .join(it.separator);
+                script += &it.at_state.replace("{col}", &col);
             }
-            // Octave 7's ode15s stops at t = 0 ("error test failed") on these
-            // models with AbsTol 1e-12 even without a Jacobian; 1e-10 works.
-            script += &format!(
-                "opts = odeset(m.options, 'RelTol', 1e-8, 'AbsTol', 1e-10);\n[t, y] = ode15s(@(t, y) m.rhs(t, y, m.p), [0 {horizon:?}], m.y0, opts);\nprintf('%.17g ', y(end, :)); printf('\\n');\n"
-            );
-            std::fs::write(sub.join("check.m"), script).unwrap();
-            let out = Command::new("octave-cli")
-                .args(["--no-gui", "--quiet", "--no-window-system", "check.m"])
+            script += &it.integrate.replace("{horizon}", &format!("{horizon:?}"));
+            std::fs::write(sub.join(it.script), script).unwrap();
+            let out = Command::new(it.command[0])
+                .args(&it.command[1..])
                 .current_dir(&sub)
                 .output()
-                .expect("octave-cli runs (install GNU Octave: apt-get install -y octave)");
+                .unwrap_or_else(|e| panic!("{} runs: {e}", it.command[0]));
             let text = String::from_utf8_lossy(&out.stdout).to_string();
             assert!(
                 out.status.success(),
-                "octave on {}: {}{}",
+                "{} on {}: {}{}",
+                it.label,
                 path.display(),
                 text,
                 String::from_utf8_lossy(&out.stderr)
             );
-            let what = format!("octave {} (reduced {reduced})", path.display());
+            let what = format!("{} {} (reduced {reduced})", it.label, path.display());
             check_printed_against_run(&what, &path, &reference, &states, &text, horizon, &sub);
         }
     }
@@ -1200,53 +1236,17 @@ fn usage_errors_are_clear() {
 #[test]
 fn emitted_r_runs_under_desolve_and_matches_run() {
     common::ensure_r();
-    let dir = temp();
-    for path in emit_models() {
-        let model = load(&path);
-        for reduced in [false, true] {
-            let sub = dir.path().join(format!(
-                "{}_{reduced}",
-                path.file_stem().unwrap().to_string_lossy()
-            ));
-            std::fs::create_dir_all(&sub).unwrap();
-            emit(&path, "r", reduced, &sub.join("mech.R"));
-            let reference = Reference::new(&model, reduced);
-            let states = reference.states(3);
-            let horizon = quiet_horizon(&model);
-            let mut script = String::from(
-                "suppressMessages(library(deSolve))\nsource(\"mech.R\")\nshow <- function(x) cat(sprintf(\"%.17g\", as.vector(x)), \"\\n\")\n",
-            );
-            for y in &states {
-                let col = y
-                    .iter()
-                    .map(|v| format!("{v:?}"))
-                    .collect::<Vec<_>>()
-                    .join(", ");
-                script += &format!(
-                    "y <- c({col})\nshow(rhs(0.5, y, parms)[[1]])\nshow(jacobian(0.5, y, parms))\n"
-                );
-            }
-            script += &format!(
-                "out <- ode(y = y0, times = c(0, {horizon:?}), func = rhs, parms = parms, method = \"lsoda\", jacfunc = jacobian, jactype = \"fullusr\", rtol = 1e-10, atol = 1e-12)\nshow(out[nrow(out), -1])\n"
-            );
-            std::fs::write(sub.join("check.R"), script).unwrap();
-            let out = Command::new("Rscript")
-                .arg("check.R")
-                .current_dir(&sub)
-                .output()
-                .expect("Rscript runs (apt-get install -y r-base-core r-cran-desolve)");
-            let text = String::from_utf8_lossy(&out.stdout).to_string();
-            assert!(
-                out.status.success(),
-                "R on {}: {}{}",
-                path.display(),
-                text,
-                String::from_utf8_lossy(&out.stderr)
-            );
-            let what = format!("R with deSolve {} (reduced {reduced})", path.display());
-            check_printed_against_run(&what, &path, &reference, &states, &text, horizon, &sub);
-        }
-    }
+    run_emitted_scripts(&Interpreter {
+        target: "r",
+        file: "mech.R",
+        script: "check.R",
+        command: &["Rscript", "check.R"],
+        label: "R with deSolve",
+        header: "suppressMessages(library(deSolve))\nsource(\"mech.R\")\nshow <- function(x) cat(sprintf(\"%.17g\", as.vector(x)), \"\\n\")\n",
+        separator: ", ",
+        at_state: "y <- c({col})\nshow(rhs(0.5, y, parms)[[1]])\nshow(jacobian(0.5, y, parms))\n",
+        integrate: "out <- ode(y = y0, times = c(0, {horizon}), func = rhs, parms = parms, method = \"lsoda\", jacfunc = jacobian, jactype = \"fullusr\", rtol = 1e-10, atol = 1e-12)\nshow(out[nrow(out), -1])\n",
+    });
 }
 
 /// The DOT target read by Graphviz (`dot -Tplain`): every species and step
