@@ -1095,6 +1095,16 @@ fn a_scan_of_ten_billion_points_is_refused() {
 
 /// Rewriting a file keeps its mode; a new output gets the mode a newly
 /// created file gets (0666 less the umask), never the temporary file's 0600.
+/// A file's permission bits.
+fn mode_of(path: &Path) -> u32 {
+    use std::os::unix::fs::PermissionsExt;
+    std::fs::metadata(path)
+        .unwrap_or_else(|e| panic!("{}: {e}", path.display()))
+        .permissions()
+        .mode()
+        & 0o777
+}
+
 #[test]
 fn written_files_keep_or_get_ordinary_permissions() {
     use std::os::unix::fs::PermissionsExt;
@@ -1125,11 +1135,7 @@ fn written_files_keep_or_get_ordinary_permissions() {
                 .contains("param k = 1 /s"),
             "fmt did not rewrite"
         );
-        let after = std::fs::metadata(&m)
-            .expect("metadata")
-            .permissions()
-            .mode()
-            & 0o777;
+        let after = mode_of(&m);
         assert_eq!(
             after, mode,
             "fmt changed the mode from {mode:o} to {after:o}"
@@ -1138,11 +1144,7 @@ fn written_files_keep_or_get_ordinary_permissions() {
     // A new file: compare with what the system gives a file created here.
     let reference = dir.path().join("reference");
     std::fs::write(&reference, "").expect("write");
-    let expected = std::fs::metadata(&reference)
-        .expect("metadata")
-        .permissions()
-        .mode()
-        & 0o777;
+    let expected = mode_of(&reference);
     let csv = dir.path().join("out.csv");
     let out = ratewright(&[
         "run",
@@ -1158,11 +1160,7 @@ fn written_files_keep_or_get_ordinary_permissions() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    let got = std::fs::metadata(&csv)
-        .expect("metadata")
-        .permissions()
-        .mode()
-        & 0o777;
+    let got = mode_of(&csv);
     assert_eq!(
         got, expected,
         "new output has mode {got:o}, a new file here gets {expected:o}"
@@ -1184,11 +1182,7 @@ fn written_files_keep_or_get_ordinary_permissions() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    let got = std::fs::metadata(&svg)
-        .expect("the figure")
-        .permissions()
-        .mode()
-        & 0o777;
+    let got = mode_of(&svg);
     assert_eq!(got, expected, "new figure has mode {got:o}");
     assert!(temp_files_in(dir.path()).is_empty());
     let before = std::fs::read(&m).expect("read");
