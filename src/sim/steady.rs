@@ -90,18 +90,7 @@ pub fn steady_state_of(
                         model.species[i].name, values[i]
                     );
                 } else {
-                    let mut f = vec![0.0; system.nstates];
-                    system.rhs(&mut w, &x, until, &mut f);
-                    let residual = f.iter().fold(0.0f64, |a, v| a.max(v.abs()));
-                    let (eigenvalues, stability) = eigen(system, &mut w, &x, until);
-                    return Ok(SteadyState {
-                        values,
-                        eigenvalues,
-                        stability,
-                        residual,
-                        integrated_to: until,
-                        newton_iterations: iterations,
-                    });
+                    return Ok(found(system, &mut w, &x, until, values, iterations));
                 }
             }
             Err(reason) => {
@@ -124,20 +113,9 @@ pub fn steady_state_of(
                     && moved <= STATIONARY_FRACTION * scale
                 {
                     let x = system.state_from_species(species);
-                    let mut f = vec![0.0; system.nstates];
-                    system.rhs(&mut w, &x, until, &mut f);
-                    let residual = f.iter().fold(0.0f64, |a, v| a.max(v.abs()));
                     let mut values = Vec::new();
                     system.outputs(&mut w, &x, until, &mut values);
-                    let (eigenvalues, stability) = eigen(system, &mut w, &x, until);
-                    return Ok(SteadyState {
-                        values,
-                        eigenvalues,
-                        stability,
-                        residual,
-                        integrated_to: until,
-                        newton_iterations: 0,
-                    });
+                    return Ok(found(system, &mut w, &x, until, values, 0));
                 }
                 previous = Some(species.to_vec());
                 last_reason = reason;
@@ -213,6 +191,30 @@ fn newton(
         }
     }
     Err("no convergence in 100 iterations".into())
+}
+
+/// The steady state at reduced state `x` (outputs `values`): its residual
+/// and the eigenvalues and stability of the reduced Jacobian there.
+fn found(
+    system: &CompiledSystem,
+    w: &mut crate::numeric::Workspace,
+    x: &[f64],
+    until: f64,
+    values: Vec<f64>,
+    newton_iterations: usize,
+) -> SteadyState {
+    let mut f = vec![0.0; system.nstates];
+    system.rhs(w, x, until, &mut f);
+    let residual = f.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+    let (eigenvalues, stability) = eigen(system, w, x, until);
+    SteadyState {
+        values,
+        eigenvalues,
+        stability,
+        residual,
+        integrated_to: until,
+        newton_iterations,
+    }
 }
 
 fn eigen(

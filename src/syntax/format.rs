@@ -175,6 +175,19 @@ fn names(list: &[Ident]) -> String {
         .join(", ")
 }
 
+/// The aligned columns of a one-name `species` or `fixed` statement.
+fn decl_columns(kw: String, d: &SpeciesDecl) -> Vec<String> {
+    vec![
+        kw,
+        d.name.name.clone(),
+        d.value
+            .as_ref()
+            .map(|q| format!("= {}", quantity(q)))
+            .unwrap_or_default(),
+        quoted(&d.description),
+    ]
+}
+
 fn species_decl(d: &SpeciesDecl) -> String {
     let mut s = d.name.name.clone();
     if let Some(q) = &d.value {
@@ -205,18 +218,7 @@ fn cells(kind: &StatementKind) -> Vec<String> {
                 .collect();
             vec![kw, parts.join(", ")]
         }
-        StatementKind::Species(decls) if decls.len() == 1 => {
-            let d = &decls[0];
-            vec![
-                kw,
-                d.name.name.clone(),
-                d.value
-                    .as_ref()
-                    .map(|q| format!("= {}", quantity(q)))
-                    .unwrap_or_default(),
-                quoted(&d.description),
-            ]
-        }
+        StatementKind::Species(decls) if decls.len() == 1 => decl_columns(kw, &decls[0]),
         StatementKind::Species(decls) => vec![
             kw,
             decls
@@ -225,15 +227,7 @@ fn cells(kind: &StatementKind) -> Vec<String> {
                 .collect::<Vec<_>>()
                 .join(", "),
         ],
-        StatementKind::Fixed(d) => vec![
-            kw,
-            d.name.name.clone(),
-            d.value
-                .as_ref()
-                .map(|q| format!("= {}", quantity(q)))
-                .unwrap_or_default(),
-            quoted(&d.description),
-        ],
+        StatementKind::Fixed(d) => decl_columns(kw, d),
         StatementKind::Param {
             name,
             value,
