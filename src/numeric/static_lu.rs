@@ -9,11 +9,21 @@
 //! elimination tree and the patterns of L and U are computed once; each
 //! refactorisation is a left-looking elimination over fixed patterns.
 //!
+//! Where the factors fill in (a network with no small separators leaves a
+//! block of several hundred rows nearly full at the end of the ordering),
+//! the trailing block is factorised as a dense matrix: the sparse columns
+//! are eliminated first, their Schur complement on the trailing rows is
+//! gathered into a dense matrix, and faer's dense LU with partial pivoting
+//! (blocked kernels) factorises it. The sparse scatter loops would do the
+//! same arithmetic several times slower.
+//!
 //! Invariants: the pattern of L (unit lower) and of U is that of the
 //! Cholesky factor of `P(A + Aᵀ)Pᵀ`, so every update of the elimination
-//! lands inside it; a pivot that is not finite or is tiny against its
+//! lands inside it; a sparse pivot that is not finite or is tiny against its
 //! column falls back, for that factorisation, to faer's partially pivoted
-//! LU, so the answer never depends on the pivots being safe.
+//! LU, so the answer never depends on the pivots being safe. The dense
+//! trailing block pivots by rows itself; a zero or non-finite pivot there
+//! (a singular matrix) also sends the factorisation to the fallback.
 
 use diffsol::{FaerSparseLU, FaerSparseMat, FaerVec, LaError, LaLinearOp, Matrix, MatrixCommon};
 use diffsol_la::LinearSolver as LaLinearSolver;
@@ -23,13 +33,17 @@ use std::cell::RefCell;
 /// matrix as given) sends the factorisation to the pivoting fallback.
 const PIVOT_FLOOR: f64 = 1e-10;
 
-/// Above this many entries of L and U per row the factors are dense enough
-/// that faer's supernodal LU (dense kernels on blocks) wins, and every
-/// factorisation goes to it. Measured on the two generated 1,000-species
-/// networks of docs/benchmarks.md: 38 entries per row, this LU 0.16 s
-/// against faer's 0.23 s for the whole run; 225 per row, 2.3 s against
-/// 0.8 s.
-const DENSE_FILL_PER_ROW: usize = 100;
+/// The trailing block of the ordering becomes dense when at least this
+/// fraction of its strictly lower triangle is filled in L ... Measured on
+/// the random 1,000-species network of docs/benchmarks.md (block of 472
+/// rows at 0.9): 0.4 gives a block of 731 rows and 0.51 s per run, 0.8
+/// 503 rows and 0.30 s, 0.9 0.27 s, 1.0 (only the completely full block,
+/// 444 rows) 0.32 s, and no dense block 1.39 s.
+const DENSE_TAIL_DENSITY: f64 = 0.9;
+
+/// ... and it has at least this many rows (below that the sparse loops are
+/// as fast as the dense kernels' set-up).
+const DENSE_TAIL_MIN_ROWS: usize = 32;
 
 const NONE: usize = usize::MAX;
 
@@ -40,8 +54,6 @@ pub struct StaticPivotLu {
     fallback: FaerSparseLU<f64>,
     /// The last factorisation is the fallback's (an unsafe pivot).
     using_fallback: bool,
-    /// Every factorisation is the fallback's (dense fill-in).
-    delegated: bool,
 }
 
 struct Factors {
@@ -52,14 +64,24 @@ struct Factors {
     perm: Vec<usize>,
     /// `inv[old] = new`.
     inv: Vec<usize>,
-    /// Strictly lower part of L by column, rows ascending.
+    /// Rows and columns from here on form the dense trailing block.
+    split: usize,
+    /// Strictly lower part of L by column, rows ascending, for the columns
+    /// before `split` (rows may lie in the trailing block).
     l_ptr: Vec<usize>,
     l_row: Vec<usize>,
     l_val: Vec<f64>,
-    /// U by column: rows above the diagonal ascending, then the diagonal.
+    /// U by column: rows above the diagonal ascending, then the diagonal;
+    /// for the columns from `split` on, only the rows before `split`.
     u_ptr: Vec<usize>,
     u_row: Vec<usize>,
     u_val: Vec<f64>,
+    /// The trailing block's LU in place (unit L below the diagonal) and
+    /// its row permutation.
+    tail: faer::Mat<f64>,
+    tail_perm: Vec<usize>,
+    tail_perm_inv: Vec<usize>,
+    tail_scratch: RefCell<faer::dyn_stack::MemBuffer>,
     work: Vec<f64>,
     solve_work: RefCell<Vec<f64>>,
 }
@@ -150,32 +172,70 @@ impl Factors {
             u_row.iter().all(|&r| r < n) && l_cols.iter().flatten().all(|&r| r < n),
             "the factors' patterns stay inside the matrix"
         );
-        let mut l_ptr = Vec::with_capacity(n + 1);
+        let l_counts: Vec<usize> = l_cols.iter().map(Vec::len).collect();
+        let split = dense_tail_start(&l_counts);
+        // The trailing block keeps no sparse pattern: U's columns there keep
+        // only their rows before `split`, and L's columns there go.
+        let mut kept_u_ptr = Vec::with_capacity(n + 1);
+        let mut kept_u_row = Vec::with_capacity(u_row.len());
+        kept_u_ptr.push(0);
+        for k in 0..n {
+            let column = &u_row[u_ptr[k]..u_ptr[k + 1]];
+            if k < split {
+                kept_u_row.extend_from_slice(column);
+            } else {
+                kept_u_row.extend(column.iter().copied().filter(|&j| j < split));
+            }
+            kept_u_ptr.push(kept_u_row.len());
+        }
+        let mut l_ptr = Vec::with_capacity(split + 1);
         let mut l_row = Vec::new();
         l_ptr.push(0);
-        for col in &l_cols {
+        for col in &l_cols[..split] {
             l_row.extend_from_slice(col);
             l_ptr.push(l_row.len());
         }
+        let tail_rows = n - split;
+        let tail_scratch = faer::dyn_stack::MemBuffer::new(
+            faer::linalg::lu::partial_pivoting::factor::lu_in_place_scratch::<usize, f64>(
+                tail_rows,
+                tail_rows,
+                faer::Par::Seq,
+                Default::default(),
+            )
+            .or(
+                faer::linalg::lu::partial_pivoting::solve::solve_in_place_scratch::<usize, f64>(
+                    tail_rows,
+                    1,
+                    faer::Par::Seq,
+                ),
+            ),
+        );
         Factors {
             n,
+            split,
             l_val: vec![0.0; l_row.len()],
-            u_val: vec![0.0; u_row.len()],
+            u_val: vec![0.0; kept_u_row.len()],
             perm,
             inv,
             l_ptr,
             l_row,
-            u_ptr,
-            u_row,
+            u_ptr: kept_u_ptr,
+            u_row: kept_u_row,
+            tail: faer::Mat::zeros(tail_rows, tail_rows),
+            tail_perm: vec![0; tail_rows],
+            tail_perm_inv: vec![0; tail_rows],
+            tail_scratch: RefCell::new(tail_scratch),
             work: vec![0.0; n],
             solve_work: RefCell::new(vec![0.0; n]),
             a,
         }
     }
 
-    /// Entries of L and U together.
+    /// Entries of L and U together (the trailing block counted whole).
+    #[cfg(test)]
     fn fill(&self) -> usize {
-        self.l_row.len() + self.u_row.len()
+        self.l_row.len() + self.u_row.len() + self.tail.nrows() * self.tail.ncols()
     }
 
     /// Left-looking elimination of the matrix now in `self.a`; `false` if a
@@ -185,6 +245,7 @@ impl Factors {
         let col_ptr = m.symbolic().col_ptr();
         let row_idx = m.symbolic().row_idx();
         let values = m.val();
+        let split = self.split;
         let x = &mut self.work;
         for k in 0..self.n {
             let old = self.perm[k];
@@ -193,7 +254,11 @@ impl Factors {
                 x[self.inv[row_idx[p]]] = values[p];
                 column_scale = column_scale.max(values[p].abs());
             }
-            let (u_start, u_end) = (self.u_ptr[k], self.u_ptr[k + 1] - 1);
+            let (u_start, u_end) = if k < split {
+                (self.u_ptr[k], self.u_ptr[k + 1] - 1)
+            } else {
+                (self.u_ptr[k], self.u_ptr[k + 1])
+            };
             for p in u_start..u_end {
                 let j = self.u_row[p];
                 let xj = x[j];
@@ -203,6 +268,13 @@ impl Factors {
                 }
                 self.u_val[p] = xj;
                 x[j] = 0.0;
+            }
+            if k >= split {
+                // What is left is column k of the Schur complement.
+                let tail_column = self.tail.col_as_slice_mut(k - split);
+                tail_column.copy_from_slice(&x[split..]);
+                x[split..].fill(0.0);
+                continue;
             }
             let pivot = x[k];
             x[k] = 0.0;
@@ -219,7 +291,21 @@ impl Factors {
                 x[i] = 0.0;
             }
         }
-        true
+        if split == self.n {
+            return true;
+        }
+        faer::linalg::lu::partial_pivoting::factor::lu_in_place(
+            self.tail.as_mut(),
+            &mut self.tail_perm,
+            &mut self.tail_perm_inv,
+            faer::Par::Seq,
+            faer::dyn_stack::MemStack::new(&mut self.tail_scratch.borrow_mut()),
+            Default::default(),
+        );
+        (0..self.tail.nrows()).all(|i| {
+            let pivot = self.tail[(i, i)];
+            pivot.is_finite() && pivot != 0.0
+        })
     }
 
     /// Solves `A x = b` (or `Aᵀ x = b`) in place.
@@ -229,16 +315,26 @@ impl Factors {
         for k in 0..self.n {
             y[k] = b[self.perm[k]];
         }
+        let split = self.split;
         if !transpose {
-            // P A Pᵀ = L U: forward with L, backward with U.
-            for j in 0..self.n {
+            // P A Pᵀ = L U: forward with L, backward with U; the trailing
+            // block's own L and U in between.
+            for j in 0..split {
                 let yj = y[j];
                 if yj != 0.0 {
                     let range = self.l_ptr[j]..self.l_ptr[j + 1];
                     scatter_sub(y, &self.l_row[range.clone()], &self.l_val[range], yj);
                 }
             }
-            for k in (0..self.n).rev() {
+            self.solve_tail(&mut y[split..], false);
+            for k in (split..self.n).rev() {
+                let yk = y[k];
+                if yk != 0.0 {
+                    let range = self.u_ptr[k]..self.u_ptr[k + 1];
+                    scatter_sub(y, &self.u_row[range.clone()], &self.u_val[range], yk);
+                }
+            }
+            for k in (0..split).rev() {
                 let diag = self.u_ptr[k + 1] - 1;
                 let yk = y[k] / self.u_val[diag];
                 y[k] = yk;
@@ -249,13 +345,18 @@ impl Factors {
             }
         } else {
             // (L U)ᵀ = Uᵀ Lᵀ: forward with Uᵀ, backward with Lᵀ.
-            for k in 0..self.n {
+            for k in 0..split {
                 let diag = self.u_ptr[k + 1] - 1;
                 let range = self.u_ptr[k]..diag;
                 let s = y[k] - gather_dot(y, &self.u_row[range.clone()], &self.u_val[range]);
                 y[k] = s / self.u_val[diag];
             }
-            for j in (0..self.n).rev() {
+            for k in split..self.n {
+                let range = self.u_ptr[k]..self.u_ptr[k + 1];
+                y[k] -= gather_dot(y, &self.u_row[range.clone()], &self.u_val[range]);
+            }
+            self.solve_tail(&mut y[split..], true);
+            for j in (0..split).rev() {
                 let range = self.l_ptr[j]..self.l_ptr[j + 1];
                 y[j] -= gather_dot(y, &self.l_row[range.clone()], &self.l_val[range]);
             }
@@ -264,6 +365,62 @@ impl Factors {
             b[self.perm[k]] = y[k];
         }
     }
+
+    /// Solves with the dense trailing block's LU (or its transpose).
+    fn solve_tail(&self, y: &mut [f64], transpose: bool) {
+        use faer::linalg::lu::partial_pivoting::solve;
+        let rows = y.len();
+        if rows == 0 {
+            return;
+        }
+        let permutation =
+            faer::perm::PermRef::new_checked(&self.tail_perm, &self.tail_perm_inv, rows);
+        let rhs = faer::MatMut::from_column_major_slice_mut(y, rows, 1);
+        let mut scratch = self.tail_scratch.borrow_mut();
+        let stack = faer::dyn_stack::MemStack::new(&mut scratch);
+        let lu = self.tail.as_ref();
+        if transpose {
+            solve::solve_transpose_in_place_with_conj(
+                lu,
+                lu,
+                permutation,
+                faer::Conj::No,
+                rhs,
+                faer::Par::Seq,
+                stack,
+            );
+        } else {
+            solve::solve_in_place_with_conj(
+                lu,
+                lu,
+                permutation,
+                faer::Conj::No,
+                rhs,
+                faer::Par::Seq,
+                stack,
+            );
+        }
+    }
+}
+
+/// Where the dense trailing block starts: the first position from which
+/// the rest of L's strictly lower triangle is at least
+/// [`DENSE_TAIL_DENSITY`] full, over at least [`DENSE_TAIL_MIN_ROWS`]
+/// rows; `l_counts.len()` (no dense block) if there is none.
+fn dense_tail_start(l_counts: &[usize]) -> usize {
+    let n = l_counts.len();
+    let mut entries = 0usize;
+    let mut start = n;
+    for s in (0..n).rev() {
+        // Every row of L's column s lies after s, inside the block from s.
+        entries += l_counts[s];
+        let rows = n - s;
+        let slots = rows * (rows - 1) / 2;
+        if rows >= DENSE_TAIL_MIN_ROWS && entries as f64 >= DENSE_TAIL_DENSITY * slots as f64 {
+            start = s;
+        }
+    }
+    start
 }
 
 /// `y[rows[q]] -= values[q] * factor` for every q. The rows come from the
@@ -331,10 +488,8 @@ impl LaLinearSolver<FaerSparseMat<f64>> for StaticPivotLu {
             .state
             .as_mut()
             .expect("set_sparsity before set_linearisation");
-        self.using_fallback = self.delegated || {
-            op.matrix_inplace(&mut state.a);
-            !state.factor()
-        };
+        op.matrix_inplace(&mut state.a);
+        self.using_fallback = !state.factor();
         if self.using_fallback {
             LaLinearSolver::set_linearisation(&mut self.fallback, op);
         }
@@ -372,10 +527,8 @@ impl LaLinearSolver<FaerSparseMat<f64>> for StaticPivotLu {
     ) {
         let a =
             FaerSparseMat::new_from_sparsity(op.nrows(), op.ncols(), op.sparsity(), *op.context());
-        let state = Factors::new(a);
-        self.delegated = state.fill() > DENSE_FILL_PER_ROW * state.n.max(1);
-        self.state = Some(state);
-        self.using_fallback = self.delegated;
+        self.state = Some(Factors::new(a));
+        self.using_fallback = false;
         LaLinearSolver::set_sparsity(&mut self.fallback, op);
     }
 }
@@ -459,11 +612,10 @@ mod tests {
         }
     }
 
-    #[test]
-    fn solves_an_iteration_matrix_of_a_random_network() {
-        // I − γJ of a pseudo-random sparse network: unsymmetric pattern,
-        // diagonally dominant by columns like a mass-action Jacobian.
-        let n = 60;
+    /// I − γJ of a pseudo-random sparse network with `per_column`
+    /// off-diagonal entries per column: unsymmetric pattern, diagonally
+    /// dominant by columns like a mass-action Jacobian.
+    fn random_network_matrix(n: usize, per_column: usize) -> Vec<(usize, usize, f64)> {
         let mut seed: u64 = 0x2545_F491_4F6C_DD1D;
         let mut next = move || {
             seed ^= seed << 13;
@@ -474,7 +626,7 @@ mod tests {
         let mut entries = Vec::new();
         for j in 0..n {
             let mut column = 0.0;
-            for _ in 0..3 {
+            for _ in 0..per_column {
                 let i = (next() % n as u64) as usize;
                 if i != j {
                     let v = -((next() % 1000) as f64) / 1000.0;
@@ -484,7 +636,63 @@ mod tests {
             }
             entries.push((j, j, 1.0 + column));
         }
+        entries
+    }
+
+    fn split_of(n: usize, entries: &[(usize, usize, f64)]) -> (usize, usize) {
+        let (op, _) = matrix(n, entries);
+        let mut lu = StaticPivotLu::default();
+        LaLinearSolver::set_sparsity(&mut lu, &op);
+        let state = lu.state.as_ref().expect("a pattern");
+        (state.split, state.fill())
+    }
+
+    #[test]
+    fn solves_an_iteration_matrix_of_a_random_network() {
+        let entries = random_network_matrix(60, 3);
+        assert_eq!(split_of(60, &entries).0, 60, "sparse throughout");
+        check(60, &entries, false);
+    }
+
+    #[test]
+    fn factors_a_filled_in_tail_as_a_dense_block() {
+        // Six partners per column at random: no small separators, so the
+        // end of the minimum-degree order fills in.
+        let n = 300;
+        let entries = random_network_matrix(n, 6);
+        let (split, fill) = split_of(n, &entries);
+        assert!(
+            split < n - DENSE_TAIL_MIN_ROWS,
+            "dense block from {split} (fill {fill})"
+        );
+        assert!(split > 0, "the sparse head is kept");
         check(n, &entries, false);
+    }
+
+    #[test]
+    fn a_singular_dense_tail_falls_back_to_the_pivoting_lu() {
+        // The filled-in matrix above with the values of the last column in
+        // the elimination order set to zero (its pattern kept): singular,
+        // and it shows only in the dense block, whose pivoting LU meets a
+        // zero column. The fallback then reports the singular matrix
+        // instead of the dense solve returning infinities.
+        let n = 300;
+        let mut entries = random_network_matrix(n, 6);
+        let (op, _) = matrix(n, &entries);
+        let mut lu = StaticPivotLu::default();
+        LaLinearSolver::set_sparsity(&mut lu, &op);
+        let state = lu.state.as_ref().expect("a pattern");
+        assert!(state.split < n);
+        let last = state.perm[n - 1];
+        for entry in entries.iter_mut().filter(|e| e.1 == last) {
+            entry.2 = 0.0;
+        }
+        let (op, _) = matrix(n, &entries);
+        LaLinearSolver::set_linearisation(&mut lu, &op);
+        assert!(
+            lu.using_fallback,
+            "a singular block is not solved by the dense LU"
+        );
     }
 
     #[test]
