@@ -17,4 +17,4 @@ pub use system::{CompileError, CompiledSystem, StateLayout, Workspace, constants
 
 /// Above this many state variables the solver uses a sparse Jacobian and
 /// sparse LU; at or below it, dense. Measured: see docs/simulation.md.
-pub const SPARSE_THRESHOLD: usize = 100;
+pub const SPARSE_THRESHOLD: usize = 60;
