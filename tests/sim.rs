@@ -744,3 +744,38 @@ fn robertson_steady_state_is_found_despite_its_singular_jacobian() {
     assert!(state["B"].as_f64().unwrap().abs() < 1e-6, "{state}");
     assert_eq!(v["stable"], true);
 }
+
+#[test]
+fn a_model_with_nothing_to_integrate_runs_and_has_a_steady_state() {
+    // Every species fixed or in no step: the state is constant and the
+    // observables follow their formulas (g = k·t exactly; common practice).
+    let dir = tempfile::tempdir().unwrap();
+    let m = write_model(
+        dir.path(),
+        "constant.mech",
+        "units concentration uM, time s\n\
+         fixed F = 2 uM\nspecies A = 1 uM\nparam k = 3 /s\n\
+         observe o = k*F\nobserve g = k*F*t\n",
+    );
+    for extra in [&[][..], &["--reduced"], &["--method", "esdirk"]] {
+        let (header, rows) =
+            simulate_csv(dir.path(), &m, &[&["--times", "0,1.5,4"], extra].concat());
+        assert_eq!(header, ["t", "A", "o", "g"]);
+        assert_eq!(rows.len(), 3);
+        for r in &rows {
+            assert_eq!(r[1], 1.0);
+            assert_eq!(r[2], 6.0);
+            assert!((r[3] - 6.0 * r[0]).abs() <= 1e-12 * (1.0 + r[3].abs()));
+        }
+    }
+    let json = run_ok(&["steady", m.to_str().unwrap(), "--format", "json"]);
+    let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+    assert_eq!(v["state"]["A"], 1.0);
+    assert_eq!(v["stable"], true);
+    assert_eq!(v["eigenvalues"].as_array().unwrap().len(), 0);
+    // And an empty file: a run of nothing, not a failure.
+    let empty = write_model(dir.path(), "empty.mech", "");
+    let (header, rows) = simulate_csv(dir.path(), &empty, &["--times", "0,1"]);
+    assert_eq!(header, ["t"]);
+    assert_eq!(rows.len(), 2);
+}

@@ -107,7 +107,7 @@ pub fn run(args: &Args) -> ExitCode {
                 }
             }
             if result.eigenvalues.is_empty() {
-                println!("  (none: every species is fixed by a conservation law)");
+                println!("  (none: no species varies independently)");
             }
             println!(
                 "{stability} (max |dy/dt| = {:.2e} {conc}/{time})",

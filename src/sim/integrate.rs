@@ -212,7 +212,22 @@ macro_rules! simulate_with {
                     out.rows.push(row.clone());
                     next_out += 1;
                 }
-                if seg_end > t_start {
+                if seg_end > t_start && n == 0 {
+                    // Nothing is integrated (every species fixed, in no step,
+                    // or dependent): the state is constant and the solver,
+                    // which cannot take a step of size zero, is not needed.
+                    while next_out < times.len()
+                        && (times[next_out] < seg_end
+                            || (last_segment && times[next_out] <= seg_end))
+                    {
+                        system.outputs(&mut workspace.borrow_mut(), &[], times[next_out], &mut row);
+                        out.times.push(times[next_out]);
+                        out.rows.push(row.clone());
+                        next_out += 1;
+                    }
+                    system.outputs(&mut workspace.borrow_mut(), &[], seg_end, &mut row);
+                    species.copy_from_slice(&row[..system.species_count()]);
+                } else if seg_end > t_start {
                     problem.t0 = t_start;
                     cache.borrow_mut().valid = false;
                     let last_state = match settings.method {
