@@ -779,3 +779,39 @@ fn a_model_with_nothing_to_integrate_runs_and_has_a_steady_state() {
     assert_eq!(header, ["t"]);
     assert_eq!(rows.len(), 2);
 }
+
+#[test]
+fn a_scan_asking_for_more_workers_than_points_gives_the_same_answer() {
+    // A -> B: A(t) = A0 exp(-k t) (first-order decay; common practice).
+    let dir = tempfile::tempdir().unwrap();
+    let m = write_model(
+        dir.path(),
+        "decay.mech",
+        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
+    );
+    let scan = |jobs: &str| {
+        run_ok(&[
+            "scan",
+            m.to_str().unwrap(),
+            "--vary",
+            "k=0.5..2:3",
+            "--measure",
+            "A",
+            "--at",
+            "1",
+            "--jobs",
+            jobs,
+        ])
+    };
+    let one = scan("1");
+    assert_eq!(scan("100000"), one);
+    let (_, rows) = parse_csv_text(&one);
+    for r in &rows {
+        assert!(
+            (r[1] - (-r[0]).exp()).abs() <= 1e-5,
+            "k = {}: A(1) = {}",
+            r[0],
+            r[1]
+        );
+    }
+}

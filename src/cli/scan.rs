@@ -5,6 +5,9 @@
 
 use super::common::{self, run_error, usage_error, write_atomic};
 use crate::sim::scan::{Axis, MeasureAt, Scan, check_axes, parse_axis, run_scan};
+
+/// The most worker threads a scan starts, whatever `--jobs` asks for.
+const MAX_JOBS: usize = 256;
 use crate::sim::{Method, Settings};
 use std::io::IsTerminal;
 use std::path::PathBuf;
@@ -40,7 +43,8 @@ pub struct Args {
     /// Draw a line (one name varied) or heat map (two) to .svg or .png.
     #[arg(long, value_name = "PATH")]
     pub plot: Option<PathBuf>,
-    /// Worker threads (default: one per core).
+    /// Worker threads (default and 0: one per core; at most one per point
+    /// and at most 256).
     #[arg(long, value_name = "N")]
     pub jobs: Option<usize>,
     /// Relative tolerance.
@@ -181,10 +185,11 @@ pub fn run(args: &Args) -> ExitCode {
         at,
         settings,
     };
-    let pool = match rayon::ThreadPoolBuilder::new()
-        .num_threads(args.jobs.unwrap_or(0))
-        .build()
-    {
+    // More workers than points do nothing but cost a thread each (and
+    // thousands of threads take longer to start than the scan itself);
+    // rayon reads 0 as one per core.
+    let workers = args.jobs.unwrap_or(0).min(total).min(MAX_JOBS);
+    let pool = match rayon::ThreadPoolBuilder::new().num_threads(workers).build() {
         Ok(p) => p,
         Err(e) => return usage_error(format!("--jobs: {e}")),
     };
