@@ -815,3 +815,93 @@ fn a_scan_asking_for_more_workers_than_points_gives_the_same_answer() {
         );
     }
 }
+
+#[test]
+fn set_values_take_units_of_the_right_dimension_only() {
+    // 1 /mM/min = 1/(1000 uM · 60 s) (SI prefixes and the minute: BIPM SI
+    // Brochure, 9th ed.).
+    let dir = tempfile::tempdir().unwrap();
+    let m = write_model(
+        dir.path(),
+        "bind.mech",
+        "units concentration uM, time s\n\
+         species E = 1 uM\nspecies S = 10 uM\nspecies ES\n\
+         param kon = 2 /uM/s\nparam koff = 3 /s\n\
+         step bind E + S <=> ES with kon, koff\nobserve kon_used = kon\n",
+    );
+    let file = m.to_str().unwrap();
+    let (header, rows) = simulate_csv(dir.path(), &m, &["--times", "0", "--set", "kon=1 /mM/min"]);
+    let column = header.iter().position(|h| h == "kon_used").unwrap();
+    assert!((rows[0][column] - 1.0 / 60_000.0).abs() <= 1e-18);
+    for (option, value) in [
+        ("--set", "kon=1 /s"),
+        ("--set", "kon=1 uM"),
+        ("--set", "E=3 min"),
+        ("--set", "S=5 /s"),
+    ] {
+        let out = ratewright(&["run", file, "--times", "0", option, value]);
+        assert_eq!(out.status.code(), Some(2), "{option} {value} is refused");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains("cannot be a value of"), "{err}");
+    }
+    let out = ratewright(&[
+        "scan",
+        file,
+        "--vary",
+        "kon=1 /s..2 /s:3",
+        "--measure",
+        "ES",
+        "--at",
+        "1",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+    // A bare number is in the model's default units and always fits.
+    run_ok(&["run", file, "--times", "0", "--set", "kon=5"]);
+}
+
+#[test]
+fn setting_a_species_of_a_declared_total_keeps_the_total() {
+    // `--set ES=1` must mean what writing `species ES = 1 uM` in the file
+    // means: the declared total E_t = E + ES = 50 uM holds and E starts at 49
+    // (the conservation law the file declares; LANGUAGE.md).
+    let dir = tempfile::tempdir().unwrap();
+    let text = |es: &str| {
+        format!(
+            "units concentration uM, time s\n\
+             species S = 20 uM\nspecies P\nspecies E\nspecies ES{es}\n\
+             param k1 = 2 /uM/s\nparam km1 = 40 /s\nparam k2 = 12 /s\n\
+             step bind E + S <=> ES with k1, km1\nstep cat ES -> E + P with k2\n\
+             total E_t = E + ES = 50 uM\n"
+        )
+    };
+    let set_on_command_line = write_model(dir.path(), "a.mech", &text(""));
+    let written_in_file = write_model(dir.path(), "b.mech", &text(" = 1 uM"));
+    let times = ["--times", "0,0.01,1"];
+    let (_, from_set) = simulate_csv(
+        dir.path(),
+        &set_on_command_line,
+        &[&times[..], &["--set", "ES=1"]].concat(),
+    );
+    let (_, from_file) = simulate_csv(dir.path(), &written_in_file, &times);
+    assert_eq!(from_set[0][3], 49.0, "E starts at 50 - 1");
+    for (a, b) in from_set.iter().zip(&from_file) {
+        for k in 0..a.len() {
+            assert!((a[k] - b[k]).abs() <= 1e-9 * (1.0 + b[k].abs()));
+        }
+        assert!(
+            (a[3] + a[4] - 50.0).abs() <= 1e-9,
+            "E + ES = E_t at t = {}",
+            a[0]
+        );
+    }
+    // More than the total holds is refused, not run with a larger total.
+    let out = ratewright(&[
+        "run",
+        set_on_command_line.to_str().unwrap(),
+        "--times",
+        "0",
+        "--set",
+        "ES=60",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+}

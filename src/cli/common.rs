@@ -55,13 +55,15 @@ pub fn run_error(message: impl std::fmt::Display) -> ExitCode {
 }
 
 /// Parses `NAME=VALUE[unit]` as given to `--set`, converting to the model's
-/// default units.
-pub fn parse_assignment(text: &str, units: Units) -> Result<(String, f64), String> {
+/// default units; a unit of the wrong dimension for NAME is refused.
+pub fn parse_assignment(text: &str, model: &model::Model) -> Result<(String, f64), String> {
     let (name, value) = text
         .split_once('=')
         .ok_or_else(|| format!("`{text}` is not NAME=VALUE"))?;
-    let (v, _) = model::units::parse_quantity(value, units)?;
-    Ok((name.trim().to_string(), v))
+    let name = name.trim();
+    let (v, dim) = model::units::parse_quantity(value, model.units)?;
+    model.check_value_dimension(name, value, dim)?;
+    Ok((name.to_string(), v))
 }
 
 /// Parses a time such as `20 min` or `600` in the model's time unit.

@@ -76,7 +76,7 @@ pub(crate) fn model_with_overrides(file: &Path, set: &[String]) -> Result<Model,
     let (model, _sources) = load_model(file, false)?;
     let mut overrides = Vec::new();
     for s in set {
-        match common::parse_assignment(s, model.units) {
+        match common::parse_assignment(s, &model) {
             Ok(pair) => overrides.push(pair),
             Err(e) => return Err(usage_error(format!("--set {s}: {e}"))),
         }

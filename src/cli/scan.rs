@@ -116,7 +116,7 @@ pub fn run(args: &Args) -> ExitCode {
     if !args.set.is_empty() {
         let mut overrides = Vec::new();
         for s in &args.set {
-            match common::parse_assignment(s, model.units) {
+            match common::parse_assignment(s, &model) {
                 Ok(p) => overrides.push(p),
                 Err(e) => return usage_error(format!("--set {s}: {e}")),
             }

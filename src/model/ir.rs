@@ -167,6 +167,36 @@ pub struct Model {
 
 impl Model {
     /// Finds a named item of any kind.
+    /// The dimension a value given for `name` must have: concentration for
+    /// species, fixed species and totals; a param's own dimension when it
+    /// is known; `None` when nothing is known (observables, unknown names).
+    pub fn dimension_of(&self, name: &str) -> Option<super::Dim> {
+        match self.lookup(name)? {
+            Sym::Species(_) | Sym::Fixed(_) | Sym::Total(_) => Some(super::Dim::CONC),
+            Sym::Param(i) => self.params[i].dim,
+            Sym::Observable(_) => None,
+        }
+    }
+
+    /// Refuses a value written with a unit whose dimension is not the one
+    /// `name` needs (`--set E_t=3 min`); a bare number is in the model's
+    /// default units and always fits.
+    pub fn check_value_dimension(
+        &self,
+        name: &str,
+        text: &str,
+        given: Option<super::Dim>,
+    ) -> Result<(), String> {
+        match (given, self.dimension_of(name)) {
+            (Some(given), Some(needed)) if given != needed => Err(format!(
+                "`{}` cannot be a value of `{name}`, which is in {} (the unit given has dimension {given})",
+                text.trim(),
+                needed.display_in(self.units)
+            )),
+            _ => Ok(()),
+        }
+    }
+
     pub fn lookup(&self, name: &str) -> Option<Sym> {
         if let Some(i) = self.species.iter().position(|s| s.name == name) {
             return Some(Sym::Species(i));
@@ -339,6 +369,7 @@ impl Model {
     pub fn with_overrides(&self, overrides: &[(String, f64)]) -> Result<Model, String> {
         let mut m = self.clone();
         let mut set_totals = Vec::new();
+        let mut set_species = Vec::new();
         for (name, value) in overrides {
             if !value.is_finite() {
                 return Err(format!("value for `{name}` is not finite"));
@@ -351,6 +382,7 @@ impl Model {
                     }
                     m.species[i].initial = *value;
                     m.species[i].initial_given = true;
+                    set_species.push(i);
                 }
                 Some(Sym::Fixed(i)) => m.fixed[i].value = *value,
                 Some(Sym::Total(i)) => set_totals.push((i, *value)),
@@ -370,10 +402,40 @@ impl Model {
             }
         }
         m.evaluate_params()?;
-        for (i, v) in set_totals {
+        for (i, v) in set_totals.iter().copied() {
             m.totals[i].value = v;
             m.totals[i].value_given = true;
             m.apply_total_value(i)?;
+        }
+        // A total whose value the file gives keeps it when one of its
+        // species is set, as if the new start value had been written in the
+        // file: a species of the total that was not set takes up the
+        // difference (the one without a written value first).
+        for i in 0..m.totals.len() {
+            let touched = m.totals[i]
+                .terms
+                .iter()
+                .any(|(k, _)| set_species.contains(k));
+            if !m.totals[i].value_given || !touched || set_totals.iter().any(|&(t, _)| t == i) {
+                continue;
+            }
+            let free = |given: bool| {
+                m.totals[i]
+                    .terms
+                    .iter()
+                    .find(|(k, c)| {
+                        !set_species.contains(k)
+                            && !c.is_zero()
+                            && self.species[*k].initial_given == given
+                    })
+                    .map(|(k, _)| *k)
+            };
+            let Some(k) = free(false).or_else(|| free(true)) else {
+                // Every species of the total was set: the total follows them.
+                m.totals[i].value = m.total_from_initial(i);
+                continue;
+            };
+            m.adjust_for_total(i, k)?;
         }
         for i in 0..m.totals.len() {
             if !m.totals[i].value_given {
@@ -417,6 +479,13 @@ impl Model {
                 t.name
             ));
         };
+        self.adjust_for_total(total, k)
+    }
+
+    /// Sets species `k`'s start value so that the total's terms add up to
+    /// its value.
+    fn adjust_for_total(&mut self, total: usize, k: usize) -> Result<(), String> {
+        let t = &self.totals[total];
         let ck = t
             .terms
             .iter()

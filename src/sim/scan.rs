@@ -18,6 +18,9 @@ pub struct Axis {
     pub name: String,
     pub values: Vec<f64>,
     pub log: bool,
+    /// The ends as written and the dimension of their units (`None` for a
+    /// bare number), checked against the varied name in [`check_axes`].
+    pub written_ends: [(String, Option<crate::model::Dim>); 2],
 }
 
 /// Parses `NAME=LO..HI[:N][:log]` (units allowed on LO and HI; N defaults to 21).
@@ -31,8 +34,9 @@ pub fn parse_axis(text: &str, units: Units) -> Result<Axis, String> {
     let (lo, hi) = range
         .split_once("..")
         .ok_or_else(|| format!("`{range}` is not a range LO..HI"))?;
-    let lo = crate::model::units::parse_quantity(lo, units)?.0;
-    let hi = crate::model::units::parse_quantity(hi, units)?.0;
+    let (lo_text, hi_text) = (lo.trim().to_string(), hi.trim().to_string());
+    let (lo, lo_dim) = crate::model::units::parse_quantity(lo, units)?;
+    let (hi, hi_dim) = crate::model::units::parse_quantity(hi, units)?;
     let mut n = 21usize;
     let mut log = false;
     for p in parts {
@@ -55,11 +59,14 @@ pub fn parse_axis(text: &str, units: Units) -> Result<Axis, String> {
     }
     let values = (0..n)
         .map(|i| {
-            let f = if n == 1 {
-                0.0
-            } else {
-                i as f64 / (n - 1) as f64
-            };
+            // The ends exactly as given, not as rounded by the grid formula.
+            if i == 0 {
+                return lo;
+            }
+            if i == n - 1 {
+                return hi;
+            }
+            let f = i as f64 / (n - 1) as f64;
             if log {
                 (lo.ln() + f * (hi.ln() - lo.ln())).exp()
             } else {
@@ -67,7 +74,12 @@ pub fn parse_axis(text: &str, units: Units) -> Result<Axis, String> {
             }
         })
         .collect();
-    Ok(Axis { name, values, log })
+    Ok(Axis {
+        name,
+        values,
+        log,
+        written_ends: [(lo_text, lo_dim), (hi_text, hi_dim)],
+    })
 }
 
 /// Where the measured column is read.
@@ -99,7 +111,11 @@ pub struct ScanResult {
 pub fn check_axes(model: &Model, axes: &[Axis]) -> Result<(), String> {
     for a in axes {
         match model.lookup(&a.name) {
-            Some(Sym::Param(_) | Sym::Species(_) | Sym::Fixed(_) | Sym::Total(_)) => {}
+            Some(Sym::Param(_) | Sym::Species(_) | Sym::Fixed(_) | Sym::Total(_)) => {
+                for (text, dim) in &a.written_ends {
+                    model.check_value_dimension(&a.name, text, *dim)?;
+                }
+            }
             Some(Sym::Observable(_)) => {
                 return Err(format!(
                     "`{}` is an observable; vary a param, species, fixed species or total",
