@@ -905,3 +905,43 @@ fn setting_a_species_of_a_declared_total_keeps_the_total() {
     ]);
     assert_eq!(out.status.code(), Some(2));
 }
+
+#[test]
+fn a_negative_rate_constant_is_refused_from_the_command_line_and_at_scan_points() {
+    // Mass action: rate = k·[A] (common practice), so k < 0 would drive B
+    // below zero; the file check (E0411) is in tests/bad_inputs.
+    let dir = tempfile::tempdir().unwrap();
+    let m = write_model(
+        dir.path(),
+        "decay.mech",
+        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
+    );
+    let file = m.to_str().unwrap();
+    let out = ratewright(&["run", file, "--set", "k=-1"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("cannot be negative"));
+    let csv = run_ok(&[
+        "scan",
+        file,
+        "--vary",
+        "k=-1..1:3",
+        "--measure",
+        "B",
+        "--at",
+        "1",
+    ]);
+    let lines: Vec<&str> = csv.lines().collect();
+    assert_eq!(lines[1], "-1.0,", "the negative point is left empty");
+    // B(1) = 1 - exp(-k) for k = 0 and 1.
+    let (_, rows) = parse_csv_text(
+        &lines[..1]
+            .iter()
+            .chain(&lines[2..])
+            .copied()
+            .collect::<Vec<_>>()
+            .join("\n"),
+    );
+    for r in &rows {
+        assert!((r[1] - (1.0 - (-r[0]).exp())).abs() <= 1e-5);
+    }
+}

@@ -55,6 +55,7 @@ codes! {
     BadParamValue => "E0408", "parameter value cannot be evaluated";
     BadEvent => "E0409", "invalid event";
     BadAssumption => "E0410", "invalid assumption";
+    NegativeRateConstant => "E0411", "negative rate constant";
 
     TotalNotConserved => "E0501", "total is not conserved";
     TotalInconsistent => "E0502", "total value inconsistent with initial values";

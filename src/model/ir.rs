@@ -442,7 +442,31 @@ impl Model {
                 m.totals[i].value = m.total_from_initial(i);
             }
         }
+        if let Some((j, direction, v)) = m.negative_rate_constant() {
+            return Err(format!(
+                "the {direction} constant of step `{}` would be {v}; a rate constant cannot be negative",
+                m.steps[j].name
+            ));
+        }
         Ok(m)
+    }
+
+    /// The first mass-action constant that evaluates below zero, as
+    /// (step, direction, value). Mass action makes a rate proportional to its
+    /// constant, so a negative one runs a step backwards against its
+    /// reactants' depletion and drives concentrations below zero.
+    pub fn negative_rate_constant(&self) -> Option<(usize, &'static str, f64)> {
+        self.steps.iter().enumerate().find_map(|(j, step)| {
+            let Rate::MassAction { forward, reverse } = &step.rate else {
+                return None;
+            };
+            [(Some(forward), "forward"), (reverse.as_ref(), "reverse")]
+                .into_iter()
+                .find_map(|(constant, direction)| {
+                    let v = constant?.eval(&|s| self.initial_value(s), 0.0);
+                    (v < 0.0).then_some((j, direction, v))
+                })
+        })
     }
 
     /// Re-evaluates every param in `param_order`.

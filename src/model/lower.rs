@@ -1274,6 +1274,23 @@ impl<'s> Lowerer<'s> {
                         self.error(d.with_help(format!("a mass-action constant for order {order} is in concentration^{} per time, e.g. `{}`", 1 - order, want.display_in(units))));
                     }
                 }
+                for (k, constant) in [(0, Some(&forward)), (1, reverse.as_ref())] {
+                    let Some(constant) = constant else { continue };
+                    let v = constant.eval(&|s| self.model.initial_value(s), 0.0);
+                    // A value that is not finite was reported with its param.
+                    if v < 0.0 && v.is_finite() {
+                        let dir = if k == 0 { "forward" } else { "reverse" };
+                        let mut d = Diagnostic::error(
+                            Code::NegativeRateConstant,
+                            format!("the {dir} constant of step `{}` is {v}; a rate constant cannot be negative", name.name),
+                        )
+                        .with_label(constants[k].span(), format!("{dir} constant: {v}"));
+                        if let Expr::Name(Sym::Param(p)) = constant {
+                            d = d.with_label(self.model.params[*p].span, "declared here");
+                        }
+                        self.error(d.with_help("mass action makes the rate proportional to its constant: a negative one would drive concentrations below zero; write the step the other way round if that is the direction meant"));
+                    }
+                }
                 Rate::MassAction { forward, reverse }
             }
         };
