@@ -112,6 +112,25 @@ pub fn steady_state_of(
                     && scale > 0.0
                     && moved <= STATIONARY_FRACTION * scale
                 {
+                    // Species still falling but already negligible are
+                    // probably headed for zero (Robertson's A and B go like
+                    // 1/t): try the state with them at zero, which counts
+                    // only if its rates are exactly zero or Newton's method
+                    // converges from it.
+                    let before = previous.as_deref().unwrap_or(species);
+                    let snapped = vanishing_species_at_zero(&model, before, species, scale);
+                    if let Ok((x, iterations)) =
+                        newton(system, &mut w, system.state_from_species(&snapped))
+                    {
+                        let mut values = Vec::new();
+                        system.outputs(&mut w, &x, until, &mut values);
+                        if values[..system.species_count()]
+                            .iter()
+                            .all(|v| *v >= -1e-8 * scale)
+                        {
+                            return Ok(found(system, &mut w, &x, until, values, iterations));
+                        }
+                    }
                     let x = system.state_from_species(species);
                     let mut values = Vec::new();
                     system.outputs(&mut w, &x, until, &mut values);
@@ -127,6 +146,37 @@ pub fn steady_state_of(
         "no steady state found: integrated to t = {:e} without Newton's method converging ({last_reason}); the system may oscillate, grow without bound, or approach its steady state too slowly",
         until / 10.0
     )))
+}
+
+/// The species values `now` with every species that fell since `before`
+/// and is below [`STATIONARY_FRACTION`] of `scale` set to zero; each total's
+/// value is then restored on its largest species, so the state stays in the
+/// stoichiometric class.
+fn vanishing_species_at_zero(model: &Model, before: &[f64], now: &[f64], scale: f64) -> Vec<f64> {
+    let mut snapped: Vec<f64> = now
+        .iter()
+        .zip(before)
+        .map(|(&v, &b)| {
+            if v.abs() <= STATIONARY_FRACTION * scale && v < b {
+                0.0
+            } else {
+                v
+            }
+        })
+        .collect();
+    for total in &model.totals {
+        let weighted = |i: usize, c| crate::model::coef_f64(c) * snapped[i];
+        let Some(&(largest, c)) = total.terms.iter().max_by(|a, b| {
+            weighted(a.0, a.1)
+                .abs()
+                .total_cmp(&weighted(b.0, b.1).abs())
+        }) else {
+            continue;
+        };
+        let sum: f64 = total.terms.iter().map(|&(i, c)| weighted(i, c)).sum();
+        snapped[largest] += (total.value - sum) / crate::model::coef_f64(c);
+    }
+    snapped
 }
 
 /// Newton with backtracking on ||F||²; returns the state and iteration count.
