@@ -1065,8 +1065,10 @@ fn printed_expressions_evaluate_the_same_in_python_c_octave_rust_and_the_mechani
         .expect("octave-cli runs");
     check("octave", &numbers(&String::from_utf8_lossy(&out.stdout)));
     // The mechanism language: printed as observables, parsed back by the
-    // front end and evaluated by the IR.
-    let mut mech = String::from("species a = 1.3\nspecies b = 0.7\nspecies c = 2.1\n");
+    // front end and evaluated by the IR. The random expressions add terms of
+    // any dimension, so a, b and c are params of unknown dimension here (as
+    // species they would be concentrations, and the sums errors).
+    let mut mech = String::from("param a = 1.3\nparam b = 0.7\nparam c = 2.1\n");
     for (k, (e, _)) in samples.iter().enumerate() {
         mech += &format!("observe o{k} = {}\n", print_expr(e, &abc, Syntax::Mech));
     }

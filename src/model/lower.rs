@@ -958,6 +958,8 @@ impl<'s> Lowerer<'s> {
         for &i in &self.model.param_order.clone() {
             if let Some(e) = exprs[i].take() {
                 let v = e.eval(&|s| self.model.initial_value(s), 0.0);
+                let what = format!("param `{}`", self.model.params[i].name);
+                self.report_mismatched_sum(&e, &what, self.model.params[i].span);
                 let dim = self.infer_dim(&e);
                 if !v.is_finite() {
                     self.error(
@@ -1062,6 +1064,90 @@ impl<'s> Lowerer<'s> {
                 }
             },
         }
+    }
+
+    /// The dimensions of the first sum, difference, `min` or `max` in `e`
+    /// whose two sides have known, different dimensions (a bare number
+    /// added to a dimensioned term takes that term's dimension).
+    fn mismatched_sum(&self, e: &Expr) -> Option<(Dim, Dim)> {
+        self.dim_or_mismatch(e).err()
+    }
+
+    /// [`Self::infer_dim`] in one bottom-up pass that also stops at the
+    /// first mismatched sum (calling `infer_dim` at every node would be
+    /// quadratic in a long sum).
+    fn dim_or_mismatch(&self, e: &Expr) -> Result<Option<Dim>, (Dim, Dim)> {
+        let same = |a: &Expr, da: Option<Dim>, b: &Expr, db: Option<Dim>| match (da, db) {
+            (Some(x), Some(y)) if x == y => Ok(Some(x)),
+            (Some(x), Some(y)) if x == Dim::NONE && is_plain_number(a) => Ok(Some(y)),
+            (Some(x), Some(y)) if y == Dim::NONE && is_plain_number(b) => Ok(Some(x)),
+            (Some(x), Some(y)) => Err((x, y)),
+            _ => Ok(None),
+        };
+        Ok(match e {
+            Expr::Neg(a) => self.dim_or_mismatch(a)?,
+            Expr::Binary(op, a, b) => {
+                let (da, db) = (self.dim_or_mismatch(a)?, self.dim_or_mismatch(b)?);
+                match op {
+                    BinOp::Add | BinOp::Sub => same(a, da, b, db)?,
+                    BinOp::Mul => da.zip(db).map(|(x, y)| x.mul(y)),
+                    BinOp::Div => da.zip(db).map(|(x, y)| x.div(y)),
+                    BinOp::Pow => match **b {
+                        Expr::Number(p) if p == p.trunc() && p.abs() < 100.0 => {
+                            da.map(|d| d.powi(p as i32))
+                        }
+                        _ if da == Some(Dim::NONE) => Some(Dim::NONE),
+                        _ => None,
+                    },
+                }
+            }
+            Expr::Call(f, args) => {
+                let dims = args
+                    .iter()
+                    .map(|a| self.dim_or_mismatch(a))
+                    .collect::<Result<Vec<_>, _>>()?;
+                if let (Func::Min | Func::Max, [a, b], [da, db]) =
+                    (f, args.as_slice(), dims.as_slice())
+                {
+                    same(a, *da, b, *db)?;
+                }
+                let first = dims.first().copied().flatten();
+                match f {
+                    Func::Abs | Func::Min | Func::Max => {
+                        first.filter(|d| dims.iter().all(|x| *x == Some(*d)))
+                    }
+                    Func::Sqrt => first
+                        .filter(|d| d.conc % 2 == 0 && d.time % 2 == 0)
+                        .map(|d| Dim::new(d.conc / 2, d.time / 2)),
+                    _ => dims
+                        .iter()
+                        .all(|d| *d == Some(Dim::NONE))
+                        .then_some(Dim::NONE),
+                }
+            }
+            _ => self.infer_dim(e),
+        })
+    }
+
+    /// Reports a sum of different dimensions in `e` (the expression of
+    /// `what`, written at `span`); true if there was one.
+    fn report_mismatched_sum(&mut self, e: &Expr, what: &str, span: Span) -> bool {
+        let Some((x, y)) = self.mismatched_sum(e) else {
+            return false;
+        };
+        let units = self.model.units;
+        let d = Diagnostic::error(
+            Code::DimensionMismatch,
+            format!(
+                "{what} adds or compares quantities of different dimensions: {} and {}",
+                x.display_in(units),
+                y.display_in(units)
+            ),
+        )
+        .with_label(span, format!("{} against {}", x.display_in(units), y.display_in(units)))
+        .with_help("terms of a sum, and the two sides of `min` or `max`, must have the same dimension; check the units of the params used");
+        self.error(d);
+        true
     }
 
     fn lower_terms(&mut self, side: &Side) -> Vec<Term> {
@@ -1294,7 +1380,17 @@ impl<'s> Lowerer<'s> {
                 Rate::MassAction { forward, reverse }
             }
         };
-        if let Rate::Law(e) = &rate {
+        let law_mismatch = match &rate {
+            Rate::Law(e) => self.report_mismatched_sum(
+                e,
+                &format!("the law of step `{}`", name.name),
+                *rate_span,
+            ),
+            Rate::MassAction { .. } => false,
+        };
+        if let Rate::Law(e) = &rate
+            && !law_mismatch
+        {
             match self.infer_dim(e) {
                 Some(d) if d == Dim::RATE => {}
                 Some(d) => self.diags.push(
@@ -1329,6 +1425,8 @@ impl<'s> Lowerer<'s> {
             return;
         }
         if let Some(e) = self.resolve(expr, &|_| true, "an observable") {
+            let what = format!("observable `{}`", name.name);
+            self.report_mismatched_sum(&e, &what, item.span);
             self.model.observables[i].expr = e;
         }
     }
