@@ -962,3 +962,25 @@ fn a_negative_rate_constant_is_refused_from_the_command_line_and_at_scan_points(
         assert!((r[1] - (1.0 - (-r[0]).exp())).abs() <= 1e-5);
     }
 }
+
+#[test]
+fn output_times_are_exactly_those_asked_for() {
+    // A -> B: A(t) = exp(-k t) (first-order decay; common practice).
+    let dir = tempfile::tempdir().unwrap();
+    let m = write_model(
+        dir.path(),
+        "decay.mech",
+        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
+    );
+    let (_, rows) = simulate_csv(dir.path(), &m, &["--times", "0,1,1,2"]);
+    let times: Vec<f64> = rows.iter().map(|r| r[0]).collect();
+    assert_eq!(times, [0.0, 1.0, 1.0, 2.0]);
+    assert_eq!(rows[1], rows[2]);
+    assert!((rows[1][1] - (-1f64).exp()).abs() <= 1e-5);
+    let out = ratewright(&["run", m.to_str().unwrap(), "--times", "5,1,3"]);
+    assert_eq!(
+        out.status.code(),
+        Some(2),
+        "a decreasing list is refused, not reordered"
+    );
+}

@@ -107,8 +107,14 @@ fn output_times(args: &Args, model: &Model, prepared: &Prepared) -> Result<Vec<f
         if v.iter().any(|t| *t < 0.0) {
             return Err("--times: times must not be negative (the run starts at t = 0)".into());
         }
-        v.sort_by(f64::total_cmp);
-        v.dedup();
+        // The rows are exactly the times asked for, in that order, so a
+        // list out of order is refused rather than silently reordered.
+        if let Some(w) = v.windows(2).find(|w| w[1] < w[0]) {
+            return Err(format!(
+                "--times: give the times in increasing order ({} comes after {})",
+                w[1], w[0]
+            ));
+        }
         return Ok(v);
     }
     let until = match &args.until {
