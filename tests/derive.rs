@@ -702,12 +702,20 @@ fn mech_output_is_a_runnable_mechanism() {
         );
         let r = ratewright(&["derive", &s, "--format", "mech", "-o", &o]);
         assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
-        let check = ratewright(&["check", &o]);
+        // Values carry their units, so the file checks without warnings,
+        // and it is in canonical layout (a pre-commit hook passes it).
+        let check = ratewright(&["check", "--deny-warnings", &o]);
         assert!(
             check.status.success(),
             "check rejects the derived mechanism:\n{}\n{}",
             std::fs::read_to_string(&out).unwrap(),
             String::from_utf8_lossy(&check.stderr)
+        );
+        let fmt = ratewright(&["fmt", "--check", &o]);
+        assert!(
+            fmt.status.success(),
+            "{}",
+            String::from_utf8_lossy(&fmt.stderr)
         );
         let csv = dir.path().join(format!("{model}.csv"));
         let run = ratewright(&["run", &o, "--until", "10", "-o", &csv.to_string_lossy()]);

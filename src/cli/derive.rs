@@ -129,7 +129,7 @@ pub fn run(args: &Args) -> ExitCode {
                 .map(|s| s.to_string_lossy().to_string())
                 .unwrap_or_default();
             match output::mechanism(&derivation, &model, &source) {
-                Ok(s) => s,
+                Ok(s) => in_canonical_layout(s),
                 Err(e) => return usage_error(e),
             }
         }
@@ -155,4 +155,17 @@ pub fn run(args: &Args) -> ExitCode {
         }
     }
     ExitCode::SUCCESS
+}
+
+/// The derived mechanism as `fmt` would lay it out, so that a derived file
+/// kept under version control passes `fmt --check` as written.
+fn in_canonical_layout(text: String) -> String {
+    let mut sources = crate::diagnostics::SourceMap::new();
+    let id = sources.add(std::path::PathBuf::from("derived.mech"), text.clone());
+    match crate::syntax::parse(&text, id) {
+        Ok(tree) => crate::syntax::format::format_file(&tree, &text),
+        // The printer writes the language; if it ever did not, the text as
+        // printed is still the best output (and `check` will locate it).
+        Err(_) => text,
+    }
 }

@@ -10,7 +10,7 @@ use super::{Derivation, Derived, VarKind};
 use crate::algebra::poly::{Monomial, Poly, Printer, Syntax, Var};
 use crate::algebra::print::{self, plain_literal};
 use crate::algebra::rational::RationalFunction;
-use crate::model::{EventKind, Model, ParamDef, Sym};
+use crate::model::{Dim, EventKind, Model, ParamDef, Sym};
 use serde_json::{Value, json};
 use std::collections::BTreeSet;
 
@@ -396,7 +396,7 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
             continue;
         }
         let value = if s.initial != 0.0 {
-            format!(" = {}", plain_literal(s.initial))
+            format!(" = {}", with_unit(s.initial, Some(Dim::CONC), model))
         } else {
             String::new()
         };
@@ -411,7 +411,7 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
             out.push_str(&format!(
                 "fixed {} = {}{}\n",
                 f.name,
-                plain_literal(f.value),
+                with_unit(f.value, Some(Dim::CONC), model),
                 describe(&f.description)
             ));
         }
@@ -450,7 +450,7 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
         }
         let prm = &model.params[i];
         let def = match &prm.definition {
-            ParamDef::Value(v) => plain_literal(*v),
+            ParamDef::Value(v) => with_unit(*v, prm.dim, model),
             ParamDef::Expr(e) => print::print_expr(e, &name_of, print::Syntax::Mech),
         };
         out.push_str(&format!(
@@ -468,7 +468,7 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
         out.push_str(&format!(
             "param {} = {} \"total of {}\"\n",
             t.name,
-            plain_literal(t.value),
+            with_unit(t.value, Some(Dim::CONC), model),
             forms.join(" + ")
         ));
     }
@@ -503,7 +503,10 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
             continue;
         }
         let n = &model.species[e.species].name;
-        let (a, t) = (plain_literal(e.amount), plain_literal(e.time));
+        let (a, t) = (
+            with_unit(e.amount, Some(Dim::CONC), model),
+            with_unit(e.time, Some(Dim::TIME), model),
+        );
         events.push_str(&match e.kind {
             EventKind::Add => format!("add {a} {n} at {t}\n"),
             EventKind::Remove => format!("remove {a} {n} at {t}\n"),
@@ -515,6 +518,18 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
         out.push_str(&events);
     }
     Ok(out)
+}
+
+/// A value in the model's default units, written with its unit (so the
+/// derived file checks without warnings and reads the same under any
+/// `units` line); a dimensionless value or one of unknown dimension bare.
+fn with_unit(value: f64, dim: Option<Dim>, model: &Model) -> String {
+    match dim {
+        Some(d) if d != Dim::NONE => {
+            format!("{} {}", plain_literal(value), d.display_in(model.units))
+        }
+        _ => plain_literal(value),
+    }
 }
 
 fn describe(d: &Option<String>) -> String {
