@@ -984,3 +984,28 @@ fn output_times_are_exactly_those_asked_for() {
         "a decreasing list is refused, not reordered"
     );
 }
+
+#[test]
+fn a_bad_measured_expression_is_a_usage_error_that_quotes_it() {
+    // The expression is a command-line argument: exit 2 (CLI.md), and the
+    // message quotes it instead of pointing at a line the file does not have.
+    for (measure, code) in [("P +", "E0101"), ("Q", "E0201"), ("P + k_cat", "E0302")] {
+        let out = ratewright(&[
+            "scan",
+            "models/protease_assay.mech",
+            "--vary",
+            "k_on=1..2:2",
+            "--measure",
+            measure,
+            "--at",
+            "1",
+        ]);
+        assert_eq!(out.status.code(), Some(2), "{measure}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            err.contains(&format!("--measure `{measure}`")) && err.contains(code),
+            "{err}"
+        );
+        assert!(!err.contains("scan_measure"), "{err}");
+    }
+}

@@ -102,6 +102,12 @@ pub fn run(args: &Args) -> ExitCode {
         Ok(t) => t,
         Err(e) => return usage_error(format!("cannot read {}: {e}", args.file.display())),
     };
+    // The model's own errors first, located in the file as written.
+    let alone = crate::model::load_str(&text, &args.file);
+    if alone.model.is_none() || alone.diagnostics.iter().any(|d| d.is_error()) {
+        common::print_diagnostics(&alone.diagnostics, &alone.sources);
+        return ExitCode::from(common::EXIT_MODEL);
+    }
     let measure_name = fresh_name(&text);
     let extended = format!("{text}\nobserve {measure_name} = {}\n", args.measure);
     let loaded = crate::model::load_str(&extended, &args.file);
@@ -109,8 +115,26 @@ pub fn run(args: &Args) -> ExitCode {
         .model
         .filter(|_| !loaded.diagnostics.iter().any(|d| d.is_error()))
     else {
-        common::print_diagnostics(&loaded.diagnostics, &loaded.sources);
-        return ExitCode::from(common::EXIT_MODEL);
+        // Any error now is in the measured expression, which is a
+        // command-line argument: a usage error, not a line of the file.
+        let internal = format!("observable `{measure_name}`");
+        let reasons: Vec<String> = loaded
+            .diagnostics
+            .iter()
+            .filter(|d| d.is_error())
+            .map(|d| {
+                format!(
+                    "[{}] {}",
+                    d.code.as_str(),
+                    d.message.replace(&internal, "the measured expression")
+                )
+            })
+            .collect();
+        return usage_error(format!(
+            "--measure `{}`: {}",
+            args.measure,
+            reasons.join("; ")
+        ));
     };
     let mut model = base;
     if !args.set.is_empty() {
