@@ -1008,4 +1008,15 @@ fn a_bad_measured_expression_is_a_usage_error_that_quotes_it() {
         );
         assert!(!err.contains("scan_measure"), "{err}");
     }
+    // The time has no value at a steady state.
+    let out = ratewright(&[
+        "scan",
+        "models/protease_assay.mech",
+        "--vary",
+        "k_on=1..2:2",
+        "--measure",
+        "t",
+        "--steady",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
 }

@@ -172,6 +172,12 @@ pub fn run(args: &Args) -> ExitCode {
         return usage_error("--vary: the two names must differ");
     }
     let at = if args.steady {
+        if observable_mentions_time(&model, obs) {
+            return usage_error(format!(
+                "--measure `{}`: the expression uses the time t, which has no value at a steady state; measure it --at a time instead",
+                args.measure
+            ));
+        }
         MeasureAt::Steady
     } else {
         match args
@@ -338,4 +344,25 @@ fn axis_label(model: &crate::model::Model, name: &str) -> String {
         },
         _ => name.to_string(),
     }
+}
+
+/// Whether observable `start` uses the time, directly or through the
+/// observables it refers to.
+fn observable_mentions_time(model: &crate::model::Model, start: usize) -> bool {
+    let mut seen = vec![false; model.observables.len()];
+    let mut todo = vec![start];
+    while let Some(k) = todo.pop() {
+        if std::mem::replace(&mut seen[k], true) {
+            continue;
+        }
+        let expr = &model.observables[k].expr;
+        if expr.mentions_time() {
+            return true;
+        }
+        todo.extend(expr.names().into_iter().filter_map(|s| match s {
+            crate::model::Sym::Observable(j) => Some(j),
+            _ => None,
+        }));
+    }
+    false
 }
