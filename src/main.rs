@@ -6,6 +6,8 @@
 /// input limits are reached. The memory is reserved, not committed.
 const COMMAND_STACK_BYTES: usize = 1 << 30;
 
+use std::io::Write;
+
 fn main() -> std::process::ExitCode {
     let worker = std::thread::Builder::new()
         .name("ratewright".into())
@@ -13,14 +15,19 @@ fn main() -> std::process::ExitCode {
         .spawn(ratewright::cli::main);
     match worker.map(|handle| handle.join()) {
         Ok(Ok(code)) => code,
+        // `eprintln!` would panic again on a closed standard error.
         Ok(Err(_)) => {
-            eprintln!(
+            let _ = writeln!(
+                std::io::stderr(),
                 "error: internal failure (a bug: please report it with the input that caused it)"
             );
             std::process::ExitCode::from(1)
         }
         Err(e) => {
-            eprintln!("error: cannot start the command thread: {e}");
+            let _ = writeln!(
+                std::io::stderr(),
+                "error: cannot start the command thread: {e}"
+            );
             std::process::ExitCode::from(1)
         }
     }

@@ -232,3 +232,238 @@ fn usage_errors_exit_2_and_model_errors_exit_1_for_every_command() {
     );
     assert_eq!(ratewright(&["diff", good, good]).status.code(), Some(0));
 }
+
+/// Every `--format json` command reports a model with errors the same way:
+/// the JSON diagnostics report on standard output, exit 1. `steady` used to
+/// print human diagnostics on standard error and nothing on standard output.
+#[test]
+fn json_commands_report_model_errors_as_json_on_stdout() {
+    let dir = tempfile::tempdir().unwrap();
+    let bad = dir.path().join("bad.mech");
+    std::fs::write(&bad, "species A = 1 uM\nstep decay A -> 0 with k_missing\n").unwrap();
+    let bad = bad.to_str().unwrap();
+    for command in ["check", "analyze", "derive", "steady"] {
+        let out = ratewright(&[command, bad, "--format", "json"]);
+        assert_eq!(out.status.code(), Some(1), "{command}");
+        let report = json(&out);
+        assert_eq!(report["ok"], false, "{command}: {report:#}");
+        assert_eq!(report["diagnostics"][0]["code"], "E0201", "{command}");
+        assert_eq!(report["diagnostics"][0]["line"], 2, "{command}");
+        assert!(out.stderr.is_empty(), "{command}: nothing for people");
+    }
+}
+
+/// Output paths are checked before any work: a figure that cannot be drawn
+/// or any output over an input file (named directly or through a symlink)
+/// is a usage error, exit 2, for every command that writes.
+#[test]
+fn bad_output_paths_are_usage_errors_before_any_work() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(common::root().join("models/protease_assay.mech")).unwrap();
+    let model = dir.path().join("assay.mech");
+    std::fs::write(&model, &text).unwrap();
+    let link = dir.path().join("link.mech");
+    std::os::unix::fs::symlink(&model, &link).unwrap();
+    // Output names with the right extension, pointing at the input.
+    let csv_input = dir.path().join("assay.csv");
+    std::fs::write(&csv_input, &text).unwrap();
+    let csv_link = dir.path().join("link.csv");
+    std::os::unix::fs::symlink(&csv_input, &csv_link).unwrap();
+    let svg_input = dir.path().join("assay.svg");
+    std::fs::write(&svg_input, &text).unwrap();
+    let (m, l) = (model.to_str().unwrap(), link.to_str().unwrap());
+    let (c, cl) = (csv_input.to_str().unwrap(), csv_link.to_str().unwrap());
+    let s = svg_input.to_str().unwrap();
+    let pdf = dir.path().join("p.pdf");
+    // The C target writes STEM.h and STEM.c: here STEM.c is the input.
+    let c_input = dir.path().join("pair.c");
+    std::fs::write(&c_input, &text).unwrap();
+    let c_stem = dir.path().join("pair");
+    let cases: [&[&str]; 10] = [
+        &["run", m, "--plot", pdf.to_str().unwrap()],
+        &["run", m, "-o", "p.txt"],
+        &["run", c, "-o", c],
+        &["run", c, "-o", cl],
+        &["run", s, "--plot", s],
+        &["emit", m, "--target", "python", "-o", m],
+        &["emit", m, "--target", "python", "-o", l],
+        &[
+            "emit",
+            c_input.to_str().unwrap(),
+            "--target",
+            "c",
+            "-o",
+            c_stem.to_str().unwrap(),
+        ],
+        &["derive", m, "-o", m],
+        &["derive", m, "-o", l],
+    ];
+    for args in cases {
+        let out = ratewright(args);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {stderr}");
+        assert!(stderr.starts_with("error: "), "{args:?}: {stderr}");
+    }
+    assert!(!pdf.exists());
+    assert!(
+        !dir.path().join("pair.h").exists(),
+        "half of the C pair was written"
+    );
+    for (path, original) in [
+        (&model, &text),
+        (&csv_input, &text),
+        (&svg_input, &text),
+        (&c_input, &text),
+    ] {
+        assert_eq!(&std::fs::read_to_string(path).unwrap(), original);
+    }
+}
+
+/// A file named on the command line that cannot be read is a usage error
+/// (exit 2) for every command; the same failure through `use` is a model
+/// error (exit 1), like any other error inside a mechanism.
+#[test]
+fn unreadable_arguments_exit_2_and_unreadable_uses_exit_1() {
+    let dir = tempfile::tempdir().unwrap();
+    let missing = dir.path().join("absent.mech");
+    let uses_missing = dir.path().join("uses.mech");
+    std::fs::write(&uses_missing, "use \"absent.mech\"\nspecies A = 1 uM\n").unwrap();
+    let commands: [&[&str]; 6] = [
+        &["check"],
+        &["analyze"],
+        &["derive"],
+        &["emit", "--target", "python"],
+        &["run"],
+        &["steady"],
+    ];
+    for cmd in commands {
+        for (file, code) in [
+            (&missing, 2),
+            (&dir.path().to_path_buf(), 2),
+            (&uses_missing, 1),
+        ] {
+            let mut args: Vec<&str> = vec![cmd[0], file.to_str().unwrap()];
+            args.extend(&cmd[1..]);
+            let out = ratewright(&args);
+            assert_eq!(
+                out.status.code(),
+                Some(code),
+                "{args:?}: {}",
+                String::from_utf8_lossy(&out.stderr)
+            );
+            assert!(String::from_utf8_lossy(&out.stderr).contains("E0102"));
+        }
+    }
+}
+
+/// Maps keyed by species follow declaration order, like the CSV header:
+/// `steady --format json` `state` and `run -o x.json` `species`.
+#[test]
+fn json_maps_of_species_keep_declaration_order() {
+    let dir = tempfile::tempdir().unwrap();
+    for path in models() {
+        let model = load_path(&path).model.expect("demo models are valid");
+        let declared: Vec<&str> = model.species.iter().map(|s| s.name.as_str()).collect();
+        let observables: Vec<&str> = model.observables.iter().map(|o| o.name.as_str()).collect();
+        let out_json = dir.path().join("out.json");
+        let p = path.to_str().unwrap();
+        let out = ratewright(&["run", p, "--points", "3", "-o", out_json.to_str().unwrap()]);
+        assert!(out.status.success(), "{p}");
+        let written: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(&out_json).unwrap()).unwrap();
+        let keys = |v: &serde_json::Value| -> Vec<String> {
+            v.as_object().unwrap().keys().cloned().collect()
+        };
+        assert_eq!(keys(&written["species"]), declared, "{p}: run -o x.json");
+        assert_eq!(
+            keys(&written["observables"]),
+            observables,
+            "{p}: run -o x.json"
+        );
+        let steady = ratewright(&["steady", p, "--format", "json"]);
+        if steady.status.success() {
+            let v = json(&steady);
+            assert_eq!(keys(&v["state"]), declared, "{p}: steady state");
+            assert_eq!(
+                keys(&v["observables"]),
+                observables,
+                "{p}: steady observables"
+            );
+        }
+    }
+    // The check above can fail only if some model declares species out of
+    // alphabetical order.
+    let protease = load_path(&common::root().join("models/protease_assay.mech"))
+        .model
+        .unwrap();
+    let names: Vec<&str> = protease.species.iter().map(|s| s.name.as_str()).collect();
+    let mut sorted = names.clone();
+    sorted.sort();
+    assert_ne!(names, sorted);
+}
+
+/// Messages found wanting by the audit: counts agree with their noun, an
+/// article agrees with its word, a name rule says what is wrong, and times
+/// print as a person writes them.
+#[test]
+fn messages_read_correctly() {
+    let dir = tempfile::tempdir().unwrap();
+    let out_csv = dir.path().join("one.csv");
+    let out = ratewright(&[
+        "run",
+        "models/protease_assay.mech",
+        "--times",
+        "0",
+        "-o",
+        out_csv.to_str().unwrap(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains("wrote 1 row to"), "{stderr}");
+
+    let octave = dir.path().join("1abc.m");
+    let out = ratewright(&[
+        "emit",
+        "models/protease_assay.mech",
+        "--target",
+        "octave",
+        "-o",
+        octave.to_str().unwrap(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr.contains("cannot name an Octave function"),
+        "{stderr}"
+    );
+    assert!(stderr.contains("must not start with a digit"), "{stderr}");
+    let out = ratewright(&[
+        "emit",
+        "models/protease_assay.mech",
+        "--target",
+        "c",
+        "-o",
+        dir.path().join("a-b").to_str().unwrap(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains("cannot name a C prefix"), "{stderr}");
+    assert!(
+        stderr.contains("only ASCII letters, digits and `_`"),
+        "{stderr}"
+    );
+
+    // A rate constant of 1e300 /s fails at once: at t = 0, not "t = 0e0".
+    let fast = dir.path().join("fast.mech");
+    std::fs::write(
+        &fast,
+        "species A = 1 uM, B\nparam k = 1e300 /s\nstep r A -> B with k\n",
+    )
+    .unwrap();
+    let out = ratewright(&["run", fast.to_str().unwrap()]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    assert!(stderr.contains("failed at t = 0:"), "{stderr}");
+    assert!(
+        !stderr.contains("e0:") && !stderr.contains("e0;"),
+        "{stderr}"
+    );
+}

@@ -558,6 +558,15 @@ fn rapid_equilibrium_random_bi_bi_segel_1975() {
         notes.contains("cycle") && notes.contains("a_second"),
         "the closed cycle of equilibria is reported: {notes}"
     );
+    // The note says in words what is assumed of the step left out (it
+    // read "assumes a_second are consistent with them").
+    assert!(
+        notes.contains(
+            "for step a_second, its equilibrium constant equals the one the other equilibria imply"
+        ) && notes.contains("product of the equilibrium constants around the cycle is 1"),
+        "{notes}"
+    );
+    assert!(!notes.contains("are consistent"), "{notes}");
 }
 
 /// Michaelis & Menten (1913): with the binding step at rapid equilibrium

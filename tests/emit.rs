@@ -1211,7 +1211,8 @@ fn usage_errors_are_clear() {
     assert!(String::from_utf8_lossy(&o.stderr).contains("-o DIR"));
     let o = ratewright(&["emit", m, "--target", "sbml", "--reduced"]);
     assert_eq!(o.status.code(), Some(2));
-    // Refuses to overwrite its input.
+    // Refuses to overwrite its input: a usage error (exit 2), as for every
+    // command that writes (docs/reliability.md).
     let dir = temp();
     let copy = dir.path().join("m.mech");
     std::fs::copy(m, &copy).unwrap();
@@ -1223,7 +1224,7 @@ fn usage_errors_are_clear() {
         "-o",
         copy.to_str().unwrap(),
     ]);
-    assert_eq!(o.status.code(), Some(1));
+    assert_eq!(o.status.code(), Some(2));
     assert!(
         std::fs::read_to_string(&copy)
             .unwrap()

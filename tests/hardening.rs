@@ -1334,3 +1334,227 @@ fn derive_finishes_on_the_fuzzed_slow_mechanisms() {
         );
     }
 }
+
+// ------------------------------------------- findings of the 2026-12-02 audit
+
+const LONG_NAME_CHARS: usize = 100_000;
+
+/// Human tables padded names with `{:width$}`, which panics past a width of
+/// 65,535 ("Formatting argument out of range"). A 100,000-character name
+/// must print in `run`'s table, `steady`, `analyze` and `derive`.
+#[test]
+fn names_of_100000_characters_print_in_every_human_table() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let a = "A".repeat(LONG_NAME_CHARS);
+    let decay = model_file(
+        dir.path(),
+        "longname.mech",
+        &format!("species {a} = 1 uM\nspecies B\nparam k = 1 /s\nstep r {a} -> B with k\n"),
+    );
+    let s = format!("S{}", "X".repeat(LONG_NAME_CHARS));
+    let c = format!("C{}", "X".repeat(LONG_NAME_CHARS));
+    let michaelis_menten = model_file(
+        dir.path(),
+        "mm_long.mech",
+        &format!(
+            "species {s} = 100 uM\nspecies P\nspecies E = 0.1 uM\nspecies {c}\n\
+             param k1 = 10 /uM/s\nparam km1 = 50 /s\nparam k2 = 20 /s\n\
+             step bind E + {s} <=> {c} with k1, km1\nstep cat {c} -> E + P with k2\n\
+             total E_t = E + {c}\nassume steady E, {c}\n"
+        ),
+    );
+    let commands: [(&[&str], &str); 4] = [
+        (&["run", &decay, "--times", "0,1"], "(concentrations in uM)"),
+        (&["steady", &decay], "stable"),
+        (&["analyze", &decay], "never consumed"),
+        (&["derive", &michaelis_menten], "kinetic constants"),
+    ];
+    for (args, last_part) in commands {
+        let out = ratewright(args);
+        let stdout = String::from_utf8_lossy(&out.stdout);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(0), "{}: {stderr}", args[0]);
+        assert!(
+            !stderr.contains("internal failure"),
+            "{}: {stderr}",
+            args[0]
+        );
+        assert!(stdout.contains(last_part), "{}: output cut short", args[0]);
+        let long = if args[0] == "derive" { &s } else { &a };
+        assert!(
+            stdout.contains(long.as_str()),
+            "{}: the name is missing",
+            args[0]
+        );
+    }
+}
+
+/// Spawns the binary with standard error (or output) closed from the
+/// start: the reading end is dropped before the command writes anything.
+fn with_closed_stream(args: &[&str], close_stderr: bool) -> std::process::Output {
+    let mut command = Command::new(common::bin());
+    command.args(args).current_dir(root());
+    if close_stderr {
+        command.stdout(Stdio::null()).stderr(Stdio::piped());
+    } else {
+        command.stdout(Stdio::piped()).stderr(Stdio::piped());
+    }
+    let mut child = command.spawn().expect("the binary runs");
+    if close_stderr {
+        drop(child.stderr.take());
+    } else {
+        drop(child.stdout.take());
+    }
+    child.wait_with_output().expect("the binary ends")
+}
+
+/// `check` of many bad files into a closed pipe (`2>&1 | head -1`) panicked
+/// in `eprintln!` and exited 101. A closed stderr is ignored; a closed
+/// stdout ends the command with exit 1 and a message, never a panic.
+#[test]
+fn closed_standard_error_and_output_do_not_crash() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let binary = write_temp(dir.path(), "binary.mech", &[0x93, 0x61, 0x52, 0xf9, 0xf6]);
+    let b = binary.to_str().expect("UTF-8");
+    let mut args = vec!["check"];
+    args.extend(std::iter::repeat_n(b, 80));
+    let out = with_closed_stream(&args, true);
+    assert_eq!(out.status.code(), Some(1), "check with stderr closed");
+
+    let good = "models/protease_assay.mech";
+    for args in [
+        vec!["check", "--format", "json", good],
+        vec!["steady", good],
+        vec!["run", good],
+        vec!["analyze", good],
+        vec!["derive", good],
+        vec!["emit", good, "--target", "python"],
+        vec!["diff", good, good],
+    ] {
+        let out = with_closed_stream(&args, false);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            !stderr.contains("panicked") && !stderr.contains("internal failure"),
+            "{args:?}: {stderr}"
+        );
+        assert_eq!(out.status.code(), Some(1), "{args:?}: {stderr}");
+        assert!(
+            stderr.contains("cannot write to standard output"),
+            "{args:?}: {stderr}"
+        );
+    }
+}
+
+/// A `use` that cannot be read is E0102 ("file cannot be read") at the
+/// `use` line, a model error (exit 1); the same failure for the file named
+/// on the command line is a usage error (exit 2) whose JSON names the file.
+#[test]
+fn unreadable_files_are_e0102_with_exit_2_as_arguments_and_1_through_use() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    std::fs::create_dir(dir.path().join("sub")).expect("mkdir");
+    for (name, used) in [
+        ("missing.mech", "no_such_file.mech"),
+        ("directory.mech", "sub"),
+        ("empty_path.mech", ""),
+    ] {
+        let m = model_file(
+            dir.path(),
+            name,
+            &format!("species A = 1 uM\nuse \"{used}\"\n"),
+        );
+        let out = ratewright(&["check", "--format", "json", &m]);
+        assert_eq!(out.status.code(), Some(1), "{name}");
+        let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+        let d = &report["diagnostics"][0];
+        assert_eq!(d["code"], "E0102", "{name}: {report:#}");
+        assert_eq!(d["line"], 2, "{name}: located at the `use` line");
+        assert_eq!(d["file"], m.as_str(), "{name}");
+    }
+    let missing = dir.path().join("absent.mech");
+    let missing = missing.to_str().expect("UTF-8");
+    let sub = dir.path().join("sub");
+    for argument in [missing, sub.to_str().expect("UTF-8")] {
+        let out = ratewright(&["check", "--format", "json", argument]);
+        assert_eq!(out.status.code(), Some(2), "{argument}");
+        let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+        let d = &report["diagnostics"][0];
+        assert_eq!(d["code"], "E0102");
+        assert_eq!(d["file"], argument, "the unreadable file is named");
+    }
+}
+
+/// `fmt` through a symlink rewrites the target and keeps the link; a hard
+/// link is split by the atomic rename, and `fmt` says so (the decision is
+/// recorded in docs/reliability.md).
+#[test]
+fn fmt_rewrites_a_symlinks_target_and_reports_split_hard_links() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let messy = "species   A=1 uM\nspecies B\nparam k=1 /s\nstep r A->B with k\n";
+    let target = write_temp(dir.path(), "model.mech", messy.as_bytes());
+    let link = dir.path().join("link.mech");
+    std::os::unix::fs::symlink(&target, &link).expect("symlink");
+    let out = ratewright(&["fmt", link.to_str().expect("UTF-8")]);
+    assert_eq!(out.status.code(), Some(0));
+    assert!(
+        std::fs::symlink_metadata(&link)
+            .expect("the link")
+            .file_type()
+            .is_symlink(),
+        "the link was replaced by a file"
+    );
+    let formatted = std::fs::read_to_string(&target).expect("the target");
+    assert_ne!(formatted, messy, "the target was not formatted");
+    let check = ratewright(&["fmt", "--check", target.to_str().expect("UTF-8")]);
+    assert_eq!(check.status.code(), Some(0));
+
+    let original = write_temp(dir.path(), "hard.mech", messy.as_bytes());
+    let other_name = dir.path().join("hard_other.mech");
+    std::fs::hard_link(&original, &other_name).expect("hard link");
+    let out = ratewright(&["fmt", original.to_str().expect("UTF-8")]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{stderr}");
+    assert!(stderr.contains("other hard links"), "{stderr}");
+    assert_eq!(std::fs::read_to_string(&other_name).expect("other"), messy);
+    assert_eq!(std::fs::read_to_string(&original).expect("file"), formatted);
+    assert!(temp_files_in(dir.path()).is_empty());
+}
+
+/// Follow-on diagnostics: a species whose own value failed gets no W0105
+/// ("starts at 0"); `NaN /s` is one error, not also "unknown name `s`".
+#[test]
+fn a_failed_value_causes_no_follow_on_diagnostics() {
+    for (text, code) in [
+        (
+            "species A = 1e400 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
+            Code::BadNumber,
+        ),
+        (
+            "species A = 1 /s\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
+            Code::DimensionMismatch,
+        ),
+        (
+            "species A = 1 uM\nspecies B\nparam k = NaN /s\nstep r A -> B with k\n",
+            Code::BadNumber,
+        ),
+        (
+            "species A = 1 uM\nspecies B\nparam k = fast /s\nstep r A -> B with k\n",
+            Code::UnknownName,
+        ),
+    ] {
+        let loaded = load(text);
+        assert_eq!(codes(&loaded), vec![code], "{text}");
+    }
+}
+
+/// `--every 1e-300` counted its rows in a saturating cast and reported
+/// 18446744073709551615 of them.
+#[test]
+fn an_every_interval_with_too_many_rows_says_so_readably() {
+    for every in ["1e-300", "1e-9"] {
+        let out = ratewright(&["run", "models/protease_assay.mech", "--every", every]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{stderr}");
+        assert!(!stderr.contains("18446744073709551615"), "{stderr}");
+        assert!(stderr.contains("at most 10,000,000"), "{stderr}");
+    }
+}

@@ -7,9 +7,8 @@
 //! otherwise take far more memory than the analysis itself.
 
 use super::Format;
-use super::common::{EXIT_MODEL, load_model, print_diagnostics};
+use super::common::{EXIT_MODEL, load_model, pad_end, pad_start, report_failure};
 use crate::algebra::print::{Syntax, print_expr};
-use crate::diagnostics::{SourceMap, render_json};
 use crate::model::{Coef, Model};
 use crate::network::{self, Analysis, NonNegativeBasis};
 use num_bigint::BigInt;
@@ -42,7 +41,7 @@ pub fn run(args: &Args) -> ExitCode {
     };
     let analysis = match network::analyze(&model) {
         Ok(a) => a,
-        Err(d) => return report(d, &sources, json),
+        Err(d) => return report_failure(&[d], &sources, json, EXIT_MODEL),
     };
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());
     let written = if json {
@@ -50,21 +49,12 @@ pub fn run(args: &Args) -> ExitCode {
     } else {
         write_human(&mut out, &model, &analysis)
     };
+    // A closed pipe (`| head`) ends the command as in every other command:
+    // exit 1, "cannot write to standard output".
     match written.and_then(|_| out.flush()) {
         Ok(()) => ExitCode::SUCCESS,
-        // A closed pipe (e.g. `| head`) is not the model's fault.
-        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
-        Err(e) => super::common::run_error(format!("cannot write the analysis: {e}")),
+        Err(_) => super::common::run_error("cannot write to standard output"),
     }
-}
-
-fn report(d: crate::diagnostics::Diagnostic, sources: &SourceMap, json: bool) -> ExitCode {
-    if json {
-        println!("{}", render_json(std::slice::from_ref(&d), sources));
-    } else {
-        print_diagnostics(std::slice::from_ref(&d), sources);
-    }
-    ExitCode::from(EXIT_MODEL)
 }
 
 fn coef_text(c: &Coef) -> String {
@@ -364,15 +354,15 @@ fn table(
                 .unwrap_or(1)
         })
         .collect();
-    write!(out, "  {corner:<label_width$}")?;
+    write!(out, "  {}", pad_end(corner, label_width))?;
     for (c, w) in columns.iter().zip(&widths) {
-        write!(out, "  {c:>w$}")?;
+        write!(out, "  {}", pad_start(c, *w))?;
     }
     writeln!(out)?;
     for (label, cells) in rows {
-        write!(out, "  {label:<label_width$}")?;
+        write!(out, "  {}", pad_end(label, label_width))?;
         for (c, w) in cells.iter().zip(&widths) {
-            write!(out, "  {c:>w$}")?;
+            write!(out, "  {}", pad_start(c, *w))?;
         }
         writeln!(out)?;
     }
@@ -456,7 +446,8 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
         };
         writeln!(
             out,
-            "  {equation:<width$}    value {} {unit}   ({origin})",
+            "  {}    value {} {unit}   ({origin})",
+            pad_end(equation, width),
             number(law.value)
         )?;
     }

@@ -1,8 +1,10 @@
 //! `ratewright check FILE...`: parse, resolve, check units and lint.
 
 use super::Format;
-use super::common::{EXIT_MODEL, EXIT_OK, EXIT_USAGE, print_diagnostics};
-use crate::diagnostics::{Code, Severity, to_json_value};
+use super::common::{
+    EXIT_MODEL, EXIT_OK, EXIT_USAGE, names_an_unreadable_argument, print_diagnostics, write_stdout,
+};
+use crate::diagnostics::{Severity, to_json_value};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -29,10 +31,8 @@ pub fn run(args: &Args) -> ExitCode {
                 Severity::Error => errors += 1,
                 Severity::Warning => warnings += 1,
             }
-            if d.code == Code::FileRead {
-                unreadable = true;
-            }
         }
+        unreadable |= names_an_unreadable_argument(&loaded.diagnostics);
         match args.format {
             Format::Json => all_json.extend(
                 loaded
@@ -43,7 +43,7 @@ pub fn run(args: &Args) -> ExitCode {
             Format::Human => {
                 print_diagnostics(&loaded.diagnostics, &loaded.sources);
                 if loaded.diagnostics.is_empty() {
-                    eprintln!("{}: ok", path.display());
+                    stderr_line!("{}: ok", path.display());
                 }
             }
         }
@@ -58,11 +58,14 @@ pub fn run(args: &Args) -> ExitCode {
                 "warnings": warnings,
                 "diagnostics": all_json,
             });
-            println!("{}", serde_json::to_string_pretty(&out).unwrap_or_default());
+            let text = serde_json::to_string_pretty(&out).unwrap_or_default();
+            if let Err(failed) = write_stdout(&format!("{text}\n")) {
+                return failed;
+            }
         }
         Format::Human => {
             if errors + warnings > 0 {
-                eprintln!(
+                stderr_line!(
                     "{errors} error(s), {warnings} warning(s){}",
                     if args.deny_warnings && warnings > 0 {
                         " (warnings denied)"

@@ -2,7 +2,7 @@
 //! diagnostics, parsing quantities given on the command line, and atomic
 //! output files.
 
-use crate::diagnostics::{Diagnostic, SourceMap, render_human, render_json};
+use crate::diagnostics::{Code, Diagnostic, SourceMap, render_human, render_json};
 use crate::model::{self, Model, Units};
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -21,20 +21,23 @@ pub fn print_diagnostics(diags: &[Diagnostic], sources: &SourceMap) {
 }
 
 /// Loads a model for a command that needs one: prints warnings, and on
-/// errors prints them and returns the exit code to use.
+/// errors prints them (as the JSON report on standard output when `json`,
+/// the same for every `--format json` command) and returns the exit code
+/// to use.
 pub fn load_model(path: &Path, json: bool) -> Result<(Model, SourceMap), ExitCode> {
     let loaded = model::load_path(path);
     if loaded.model.is_none() || loaded.diagnostics.iter().any(|d| d.is_error()) {
-        if json {
-            println!("{}", render_json(&loaded.diagnostics, &loaded.sources));
+        let code = if names_an_unreadable_argument(&loaded.diagnostics) {
+            EXIT_USAGE
         } else {
-            print_diagnostics(&loaded.diagnostics, &loaded.sources);
-        }
-        let usage = loaded
-            .diagnostics
-            .iter()
-            .any(|d| d.code == crate::diagnostics::Code::FileRead);
-        return Err(ExitCode::from(if usage { EXIT_USAGE } else { EXIT_MODEL }));
+            EXIT_MODEL
+        };
+        return Err(report_failure(
+            &loaded.diagnostics,
+            &loaded.sources,
+            json,
+            code,
+        ));
     }
     if !json {
         print_diagnostics(&loaded.diagnostics, &loaded.sources);
@@ -42,15 +45,76 @@ pub fn load_model(path: &Path, json: bool) -> Result<(Model, SourceMap), ExitCod
     Ok((loaded.model.expect("checked above"), loaded.sources))
 }
 
+/// Reports diagnostics that end a command, as JSON on standard output or
+/// for people on standard error, and returns `code` as the exit code.
+pub fn report_failure(diags: &[Diagnostic], sources: &SourceMap, json: bool, code: u8) -> ExitCode {
+    if json {
+        if let Err(failed) = write_stdout(&format!("{}\n", render_json(diags, sources))) {
+            return failed;
+        }
+    } else {
+        print_diagnostics(diags, sources);
+    }
+    ExitCode::from(code)
+}
+
+/// Whether a file named on the command line could not be read: a usage
+/// error (exit 2). The same failure through `use` is labelled at the `use`
+/// line and is a model error (exit 1), like any other error in a file.
+pub fn names_an_unreadable_argument(diags: &[Diagnostic]) -> bool {
+    diags
+        .iter()
+        .any(|d| d.code == Code::FileRead && d.primary_span().is_none())
+}
+
+/// Writes to standard error, ignoring failure (see `stderr_line!`).
+pub fn write_stderr(args: std::fmt::Arguments<'_>) {
+    let _ = std::io::stderr().lock().write_fmt(args);
+}
+
+/// Writes to standard output. A closed or failing standard output ends the
+/// command with exit code 1 and a message (never a panic, as `print!`
+/// would).
+pub fn write_stdout(text: &str) -> Result<(), ExitCode> {
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
+        Ok(()) => Ok(()),
+        Err(_) => Err(run_error("cannot write to standard output")),
+    }
+}
+
+/// `text` followed by spaces up to `width` characters. Formatting widths
+/// (`{:<w$}`) are limited to 65,535 and panic beyond; names have no limit.
+pub fn pad_end(text: &str, width: usize) -> String {
+    let len = text.chars().count();
+    let mut s = String::with_capacity(text.len() + width.saturating_sub(len));
+    s.push_str(text);
+    s.extend(std::iter::repeat_n(' ', width.saturating_sub(len)));
+    s
+}
+
+/// Spaces up to `width` characters, then `text` (right-aligned).
+pub fn pad_start(text: &str, width: usize) -> String {
+    let len = text.chars().count();
+    let mut s: String = std::iter::repeat_n(' ', width.saturating_sub(len)).collect();
+    s.push_str(text);
+    s
+}
+
+/// `1 row`, `2 rows`.
+pub fn count_of(n: usize, singular: &str, plural: &str) -> String {
+    format!("{n} {}", if n == 1 { singular } else { plural })
+}
+
 /// Prints a usage error and returns exit code 2.
 pub fn usage_error(message: impl std::fmt::Display) -> ExitCode {
-    eprintln!("error: {message}");
+    stderr_line!("error: {message}");
     ExitCode::from(EXIT_USAGE)
 }
 
 /// Prints a run failure (numerical or output) and returns exit code 1.
 pub fn run_error(message: impl std::fmt::Display) -> ExitCode {
-    eprintln!("error: {message}");
+    stderr_line!("error: {message}");
     ExitCode::from(EXIT_MODEL)
 }
 

@@ -4,12 +4,11 @@
 //! report, LaTeX, JSON (schema in docs/derive.md) or a new mechanism file.
 
 use super::common::{
-    self, EXIT_MODEL, EXIT_USAGE, load_model, print_diagnostics, usage_error, write_atomic,
+    self, EXIT_MODEL, EXIT_USAGE, load_model, report_failure, usage_error, write_atomic,
 };
-use crate::diagnostics::{Code, render_json};
+use crate::diagnostics::Code;
 use crate::ratelaw::{self, Progress, Request, Target, output};
 use clap::ValueEnum;
-use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Instant;
@@ -60,6 +59,12 @@ pub fn run(args: &Args) -> ExitCode {
         Ok(x) => x,
         Err(code) => return code,
     };
+    let inputs: Vec<PathBuf> = sources.files().iter().map(|f| f.path.clone()).collect();
+    if let Some(path) = &args.output
+        && let Err(e) = common::refuse_input_overwrite(path, &inputs)
+    {
+        return usage_error(e);
+    }
     let loaded = start.elapsed();
     let clean = |v: &Option<Vec<String>>| {
         v.as_ref().map(|names| {
@@ -88,7 +93,7 @@ pub fn run(args: &Args) -> ExitCode {
         Progress::Trees(n) => {
             if total > 1e6 {
                 shown = true;
-                eprint!(
+                stderr_text!(
                     "\rderive: {n} of about {total:.0} spanning-tree terms ({:.0}%)",
                     100.0 * n as f64 / total
                 );
@@ -98,19 +103,15 @@ pub fn run(args: &Args) -> ExitCode {
     let derive_start = Instant::now();
     let result = ratelaw::derive_with_progress(&model, &request, &mut on_progress);
     if shown {
-        eprintln!();
+        stderr_line!();
     }
     let derived_in = derive_start.elapsed();
     let derivation = match result {
         Ok(d) => d,
         Err(diag) => {
             let from_options = diag.labels.is_empty() && diag.code == Code::BadDerivationRequest;
-            if json {
-                println!("{}", render_json(std::slice::from_ref(&diag), &sources));
-            } else {
-                print_diagnostics(std::slice::from_ref(&diag), &sources);
-            }
-            return ExitCode::from(if from_options { EXIT_USAGE } else { EXIT_MODEL });
+            let code = if from_options { EXIT_USAGE } else { EXIT_MODEL };
+            return report_failure(&[diag], &sources, json, code);
         }
     };
     let text = match args.format {
@@ -135,7 +136,7 @@ pub fn run(args: &Args) -> ExitCode {
         }
     };
     if args.timing {
-        eprintln!(
+        stderr_line!(
             "timing: load {:.3} ms, derive {:.3} ms, {} spanning-tree terms",
             loaded.as_secs_f64() * 1e3,
             derived_in.as_secs_f64() * 1e3,
@@ -144,14 +145,14 @@ pub fn run(args: &Args) -> ExitCode {
     }
     match &args.output {
         Some(path) => {
-            let inputs: Vec<PathBuf> = sources.files().iter().map(|f| f.path.clone()).collect();
             if let Err(e) = write_atomic(path, text.as_bytes(), &inputs) {
                 return common::run_error(e);
             }
         }
         None => {
-            let mut out = std::io::stdout().lock();
-            let _ = out.write_all(text.as_bytes());
+            if let Err(failed) = common::write_stdout(&text) {
+                return failed;
+            }
         }
     }
     ExitCode::SUCCESS

@@ -38,10 +38,10 @@ fn load(arg: &str) -> Loaded {
     }
 }
 
-/// Writes the report; a closed pipe (`| head`) is not an error worth a panic.
-fn emit(text: &str) {
-    use std::io::Write;
-    let _ = writeln!(std::io::stdout().lock(), "{text}");
+/// Writes the report; a closed pipe (`| head`) ends the command with exit
+/// code 1 and a message, as in every other command, never a panic.
+fn emit(text: &str) -> Result<(), ExitCode> {
+    super::common::write_stdout(&format!("{text}\n"))
 }
 
 pub fn run(args: &Args) -> ExitCode {
@@ -61,10 +61,12 @@ pub fn run(args: &Args) -> ExitCode {
                         .map(|d| to_json_value(d, &l.sources))
                 })
                 .collect();
-            emit(
+            if let Err(failed) = emit(
                 &serde_json::to_string_pretty(&serde_json::json!({ "errors": errors }))
                     .unwrap_or_default(),
-            );
+            ) {
+                return failed;
+            }
         } else {
             for l in &sides {
                 let errors: Vec<_> = l
@@ -81,11 +83,14 @@ pub fn run(args: &Args) -> ExitCode {
     // Warnings are the business of `check`; a diff reports meaning only.
     let [old, new] = sides.map(|l| l.model.unwrap_or_else(Model::default));
     let comparison = compare::compare(&old, &new);
-    if json {
+    let written = if json {
         let doc = compare::report::json(&comparison, &args.old, &args.new);
-        emit(&serde_json::to_string_pretty(&doc).unwrap_or_default());
+        emit(&serde_json::to_string_pretty(&doc).unwrap_or_default())
     } else {
-        emit(compare::report::human(&comparison, &args.old, &args.new).trim_end());
+        emit(compare::report::human(&comparison, &args.old, &args.new).trim_end())
+    };
+    if let Err(failed) = written {
+        return failed;
     }
     ExitCode::from(if comparison.changed() {
         EXIT_MODEL

@@ -8,9 +8,10 @@
 //! PATH is a stem (`-o out/decay` writes `out/decay.h` and `out/decay.c`; a
 //! trailing `.c` or `.h` is dropped). Every file is written atomically.
 
-use super::common::{load_model, run_error, usage_error, write_atomic};
+use super::common::{
+    load_model, refuse_input_overwrite, run_error, usage_error, write_atomic, write_stdout,
+};
 use crate::emit::{EmitOptions, TARGETS, emit, find_target};
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -81,14 +82,18 @@ pub fn run(args: &Args) -> ExitCode {
         Some(out) => (out.parent().map(Path::to_path_buf), file_stem(out)),
     };
     if !crate::emit::names::is_identifier(&stem) && matches!(target.name(), "octave" | "c") {
+        let what = if target.name() == "octave" {
+            "an Octave function"
+        } else {
+            "a C prefix"
+        };
+        let rule = if stem.starts_with(|c: char| c.is_ascii_digit()) {
+            "it must not start with a digit"
+        } else {
+            "it must start with a letter or `_` and contain only ASCII letters, digits and `_`"
+        };
         return usage_error(format!(
-            "`{stem}` cannot name a {} {}: use a name of letters, digits and `_` (give `-o` another name)",
-            target.name(),
-            if target.name() == "octave" {
-                "function"
-            } else {
-                "prefix"
-            }
+            "`{stem}` cannot name {what}: {rule} (give `-o` another name)"
         ));
     }
     let options = EmitOptions {
@@ -108,15 +113,29 @@ pub fn run(args: &Args) -> ExitCode {
         }
     };
     let inputs: Vec<PathBuf> = _sources.files().iter().map(|f| f.path.clone()).collect();
+    let destination = |name: &str| match &dir {
+        Some(d) if !d.as_os_str().is_empty() => d.join(name),
+        _ => PathBuf::from(name),
+    };
+    // Every destination is checked before anything is written: an input
+    // file as output is a usage error, and no file of a pair is left behind.
+    let destinations: Vec<PathBuf> = match (&args.output, target.multi_file()) {
+        (None, _) => vec![],
+        (Some(path), false) => vec![path.clone()],
+        (Some(_), true) => files.iter().map(|f| destination(&f.name)).collect(),
+    };
+    for path in &destinations {
+        if let Err(e) = refuse_input_overwrite(path, &inputs) {
+            return usage_error(e);
+        }
+    }
     match (&args.output, target.multi_file()) {
         (None, _) => {
-            let mut out = std::io::stdout().lock();
-            for f in &files {
-                if out.write_all(f.contents.as_bytes()).is_err() {
-                    return run_error("cannot write to standard output");
-                }
+            let text: String = files.iter().map(|f| f.contents.as_str()).collect();
+            match write_stdout(&text) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(failed) => failed,
             }
-            ExitCode::SUCCESS
         }
         (Some(path), false) => match files.first() {
             Some(f) => match write_atomic(path, f.contents.as_bytes(), &inputs) {
@@ -126,14 +145,8 @@ pub fn run(args: &Args) -> ExitCode {
             None => run_error("nothing to write"),
         },
         (Some(_), true) => {
-            let dir = dir.unwrap_or_default();
-            for f in &files {
-                let path = if dir.as_os_str().is_empty() {
-                    PathBuf::from(&f.name)
-                } else {
-                    dir.join(&f.name)
-                };
-                if let Err(e) = write_atomic(&path, f.contents.as_bytes(), &inputs) {
+            for (f, path) in files.iter().zip(&destinations) {
+                if let Err(e) = write_atomic(path, f.contents.as_bytes(), &inputs) {
                     return run_error(e);
                 }
             }

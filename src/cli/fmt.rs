@@ -22,13 +22,13 @@ pub fn run(args: &Args) -> ExitCode {
             Ok(bytes) => match String::from_utf8(bytes) {
                 Ok(t) => t,
                 Err(_) => {
-                    eprintln!("error: {} is not UTF-8 text", path.display());
+                    stderr_line!("error: {} is not UTF-8 text", path.display());
                     status = status.max(EXIT_MODEL);
                     continue;
                 }
             },
             Err(e) => {
-                eprintln!("error: cannot read {}: {e}", path.display());
+                stderr_line!("error: cannot read {}: {e}", path.display());
                 status = EXIT_USAGE;
                 continue;
             }
@@ -49,14 +49,50 @@ pub fn run(args: &Args) -> ExitCode {
             continue;
         }
         if args.check {
-            eprintln!("{} is not formatted", path.display());
-            status = status.max(EXIT_MODEL);
-        } else if let Err(e) = write_atomic(path, formatted.as_bytes(), &[]) {
-            eprintln!("error: {e}");
+            stderr_line!("{} is not formatted", path.display());
             status = status.max(EXIT_MODEL);
         } else {
-            eprintln!("formatted {}", path.display());
+            // The rename that makes the write atomic replaces a directory
+            // entry: through a symlink it must replace the link's target
+            // (the link stays a link), never the link itself.
+            let target = match std::fs::canonicalize(path) {
+                Ok(t) => t,
+                Err(e) => {
+                    stderr_line!("error: cannot resolve {}: {e}", path.display());
+                    status = status.max(EXIT_MODEL);
+                    continue;
+                }
+            };
+            let hard_linked = has_other_hard_links(&target);
+            if let Err(e) = write_atomic(&target, formatted.as_bytes(), &[]) {
+                stderr_line!("error: {e}");
+                status = status.max(EXIT_MODEL);
+            } else {
+                stderr_line!("formatted {}", path.display());
+                if hard_linked {
+                    stderr_line!(
+                        "note: {} had other hard links; they keep the old text (the file was replaced, not edited in place)",
+                        path.display()
+                    );
+                }
+            }
         }
     }
     ExitCode::from(status)
+}
+
+/// Whether the file has names besides this one. The atomic rename gives
+/// the path a new file, so those other names keep the old text
+/// (docs/reliability.md: atomicity is kept and the split reported).
+fn has_other_hard_links(path: &std::path::Path) -> bool {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        std::fs::metadata(path).is_ok_and(|m| m.nlink() > 1)
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = path;
+        false
+    }
 }

@@ -4,6 +4,28 @@
 //!
 //! Exit codes (CLI.md): 0 success, 1 model errors or a failed numerical run,
 //! 2 usage errors (bad options, unreadable arguments).
+//!
+//! Messages go to standard error through `stderr_line!` / `stderr_text!`,
+//! never `eprintln!`: a closed standard error (`2>&1 | head -1`) must not
+//! turn a report into a crash.
+
+/// Writes one line to standard error; a failed write is ignored, because
+/// there is nowhere left to report it.
+macro_rules! stderr_line {
+    () => {
+        $crate::cli::common::write_stderr(format_args!("\n"))
+    };
+    ($($arg:tt)*) => {
+        $crate::cli::common::write_stderr(format_args!("{}\n", format_args!($($arg)*)))
+    };
+}
+
+/// Like [`stderr_line!`] without the line break (progress lines).
+macro_rules! stderr_text {
+    ($($arg:tt)*) => {
+        $crate::cli::common::write_stderr(format_args!($($arg)*))
+    };
+}
 
 pub mod common;
 

@@ -104,6 +104,12 @@ fn kind_of(path: &Path) -> Result<Kind, String> {
     }
 }
 
+/// Checks that `path` names a figure format that can be drawn, so a wrong
+/// name is refused before a run rather than after it.
+pub fn check_figure_path(path: &Path) -> Result<(), String> {
+    kind_of(path).map(|_| ())
+}
+
 /// Draws through `draw` into a temporary file, then renames it to `path`
 /// (see [`super::common::replace_atomically`]); never over one of `inputs`.
 fn write_figure(

@@ -6,6 +6,7 @@
 //! time, values in the model's default units.
 
 use super::common::{self, load_model, run_error, usage_error, write_atomic};
+use crate::diagnostics::SourceMap;
 use crate::model::Model;
 use crate::sim::{self, Method, Prepared, Settings, Trajectory};
 use std::path::{Path, PathBuf};
@@ -71,9 +72,14 @@ pub struct Args {
     pub log_values: bool,
 }
 
-/// Loads the model and applies `--set` overrides.
-pub(crate) fn model_with_overrides(file: &Path, set: &[String]) -> Result<Model, ExitCode> {
-    let (model, _sources) = load_model(file, false)?;
+/// Loads the model (diagnostics as JSON when `json`) and applies `--set`
+/// overrides; the sources are the files read.
+pub(crate) fn model_with_overrides(
+    file: &Path,
+    set: &[String],
+    json: bool,
+) -> Result<(Model, SourceMap), ExitCode> {
+    let (model, sources) = load_model(file, json)?;
     let mut overrides = Vec::new();
     for s in set {
         match common::parse_assignment(s, &model) {
@@ -82,10 +88,11 @@ pub(crate) fn model_with_overrides(file: &Path, set: &[String]) -> Result<Model,
         }
     }
     if overrides.is_empty() {
-        return Ok(model);
+        return Ok((model, sources));
     }
     model
         .with_overrides(&overrides)
+        .map(|m| (m, sources))
         .map_err(|e| usage_error(format!("--set: {e}")))
 }
 
@@ -129,10 +136,20 @@ fn output_times(args: &Args, model: &Model, prepared: &Prepared) -> Result<Vec<f
         if dt.is_nan() || dt <= 0.0 {
             return Err("--every: the interval must be positive".into());
         }
-        let n = (until / dt * (1.0 + 1e-12)).floor() as usize;
-        if n > 10_000_000 {
-            return Err(format!("--every: {n} output rows is too many"));
+        // Counted in f64: the count may not fit an integer (1e-300 s over
+        // 100 s), and a cast would saturate to a meaningless figure.
+        let rows = (until / dt * (1.0 + 1e-12)).floor();
+        if rows > 10_000_000.0 {
+            let count = if rows.is_finite() {
+                format!("about {rows:.1e} output rows")
+            } else {
+                "more output rows than can be counted".to_string()
+            };
+            return Err(format!(
+                "--every: the interval gives {count}, and at most 10,000,000 can be written; give a longer interval"
+            ));
         }
+        let n = rows as usize;
         let mut v: Vec<f64> = (0..=n).map(|i| i as f64 * dt).collect();
         if v.last().is_some_and(|&t| (until - t) > 1e-9 * until) {
             v.push(until);
@@ -157,10 +174,28 @@ pub fn run(args: &Args) -> ExitCode {
             "--rtol must lie in (0, 1) and --atol must be a positive finite number",
         );
     }
-    let model = match model_with_overrides(&args.file, &args.set) {
+    // Output paths are checked before the run: a wrong extension or an
+    // input file as output is a usage error, found before any work is done.
+    if let Some(path) = &args.output
+        && let Err(e) = table_format(path)
+    {
+        return usage_error(e);
+    }
+    if let Some(path) = &args.plot
+        && let Err(e) = super::plot::check_figure_path(path)
+    {
+        return usage_error(e);
+    }
+    let (model, sources) = match model_with_overrides(&args.file, &args.set, false) {
         Ok(m) => m,
         Err(code) => return code,
     };
+    let inputs: Vec<PathBuf> = sources.files().iter().map(|f| f.path.clone()).collect();
+    for path in args.output.iter().chain(&args.plot) {
+        if let Err(e) = common::refuse_input_overwrite(path, &inputs) {
+            return usage_error(e);
+        }
+    }
     let prepared = if args.reduced {
         match Prepared::reduced(&model) {
             Ok(p) => p,
@@ -213,7 +248,6 @@ pub fn run(args: &Args) -> ExitCode {
         Ok(t) => t,
         Err(e) => return sim_failure(&e),
     };
-    let inputs = vec![args.file.clone()];
 
     // Render everything first: nothing is written unless all outputs are ready.
     let file_output = match &args.output {
@@ -245,9 +279,6 @@ pub fn run(args: &Args) -> ExitCode {
             log_x: args.log_time,
             log_y: args.log_values,
         };
-        if let Err(e) = common::refuse_input_overwrite(plot_path, &inputs) {
-            return usage_error(e);
-        }
         if let Err(e) = super::plot::draw_lines(plot_path, &inputs, &spec) {
             return run_error(format!("[E0803] {e}"));
         }
@@ -256,17 +287,21 @@ pub fn run(args: &Args) -> ExitCode {
         if let Err(e) = write_atomic(path, &bytes, &inputs) {
             return run_error(format!("[E0803] {e}"));
         }
-        eprintln!(
-            "wrote {} rows to {}",
-            trajectory.times.len(),
+        stderr_line!(
+            "wrote {} to {}",
+            common::count_of(trajectory.times.len(), "row", "rows"),
             path.display()
         );
     }
-    if args.output.is_none() {
-        print!(
-            "{}",
-            compact_table(&prepared.model, &columns, &shown, &trajectory)
-        );
+    if args.output.is_none()
+        && let Err(failed) = common::write_stdout(&compact_table(
+            &prepared.model,
+            &columns,
+            &shown,
+            &trajectory,
+        ))
+    {
+        return failed;
     }
     ExitCode::SUCCESS
 }
@@ -299,15 +334,10 @@ fn render_file(
     columns: &[String],
     tr: &Trajectory,
 ) -> Result<Vec<u8>, String> {
-    let ext = path
-        .extension()
-        .and_then(|e| e.to_str())
-        .unwrap_or("")
-        .to_ascii_lowercase();
-    match ext.as_str() {
-        "csv" => Ok(delimited(columns, tr, ',').into_bytes()),
-        "tsv" => Ok(delimited(columns, tr, '\t').into_bytes()),
-        "json" => {
+    match table_format(path)? {
+        TableFormat::Csv => Ok(delimited(columns, tr, ',').into_bytes()),
+        TableFormat::Tsv => Ok(delimited(columns, tr, '\t').into_bytes()),
+        TableFormat::Json => {
             let nsp = model.species.len();
             let col = |c: usize| tr.rows.iter().map(|r| r[c]).collect::<Vec<f64>>();
             let species: serde_json::Map<String, serde_json::Value> = (0..nsp)
@@ -324,6 +354,26 @@ fn render_file(
             });
             serde_json::to_vec_pretty(&v).map_err(|e| format!("cannot encode JSON: {e}"))
         }
+    }
+}
+
+enum TableFormat {
+    Csv,
+    Tsv,
+    Json,
+}
+
+/// The format `-o` asks for, by the file's extension.
+fn table_format(path: &Path) -> Result<TableFormat, String> {
+    let ext = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .unwrap_or("")
+        .to_ascii_lowercase();
+    match ext.as_str() {
+        "csv" => Ok(TableFormat::Csv),
+        "tsv" => Ok(TableFormat::Tsv),
+        "json" => Ok(TableFormat::Json),
         _ => Err(format!(
             "-o {}: the output must end in .csv, .tsv or .json",
             path.display()
@@ -398,7 +448,7 @@ fn compact_table(model: &Model, columns: &[String], shown: &[usize], tr: &Trajec
         let line: Vec<String> = row
             .iter()
             .zip(&widths)
-            .map(|(c, w)| format!("{c:>w$}"))
+            .map(|(c, w)| common::pad_start(c, *w))
             .collect();
         out.push_str(line.join("  ").trim_end());
         out.push('\n');

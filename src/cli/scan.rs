@@ -315,12 +315,20 @@ pub fn run(args: &Args) -> ExitCode {
             if let Err(e) = write_atomic(path, csv.as_bytes(), &inputs) {
                 return run_error(format!("[E0803] {e}"));
             }
-            eprintln!("wrote {} points to {}", result.points.len(), path.display());
+            stderr_line!(
+                "wrote {} to {}",
+                super::common::count_of(result.points.len(), "point", "points"),
+                path.display()
+            );
         }
-        None => print!("{csv}"),
+        None => {
+            if let Err(failed) = super::common::write_stdout(&csv) {
+                return failed;
+            }
+        }
     }
     if let Some(first) = failures.first() {
-        eprintln!(
+        stderr_line!(
             "warning: {} of {} points failed (left empty); the first: {first}",
             failures.len(),
             result.values.len()

@@ -5,8 +5,9 @@
 //! `units`.
 
 use super::Format;
-use super::common::run_error;
+use super::common::{EXIT_MODEL, pad_end, report_failure, write_stdout};
 use super::run::{model_with_overrides, sim_failure};
+use crate::diagnostics::Diagnostic;
 use crate::sim::steady::{Stability, steady_state};
 use crate::sim::{Prepared, Settings};
 use std::path::PathBuf;
@@ -25,16 +26,21 @@ pub struct Args {
 }
 
 pub fn run(args: &Args) -> ExitCode {
-    let model = match model_with_overrides(&args.file, &args.set) {
+    let json = args.format == Format::Json;
+    let (model, sources) = match model_with_overrides(&args.file, &args.set, json) {
         Ok(m) => m,
         Err(code) => return code,
     };
     let prepared = match Prepared::reduced(&model) {
         Ok(p) => p,
-        Err(d) => return run_error(format!("[{}] {}", d.code.as_str(), d.message)),
+        Err(d) => return report_failure(&[d], &sources, json, EXIT_MODEL),
     };
     let result = match steady_state(&prepared, &Settings::default()) {
         Ok(s) => s,
+        Err(e) if json => {
+            let d = Diagnostic::error(e.code(), e.to_string());
+            return report_failure(&[d], &sources, json, EXIT_MODEL);
+        }
         Err(e) => return sim_failure(&e),
     };
     let m = &prepared.model;
@@ -72,47 +78,54 @@ pub fn run(args: &Args) -> ExitCode {
                 "units": { "concentration": m.units.concentration.symbol(), "time": m.units.time.symbol() },
                 "residual": result.residual,
             });
-            println!("{}", serde_json::to_string_pretty(&v).unwrap_or_default());
+            let text = serde_json::to_string_pretty(&v).unwrap_or_default();
+            if let Err(failed) = write_stdout(&format!("{text}\n")) {
+                return failed;
+            }
         }
         Format::Human => {
             let conc = m.units.concentration.symbol();
+            let time = m.units.time.symbol();
             let width = m
                 .species
                 .iter()
-                .map(|s| s.name.len())
-                .chain(m.observables.iter().map(|o| o.name.len()))
+                .map(|s| s.name.chars().count())
+                .chain(m.observables.iter().map(|o| o.name.chars().count()))
                 .max()
                 .unwrap_or(1);
-            println!("steady state ({conc}):");
+            let mut lines = vec![format!("steady state ({conc}):")];
             for (s, v) in m.species.iter().zip(&result.values) {
-                println!("  {:<width$}  {v:.6e}", s.name);
+                lines.push(format!("  {}  {v:.6e}", pad_end(&s.name, width)));
             }
             if !m.observables.is_empty() {
-                println!("observables:");
+                lines.push("observables:".into());
                 for (o, v) in m.observables.iter().zip(&result.values[nsp..]) {
-                    println!("  {:<width$}  {v:.6e}", o.name);
+                    lines.push(format!("  {}  {v:.6e}", pad_end(&o.name, width)));
                 }
             }
-            let time = m.units.time.symbol();
-            println!("eigenvalues of the reduced Jacobian (1/{time}):");
+            lines.push(format!("eigenvalues of the reduced Jacobian (1/{time}):"));
             for (re, im) in &result.eigenvalues {
                 if *im == 0.0 {
-                    println!("  {re:.6e}");
+                    lines.push(format!("  {re:.6e}"));
                 } else {
-                    println!(
+                    lines.push(format!(
                         "  {re:.6e} {} {:.6e}i",
                         if *im < 0.0 { "-" } else { "+" },
                         im.abs()
-                    );
+                    ));
                 }
             }
             if result.eigenvalues.is_empty() {
-                println!("  (none: no species varies independently)");
+                lines.push("  (none: no species varies independently)".into());
             }
-            println!(
+            lines.push(format!(
                 "{stability} (max |dy/dt| = {:.2e} {conc}/{time})",
                 result.residual
-            );
+            ));
+            lines.push(String::new());
+            if let Err(failed) = write_stdout(&lines.join("\n")) {
+                return failed;
+            }
         }
     }
     ExitCode::SUCCESS

@@ -169,6 +169,9 @@ pub struct Diagnostic {
     pub message: String,
     pub labels: Vec<Label>,
     pub help: Option<String>,
+    /// The file a diagnostic is about when no label can point into it (a
+    /// file that could not be read has no text to label).
+    pub path: Option<PathBuf>,
 }
 
 impl Diagnostic {
@@ -179,6 +182,7 @@ impl Diagnostic {
             message: message.into(),
             labels: vec![],
             help: None,
+            path: None,
         }
     }
     pub fn warning(code: Code, message: impl Into<String>) -> Self {
@@ -188,6 +192,7 @@ impl Diagnostic {
             message: message.into(),
             labels: vec![],
             help: None,
+            path: None,
         }
     }
     pub fn with_label(mut self, span: Span, message: impl Into<String>) -> Self {
@@ -195,6 +200,10 @@ impl Diagnostic {
             span,
             message: message.into(),
         });
+        self
+    }
+    pub fn with_path(mut self, path: impl Into<PathBuf>) -> Self {
+        self.path = Some(path.into());
         self
     }
     pub fn with_help(mut self, help: impl Into<String>) -> Self {

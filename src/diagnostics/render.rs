@@ -107,7 +107,11 @@ pub fn to_json_value(diag: &Diagnostic, sources: &SourceMap) -> serde_json::Valu
             let (f, l, c, _, _) = position(span);
             (f, Some(l), Some(c))
         }
-        None => (None, None, None),
+        None => (
+            diag.path.as_ref().map(|p| p.display().to_string()),
+            None,
+            None,
+        ),
     };
     let labels: Vec<serde_json::Value> = diag
         .labels

@@ -117,6 +117,7 @@ fn read_source(path: &Path) -> Result<String, Diagnostic> {
             Code::FileRead,
             format!("cannot read {}: {e}", path.display()),
         )
+        .with_path(path)
         .with_help("check the path and the file's permissions")
     };
     // Read at most one byte past the limit, so an endless source (a device
@@ -256,6 +257,14 @@ fn collect_files(
     trees.push((file, tree));
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
     for (rel, span) in uses {
+        if rel.trim().is_empty() {
+            diags.push(
+                Diagnostic::error(Code::FileRead, "cannot include \"\": the path is empty")
+                    .with_label(span, "no file named")
+                    .with_help("write the path of a .mech file, relative to this file"),
+            );
+            continue;
+        }
         let target = base.join(&rel);
         let canonical = target.canonicalize().unwrap_or_else(|_| target.clone());
         if let Some(pos) = stack.iter().position(|(c, _)| *c == canonical) {
@@ -292,21 +301,12 @@ fn collect_files(
             }
             Err(d) => {
                 let mut d = locate_bad_bytes(d, &target, sources);
-                d.code = if d.code == Code::FileRead {
-                    Code::FileRead
-                } else {
-                    d.code
-                };
+                // Labelled at the `use` line: a model error (exit 1), unlike
+                // an unreadable file named on the command line (exit 2).
                 d.labels.push(crate::diagnostics::Label {
                     span,
                     message: "included here".into(),
                 });
-                // A missing included file is a model error, not a usage error.
-                d.code = if d.code == Code::FileRead {
-                    Code::UnknownName
-                } else {
-                    d.code
-                };
                 d.message = format!("cannot include \"{rel}\": {}", d.message);
                 diags.push(d);
             }
@@ -383,6 +383,9 @@ struct Lowerer<'s> {
     /// Per param: its AST value and file units, for resolution in order.
     param_sources: Vec<(ParamValue, Units)>,
     used: HashSet<Sym>,
+    /// Species whose written initial value was refused: their value is a
+    /// placeholder 0, so lints about starting at 0 would be follow-ons.
+    initial_refused: HashSet<usize>,
     sources: &'s SourceMap,
     /// Name comparisons left for "did you mean" suggestions. Each unknown
     /// name is compared with every declared one, so without a bound a file
@@ -403,6 +406,7 @@ impl<'s> Lowerer<'s> {
             diags: Vec::new(),
             param_sources: Vec::new(),
             used: HashSet::new(),
+            initial_refused: HashSet::new(),
             sources,
             suggestion_budget: SUGGESTION_COMPARISONS,
         }
@@ -498,11 +502,13 @@ impl<'s> Lowerer<'s> {
                             continue;
                         }
                         let (initial, given) = match &d.value {
-                            Some(q) => (
-                                self.concentration(q, item.units, "an initial value")
-                                    .unwrap_or(0.0),
-                                true,
-                            ),
+                            Some(q) => {
+                                let value = self.concentration(q, item.units, "an initial value");
+                                if value.is_none() {
+                                    self.initial_refused.insert(idx);
+                                }
+                                (value.unwrap_or(0.0), true)
+                            }
                             None => (0.0, false),
                         };
                         if initial < 0.0 {
@@ -880,6 +886,10 @@ impl<'s> Lowerer<'s> {
                     }
                 }
                 ParamValue::Expr(e) => {
+                    if let Some(word) = self.word_in_place_of_a_number(e) {
+                        self.report_word_for_a_number(word);
+                        continue;
+                    }
                     exprs[i] = self.resolve(e, &|s| matches!(s, Sym::Param(_)), "a param's value");
                 }
             }
@@ -976,6 +986,37 @@ impl<'s> Lowerer<'s> {
                 p.dim = dim;
                 p.definition = ParamDef::Expr(e);
             }
+        }
+    }
+
+    /// `param k = NaN /s` or `param k = fast /s`: an undeclared word where
+    /// the number of a quantity belongs, followed by unit words. Reported
+    /// once, for the word; the unit words are not names to resolve.
+    fn word_in_place_of_a_number<'e>(&self, e: &'e AstExpr) -> Option<&'e Ident> {
+        let undeclared = |name: &str| !self.names.contains_key(name) && !RESERVED.contains(&name);
+        let undeclared_unit = |x: &AstExpr| matches!(x, AstExpr::Name(u) if undeclared(&u.name) && parse_unit(&u.name).is_ok());
+        match e {
+            AstExpr::Name(word) if undeclared(&word.name) => Some(word),
+            AstExpr::Binary(AstBinOp::Div | AstBinOp::Mul, lhs, rhs, _) if undeclared_unit(rhs) => {
+                self.word_in_place_of_a_number(lhs)
+            }
+            _ => None,
+        }
+    }
+
+    fn report_word_for_a_number(&mut self, word: &Ident) {
+        let lower = word.name.to_ascii_lowercase();
+        if matches!(lower.as_str(), "nan" | "inf" | "infinity") {
+            self.error(
+                Diagnostic::error(
+                    Code::BadNumber,
+                    format!("`{}` is not a finite number", word.name),
+                )
+                .with_label(word.span, "not a number")
+                .with_help("a value must be a finite number, e.g. `param k = 0.5 /s`"),
+            );
+        } else {
+            self.unknown_name(word, "anything");
         }
     }
 
@@ -1809,7 +1850,11 @@ impl<'s> Lowerer<'s> {
                         "use it in a step, declare it `fixed` if it is a constant, or remove it",
                     ),
                 );
-            } else if consumed[k] && !produced[k] && s.initial == 0.0 {
+            } else if consumed[k]
+                && !produced[k]
+                && s.initial == 0.0
+                && !self.initial_refused.contains(&k)
+            {
                 self.diags.push(
                     Diagnostic::warning(
                         Code::ConsumedOnly,

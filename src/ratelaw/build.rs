@@ -734,8 +734,13 @@ fn plan_component(
             .map(|&j| model.steps[j].name.as_str())
             .collect();
         if !cyclic.is_empty() {
+            let (steps, its) = if cyclic.len() == 1 {
+                ("step", "its equilibrium constant equals the one")
+            } else {
+                ("steps", "their equilibrium constants equal the ones")
+            };
             notes.push(format!(
-                "the rapid equilibria among {} close a cycle; the derivation uses the other equilibria and assumes {} are consistent with them (detailed balance)",
+                "the rapid equilibria among {} close a cycle; the derivation takes the ratios of these forms from the other equilibria and assumes that, for {steps} {}, {its} the other equilibria imply (detailed balance: the product of the equilibrium constants around the cycle is 1)",
                 members.iter().map(|&f| model.species[f].name.as_str()).collect::<Vec<_>>().join(", "),
                 cyclic.join(", ")
             ));

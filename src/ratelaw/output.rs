@@ -205,10 +205,18 @@ pub fn human(d: &Derivation, model: &Model) -> String {
     }
     if !d.constants.is_empty() {
         out.push_str("\nkinetic constants:\n");
-        let width = d.constants.iter().map(|c| c.name.len()).max().unwrap_or(0);
+        // Padded by hand: a formatting width over 65,535 panics, and names
+        // have no length limit.
+        let width = d
+            .constants
+            .iter()
+            .map(|c| c.name.chars().count())
+            .max()
+            .unwrap_or(0);
         for c in &d.constants {
+            let padding = " ".repeat(width - c.name.chars().count());
             out.push_str(&format!(
-                "  {:width$} = {}    ({})\n",
+                "  {}{padding} = {}    ({})\n",
                 c.name,
                 rational_text(&c.value, &p),
                 c.meaning

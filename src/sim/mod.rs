@@ -133,7 +133,12 @@ impl SimError {
 impl fmt::Display for SimError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self.time {
-            Some(t) => write!(f, "integration failed at t = {t:e}: {}", self.message)?,
+            Some(t) => write!(
+                f,
+                "integration failed at t = {}: {}",
+                readable(t),
+                self.message
+            )?,
             None => write!(f, "{}", self.message)?,
         }
         if let Some((i, v)) = self.species {
@@ -141,13 +146,39 @@ impl fmt::Display for SimError {
                 .species_name
                 .clone()
                 .unwrap_or_else(|| format!("species #{i}"));
-            write!(f, "; species `{name}` = {v:e}")?;
+            write!(f, "; species `{name}` = {}", readable(v))?;
         }
         Ok(())
     }
 }
 
 impl std::error::Error for SimError {}
+
+/// A number for a message: 6 significant digits, plain for magnitudes a
+/// person reads as such (`0`, `9.99989`, `250`), with an exponent beyond
+/// (`2.16879e15`), never Rust's `0e0`.
+fn readable(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let (mantissa, exponent) = {
+        let text = format!("{v:.5e}");
+        let (m, e) = text.split_once('e').unwrap_or((&text, "0"));
+        let m = m.trim_end_matches('0').trim_end_matches('.').to_string();
+        (m, e.parse::<i32>().unwrap_or(0))
+    };
+    if (-3..6).contains(&exponent) {
+        let decimals = (5 - exponent).max(0) as usize;
+        let text = format!("{v:.decimals$}");
+        if text.contains('.') {
+            text.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            text
+        }
+    } else {
+        format!("{mantissa}e{exponent}")
+    }
+}
 
 impl From<CompileError> for SimError {
     fn from(e: CompileError) -> Self {

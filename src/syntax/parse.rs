@@ -241,6 +241,15 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
                 .collect::<String>()
         )
     };
+    let line_start = text[..start].rfind('\n').map(|i| i + 1).unwrap_or(0);
+    // `step r 0 A -> B`, `step r 0/1 A -> B`: the grammar reads `0` as the
+    // empty side and then stops, so "expected an arrow" alone would not say
+    // why the species after it is wrong.
+    let after_empty_side = matches!(
+        text[line_start..start].split_whitespace().last(),
+        Some("0" | "∅")
+    ) && matches!(&e.variant, ErrorVariant::ParsingError { positives, .. }
+        if positives.iter().any(|r| matches!(r, Rule::arrow | Rule::rate)));
     let message = match &e.variant {
         ErrorVariant::ParsingError {
             positives,
@@ -249,18 +258,25 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
             let mut words: Vec<String> = positives.iter().map(rule_word).collect();
             words.sort();
             words.dedup();
+            let after = if after_empty_side {
+                " after the empty side `0`"
+            } else {
+                ""
+            };
             match words.len() {
                 0 => format!("unexpected {found}"),
-                1 => format!("expected {}, found {found}", words[0]),
+                1 => format!("expected {}{after}, found {found}", words[0]),
                 _ => {
                     let last = words.pop().unwrap_or_default();
-                    format!("expected {} or {last}, found {found}", words.join(", "))
+                    format!(
+                        "expected {} or {last}{after}, found {found}",
+                        words.join(", ")
+                    )
                 }
             }
         }
         ErrorVariant::CustomError { message } => message.clone(),
     };
-    let line_start = text[..start].rfind('\n').map(|i| i + 1).unwrap_or(0);
     let first_word = text[line_start..].split_whitespace().next().unwrap_or("");
     let help = if start == line_start || text[line_start..start].trim().is_empty() {
         const KEYWORDS: [&str; 13] = [
@@ -285,6 +301,8 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
                 KEYWORDS.join(", ")
             ),
         }
+    } else if after_empty_side {
+        "`0` alone means no species, and a coefficient cannot be 0: remove the `0`, or write a positive coefficient".to_string()
     } else {
         "see docs/language.md for the form of each statement".to_string()
     };
