@@ -279,7 +279,7 @@ fn bad_output_paths_are_usage_errors_before_any_work() {
     let c_input = dir.path().join("pair.c");
     std::fs::write(&c_input, &text).unwrap();
     let c_stem = dir.path().join("pair");
-    let cases: [&[&str]; 10] = [
+    let cases: [&[&str]; 12] = [
         &["run", m, "--plot", pdf.to_str().unwrap()],
         &["run", m, "-o", "p.txt"],
         &["run", c, "-o", c],
@@ -297,6 +297,30 @@ fn bad_output_paths_are_usage_errors_before_any_work() {
         ],
         &["derive", m, "-o", m],
         &["derive", m, "-o", l],
+        &[
+            "scan",
+            c,
+            "--vary",
+            "k_on=1..2:2",
+            "--measure",
+            "P",
+            "--at",
+            "1",
+            "-o",
+            cl,
+        ],
+        &[
+            "scan",
+            m,
+            "--vary",
+            "k_on=1..2:2",
+            "--measure",
+            "P",
+            "--at",
+            "1",
+            "--plot",
+            pdf.to_str().unwrap(),
+        ],
     ];
     for args in cases {
         let out = ratewright(args);

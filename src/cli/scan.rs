@@ -108,6 +108,24 @@ pub fn run(args: &Args) -> ExitCode {
         common::print_diagnostics(&alone.diagnostics, &alone.sources);
         return ExitCode::from(common::EXIT_MODEL);
     }
+    // Output paths are checked before any point is run: a path over an
+    // input file or a figure of an unknown kind is a usage error.
+    let inputs: Vec<PathBuf> = alone
+        .sources
+        .files()
+        .iter()
+        .map(|f| f.path.clone())
+        .collect();
+    for path in args.output.iter().chain(&args.plot) {
+        if let Err(e) = common::refuse_input_overwrite(path, &inputs) {
+            return usage_error(e);
+        }
+    }
+    if let Some(path) = &args.plot
+        && let Err(e) = super::plot::check_figure_path(path)
+    {
+        return usage_error(e);
+    }
     let measure_name = fresh_name(&text);
     let extended = format!("{text}\nobserve {measure_name} = {}\n", args.measure);
     let loaded = crate::model::load_str(&extended, &args.file);
