@@ -1091,3 +1091,49 @@ fn sympy_solution_of_the_same_linear_system_agrees() {
         failures.join("\n")
     );
 }
+
+#[test]
+fn an_equilibrium_cycle_that_breaks_detailed_balance_is_noted() {
+    // Rapid-equilibrium random bi bi: around the cycle E -> EA -> EAB <- EB
+    // <- E the equilibrium constants must multiply to 1 (Wegscheider's
+    // condition, Z. Phys. Chem. 39:257, 1901; from memory). Here
+    // K(bA)·K(bAB) = 0.1·0.05 = 0.005 and K(bB) = 0.05, so K(bBA) must be 0.1;
+    // written as 2/20 it holds, as 2/2000 it is 0.01 times that.
+    let dir = tempfile::tempdir().unwrap();
+    for (kmba, broken) in [("20", false), ("2000", true)] {
+        let path = dir.path().join(format!("random_bibi_{kmba}.mech"));
+        std::fs::write(
+            &path,
+            format!(
+                "species A = 50 uM\nspecies B = 200 uM\nspecies P, Q\nspecies E = 0.01 uM\nspecies EA, EB, EAB\n\
+                 param ka = 1 /uM/s\nparam kma = 10 /s\nparam kb = 2 /uM/s\nparam kmb = 40 /s\n\
+                 param kab = 1 /uM/s\nparam kmab = 20 /s\nparam kba = 2 /uM/s\nparam kmba = {kmba} /s\nparam kcat = 30 /s\n\
+                 step bA E + A <=> EA with ka, kma\nstep bB E + B <=> EB with kb, kmb\n\
+                 step bAB EA + B <=> EAB with kab, kmab\nstep bBA EB + A <=> EAB with kba, kmba\n\
+                 step cat EAB -> E + P + Q with kcat\ntotal E_t = E + EA + EB + EAB\n\
+                 assume steady E, EA, EB, EAB\nassume equilibrium bA, bB, bAB, bBA\n"
+            ),
+        )
+        .unwrap();
+        let json = derive_json(&path, &[]);
+        let notes: Vec<&str> = json["notes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|n| n.as_str().unwrap())
+            .collect();
+        let flagged: Vec<&&str> = notes
+            .iter()
+            .filter(|n| n.contains("detailed balance does not hold"))
+            .collect();
+        if broken {
+            assert_eq!(flagged.len(), 1, "{notes:?}");
+            assert!(
+                flagged[0].contains("bBA") && flagged[0].contains("0.0100 times"),
+                "{notes:?}"
+            );
+        } else {
+            assert!(flagged.is_empty(), "{notes:?}");
+        }
+    }
+}

@@ -744,6 +744,42 @@ fn plan_component(
                 members.iter().map(|&f| model.species[f].name.as_str()).collect::<Vec<_>>().join(", "),
                 cyclic.join(", ")
             ));
+            // With the values given, check that assumption (Wegscheider's
+            // condition). The ratio does not depend on concentrations (both
+            // routes bind the same species), so they are set to 1.
+            let value = |v: Var| match cx.kinds[v as usize] {
+                VarKind::Param(i) => model.params[i].value,
+                VarKind::Fixed(i) => model.fixed[i].value,
+                VarKind::Species(_) | VarKind::Total(_) => 1.0,
+            };
+            for &j in equilibrium {
+                let v = &views[j];
+                let (Some(a), Some(b)) = (v.left, v.right) else {
+                    continue;
+                };
+                if used[j] || !members.contains(&a) {
+                    continue;
+                }
+                let (Some(ra), Some(rb), Some(reverse)) =
+                    (rel.get(&a), rel.get(&b), v.reverse.as_ref())
+                else {
+                    continue;
+                };
+                let implied = rb.eval(&value) / ra.eval(&value);
+                let given = v.forward.eval(&value) / reverse.eval(&value);
+                let factor = given / implied;
+                if factor.is_finite() && (factor - 1.0).abs() > 1e-6 {
+                    notes.push(format!(
+                        "detailed balance does not hold with the values given: step {}'s equilibrium constant is {} times what the other equilibria of the cycle imply; the rate law follows the other equilibria, so check the constants (in a true equilibrium cycle their product around the cycle is 1)",
+                        model.steps[j].name,
+                        if (1e-3..1e4).contains(&factor.abs()) {
+                            format!("{factor:.4}")
+                        } else {
+                            format!("{factor:.3e}")
+                        }
+                    ));
+                }
+            }
         }
         let mut sum = RationalFunction::zero();
         for r in rel.values() {
