@@ -1020,3 +1020,32 @@ fn a_bad_measured_expression_is_a_usage_error_that_quotes_it() {
     ]);
     assert_eq!(out.status.code(), Some(2));
 }
+
+#[test]
+fn a_non_finite_observable_is_written_and_warned_about() {
+    // ratio = A / B with B(0) = 0 is infinite at t = 0 only (IEEE 754
+    // division; common practice), then A/B = e^{-t}/(1 - e^{-t}).
+    let dir = tempfile::tempdir().unwrap();
+    let m = write_model(
+        dir.path(),
+        "ratio.mech",
+        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\n\
+         step r A -> B with k\nobserve ratio = A / B\n",
+    );
+    let csv = dir.path().join("ratio.csv");
+    let out = ratewright(&[
+        "run",
+        m.to_str().unwrap(),
+        "--times",
+        "0,1",
+        "-o",
+        csv.to_str().unwrap(),
+    ]);
+    assert!(out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("observable `ratio` is inf at t = 0"), "{err}");
+    let (_, rows) = read_csv(&csv);
+    assert!(rows[0][3].is_infinite());
+    let e = (-1f64).exp();
+    assert!((rows[1][3] - e / (1.0 - e)).abs() <= 1e-5);
+}

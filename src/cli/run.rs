@@ -248,6 +248,28 @@ pub fn run(args: &Args) -> ExitCode {
         Ok(t) => t,
         Err(e) => return sim_failure(&e),
     };
+    // Species stay finite (the solver fails otherwise), but an observable
+    // such as A / B with B = 0 does not; CSV writes it as `inf` or `NaN`
+    // and JSON as null, so say where it first happened.
+    let nspecies = prepared.model.species.len();
+    if let Some((t, k, v)) = trajectory
+        .times
+        .iter()
+        .zip(&trajectory.rows)
+        .find_map(|(t, row)| {
+            row.iter()
+                .enumerate()
+                .skip(nspecies)
+                .find(|(_, v)| !v.is_finite())
+                .map(|(k, v)| (*t, k, *v))
+        })
+    {
+        stderr_line!(
+            "warning: observable `{}` is {v} at t = {t} (first of its non-finite values; written as {} in CSV/TSV and null in JSON)",
+            prepared.model.observables[k - nspecies].name,
+            v
+        );
+    }
 
     // Render everything first: nothing is written unless all outputs are ready.
     let file_output = match &args.output {
