@@ -1049,3 +1049,29 @@ fn a_non_finite_observable_is_written_and_warned_about() {
     let e = (-1f64).exp();
     assert!((rows[1][3] - e / (1.0 - e)).abs() <= 1e-5);
 }
+
+#[test]
+fn the_oregonator_matches_the_published_reference_solution() {
+    // Bari IVP test set (Mazzia & Magherini), problem OREGO, reference
+    // solution at t = 360 (from memory): y1 = 1.000814870318523,
+    // y2 = 1228.178521549917, y3 = 132.0554942846706.
+    let dir = tempfile::tempdir().unwrap();
+    let reference = [1.000814870318523, 1228.178521549917, 132.0554942846706];
+    for method in ["bdf", "esdirk"] {
+        let (_, rows) = simulate_csv(
+            dir.path(),
+            &root().join("tests/fixtures/orego.mech"),
+            &[
+                "--times", "360", "--rtol", "1e-10", "--atol", "1e-10", "--method", method,
+            ],
+        );
+        for (k, want) in reference.iter().enumerate() {
+            let got = rows[0][k + 1];
+            assert!(
+                (got - want).abs() <= 1e-6 * want.abs(),
+                "{method}: y{} = {got} vs {want}",
+                k + 1
+            );
+        }
+    }
+}
