@@ -1118,14 +1118,18 @@ impl<'s> Lowerer<'s> {
     /// first mismatched sum (calling `infer_dim` at every node would be
     /// quadratic in a long sum).
     fn dim_or_mismatch(&self, e: &Expr) -> Result<Option<Dim>, (Dim, Dim)> {
-        let same = |a: &Expr, da: Option<Dim>, b: &Expr, db: Option<Dim>| match (da, db) {
+        // A literal has no dimension of its own here, as a param written
+        // without a unit has none: published test problems are often
+        // scaled, with constants and offsets written as bare numbers
+        // (`(1 + y1) * y2`), so anything a literal takes part in is of
+        // unknown dimension and only sums of named quantities are judged.
+        let same = |_: &Expr, da: Option<Dim>, _: &Expr, db: Option<Dim>| match (da, db) {
             (Some(x), Some(y)) if x == y => Ok(Some(x)),
-            (Some(x), Some(y)) if x == Dim::NONE && is_plain_number(a) => Ok(Some(y)),
-            (Some(x), Some(y)) if y == Dim::NONE && is_plain_number(b) => Ok(Some(x)),
             (Some(x), Some(y)) => Err((x, y)),
             _ => Ok(None),
         };
         Ok(match e {
+            Expr::Number(_) => None,
             Expr::Neg(a) => self.dim_or_mismatch(a)?,
             Expr::Binary(op, a, b) => {
                 let (da, db) = (self.dim_or_mismatch(a)?, self.dim_or_mismatch(b)?);
