@@ -103,14 +103,14 @@ fn module(sys: &System, options: &EmitOptions) -> String {
             float_literal(c.value)
         );
     }
-    o.push_str("}\n\n# Initial values of the state variables.\nINITIAL = {\n");
-    for (&i, v) in sys.state.iter().zip(sys.initial_state()) {
-        let _ = writeln!(
-            o,
-            "    {}: {},",
-            quoted(&m.species[i].name),
-            float_literal(v)
-        );
+    // Every species, not only the state variables: `--set` of a start value
+    // recomputes the totals from these, as `ratewright run --set` does.
+    o.push_str("}\n\n# Initial values of every species (the state variables start from these,\n# and the totals are computed from them).\nINITIAL = {\n");
+    let state_start: std::collections::BTreeMap<usize, f64> =
+        sys.state.iter().copied().zip(sys.initial_state()).collect();
+    for (i, species) in m.species.iter().enumerate() {
+        let v = state_start.get(&i).copied().unwrap_or(species.initial);
+        let _ = writeln!(o, "    {}: {},", quoted(&species.name), float_literal(v));
     }
     o.push_str(
         "}\n\n# Timed events: (time, kind, species, amount), applied in order.\nEVENTS = [\n",
@@ -373,7 +373,14 @@ pub(crate) fn combination(terms: &[(usize, Coef)], item: impl Fn(usize) -> Strin
 const REDUCE_STATE_FULL: &str = r#"
 
 def state_from_full(x, p):
-    """The state vector and parameters from a full species vector (after an event)."""
+    """The state vector and parameters from a full species vector (after an
+    event): totals recomputed, since an event changes them and rate laws or
+    observables may use them."""
+    p = dict(p)
+    index = {name: i for i, name in enumerate(SPECIES)}
+    for total, terms in TOTALS.items():
+        if total in p:
+            p[total] = sum(c * x[index[s]] for s, c in terms.items())
     return np.array(x, dtype=float), p
 "#;
 
@@ -470,15 +477,25 @@ def main(argv=None):
     parser.add_argument("-o", "--output", help="CSV file (default: standard output)")
     args = parser.parse_args(argv)
     p = dict(PARAMS)
+    set_totals = set()
+    starts_changed = False
     for item in args.set:
         key, _, value = item.partition("=")
         key = key.strip()
         if key in p:
             p[key] = float(value)
+            set_totals.add(key)
         elif key in INITIAL:
             INITIAL[key] = float(value)
+            starts_changed = True
         else:
-            parser.error(f"no parameter or state variable named {key!r}")
+            parser.error(f"no parameter or species named {key!r}")
+    if starts_changed:
+        # New start values change the totals they belong to (unless a total
+        # was set itself), as with `ratewright run --set`.
+        for total, terms in TOTALS.items():
+            if total in p and total not in set_totals:
+                p[total] = sum(c * INITIAL[s] for s, c in terms.items())
     times = np.linspace(0.0, args.until, args.points)
     rows = simulate(times, p, rtol=args.rtol, atol=args.atol)
     out = open(args.output, "w", newline="") if args.output else sys.stdout
