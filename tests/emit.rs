@@ -1394,3 +1394,84 @@ fn latex_output_compiles_with_pdflatex() {
         }
     }
 }
+
+#[test]
+fn emitted_sbml_integrated_by_libsbml_and_scipy_follows_run_through_events() {
+    // libSBML reads the file and SciPy's Radau integrates it (an independent
+    // reading of the SBML semantics: assignment rules, event priorities,
+    // values taken when an event executes); `run` must agree to 1e-6.
+    let dir = temp();
+    for fixture in [
+        "models/protease_assay.mech",
+        "tests/fixtures/event_changes_a_total.mech",
+        "tests/fixtures/events_at_one_time.mech",
+    ] {
+        let path = root().join(fixture);
+        let file = dir.path().join("model.xml");
+        emit(&path, "sbml", false, &file);
+        let model = load(&path);
+        let end = model.events.iter().map(|e| e.time).fold(0.0, f64::max) * 1.5 + 1.0;
+        let times: Vec<String> = (0..=12)
+            .map(|k| format!("{}", end * k as f64 / 12.0))
+            .collect();
+        let mut times = times;
+        // The events' own times too, where the row holds the state after them.
+        times.extend(model.events.iter().map(|e| format!("{}", e.time)));
+        let mut sorted: Vec<f64> = times.iter().map(|t| t.parse().unwrap()).collect();
+        sorted.sort_by(f64::total_cmp);
+        sorted.dedup();
+        let list = sorted
+            .iter()
+            .map(|t| format!("{t}"))
+            .collect::<Vec<_>>()
+            .join(",");
+        let out = python(
+            &root().join("tests/python/sbml_simulate.py"),
+            &[file.to_str().unwrap(), &list],
+        );
+        assert!(
+            out.status.success(),
+            "{fixture}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let sbml_csv = dir.path().join("sbml.csv");
+        std::fs::write(&sbml_csv, &out.stdout).unwrap();
+        let run_csv = dir.path().join("run.csv");
+        let o = ratewright(&[
+            "run",
+            path.to_str().unwrap(),
+            "--times",
+            &list,
+            "--rtol",
+            "1e-10",
+            "--atol",
+            "1e-14",
+            "-o",
+            run_csv.to_str().unwrap(),
+        ]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let (h_sbml, r_sbml) = read_csv(&sbml_csv);
+        let (h_run, r_run) = read_csv(&run_csv);
+        assert_eq!(r_sbml.len(), r_run.len(), "{fixture}");
+        for (c, name) in h_sbml.iter().enumerate().skip(1) {
+            let k = h_run
+                .iter()
+                .position(|h| h == name)
+                .unwrap_or_else(|| panic!("{name}"));
+            let scale = r_run
+                .iter()
+                .map(|r| r[k].abs())
+                .fold(0.0, f64::max)
+                .max(1e-300);
+            for (a, b) in r_sbml.iter().zip(&r_run) {
+                assert!(
+                    close(a[c], b[k], 1e-6, scale),
+                    "{fixture}: {name} at t = {}: SBML {} vs run {}",
+                    a[0],
+                    a[c],
+                    b[k]
+                );
+            }
+        }
+    }
+}

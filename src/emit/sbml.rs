@@ -1,11 +1,13 @@
 //! SBML target: SBML Level 3 Version 2 core. One compartment of size 1 in
 //! the model's volume unit; species in concentrations (fixed species are
 //! boundary conditions and constant); params with values are constant
-//! parameters, derived params get initial assignments, observables
-//! assignment rules; reactions carry the reversible flag and content-MathML
-//! kinetic laws (the rate times the compartment size, so the law is in
-//! substance per time as SBML requires); the timed additions, withdrawals
-//! and resets become SBML events.
+//! parameters, derived params get initial assignments, observables and
+//! totals assignment rules (a total follows its species through events);
+//! reactions carry the reversible flag and content-MathML kinetic laws (the
+//! rate times the compartment size, so the law is in substance per time as
+//! SBML requires); the timed additions, withdrawals and resets become SBML
+//! events, prioritised in file order and evaluated when they execute, so
+//! events at one time apply one after another as in `ratewright run`.
 //!
 //! The reduced system has no meaning for an exchange file of reactions, so
 //! `--reduced` is refused here (see `Target::supports_reduced`).
@@ -207,13 +209,14 @@ fn document(sys: &System, options: &EmitOptions) -> String {
             name_attr(&p.name, p.description.as_deref())
         );
     }
+    // A total follows its species (an assignment rule below): an event
+    // that adds to a species changes it, as `ratewright run` does.
     for (i, t) in m.totals.iter().enumerate() {
         let _ = writeln!(
             o,
-            "      <parameter id=\"{}\" name=\"{}\" value=\"{}\" units=\"{conc}\" constant=\"true\"/>",
+            "      <parameter id=\"{}\" name=\"{}\" units=\"{conc}\" constant=\"false\"/>",
             id(Sym::Total(i)),
-            xml_escape(&t.name),
-            plain_literal(t.value)
+            xml_escape(&t.name)
         );
     }
     for (i, ob) in m.observables.iter().enumerate() {
@@ -241,8 +244,30 @@ fn document(sys: &System, options: &EmitOptions) -> String {
         o.push_str("    </listOfInitialAssignments>\n");
     }
 
-    if !m.observables.is_empty() {
+    if !m.observables.is_empty() || !m.totals.is_empty() {
         o.push_str("    <listOfRules>\n");
+        for (i, t) in m.totals.iter().enumerate() {
+            let sum = t
+                .terms
+                .iter()
+                .map(|&(k, c)| {
+                    let species = Expr::Name(Sym::Species(k));
+                    let c = coef_f64(c);
+                    if c == 1.0 {
+                        species
+                    } else {
+                        Expr::mul(Expr::Number(c), species)
+                    }
+                })
+                .reduce(Expr::add)
+                .unwrap_or(Expr::Number(0.0));
+            let _ = writeln!(
+                o,
+                "      <assignmentRule variable=\"{}\">\n        <math xmlns=\"http://www.w3.org/1998/Math/MathML\">{}</math>\n      </assignmentRule>",
+                id(Sym::Total(i)),
+                math(&sum)
+            );
+        }
         for (i, ob) in m.observables.iter().enumerate() {
             let _ = writeln!(
                 o,
@@ -340,7 +365,7 @@ fn document(sys: &System, options: &EmitOptions) -> String {
             };
             let _ = writeln!(
                 o,
-                "      <event id=\"event_{k}\" name=\"{kind} {} at {}\" useValuesFromTriggerTime=\"true\">",
+                "      <event id=\"event_{k}\" name=\"{kind} {} at {}\" useValuesFromTriggerTime=\"false\">",
                 xml_escape(&m.species[e.species].name),
                 plain_literal(e.time)
             );
@@ -349,6 +374,13 @@ fn document(sys: &System, options: &EmitOptions) -> String {
                 "        <trigger initialValue=\"false\" persistent=\"true\">\n          <math xmlns=\"http://www.w3.org/1998/Math/MathML\"><apply><geq/>{}<cn> {} </cn></apply></math>\n        </trigger>",
                 print_expr(&Expr::Time, &id, Syntax::MathML),
                 plain_literal(e.time)
+            );
+            // Events at one time apply in file order, each to the state the
+            // previous one left (values taken when it executes).
+            let _ = writeln!(
+                o,
+                "        <priority>\n          <math xmlns=\"http://www.w3.org/1998/Math/MathML\"><cn type=\"integer\"> {} </cn></math>\n        </priority>",
+                m.events.len() - k
             );
             let _ = writeln!(
                 o,
