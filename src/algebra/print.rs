@@ -157,10 +157,84 @@ pub fn latex_escape(s: &str) -> String {
             '\\' => out.push_str("\\textbackslash{}"),
             '^' => out.push_str("\\^{}"),
             '~' => out.push_str("\\~{}"),
-            c => out.push(c),
+            c if c.is_ascii() => out.push(c),
+            // pdflatex reads only the characters its fonts are set up for:
+            // Greek letters (and µ, °) become their commands, anything else
+            // its code point, so the document always compiles.
+            c => match (greek_command(c), greek_plain(c)) {
+                (Some(command), _) => out.push_str(&format!("\\ensuremath{{\\{command}}}")),
+                (None, Some(latin)) => out.push(latin),
+                (None, None) if c == '°' => out.push_str("\\ensuremath{^\\circ}"),
+                (None, None) => out.push_str(&format!(
+                    "\\ensuremath{{\\langle\\mathrm{{U{{+}}{:04X}}}\\rangle}}",
+                    c as u32
+                )),
+            },
         }
     }
     out
+}
+
+/// The LaTeX command of a Greek letter (µ, the micro sign, as `mu`).
+fn greek_command(c: char) -> Option<&'static str> {
+    Some(match c {
+        'α' => "alpha",
+        'β' => "beta",
+        'γ' => "gamma",
+        'δ' => "delta",
+        'ε' => "epsilon",
+        'ζ' => "zeta",
+        'η' => "eta",
+        'θ' => "theta",
+        'ι' => "iota",
+        'κ' => "kappa",
+        'λ' => "lambda",
+        'μ' | 'µ' => "mu",
+        'ν' => "nu",
+        'ξ' => "xi",
+        'π' => "pi",
+        'ρ' => "rho",
+        'σ' | 'ς' => "sigma",
+        'τ' => "tau",
+        'υ' => "upsilon",
+        'φ' => "phi",
+        'χ' => "chi",
+        'ψ' => "psi",
+        'ω' => "omega",
+        'Γ' => "Gamma",
+        'Δ' => "Delta",
+        'Θ' => "Theta",
+        'Λ' => "Lambda",
+        'Ξ' => "Xi",
+        'Π' => "Pi",
+        'Σ' => "Sigma",
+        'Υ' => "Upsilon",
+        'Φ' => "Phi",
+        'Ψ' => "Psi",
+        'Ω' => "Omega",
+        _ => return None,
+    })
+}
+
+/// Greek letters that look like Latin ones (capital alpha, omicron, ...).
+fn greek_plain(c: char) -> Option<char> {
+    Some(match c {
+        'Α' => 'A',
+        'Β' => 'B',
+        'Ε' => 'E',
+        'Ζ' => 'Z',
+        'Η' => 'H',
+        'Ι' => 'I',
+        'Κ' => 'K',
+        'Μ' => 'M',
+        'Ν' => 'N',
+        'Ο' => 'O',
+        'ο' => 'o',
+        'Ρ' => 'P',
+        'Τ' => 'T',
+        'Χ' => 'X',
+        _ => return None,
+    })
 }
 
 /// Escapes text for XML content and attribute values.

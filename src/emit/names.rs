@@ -50,8 +50,9 @@ impl Names {
     }
 }
 
-/// A name made of ASCII letters, digits and `_`, not starting with a digit;
-/// other characters become `_uXXXX`.
+/// A name made of ASCII letters, digits and `_`, starting with a letter;
+/// other characters become `_uXXXX` (and a name that would start with `_`
+/// or a digit gets an `x` in front).
 pub fn identifier(name: &str) -> String {
     let mut out = String::new();
     for (i, ch) in name.chars().enumerate() {
@@ -64,7 +65,12 @@ pub fn identifier(name: &str) -> String {
             out.push_str(&format!("_u{:04x}", ch as u32));
         }
     }
-    if out.is_empty() { "_".into() } else { out }
+    // Every target accepts a leading letter; R and Octave refuse a leading
+    // `_`, and C reserves some names that start with one.
+    if out.starts_with('_') || out.is_empty() {
+        out.insert(0, 'x');
+    }
+    out
 }
 
 /// Whether `s` is already a plain ASCII identifier.
@@ -532,8 +538,9 @@ mod tests {
     #[test]
     fn identifiers_are_valid_and_unique() {
         assert_eq!(identifier("k_on"), "k_on");
-        assert_eq!(identifier("µM"), "_u00b5M");
-        assert_eq!(identifier("2A"), "_2A");
+        assert_eq!(identifier("µM"), "x_u00b5M");
+        assert_eq!(identifier("2A"), "x_2A");
+        assert_eq!(identifier("_x"), "x_x");
         assert!(is_identifier(&identifier("a-b c")));
         let mut m = Model::default();
         for name in ["if", "if_", "y"] {
