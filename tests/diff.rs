@@ -601,3 +601,43 @@ fn every_demo_model_equals_itself_shuffled_and_differs_from_the_others() {
         }
     }
 }
+
+#[test]
+fn params_without_units_in_other_units_are_no_change() {
+    // unitless_mm_min.mech is unitless_base.mech in mM and min with its
+    // rate constants converted and written without units (2 /uM/s =
+    // 1.2e5 /mM/min, 40 /s = 2400 /min; SI prefixes, 1 min = 60 s): their
+    // dimensions follow from their use, and so do those of the derived
+    // Km and the observable over it.
+    let (code, doc) = diff_json(
+        &fixture("unitless_base.mech"),
+        &fixture("unitless_mm_min.mech"),
+    );
+    assert_eq!(code, 0, "{doc:#}");
+}
+
+#[test]
+fn swapping_two_events_at_one_time_is_a_change() {
+    // Withdrawing everything then adding 10 uM leaves 10 uM; the other
+    // order leaves 0: the order of events at one time is meaning.
+    let dir = tempfile::tempdir().unwrap();
+    let body = |events: &str| {
+        format!(
+            "units concentration uM, time s\nspecies S = 50 uM\nspecies P\nparam k = 0.01 /s\nstep convert S -> P with k\n{events}"
+        )
+    };
+    let a = dir.path().join("a.mech");
+    let b = dir.path().join("b.mech");
+    std::fs::write(&a, body("remove 100 uM S at 30 s\nadd 10 uM S at 30 s\n")).unwrap();
+    std::fs::write(&b, body("add 10 uM S at 30 s\nremove 100 uM S at 30 s\n")).unwrap();
+    let (code, doc) = diff_json(a.to_str().unwrap(), b.to_str().unwrap());
+    assert_eq!(code, 1, "{doc:#}");
+    let order = detail(&doc, "event", "remove 100 uM S at 30 s", "order");
+    assert!(
+        order["old"].as_str().unwrap().starts_with("remove"),
+        "{order}"
+    );
+    assert!(order["new"].as_str().unwrap().starts_with("add"), "{order}");
+    let (code, _) = diff_json(a.to_str().unwrap(), a.to_str().unwrap());
+    assert_eq!(code, 0);
+}

@@ -559,6 +559,7 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
         &|a, b| ctx.same_value(a.time, b.time, time),
         &|a, b| ctx.same_value(a.amount, b.amount, conc),
     ];
+    let mut pairs: Vec<(usize, usize)> = Vec::new();
     for (pass, fits) in passes.iter().enumerate() {
         let mut i = 0;
         while i < old_left.len() {
@@ -569,6 +570,7 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
             });
             match found {
                 Some(p) => {
+                    pairs.push((old_left[i], new_left[p]));
                     let b = &new.events[new_left.remove(p)];
                     old_left.remove(i);
                     if pass > 0 {
@@ -599,6 +601,35 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
                     }
                 }
                 None => i += 1,
+            }
+        }
+    }
+    // Events on one species at one time apply in file order, so swapping
+    // two of them (withdraw everything, then add 10) changes the meaning.
+    pairs.sort_unstable();
+    for (x, &(a1, b1)) in pairs.iter().enumerate() {
+        for &(a2, b2) in &pairs[x + 1..] {
+            let (e1, e2) = (&old.events[a1], &old.events[a2]);
+            let same_moment = e1.time == e2.time
+                && e1.species == e2.species
+                && ctx.same_value(new.events[b1].time, new.events[b2].time, time);
+            if same_moment && b2 < b1 {
+                let order = |m: &Model, first: &Event, second: &Event| {
+                    format!("{}, then {}", event_text(m, first), event_text(m, second))
+                };
+                out.push(Change {
+                    item: ItemKind::Event,
+                    kind: ChangeKind::Changed,
+                    old_name: Some(event_text(old, e1)),
+                    new_name: Some(event_text(new, &new.events[b1])),
+                    old_text: Some(event_text(old, e1)),
+                    new_text: Some(event_text(new, &new.events[b1])),
+                    details: vec![Detail {
+                        aspect: "order",
+                        old: super::Shown::Text(order(old, e1, e2)),
+                        new: super::Shown::Text(order(new, &new.events[b2], &new.events[b1])),
+                    }],
+                });
             }
         }
     }

@@ -82,6 +82,15 @@ impl Dims {
             params,
             observables: vec![None; model.observables.len()],
         };
+        // A derived param with no written unit has the dimension of its
+        // formula over the (possibly inferred) dimensions of its parts.
+        for &i in &model.param_order {
+            if dims.params[i].is_none()
+                && let ParamDef::Expr(e) = &model.params[i].definition
+            {
+                dims.params[i] = infer_dim(e, &|s| dims.sym_dim(s)).known();
+            }
+        }
         // Observables may use earlier ones; a few passes settle any order.
         for _ in 0..model.observables.len().min(8) + 1 {
             for (i, o) in model.observables.iter().enumerate() {
@@ -364,7 +373,17 @@ impl<'a> Context<'a> {
         let dims = (self.old_dims.params[old], self.new_dims.params[new]);
         match (&a.definition, &b.definition) {
             (ParamDef::Value(x), ParamDef::Value(y)) => self.same_value(*x, *y, dims.0.or(dims.1)),
-            (ParamDef::Expr(x), ParamDef::Expr(y)) => self.same_expr(x, y, dims),
+            // A derived param of undeclared dimension takes the one its
+            // parts give (their dimensions may be inferred from their use),
+            // so the same formula in other units is the same param.
+            (ParamDef::Expr(x), ParamDef::Expr(y)) => self.same_expr(
+                x,
+                y,
+                (
+                    dims.0.or_else(|| self.expr_dim(Side::Old, x)),
+                    dims.1.or_else(|| self.expr_dim(Side::New, y)),
+                ),
+            ),
             _ => false,
         }
     }
@@ -386,12 +405,16 @@ impl<'a> Context<'a> {
 
     /// Whether two observables mean the same.
     pub fn same_observable(&self, old: usize, new: usize) -> bool {
-        self.same_expr(
+        let (x, y) = (
             &self.old.observables[old].expr,
             &self.new.observables[new].expr,
+        );
+        self.same_expr(
+            x,
+            y,
             (
-                self.old_dims.observables[old],
-                self.new_dims.observables[new],
+                self.old_dims.observables[old].or_else(|| self.expr_dim(Side::Old, x)),
+                self.new_dims.observables[new].or_else(|| self.expr_dim(Side::New, y)),
             ),
         )
     }
