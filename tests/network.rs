@@ -344,3 +344,23 @@ fn json_errors_are_a_json_report_with_exit_one() {
     let report: Value = serde_json::from_slice(&out.stdout).expect("a JSON diagnostics report");
     assert!(report.to_string().contains("E0201"), "{report}");
 }
+
+#[test]
+fn a_fractional_total_is_the_multiple_of_its_integer_law() {
+    // 2 H2 + O2 -> 2 H2O written per H2 (common practice): O2 + H2O/2 is
+    // conserved; the law with integer coefficients (CLI.md) is
+    // 2 O2 + H2O, which is twice the total as written.
+    let a = analyze_text(
+        "species H2 = 2, O2 = 1, H2O\nstep burn H2 + 1/2 O2 -> H2O with 1\ntotal Ot = 1/2 H2O + O2\n",
+    );
+    let law = a["conservation_laws"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|l| l["name"] == "Ot")
+        .expect("the user's total is a law");
+    assert_eq!(law["coefficients"]["O2"], 2);
+    assert_eq!(law["coefficients"]["H2O"], 1);
+    assert_eq!(law["value"], 2.0);
+    assert_eq!(law["equation"], "2 O2 + H2O = 2 Ot");
+}

@@ -211,7 +211,7 @@ fn write_json(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Res
                 "coefficients": coefficients,
                 "value": law.value,
                 "kind": law_kind(law),
-                "equation": format!("{} = {}", combination(law_terms(model, law)), law.name),
+                "equation": format!("{} = {}", combination(law_terms(model, law)), law_right_side(model, law)),
             })
         })
         .collect();
@@ -427,7 +427,13 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
     let equations: Vec<String> = r
         .laws
         .iter()
-        .map(|law| format!("{} = {}", combination(law_terms(model, law)), law.name))
+        .map(|law| {
+            format!(
+                "{} = {}",
+                combination(law_terms(model, law)),
+                law_right_side(model, law)
+            )
+        })
         .collect();
     // Align the values, but do not let one long law push every line far right.
     let width = equations
@@ -581,4 +587,24 @@ fn write_human(out: &mut impl Write, model: &Model, a: &Analysis) -> std::io::Re
 
 fn yes(b: bool) -> &'static str {
     if b { "yes" } else { "no" }
+}
+
+/// The right side of a law's equation: its name, or a multiple of the
+/// user's total when the law's integer coefficients scale the total's
+/// (`total Ot = 1/2 H2O + O2` is the law `2 O2 + H2O = 2 Ot`).
+fn law_right_side(model: &Model, law: &crate::network::ConservationLaw) -> String {
+    let Some(t) = law.user_total else {
+        return law.name.clone();
+    };
+    let scale = law.coefficients.first().and_then(|(i, c)| {
+        let written = model.totals[t].terms.iter().find(|(k, _)| k == i)?.1;
+        let c: f64 = num_traits::ToPrimitive::to_f64(c)?;
+        Some(c / crate::model::coef_f64(written))
+    });
+    match scale {
+        Some(f) if f != 1.0 && f.is_finite() => {
+            format!("{} {}", crate::algebra::print::plain_literal(f), law.name)
+        }
+        _ => law.name.clone(),
+    }
 }

@@ -93,7 +93,7 @@ fn document(sys: &System) -> Result<Value, Diagnostic> {
         .map(|l| {
             let coefficients: serde_json::Map<String, Value> =
                 l.coefficients.iter().map(|(i, c)| (species_name(*i), c.to_i64().map(|v| json!(v)).unwrap_or_else(|| json!(c.to_string())))).collect();
-            json!({ "name": l.name, "coefficients": coefficients, "value": l.value, "user_total": l.user_total.map(|t| m.totals[t].name.clone()) })
+            json!({ "name": l.name, "coefficients": coefficients, "value": l.value, "user_total": l.user_total.filter(|&t| t < sys.written_totals).map(|t| m.totals[t].name.clone()) })
         })
         .collect();
     let rm = &reduction.model;

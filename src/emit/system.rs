@@ -68,6 +68,9 @@ pub struct System {
     /// conservation law present as a total.
     pub model: Model,
     pub reduced: bool,
+    /// How many of `model.totals` the user wrote (the reduction appends
+    /// the laws it found after them).
+    pub written_totals: usize,
     /// Species index of each state slot.
     pub state: Vec<usize>,
     pub dependent: Vec<Dependent>,
@@ -92,7 +95,7 @@ impl System {
     /// The full system: every dynamic species is a state variable.
     pub fn full(model: &Model) -> Result<System, Diagnostic> {
         let state: Vec<usize> = (0..model.species.len()).collect();
-        System::build(model.clone(), false, state, Vec::new())
+        System::build(model.clone(), false, state, Vec::new(), model.totals.len())
     }
 
     /// The reduced system of `network::reduce`: the independent species are
@@ -108,7 +111,7 @@ impl System {
                 formula: simplify(&d.formula),
             })
             .collect();
-        System::build(r.model, true, r.independent, dependent)
+        System::build(r.model, true, r.independent, dependent, model.totals.len())
     }
 
     fn build(
@@ -116,6 +119,7 @@ impl System {
         reduced: bool,
         state: Vec<usize>,
         dependent: Vec<Dependent>,
+        written_totals: usize,
     ) -> Result<System, Diagnostic> {
         let observables = (0..model.observables.len())
             .map(|i| inline(&model, &Expr::Name(Sym::Observable(i)), 0))
@@ -199,6 +203,7 @@ impl System {
         let mut system = System {
             model,
             reduced,
+            written_totals,
             state,
             dependent,
             constants: Vec::new(),
