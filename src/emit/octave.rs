@@ -113,9 +113,11 @@ fn source(sys: &System, options: &EmitOptions) -> String {
     o.push_str("  model.rhs = @rhs;\n  model.jac = @jac;\n  model.full_state = @full_state;\n");
     // Octave's automatic first step can fail the error test on a fast
     // initial transient; a step scaled by the fastest rate at the start works.
+    // (Where the Jacobian is not finite at the start, e.g. sqrt(B) at B = 0,
+    // Octave's own choice is left in place.)
     o.push_str("  h0 = 1e-4 / max(1, norm(jac(0, model.y0, p), Inf));\n");
     o.push_str(
-        "  model.options = odeset('Jacobian', @(t, y) jac(t, y, p), 'InitialStep', h0);\nend\n",
+        "  if isfinite(h0) && h0 > 0\n    model.options = odeset('Jacobian', @(t, y) jac(t, y, p), 'InitialStep', h0);\n  else\n    model.options = odeset('Jacobian', @(t, y) jac(t, y, p));\n  end\nend\n",
     );
 
     let steps = sys.used_steps();
