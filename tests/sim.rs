@@ -1079,3 +1079,17 @@ fn the_oregonator_matches_the_published_reference_solution() {
         }
     }
 }
+
+#[test]
+fn an_oscillator_has_no_steady_state_to_report() {
+    // OREGO oscillates for ever (a limit cycle around an unstable steady
+    // state; Field & Noyes 1974, from memory): `steady` must say no steady
+    // state was found (E0702, exit 1), not report a bare solver failure.
+    let out = ratewright(&["steady", "tests/fixtures/orego.mech"]);
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("E0702") && err.contains("no steady state found"),
+        "{err}"
+    );
+}

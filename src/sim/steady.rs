@@ -68,8 +68,20 @@ pub fn steady_state_of(
     let mut until = default_until(&model, system);
     let mut last_reason = String::new();
     let mut previous: Option<Vec<f64>> = None;
-    for _attempt in 0..10 {
-        let tr = simulate(&model, system, &tight, &[until]).map_err(|e| e.named(&model))?;
+    for attempt in 0..10 {
+        let tr = match simulate(&model, system, &tight, &[until]) {
+            Ok(tr) => tr,
+            // Integrating ever further failed (an oscillation runs into the
+            // step limit): the question asked was the steady state.
+            Err(e) if attempt > 0 && e.kind == super::SimErrorKind::Integration => {
+                return Err(SimError::no_steady_state(format!(
+                    "no steady state found: Newton's method did not converge from the state at t = {:e} ({last_reason}), and integrating on to t = {until:e} failed ({}); the system may oscillate or grow without bound",
+                    until / 10.0,
+                    e.named(&model)
+                )));
+            }
+            Err(e) => return Err(e.named(&model)),
+        };
         let Some(row) = tr.rows.last() else {
             return Err(SimError::no_steady_state(
                 "the integration produced no state",
