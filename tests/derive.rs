@@ -1137,3 +1137,30 @@ fn an_equilibrium_cycle_that_breaks_detailed_balance_is_noted() {
         }
     }
 }
+
+#[test]
+fn ping_pong_with_dead_end_substrate_inhibition_names_ksi() {
+    // Ping-pong bi bi where B also binds free E (dead end): the denominator
+    // gains Ka·B·(B/Ksi), and Ksi_B is the dissociation constant of EB,
+    // km5/k5 (Segel 1975, ch. 9, from memory).
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("pp_si.mech");
+    std::fs::write(
+        &path,
+        "species A = 1 uM, B = 1 uM, P, Q\nspecies E = 1 uM, EA, F, FB, EB\n\
+         param k1 = 1 /uM/s\nparam km1 = 2 /s\nparam k2 = 3 /s\nparam km2 = 4 /uM/s\n\
+         param k3 = 5 /uM/s\nparam km3 = 6 /s\nparam k4 = 7 /s\nparam km4 = 8 /uM/s\n\
+         param k5 = 9 /uM/s\nparam km5 = 10 /s\n\
+         step s1 E + A <=> EA with k1, km1\nstep s2 EA <=> F + P with k2, km2\n\
+         step s3 F + B <=> FB with k3, km3\nstep s4 FB <=> E + Q with k4, km4\n\
+         step si E + B <=> EB with k5, km5\nassume steady E, EA, F, FB, EB\n",
+    )
+    .unwrap();
+    let json = derive_json(&path, &[]);
+    assert_same("Ksi_B", constant(&json, "Ksi_B"), "km5/k5");
+    assert_same(
+        "Km_B",
+        constant(&json, "Km_B"),
+        "k2*(km3 + k4)/(k3*(k2 + k4))",
+    );
+}

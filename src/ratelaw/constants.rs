@@ -164,6 +164,30 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                             value: k,
                             meaning: format!("substrate-inhibition constant of {name}"),
                         });
+                    } else {
+                        // Dead-end binding of the substrate to a free form
+                        // (ping-pong: Ka·B·(1 + B/Ksi) in the denominator,
+                        // Segel 1975): Ksi from the B and B² terms.
+                        let single = Monomial::var(*v);
+                        let square = single.mul(&Monomial::var(*v));
+                        // Only where B² stands alone: a steady-state random
+                        // mechanism has B² with other species too, and its
+                        // squared terms are no inhibition constant.
+                        let only_alone = dir.den.iter().all(|(m, p)| {
+                            p.is_zero() || m.exponent(*v) < 2 || *m == square
+                        });
+                        if let (true, Some(b), Some(b2)) =
+                            (only_alone, dir.get(&single), dir.get(&square))
+                            && let Some(k) = ratio(b, b2)
+                        {
+                            constants.push(Constant {
+                                name: format!("Ksi_{name}"),
+                                value: k,
+                                meaning: format!(
+                                    "substrate-inhibition constant of {name} (dead-end binding, from its first- and second-power terms)"
+                                ),
+                            });
+                        }
                     }
                 }
                 let sequential = dir.get(&Monomial::one()).is_some();
