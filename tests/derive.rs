@@ -1164,3 +1164,26 @@ fn ping_pong_with_dead_end_substrate_inhibition_names_ksi() {
         "k2*(km3 + k4)/(k3*(k2 + k4))",
     );
 }
+
+#[test]
+fn a_dead_end_inhibitor_of_the_first_complex_gets_its_dissociation_constant() {
+    // Ordered bi bi with I binding EA (dead end): the term Kb·A becomes
+    // Kb·A·(1 + I/Ki) with Ki = kmi/ki, the dissociation constant of EAI
+    // (Segel 1975, ch. 9, from memory).
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("obb_dead.mech");
+    std::fs::write(
+        &path,
+        "species A = 1 uM, B = 1 uM, P, Q, I = 1 uM\nspecies E = 1 uM, EA, EAB, EQ, EAI\n\
+         param k1 = 1 /uM/s\nparam km1 = 2 /s\nparam k2 = 3 /uM/s\nparam km2 = 4 /s\n\
+         param k3 = 5 /s\nparam km3 = 6 /uM/s\nparam k4 = 7 /s\nparam km4 = 8 /uM/s\n\
+         param ki = 9 /uM/s\nparam kmi = 10 /s\n\
+         step s1 E + A <=> EA with k1, km1\nstep s2 EA + B <=> EAB with k2, km2\n\
+         step s3 EAB <=> EQ + P with k3, km3\nstep s4 EQ <=> E + Q with k4, km4\n\
+         step dead EA + I <=> EAI with ki, kmi\nassume steady E, EA, EAB, EQ, EAI\n",
+    )
+    .unwrap();
+    let json = derive_json(&path, &[]);
+    assert_same("Ki_I", constant(&json, "Ki_I"), "kmi/ki");
+    assert!(json["constants"].get("Kii_I").is_none());
+}

@@ -364,6 +364,30 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                     named = true;
                 }
             }
+            if !named {
+                // A dead-end inhibitor that binds one form other than the
+                // free enzyme or the form of the top term (I on EA of an
+                // ordered bi bi: Kb·A·(1 + I/Ki), Segel 1975): every term
+                // it multiplies does so by the same I/Ki.
+                let mut ratios = dc
+                    .iter()
+                    .filter(|(m, p)| !p.is_zero() && m.exponent(i) == 0)
+                    .filter_map(|(m, p)| {
+                        get(&m.mul(&Monomial::var(i))).and_then(|pi| ratio(p, pi))
+                    });
+                if let Some(first) = ratios.next()
+                    && ratios.all(|r| r.equals(&first))
+                {
+                    constants.push(Constant {
+                        name: format!("Ki_{name}"),
+                        value: first,
+                        meaning: format!(
+                            "dissociation constant of {name} from the enzyme form it binds (every term it multiplies gains the factor {name}/Ki_{name})"
+                        ),
+                    });
+                    named = true;
+                }
+            }
             if nc.keys().any(|m| m.exponent(i) > 0) {
                 notes.push(format!("{name} also appears in the numerator (partial inhibition or activation); its constants describe the denominator only"));
             } else if !named {
