@@ -797,15 +797,21 @@ fn a_model_with_nothing_to_integrate_runs_and_has_a_steady_state() {
     assert_eq!(rows.len(), 2);
 }
 
+/// A -> B with k = 1 /s from A = 1 uM: A(t) = exp(-k t) (first-order
+/// decay; common practice).
+fn decay_model(dir: &Path) -> PathBuf {
+    write_model(
+        dir,
+        "decay.mech",
+        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
+    )
+}
+
 #[test]
 fn a_scan_asking_for_more_workers_than_points_gives_the_same_answer() {
     // A -> B: A(t) = A0 exp(-k t) (first-order decay; common practice).
     let dir = tempfile::tempdir().unwrap();
-    let m = write_model(
-        dir.path(),
-        "decay.mech",
-        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
-    );
+    let m = decay_model(dir.path());
     let scan = |jobs: &str| {
         run_ok(&[
             "scan",
@@ -928,11 +934,7 @@ fn a_negative_rate_constant_is_refused_from_the_command_line_and_at_scan_points(
     // Mass action: rate = k·[A] (common practice), so k < 0 would drive B
     // below zero; the file check (E0411) is in tests/bad_inputs.
     let dir = tempfile::tempdir().unwrap();
-    let m = write_model(
-        dir.path(),
-        "decay.mech",
-        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
-    );
+    let m = decay_model(dir.path());
     let file = m.to_str().unwrap();
     let out = ratewright(&["run", file, "--set", "k=-1"]);
     assert_eq!(out.status.code(), Some(2));
@@ -967,11 +969,7 @@ fn a_negative_rate_constant_is_refused_from_the_command_line_and_at_scan_points(
 fn output_times_are_exactly_those_asked_for() {
     // A -> B: A(t) = exp(-k t) (first-order decay; common practice).
     let dir = tempfile::tempdir().unwrap();
-    let m = write_model(
-        dir.path(),
-        "decay.mech",
-        "units concentration uM, time s\nspecies A = 1 uM\nspecies B\nparam k = 1 /s\nstep r A -> B with k\n",
-    );
+    let m = decay_model(dir.path());
     let (_, rows) = simulate_csv(dir.path(), &m, &["--times", "0,1,1,2"]);
     let times: Vec<f64> = rows.iter().map(|r| r[0]).collect();
     assert_eq!(times, [0.0, 1.0, 1.0, 2.0]);
