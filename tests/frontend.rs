@@ -399,3 +399,31 @@ fn fmt_keeps_every_demo_model() {
         check_fmt_round_trip(&text);
     }
 }
+
+#[test]
+fn a_bare_event_value_and_unit_words_as_params_are_valid() {
+    // LANGUAGE.md: a number without a unit is in the default units, also
+    // in `set NAME = N at T`; and without an implicit product `2 uM/s` or
+    // `77.27 s` can only be quantities, even where `uM` and `s` are params.
+    let loaded =
+        load("species A = 1, B\nparam k = 1 /s\nstep conv A -> B with k\nset A = 2 at 1\n");
+    let model = loaded.model.as_ref().expect("loads");
+    assert!(
+        codes(&loaded).iter().all(|c| !c.as_str().starts_with('E')),
+        "{}",
+        rendered(&loaded)
+    );
+    assert_eq!(model.events[0].amount, 2.0);
+    assert_eq!(model.events[0].time, 1.0);
+    let words = load(
+        "param uM = 2\nparam s = 3\nparam k2 = 2 uM/s\nparam tau = 77.27 s\nobserve o = uM*s*k2*tau\n",
+    );
+    assert!(
+        codes(&words).iter().all(|c| !c.as_str().starts_with('E')),
+        "{}",
+        rendered(&words)
+    );
+    // `0.1 /s` still reads both ways while `s` is a param.
+    let ambiguous = load("param s = 3\nparam w = 0.1 /s\n");
+    assert!(codes(&ambiguous).contains(&Code::AmbiguousQuantity));
+}

@@ -259,17 +259,24 @@ pub fn did_you_mean<'a>(
         .map(|(_, c)| c)
 }
 
+/// Edits between two names, ignoring case, where swapping two adjacent
+/// letters counts as one edit (`kcta` is one edit from `kcat`): the
+/// optimal-string-alignment distance.
 fn edit_distance(a: &str, b: &str) -> usize {
     let a: Vec<char> = a.chars().flat_map(char::to_lowercase).collect();
     let b: Vec<char> = b.chars().flat_map(char::to_lowercase).collect();
+    let mut before: Vec<usize> = Vec::new();
     let mut prev: Vec<usize> = (0..=b.len()).collect();
     for i in 1..=a.len() {
         let mut cur = vec![i; b.len() + 1];
         for j in 1..=b.len() {
             let cost = usize::from(a[i - 1] != b[j - 1]);
             cur[j] = (prev[j] + 1).min(cur[j - 1] + 1).min(prev[j - 1] + cost);
+            if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
+                cur[j] = cur[j].min(before[j - 2] + 1);
+            }
         }
-        prev = cur;
+        before = std::mem::replace(&mut prev, cur);
     }
     prev[b.len()]
 }
@@ -296,6 +303,10 @@ mod tests {
             Some("k_off")
         );
         assert_eq!(did_you_mean("zzz", ["k_on", "k_off"]), None);
+        // Two swapped letters are one slip of the fingers (the
+        // Damerau–Levenshtein view of typing errors; common practice).
+        assert_eq!(did_you_mean("kcta", ["kcat", "Km"]), Some("kcat"));
+        assert_eq!(edit_distance("abcd", "badc"), 2);
     }
 
     #[test]

@@ -331,7 +331,23 @@ fn file_units(tree: Option<&syntax::File>, diags: &mut Vec<Diagnostic>) -> FileU
                 );
             }
             seen = true;
+            let mut given: Vec<&UnitKey> = Vec::new();
             for (key, text, span) in settings {
+                if given.contains(&key) {
+                    let what = match key {
+                        UnitKey::Concentration => "concentration",
+                        UnitKey::Time => "time",
+                    };
+                    diags.push(
+                        Diagnostic::error(
+                            Code::DuplicateStatement,
+                            format!("the {what} unit is given twice in one `units` line"),
+                        )
+                        .with_label(*span, "given again")
+                        .with_help("give each default unit once"),
+                    );
+                }
+                given.push(key);
                 match key {
                     UnitKey::Concentration => match ConcUnit::parse(text) {
                         Some(u) => units.concentration = u,
@@ -427,6 +443,18 @@ impl<'s> Lowerer<'s> {
                 .with_help(
                     "`t` is time and `pi` is the constant π in expressions; choose another name",
                 ),
+            );
+            return false;
+        }
+        // The words that end a step's sides cannot name what a step lists.
+        if matches!(ident.name.as_str(), "with" | "law") {
+            self.error(
+                Diagnostic::error(
+                    Code::ReservedName,
+                    format!("`{}` cannot be a name", ident.name),
+                )
+                .with_label(ident.span, "a word of the step statement")
+                .with_help("`with` and `law` start a step's rate, so a step could not list this name; choose another"),
             );
             return false;
         }
@@ -891,6 +919,22 @@ impl<'s> Lowerer<'s> {
                         continue;
                     }
                     exprs[i] = self.resolve(e, &|s| matches!(s, Sym::Param(_)), "a param's value");
+                    // A param is a constant: the time has no place in it
+                    // (a run would freeze it at t = 0, emitted code would
+                    // let it vary).
+                    if exprs[i].as_ref().is_some_and(Expr::mentions_time) {
+                        exprs[i] = None;
+                        let span = self.model.params[i].span;
+                        let name = self.model.params[i].name.clone();
+                        self.error(
+                            Diagnostic::error(
+                                Code::WrongKind,
+                                format!("param `{name}` uses the time `t`; a param is a constant"),
+                            )
+                            .with_label(span, "uses t")
+                            .with_help("write a time-dependent quantity as an `observe` statement, or put the expression in the step's `law`"),
+                        );
+                    }
                 }
             }
         }
@@ -1024,6 +1068,12 @@ impl<'s> Lowerer<'s> {
     /// a quantity and as an expression.
     fn check_quantity_ambiguity(&mut self, q: &Quantity) {
         let Some((unit, span)) = &q.unit else { return };
+        // Only `N /word...` also reads as an expression (`N / word`): the
+        // language has no implicit product, so `2 uM/s` or `77.27 s` are
+        // quantities whatever params exist.
+        if !unit.trim_start().starts_with('/') {
+            return;
+        }
         let words: Vec<&str> = unit
             .split(['/', '*', '·'])
             .map(|w| w.split('^').next().unwrap_or(w))
@@ -1408,7 +1458,19 @@ impl<'s> Lowerer<'s> {
                 for (k, constant) in [(0, Some(&forward)), (1, reverse.as_ref())] {
                     let Some(constant) = constant else { continue };
                     let v = constant.eval(&|s| self.model.initial_value(s), 0.0);
-                    // A value that is not finite was reported with its param.
+                    // A param whose value is not finite was reported with
+                    // the param; an expression written here was not.
+                    if !v.is_finite() && !matches!(constant, Expr::Name(_)) {
+                        let dir = if k == 0 { "forward" } else { "reverse" };
+                        self.error(
+                            Diagnostic::error(
+                                Code::BadParamValue,
+                                format!("the {dir} constant of step `{}` evaluates to {v}", name.name),
+                            )
+                            .with_label(constants[k].span(), "not a finite number")
+                            .with_help("check for division by zero, overflow or a root or logarithm of a negative number"),
+                        );
+                    }
                     if v < 0.0 && v.is_finite() {
                         let dir = if k == 0 { "forward" } else { "reverse" };
                         let mut d = Diagnostic::error(
