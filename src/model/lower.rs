@@ -1452,7 +1452,15 @@ impl<'s> Lowerer<'s> {
                         }
                         let side_span = if k == 0 { lhs.span } else { rhs.span };
                         d = d.with_label(side_span, format!("order {order} ({dir})"));
-                        self.error(d.with_help(format!("a mass-action constant for order {order} is in concentration^{} per time, e.g. `{}`", 1 - order, want.display_in(units))));
+                        let per = match 1 - order {
+                            0 => "inverse time".to_string(),
+                            1 => "concentration per time".to_string(),
+                            p => format!("concentration^{p} per time"),
+                        };
+                        self.error(d.with_help(format!(
+                            "a mass-action constant for order {order} is in {per}, e.g. `{}`",
+                            want.display_in(units)
+                        )));
                     }
                 }
                 for (k, constant) in [(0, Some(&forward)), (1, reverse.as_ref())] {
