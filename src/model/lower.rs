@@ -493,10 +493,13 @@ impl<'s> Lowerer<'s> {
                 _ => {}
             }
         }
+        // With errors, the lints would mostly describe their consequences
+        // (an unknown name leaves a step empty, a param unused): they wait
+        // until the errors are fixed.
         if !self.diags.iter().any(Diagnostic::is_error) {
             self.apply_total_values();
+            self.lint();
         }
-        self.lint();
     }
 
     /// First pass: every name, with values that need no other names.
