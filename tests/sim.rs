@@ -1091,3 +1091,23 @@ fn an_oscillator_has_no_steady_state_to_report() {
         "{err}"
     );
 }
+
+#[test]
+fn species_from_a_used_file_stand_where_the_use_is_in_the_columns() {
+    // CLI.md: the CSV header is `t,<species in declaration order>,...`; a
+    // `use` declares the other file's species where it stands.
+    let dir = tempfile::tempdir().unwrap();
+    write_model(
+        dir.path(),
+        "enzyme.mech",
+        "species E = 1 uM\nparam kon = 1 /uM/s\n",
+    );
+    let main = write_model(
+        dir.path(),
+        "main.mech",
+        "units concentration uM, time s\nspecies P\nuse \"enzyme.mech\"\nspecies S = 10 uM, ES\n\
+         param koff = 1 /s\nparam kcat = 2 /s\nstep b E + S <=> ES with kon, koff\nstep c ES -> E + P with kcat\n",
+    );
+    let (header, _) = simulate_csv(dir.path(), &main, &["--times", "0"]);
+    assert_eq!(header, ["t", "P", "E", "S", "ES"]);
+}

@@ -201,16 +201,16 @@ fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
         &mut diags,
     )
     .units;
+    // Statements in declaration order: a used file's statements stand where
+    // its `use` is (so its species come there in the CSV columns), each
+    // file once.
     let mut items = Vec::new();
-    for (_, tree) in &trees {
-        let units = file_units(Some(tree), &mut Vec::new()).units;
-        for st in tree.statements() {
-            items.push(Item {
-                kind: &st.kind,
-                span: st.span,
-                units,
-            });
-        }
+    let mut placed: Vec<FileId> = Vec::new();
+    place_statements(main, &trees, &sources, &mut placed, &mut items);
+    for (file, _) in &trees {
+        // Files not reached from the main file's `use` lines (none today),
+        // so that no statement is ever dropped.
+        place_statements(*file, &trees, &sources, &mut placed, &mut items);
     }
     let mut lowerer = Lowerer::new(main_units, &sources);
     lowerer.lower(&items, main);
@@ -224,6 +224,49 @@ fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
         sources,
         model,
         diagnostics: diags,
+    }
+}
+
+/// Appends `file`'s statements to `items`, with each file it `use`s placed
+/// at its `use` statement; files already placed are skipped.
+fn place_statements<'t>(
+    file: FileId,
+    trees: &'t [(FileId, syntax::File)],
+    sources: &SourceMap,
+    placed: &mut Vec<FileId>,
+    items: &mut Vec<Item<'t>>,
+) {
+    if placed.contains(&file) {
+        return;
+    }
+    placed.push(file);
+    let Some((_, tree)) = trees.iter().find(|(f, _)| *f == file) else {
+        return;
+    };
+    let units = file_units(Some(tree), &mut Vec::new()).units;
+    let base = sources
+        .get(file)
+        .and_then(|s| s.path.parent().map(Path::to_path_buf))
+        .unwrap_or_default();
+    for st in tree.statements() {
+        if let StatementKind::Use { path, .. } = &st.kind {
+            let target = base.join(path);
+            let canonical = target.canonicalize().unwrap_or(target);
+            let used = trees.iter().map(|(f, _)| *f).find(|f| {
+                sources
+                    .get(*f)
+                    .map(|s| s.path.canonicalize().unwrap_or_else(|_| s.path.clone()))
+                    == Some(canonical.clone())
+            });
+            if let Some(used) = used {
+                place_statements(used, trees, sources, placed, items);
+            }
+        }
+        items.push(Item {
+            kind: &st.kind,
+            span: st.span,
+            units,
+        });
     }
 }
 
