@@ -247,20 +247,14 @@ fn emitted_python_main_reproduces_run_with_scipy() {
         {
             let module = dir.path().join(format!("m_{reduced}.py"));
             emit(&path, "python", reduced, &module);
-            let py_csv = dir.path().join("py.csv");
-            let mut py_args = vec![
-                "--until",
-                until,
-                "--points",
-                "31",
-                "--rtol",
-                "1e-10",
-                "--atol",
-                "1e-14",
-                "-o",
-                py_csv.to_str().unwrap(),
+            // The same times, tolerances and values for the script and `run`.
+            let mut shared = vec![
+                "--until", until, "--points", "31", "--rtol", "1e-10", "--atol", "1e-14",
             ];
-            py_args.extend_from_slice(set);
+            shared.extend_from_slice(set);
+            let py_csv = dir.path().join("py.csv");
+            let mut py_args = shared.clone();
+            py_args.extend(["-o", py_csv.to_str().unwrap()]);
             let out = python(&module, &py_args);
             assert!(
                 out.status.success(),
@@ -269,21 +263,9 @@ fn emitted_python_main_reproduces_run_with_scipy() {
                 String::from_utf8_lossy(&out.stderr)
             );
             let run_csv = dir.path().join("run.csv");
-            let mut run_args = vec![
-                "run",
-                path.to_str().unwrap(),
-                "--until",
-                until,
-                "--points",
-                "31",
-                "--rtol",
-                "1e-10",
-                "--atol",
-                "1e-14",
-                "-o",
-                run_csv.to_str().unwrap(),
-            ];
-            run_args.extend_from_slice(set);
+            let mut run_args = vec!["run", path.to_str().unwrap()];
+            run_args.extend(&shared);
+            run_args.extend(["-o", run_csv.to_str().unwrap()]);
             let o = ratewright(&run_args);
             assert!(
                 o.status.success(),

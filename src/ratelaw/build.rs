@@ -728,9 +728,15 @@ fn plan_component(
                 }
             }
         }
-        let cyclic: Vec<&str> = equilibrium
+        // Fast steps of this lump that the spanning tree left out: they
+        // close cycles.
+        let left_out: Vec<usize> = equilibrium
             .iter()
-            .filter(|&&j| !used[j] && views[j].left.is_some_and(|a| members.contains(&a)))
+            .copied()
+            .filter(|&j| !used[j] && views[j].left.is_some_and(|a| members.contains(&a)))
+            .collect();
+        let cyclic: Vec<&str> = left_out
+            .iter()
             .map(|&j| model.steps[j].name.as_str())
             .collect();
         if !cyclic.is_empty() {
@@ -752,17 +758,13 @@ fn plan_component(
                 VarKind::Fixed(i) => model.fixed[i].value,
                 VarKind::Species(_) | VarKind::Total(_) => 1.0,
             };
-            for &j in equilibrium {
+            for &j in &left_out {
                 let v = &views[j];
-                let (Some(a), Some(b)) = (v.left, v.right) else {
-                    continue;
-                };
-                if used[j] || !members.contains(&a) {
-                    continue;
-                }
-                let (Some(ra), Some(rb), Some(reverse)) =
-                    (rel.get(&a), rel.get(&b), v.reverse.as_ref())
-                else {
+                let (Some(ra), Some(rb), Some(reverse)) = (
+                    v.left.and_then(|a| rel.get(&a)),
+                    v.right.and_then(|b| rel.get(&b)),
+                    v.reverse.as_ref(),
+                ) else {
                     continue;
                 };
                 let implied = rb.eval(&value) / ra.eval(&value);
