@@ -1395,6 +1395,7 @@ impl<'s> Lowerer<'s> {
         if self.model.steps[idx].span != item.span {
             return; // a duplicate name, already reported
         }
+        let errors_before = self.diags.iter().filter(|d| d.is_error()).count();
         let reactants = self.lower_terms(lhs);
         let products = self.lower_terms(rhs);
         // Later stages add and subtract coefficients exactly in 64 bits:
@@ -1549,8 +1550,12 @@ impl<'s> Lowerer<'s> {
             ),
             Rate::MassAction { .. } => false,
         };
+        // A law whose names failed to resolve has no dimension worth a
+        // warning: the error says what is wrong.
+        let step_failed = self.diags.iter().filter(|d| d.is_error()).count() > errors_before;
         if let Rate::Law(e) = &rate
             && !law_mismatch
+            && !step_failed
         {
             match self.infer_dim(e) {
                 Some(d) if d == Dim::RATE => {}
