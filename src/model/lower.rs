@@ -701,7 +701,19 @@ impl<'s> Lowerer<'s> {
 
     /// A number as written, checked finite.
     fn number(&mut self, text: &str, span: Span) -> Option<f64> {
+        // A mantissa with a non-zero digit that parses to 0 has underflowed
+        // (`1e-400`): silently zero would change the model.
+        let mantissa = text.split(['e', 'E']).next().unwrap_or(text);
+        let nonzero = mantissa.chars().any(|c| c.is_ascii_digit() && c != '0');
         match text.parse::<f64>() {
+            Ok(v) if v == 0.0 && nonzero => {
+                self.error(
+                    Diagnostic::error(Code::BadNumber, format!("`{text}` is too small to represent: it would be 0"))
+                        .with_label(span, "underflows")
+                        .with_help("numbers other than 0 must be at least about 5e-324 in size; write 0 if zero is meant"),
+                );
+                None
+            }
             Ok(v) if v.is_finite() => Some(v),
             _ => {
                 self.error(
