@@ -427,3 +427,18 @@ fn a_bare_event_value_and_unit_words_as_params_are_valid() {
     let ambiguous = load("param s = 3\nparam w = 0.1 /s\n");
     assert!(codes(&ambiguous).contains(&Code::AmbiguousQuantity));
 }
+
+#[test]
+fn a_total_smaller_than_its_given_species_is_reported_once() {
+    // E_t = 50 nM cannot hold ES = 0.2 uM (E would start at -0.15 uM): one
+    // error, not a second one advising to leave out a value E already lacks.
+    let loaded = load(
+        "units concentration uM\nspecies E, S = 10, ES = 0.2, P\nparam k = 1 /s\nparam kb = 1 /uM/s\n\
+         step b E + S <=> ES with kb, k\nstep c ES -> E + P with k\ntotal Et = E + ES = 50 nM\n",
+    );
+    let count = codes(&loaded)
+        .iter()
+        .filter(|c| **c == Code::TotalInconsistent)
+        .count();
+    assert_eq!(count, 1, "{}", rendered(&loaded));
+}

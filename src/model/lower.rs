@@ -1735,6 +1735,8 @@ impl<'s> Lowerer<'s> {
     /// checks every total against the initial values.
     fn apply_total_values(&mut self) {
         let mut adjusted: HashMap<usize, usize> = HashMap::new();
+        // Totals already reported here are not reported again below.
+        let mut reported: Vec<usize> = Vec::new();
         for i in 0..self.model.totals.len() {
             if !self.model.totals[i].value_given {
                 continue;
@@ -1751,6 +1753,7 @@ impl<'s> Lowerer<'s> {
                     self.model.species[k].initial_given = true;
                 }
                 Err(msg) => {
+                    reported.push(i);
                     let span = self.model.totals[i].span;
                     self.error(
                         Diagnostic::error(Code::TotalInconsistent, msg)
@@ -1770,7 +1773,7 @@ impl<'s> Lowerer<'s> {
                 continue;
             }
             let scale = t.value.abs().max(from_initial.abs()).max(1e-300);
-            if (t.value - from_initial).abs() > 1e-9 * scale {
+            if (t.value - from_initial).abs() > 1e-9 * scale && !reported.contains(&i) {
                 let mut d = Diagnostic::error(
                     Code::TotalInconsistent,
                     format!(
