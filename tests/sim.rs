@@ -563,11 +563,16 @@ fn a_system_without_a_steady_state_gets_a_clear_message() {
         "grow.mech",
         "species S = 1 uM\nparam k0 = 1 uM/s\nstep feed 0 -> S with k0\n",
     );
-    let out = ratewright(&["steady", m.to_str().unwrap()]);
+    no_steady_state_error(m.to_str().unwrap());
+}
+
+/// `steady` on `path` exits 1 with E0702 "no steady state found".
+fn no_steady_state_error(path: &str) {
+    let out = ratewright(&["steady", path]);
     assert_eq!(out.status.code(), Some(1));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
-        err.contains("E0702") && err.contains("no steady state"),
+        err.contains("E0702") && err.contains("no steady state found"),
         "{err}"
     );
 }
@@ -1083,13 +1088,7 @@ fn an_oscillator_has_no_steady_state_to_report() {
     // OREGO oscillates for ever (a limit cycle around an unstable steady
     // state; Field & Noyes 1974, from memory): `steady` must say no steady
     // state was found (E0702, exit 1), not report a bare solver failure.
-    let out = ratewright(&["steady", "tests/fixtures/orego.mech"]);
-    assert_eq!(out.status.code(), Some(1));
-    let err = String::from_utf8_lossy(&out.stderr);
-    assert!(
-        err.contains("E0702") && err.contains("no steady state found"),
-        "{err}"
-    );
+    no_steady_state_error("tests/fixtures/orego.mech");
 }
 
 #[test]

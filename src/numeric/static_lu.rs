@@ -379,27 +379,20 @@ impl Factors {
         let mut scratch = self.tail_scratch.borrow_mut();
         let stack = faer::dyn_stack::MemStack::new(&mut scratch);
         let lu = self.tail.as_ref();
-        if transpose {
-            solve::solve_transpose_in_place_with_conj(
-                lu,
-                lu,
-                permutation,
-                faer::Conj::No,
-                rhs,
-                faer::Par::Seq,
-                stack,
-            );
+        let solve_with = if transpose {
+            solve::solve_transpose_in_place_with_conj::<usize, f64>
         } else {
-            solve::solve_in_place_with_conj(
-                lu,
-                lu,
-                permutation,
-                faer::Conj::No,
-                rhs,
-                faer::Par::Seq,
-                stack,
-            );
-        }
+            solve::solve_in_place_with_conj::<usize, f64>
+        };
+        solve_with(
+            lu,
+            lu,
+            permutation,
+            faer::Conj::No,
+            rhs,
+            faer::Par::Seq,
+            stack,
+        );
     }
 }
 
