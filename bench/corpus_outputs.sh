@@ -5,6 +5,7 @@
 # (before and after a refactor) are compared with `diff -r`: a change that
 # must not change what users see leaves no difference.
 #
+# The binary must be called `ratewright` (usage messages name it).
 #   bench/corpus_outputs.sh target/debug/ratewright /tmp/before
 #   ... change ...
 #   bench/corpus_outputs.sh target/debug/ratewright /tmp/after
@@ -54,9 +55,10 @@ for src in $files; do
   record "$dir" steady steady "$m"
   record "$dir" steady_json steady --format json "$m"
   p=$(grep -oE '^[[:space:]]*param[[:space:]]+[A-Za-z_][A-Za-z0-9_]*' "$m" 2>/dev/null | head -1 | awk '{print $2}')
-  if [ -n "$p" ]; then
-    record "$dir" scan_at scan "$m" --vary "$p=0.5..2:3" --at 1 -o scan.csv
-    record "$dir" scan_steady scan "$m" --vary "$p=0.5..2:3:log" --steady -o scan.csv
+  s=$(grep -oE '^[[:space:]]*species[[:space:]]+[A-Za-z_][A-Za-z0-9_]*' "$m" 2>/dev/null | head -1 | awk '{print $2}')
+  if [ -n "$p" ] && [ -n "$s" ]; then
+    record "$dir" scan_at scan "$m" --vary "$p=0.5..2:3" --measure "$s" --at 1 -o scan.csv
+    record "$dir" scan_steady scan "$m" --vary "$p=0.5..2:3:log" --measure "$s" --steady -o scan.csv
   fi
 done
 d=tests/fixtures/diff
