@@ -112,6 +112,21 @@ pub fn usage_error(message: impl std::fmt::Display) -> ExitCode {
     ExitCode::from(EXIT_USAGE)
 }
 
+/// A usage error of a command that may be asked for JSON: under
+/// `--format json` the error is also the JSON report on standard output
+/// (code E0801, no location), so a program reading it always gets a
+/// document. Exit code 2.
+pub fn usage_error_as(json: bool, message: impl std::fmt::Display) -> ExitCode {
+    if json {
+        let diag = Diagnostic::error(Code::BadOption, message.to_string());
+        if let Err(failed) = write_stdout(&format!("{}\n", render_json(&[diag], &SourceMap::new())))
+        {
+            return failed;
+        }
+    }
+    usage_error(message)
+}
+
 /// Prints a run failure (numerical or output) and returns exit code 1.
 pub fn run_error(message: impl std::fmt::Display) -> ExitCode {
     stderr_line!("error: {message}");
@@ -142,55 +157,15 @@ pub fn parse_time(text: &str, units: Units) -> Result<f64, String> {
     }
 }
 
-/// Writes `bytes` to `path` atomically: to a temporary file in the same
-/// directory, then renamed over the target. Refuses to overwrite any of
-/// `inputs` (the files the command read).
+/// Writes `bytes` to `path`: a regular file or a new path atomically (a
+/// temporary file in the same directory, renamed over the target), a
+/// stream or device directly (see [`super::output`]). Refuses to overwrite
+/// any of `inputs` (the files the command read).
 pub fn write_atomic(path: &Path, bytes: &[u8], inputs: &[PathBuf]) -> Result<(), String> {
-    replace_atomically(path, inputs, ".tmp", |tmp| {
-        tmp.write_all(bytes)
-            .map_err(|e| format!("cannot write {}: {e}", path.display()))
-    })
-}
-
-/// Creates `path` through `fill`, which writes a temporary file in the same
-/// directory (ending in `suffix`, for writers that go by the extension);
-/// the temporary file is then renamed over the target, under the interrupt
-/// guard, so `path` holds either its old content or all of the new.
-/// Refuses to overwrite any of `inputs`.
-pub fn replace_atomically(
-    path: &Path,
-    inputs: &[PathBuf],
-    suffix: &str,
-    fill: impl FnOnce(&mut tempfile::NamedTempFile) -> Result<(), String>,
-) -> Result<(), String> {
-    refuse_input_overwrite(path, inputs)?;
-    let _no_interrupt = writing_guard();
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    // A replaced file keeps its mode; a new one gets the mode of any new
-    // file (0666 less the umask), not the temporary file's private 0600.
-    let existing_mode = std::fs::metadata(path).ok().map(|m| m.permissions());
-    let mut builder = tempfile::Builder::new();
-    builder.prefix(".ratewright-").suffix(suffix);
-    #[cfg(unix)]
-    builder.permissions(std::os::unix::fs::PermissionsExt::from_mode(0o666));
-    let mut tmp = builder
-        .tempfile_in(&dir)
-        .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
-    if let Some(mode) = existing_mode {
-        tmp.as_file()
-            .set_permissions(mode)
-            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
-    }
-    fill(&mut tmp)?;
-    tmp.as_file()
-        .sync_all()
-        .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
-    tmp.persist(path)
-        .map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
-    Ok(())
+    let sinks = super::output::sinks_for(&[path], inputs)?;
+    let mut staged = super::output::Staged::new();
+    staged.bytes(&sinks[0], bytes)?;
+    staged.commit()
 }
 
 static WRITING: std::sync::Mutex<()> = std::sync::Mutex::new(());

@@ -3,9 +3,7 @@
 //! Options override the file's `assume` lines; the output is a readable
 //! report, LaTeX, JSON (schema in docs/derive.md) or a new mechanism file.
 
-use super::common::{
-    self, EXIT_MODEL, EXIT_USAGE, load_model, report_failure, usage_error, write_atomic,
-};
+use super::common::{self, EXIT_MODEL, EXIT_USAGE, load_model, report_failure, write_atomic};
 use crate::diagnostics::Code;
 use crate::ratelaw::{self, Progress, Request, Target, output};
 use clap::ValueEnum;
@@ -54,6 +52,12 @@ pub struct Args {
 
 pub fn run(args: &Args) -> ExitCode {
     let json = args.format == DeriveFormat::Json;
+    // The output path is checked before any work (exit 2).
+    if let Some(path) = &args.output
+        && let Err(e) = super::output::sink_for(path)
+    {
+        return common::usage_error_as(json, e);
+    }
     let start = Instant::now();
     let (model, sources) = match load_model(&args.file, json) {
         Ok(x) => x,
@@ -63,7 +67,7 @@ pub fn run(args: &Args) -> ExitCode {
     if let Some(path) = &args.output
         && let Err(e) = common::refuse_input_overwrite(path, &inputs)
     {
-        return usage_error(e);
+        return common::usage_error_as(json, e);
     }
     let loaded = start.elapsed();
     let clean = |v: &Option<Vec<String>>| {
@@ -131,7 +135,7 @@ pub fn run(args: &Args) -> ExitCode {
                 .unwrap_or_default();
             match output::mechanism(&derivation, &model, &source) {
                 Ok(s) => in_canonical_layout(s),
-                Err(e) => return usage_error(e),
+                Err(e) => return common::usage_error_as(json, e),
             }
         }
     };

@@ -8,9 +8,7 @@
 //! PATH is a stem (`-o out/decay` writes `out/decay.h` and `out/decay.c`; a
 //! trailing `.c` or `.h` is dropped). Every file is written atomically.
 
-use super::common::{
-    load_model, refuse_input_overwrite, run_error, usage_error, write_atomic, write_stdout,
-};
+use super::common::{load_model, run_error, usage_error, write_stdout};
 use crate::emit::{EmitOptions, TARGETS, emit, find_target};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -124,34 +122,32 @@ pub fn run(args: &Args) -> ExitCode {
         (Some(path), false) => vec![path.clone()],
         (Some(_), true) => files.iter().map(|f| destination(&f.name)).collect(),
     };
-    for path in &destinations {
-        if let Err(e) = refuse_input_overwrite(path, &inputs) {
-            return usage_error(e);
+    let dest_refs: Vec<&Path> = destinations.iter().map(PathBuf::as_path).collect();
+    let sinks = match super::output::sinks_for(&dest_refs, &inputs) {
+        Ok(s) => s,
+        Err(e) => return usage_error(e),
+    };
+    if args.output.is_none() {
+        let text: String = files.iter().map(|f| f.contents.as_str()).collect();
+        return match write_stdout(&text) {
+            Ok(()) => ExitCode::SUCCESS,
+            Err(failed) => failed,
+        };
+    }
+    if files.is_empty() {
+        return run_error("nothing to write");
+    }
+    // Every file of the target is staged before any is put in place, so a
+    // pair (.c and .h) is written whole or not at all.
+    let mut staged = super::output::Staged::new();
+    for (f, sink) in files.iter().zip(&sinks) {
+        if let Err(e) = staged.bytes(sink, f.contents.as_bytes()) {
+            return run_error(e);
         }
     }
-    match (&args.output, target.multi_file()) {
-        (None, _) => {
-            let text: String = files.iter().map(|f| f.contents.as_str()).collect();
-            match write_stdout(&text) {
-                Ok(()) => ExitCode::SUCCESS,
-                Err(failed) => failed,
-            }
-        }
-        (Some(path), false) => match files.first() {
-            Some(f) => match write_atomic(path, f.contents.as_bytes(), &inputs) {
-                Ok(()) => ExitCode::SUCCESS,
-                Err(e) => run_error(e),
-            },
-            None => run_error("nothing to write"),
-        },
-        (Some(_), true) => {
-            for (f, path) in files.iter().zip(&destinations) {
-                if let Err(e) = write_atomic(path, f.contents.as_bytes(), &inputs) {
-                    return run_error(e);
-                }
-            }
-            ExitCode::SUCCESS
-        }
+    match staged.commit() {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => run_error(e),
     }
 }
 

@@ -18,11 +18,27 @@ pub struct Args {
 pub fn run(args: &Args) -> ExitCode {
     let mut status = EXIT_OK;
     for path in &args.files {
+        // fmt rewrites files in place: anything but a regular file (a FIFO
+        // would block the read forever, a device would be replaced) is
+        // refused before it is opened.
+        match std::fs::metadata(path) {
+            Ok(m) if !m.is_file() => {
+                stderr_line!(
+                    "error: {} is not a regular file; fmt reads and rewrites regular files only",
+                    path.display()
+                );
+                status = EXIT_USAGE;
+                continue;
+            }
+            _ => {}
+        }
         let text = match std::fs::read(path) {
             Ok(bytes) => match String::from_utf8(bytes) {
                 Ok(t) => t,
                 Err(_) => {
-                    stderr_line!("error: {} is not UTF-8 text", path.display());
+                    // The loader's reading locates the first bad byte.
+                    let loaded = crate::model::load_path(path);
+                    print_diagnostics(&loaded.diagnostics, &loaded.sources);
                     status = status.max(EXIT_MODEL);
                     continue;
                 }
@@ -63,6 +79,11 @@ pub fn run(args: &Args) -> ExitCode {
                     continue;
                 }
             };
+            if let Err(e) = super::output::sink_for(&target) {
+                stderr_line!("error: {e}");
+                status = status.max(EXIT_MODEL);
+                continue;
+            }
             let hard_linked = has_other_hard_links(&target);
             if let Err(e) = write_atomic(&target, formatted.as_bytes(), &[]) {
                 stderr_line!("error: {e}");

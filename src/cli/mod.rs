@@ -35,6 +35,7 @@ mod derive;
 mod diff;
 mod emit;
 mod fmt;
+pub mod output;
 mod plot;
 mod run;
 mod scan;

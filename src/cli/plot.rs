@@ -2,12 +2,13 @@
 //! heat maps (2-D scans), as SVG or PNG, with unit-labelled axes, a legend
 //! and optional log axes.
 //!
-//! Files are drawn to a temporary file beside the target and renamed, so a
-//! failed plot never leaves half a figure behind. Text needs a TrueType
+//! Figures are staged with the command's other outputs (`cli::output`), so
+//! a failed command never leaves half a figure, or a new figure beside an
+//! old table, behind. Text needs a TrueType
 //! font: the first of a few common system fonts is used (or the file named
 //! by the `RATEWRIGHT_FONT` environment variable).
 
-use super::common;
+use super::output::{Sink, Staged};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::path::{Path, PathBuf};
@@ -110,25 +111,25 @@ pub fn check_figure_path(path: &Path) -> Result<(), String> {
     kind_of(path).map(|_| ())
 }
 
-/// Draws through `draw` into a temporary file, then renames it to `path`
-/// (see [`super::common::replace_atomically`]); never over one of `inputs`.
-fn write_figure(
-    path: &Path,
-    inputs: &[PathBuf],
+/// Stages the figure `draw` makes for `sink` (see [`super::output`]): it
+/// is put in place with the command's other outputs, or not at all.
+fn stage_figure(
+    staged: &mut Staged,
+    sink: &Sink,
     draw: impl Fn(&Path, &Kind) -> Result<(), String>,
 ) -> Result<(), String> {
-    let kind = kind_of(path)?;
+    let kind = kind_of(Path::new(&sink.shown()))?;
     ensure_font()?;
     let suffix = match kind {
         Kind::Svg => ".svg",
         Kind::Png => ".png",
     };
-    common::replace_atomically(path, inputs, suffix, |tmp| draw(tmp.path(), &kind))
+    staged.with_file(sink, suffix, |tmp| draw(tmp, &kind))
 }
 
-/// Draws a line plot to an .svg or .png file.
-pub fn draw_lines(path: &Path, inputs: &[PathBuf], spec: &LinePlot) -> Result<(), String> {
-    write_figure(path, inputs, |tmp, kind| match kind {
+/// Stages a line plot (.svg or .png by the sink's name).
+pub fn draw_lines(staged: &mut Staged, sink: &Sink, spec: &LinePlot) -> Result<(), String> {
+    stage_figure(staged, sink, |tmp, kind| match kind {
         Kind::Svg => lines_on(SVGBackend::new(tmp, (960, 640)).into_drawing_area(), spec),
         Kind::Png => lines_on(
             BitMapBackend::new(tmp, (1440, 960)).into_drawing_area(),
@@ -137,9 +138,9 @@ pub fn draw_lines(path: &Path, inputs: &[PathBuf], spec: &LinePlot) -> Result<()
     })
 }
 
-/// Draws a heat map to an .svg or .png file.
-pub fn draw_heat_map(path: &Path, inputs: &[PathBuf], spec: &HeatMap) -> Result<(), String> {
-    write_figure(path, inputs, |tmp, kind| match kind {
+/// Stages a heat map (.svg or .png by the sink's name).
+pub fn draw_heat_map(staged: &mut Staged, sink: &Sink, spec: &HeatMap) -> Result<(), String> {
+    stage_figure(staged, sink, |tmp, kind| match kind {
         Kind::Svg => heat_on(SVGBackend::new(tmp, (960, 720)).into_drawing_area(), spec),
         Kind::Png => heat_on(
             BitMapBackend::new(tmp, (1440, 1080)).into_drawing_area(),

@@ -5,7 +5,7 @@
 //! `t,<species in declaration order>,<observables>`, one row per output
 //! time, values in the model's default units.
 
-use super::common::{self, load_model, run_error, usage_error, write_atomic};
+use super::common::{self, load_model, run_error, usage_error};
 use crate::diagnostics::SourceMap;
 use crate::model::Model;
 use crate::sim::{self, Method, Prepared, Settings, Trajectory};
@@ -84,7 +84,7 @@ pub(crate) fn model_with_overrides(
     for s in set {
         match common::parse_assignment(s, &model) {
             Ok(pair) => overrides.push(pair),
-            Err(e) => return Err(usage_error(format!("--set {s}: {e}"))),
+            Err(e) => return Err(common::usage_error_as(json, format!("--set {s}: {e}"))),
         }
     }
     if overrides.is_empty() {
@@ -93,7 +93,7 @@ pub(crate) fn model_with_overrides(
     model
         .with_overrides(&overrides)
         .map(|m| (m, sources))
-        .map_err(|e| usage_error(format!("--set: {e}")))
+        .map_err(|e| common::usage_error_as(json, format!("--set: {e}")))
 }
 
 /// Prints a simulation failure with its stable code; exit code 1.
@@ -186,6 +186,22 @@ pub fn run(args: &Args) -> ExitCode {
     {
         return usage_error(e);
     }
+    let out_paths: Vec<&Path> = args
+        .output
+        .iter()
+        .chain(&args.plot)
+        .map(PathBuf::as_path)
+        .collect();
+    let sinks = match super::output::sinks_for(&out_paths, &[]) {
+        Ok(s) => s,
+        Err(e) => return usage_error(e),
+    };
+    let (table_sink, plot_sink) = match (&args.output, &args.plot) {
+        (Some(_), Some(_)) => (Some(&sinks[0]), Some(&sinks[1])),
+        (Some(_), None) => (Some(&sinks[0]), None),
+        (None, Some(_)) => (None, Some(&sinks[0])),
+        (None, None) => (None, None),
+    };
     let (model, sources) = match model_with_overrides(&args.file, &args.set, false) {
         Ok(m) => m,
         Err(code) => return code,
@@ -279,7 +295,14 @@ pub fn run(args: &Args) -> ExitCode {
             Err(e) => return usage_error(e),
         },
     };
-    if let Some(plot_path) = &args.plot {
+    let mut staged = super::output::Staged::new();
+    if let Some((_, bytes)) = &file_output
+        && let Some(sink) = table_sink
+        && let Err(e) = staged.bytes(sink, bytes)
+    {
+        return run_error(format!("[E0803] {e}"));
+    }
+    if let Some(plot_sink) = plot_sink {
         let spec = super::plot::LinePlot {
             title: prepared
                 .model
@@ -301,14 +324,14 @@ pub fn run(args: &Args) -> ExitCode {
             log_x: args.log_time,
             log_y: args.log_values,
         };
-        if let Err(e) = super::plot::draw_lines(plot_path, &inputs, &spec) {
+        if let Err(e) = super::plot::draw_lines(&mut staged, plot_sink, &spec) {
             return run_error(format!("[E0803] {e}"));
         }
     }
-    if let Some((path, bytes)) = file_output {
-        if let Err(e) = write_atomic(path, &bytes, &inputs) {
-            return run_error(format!("[E0803] {e}"));
-        }
+    if let Err(e) = staged.commit() {
+        return run_error(format!("[E0803] {e}"));
+    }
+    if let Some((path, _)) = file_output {
         stderr_line!(
             "wrote {} to {}",
             common::count_of(trajectory.times.len(), "row", "rows"),

@@ -3,7 +3,7 @@
 //! per varied name, then the measured value; a failed point leaves its value
 //! empty and is reported on stderr.
 
-use super::common::{self, run_error, usage_error, write_atomic};
+use super::common::{self, run_error, usage_error};
 use crate::sim::scan::{Axis, MeasureAt, Scan, check_axes, parse_axis, run_scan};
 
 /// The most worker threads a scan starts, whatever `--jobs` asks for.
@@ -96,6 +96,42 @@ pub fn run(args: &Args) -> ExitCode {
             "--rtol must lie in (0, 1) and --atol must be a positive finite number",
         );
     }
+    // Output paths are checked before any work (exit 2): a table must end
+    // in .csv, a figure in .svg or .png, and no path may serve two outputs.
+    if let Some(path) = &args.output
+        && !path
+            .extension()
+            .and_then(|e| e.to_str())
+            .is_some_and(|e| e.eq_ignore_ascii_case("csv"))
+        && path.as_os_str() != "-"
+        && !path.starts_with("/dev")
+    {
+        return usage_error(format!(
+            "-o {}: the scan's table is CSV; name it with .csv",
+            path.display()
+        ));
+    }
+    if let Some(path) = &args.plot
+        && let Err(e) = super::plot::check_figure_path(path)
+    {
+        return usage_error(e);
+    }
+    let out_paths: Vec<&std::path::Path> = args
+        .output
+        .iter()
+        .chain(&args.plot)
+        .map(PathBuf::as_path)
+        .collect();
+    let sinks = match super::output::sinks_for(&out_paths, &[]) {
+        Ok(s) => s,
+        Err(e) => return usage_error(e),
+    };
+    let (table_sink, plot_sink) = match (&args.output, &args.plot) {
+        (Some(_), Some(_)) => (Some(&sinks[0]), Some(&sinks[1])),
+        (Some(_), None) => (Some(&sinks[0]), None),
+        (None, Some(_)) => (None, Some(&sinks[0])),
+        (None, None) => (None, None),
+    };
     // The measured expression is parsed and resolved by the front end as an
     // observable appended to the model, so it follows the language exactly.
     let text = match std::fs::read_to_string(&args.file) {
@@ -120,11 +156,6 @@ pub fn run(args: &Args) -> ExitCode {
         if let Err(e) = common::refuse_input_overwrite(path, &inputs) {
             return usage_error(e);
         }
-    }
-    if let Some(path) = &args.plot
-        && let Err(e) = super::plot::check_figure_path(path)
-    {
-        return usage_error(e);
     }
     let measure_name = fresh_name(&text);
     let extended = format!("{text}\nobserve {measure_name} = {}\n", args.measure);
@@ -273,11 +304,13 @@ pub fn run(args: &Args) -> ExitCode {
         csv.push_str(&fields.join(","));
         csv.push('\n');
     }
-    let inputs = vec![args.file.clone()];
-    if let Some(plot) = &args.plot {
-        if let Err(e) = common::refuse_input_overwrite(plot, &inputs) {
-            return usage_error(e);
-        }
+    let mut staged = super::output::Staged::new();
+    if let Some(sink) = table_sink
+        && let Err(e) = staged.bytes(sink, csv.as_bytes())
+    {
+        return run_error(format!("[E0803] {e}"));
+    }
+    if let Some(plot) = plot_sink {
         let value = |v: &Result<f64, crate::sim::SimError>| v.as_ref().copied().unwrap_or(f64::NAN);
         let where_ = match at {
             MeasureAt::Steady => "at steady state".to_string(),
@@ -286,8 +319,8 @@ pub fn run(args: &Args) -> ExitCode {
         let label = |a: &Axis| axis_label(&model, &a.name);
         let drawn = if axes.len() == 1 {
             super::plot::draw_lines(
+                &mut staged,
                 plot,
-                &inputs,
                 &super::plot::LinePlot {
                     title: format!("{} {where_}", args.measure.trim()),
                     x_label: label(&axes[0]),
@@ -309,8 +342,8 @@ pub fn run(args: &Args) -> ExitCode {
                 .map(|row| row.iter().map(value).collect())
                 .collect();
             super::plot::draw_heat_map(
+                &mut staged,
                 plot,
-                &inputs,
                 &super::plot::HeatMap {
                     title: format!("{} {where_}", args.measure.trim()),
                     x_label: label(&axes[0]),
@@ -328,11 +361,11 @@ pub fn run(args: &Args) -> ExitCode {
             return run_error(format!("[E0803] {e}"));
         }
     }
+    if let Err(e) = staged.commit() {
+        return run_error(format!("[E0803] {e}"));
+    }
     match &args.output {
         Some(path) => {
-            if let Err(e) = write_atomic(path, csv.as_bytes(), &inputs) {
-                return run_error(format!("[E0803] {e}"));
-            }
             stderr_line!(
                 "wrote {} to {}",
                 super::common::count_of(result.points.len(), "point", "points"),
