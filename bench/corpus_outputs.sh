@@ -28,7 +28,8 @@ record() {
   done
   rm -rf "$scratch"
   # the scratch folder's random name must not show in the comparison
-  sed -i "s#$scratch#SCRATCH#g" "$dir/$name.out" "$dir/$name.err" 2>/dev/null
+  # nor the checkout's location (worktrees are compared with each other)
+  sed -i -e "s#$scratch#SCRATCH#g" -e "s#$top#TOP#g" "$dir/$name.out" "$dir/$name.err" 2>/dev/null
 }
 
 files=$(ls models/*.mech tests/fixtures/*.mech tests/fixtures/diff/*.mech tests/bad_inputs/* 2>/dev/null)
@@ -38,7 +39,7 @@ for src in $files; do
   record "$dir" check check "$m"
   record "$dir" check_json check --format json "$m"
   record "$dir" check_deny check --deny-warnings "$m"
-  cp "$m" "$dir/fmt_input"; ( cd "$dir" && timeout 60 "$bin" fmt fmt_input >fmt.out 2>fmt.err; echo $? >fmt.rc )
+  cp "$m" "$dir/fmt_input"; ( cd "$dir" && timeout 60 "$bin" fmt fmt_input >fmt.out 2>fmt.err; echo $? >fmt.rc; sed -i "s#$top#TOP#g" fmt.out fmt.err )
   record "$dir" fmt_check fmt --check "$m"
   record "$dir" analyze analyze "$m"
   record "$dir" analyze_json analyze --format json "$m"
