@@ -1558,3 +1558,257 @@ fn an_every_interval_with_too_many_rows_says_so_readably() {
         assert!(stderr.contains("at most 10,000,000"), "{stderr}");
     }
 }
+
+// Issue 23, findings 2, 5, 7, 8, 9, 11, 12 (fmt), 14: outputs.
+
+fn run_in(dir: &Path, args: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_ratewright"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("the ratewright binary runs")
+}
+
+fn model_copy(dir: &Path) -> PathBuf {
+    let m = dir.join("m.mech");
+    std::fs::copy(root().join("models/protease_assay.mech"), &m).unwrap();
+    m
+}
+
+#[cfg(unix)]
+fn file_kind(p: &Path) -> &'static str {
+    use std::os::unix::fs::FileTypeExt;
+    let t = std::fs::symlink_metadata(p).unwrap().file_type();
+    if t.is_symlink() {
+        "symlink"
+    } else if t.is_char_device() {
+        "char"
+    } else if t.is_fifo() {
+        "fifo"
+    } else if t.is_file() {
+        "file"
+    } else {
+        "other"
+    }
+}
+
+/// `-o /dev/null`, a FIFO, a character device and a symlink to
+/// `/proc/self/fd/1` were replaced by regular files (finding 2). They are
+/// written directly and stay what they were.
+#[cfg(unix)]
+#[test]
+fn special_output_files_are_written_not_replaced() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    model_copy(d);
+    for args in [
+        vec!["emit", "m.mech", "--target", "python", "-o", "/dev/null"],
+        vec!["derive", "m.mech", "-o", "/dev/null"],
+    ] {
+        let out = run_in(d, &args);
+        assert_eq!(out.status.code(), Some(0), "{args:?}");
+        assert_eq!(file_kind(Path::new("/dev/null")), "char");
+    }
+    // A FIFO with a reader gets the text and stays a FIFO.
+    let fifo = d.join("pipe");
+    assert!(
+        Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap()
+            .success()
+    );
+    let reader = {
+        let fifo = fifo.clone();
+        std::thread::spawn(move || std::fs::read_to_string(fifo).unwrap())
+    };
+    let out = run_in(d, &["derive", "m.mech", "-o", "pipe"]);
+    assert_eq!(out.status.code(), Some(0));
+    let received = reader.join().unwrap();
+    assert!(received.contains("v ="), "{received}");
+    assert_eq!(file_kind(&fifo), "fifo");
+    // A symlink to the process's standard output: the text arrives on
+    // standard output, the link stays a link.
+    std::os::unix::fs::symlink("/proc/self/fd/1", d.join("out1")).unwrap();
+    let out = run_in(d, &["emit", "m.mech", "--target", "dot", "-o", "out1"]);
+    assert_eq!(out.status.code(), Some(0));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("digraph"));
+    assert_eq!(file_kind(&d.join("out1")), "symlink");
+    // `-o -` is standard output.
+    let out = run_in(d, &["emit", "m.mech", "--target", "dot", "-o", "-"]);
+    assert!(String::from_utf8_lossy(&out.stdout).contains("digraph"));
+    // A character device made with mknod, where the test may (as root).
+    let chr = d.join("chr");
+    let made = Command::new("mknod")
+        .arg(&chr)
+        .args(["c", "1", "3"])
+        .stderr(Stdio::null())
+        .status()
+        .is_ok_and(|s| s.success());
+    if made {
+        let out = run_in(d, &["emit", "m.mech", "--target", "dot", "-o", "chr"]);
+        assert_eq!(out.status.code(), Some(0));
+        assert_eq!(file_kind(&chr), "char");
+        let out = run_in(d, &["fmt", "chr"]);
+        assert_eq!(out.status.code(), Some(2));
+        assert_eq!(file_kind(&chr), "char");
+    }
+}
+
+/// `fmt` on a FIFO blocked forever (finding 5); on a device it would
+/// replace the node. Both are refused before they are opened.
+#[cfg(unix)]
+#[test]
+fn fmt_refuses_anything_but_a_regular_file_without_blocking() {
+    let dir = tempfile::tempdir().unwrap();
+    let fifo = dir.path().join("m.mech");
+    assert!(
+        Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap()
+            .success()
+    );
+    for check in [false, true] {
+        let mut cmd = Command::new(env!("CARGO_BIN_EXE_ratewright"));
+        cmd.arg("fmt");
+        if check {
+            cmd.arg("--check");
+        }
+        let mut child = cmd.arg(&fifo).stderr(Stdio::piped()).spawn().unwrap();
+        let deadline = Instant::now() + Duration::from_secs(20);
+        let status = loop {
+            if let Some(s) = child.try_wait().unwrap() {
+                break s;
+            }
+            if Instant::now() > deadline {
+                child.kill().unwrap();
+                panic!("fmt blocked on a FIFO");
+            }
+            std::thread::sleep(Duration::from_millis(20));
+        };
+        assert_eq!(status.code(), Some(2));
+        assert_eq!(file_kind(&fifo), "fifo");
+    }
+}
+
+/// `fmt` replaced a read-only file (finding 14); it now refuses and keeps
+/// the file, its text and its mode.
+#[cfg(unix)]
+#[test]
+fn fmt_refuses_a_read_only_file_and_keeps_it() {
+    use std::os::unix::fs::PermissionsExt;
+    let dir = tempfile::tempdir().unwrap();
+    let m = dir.path().join("m.mech");
+    let text = "species   A = 1 uM\n";
+    std::fs::write(&m, text).unwrap();
+    std::fs::set_permissions(&m, std::fs::Permissions::from_mode(0o444)).unwrap();
+    let out = run_in(dir.path(), &["fmt", "m.mech"]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("read-only"));
+    assert_eq!(std::fs::read_to_string(&m).unwrap(), text);
+    let mode = std::fs::metadata(&m).unwrap().permissions().mode() & 0o777;
+    assert_eq!(mode, 0o444);
+}
+
+/// `fmt` on Latin-1 said "not UTF-8" with no code or position (finding 12).
+#[test]
+fn fmt_locates_the_first_byte_that_is_not_utf8() {
+    let out = ratewright(&["fmt", "--check", "tests/bad_inputs/encoding_latin1.mech"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(stderr.contains("E0103"), "{stderr}");
+    assert!(stderr.contains("encoding_latin1.mech:2:16"), "{stderr}");
+}
+
+/// Output paths are checked before any work, with exit 2 (finding 7), and
+/// a failed command leaves every old output as it was (finding 8).
+#[test]
+fn outputs_are_checked_first_and_committed_together() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    model_copy(d);
+    let scan = [
+        "scan",
+        "m.mech",
+        "--vary",
+        "k_on=1..2:2",
+        "--measure",
+        "P",
+        "--at",
+        "1",
+    ];
+    for extra in [["-o", "nodir/s.csv"], ["--plot", "nodir/x.svg"]] {
+        let args: Vec<&str> = scan.iter().copied().chain(extra).collect();
+        let out = run_in(d, &args);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{extra:?}: {stderr}");
+        assert!(stderr.contains("does not exist"), "{stderr}");
+    }
+    // A table that cannot be written: the figure beside it is not replaced.
+    std::fs::create_dir(d.join("c.csv")).unwrap();
+    std::fs::write(d.join("fig.svg"), "old figure").unwrap();
+    let out = run_in(d, &["run", "m.mech", "-o", "c.csv", "--plot", "fig.svg"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert_eq!(
+        std::fs::read_to_string(d.join("fig.svg")).unwrap(),
+        "old figure"
+    );
+    // One file of a pair cannot be written: neither is.
+    std::fs::create_dir(d.join("q.c")).unwrap();
+    let out = run_in(d, &["emit", "m.mech", "--target", "c", "-o", "q"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(!d.join("q.h").exists());
+}
+
+/// `scan -o same.svg --plot same.svg` wrote the table over the figure, and
+/// `-o p.png` wrote CSV text under a PNG name (finding 9).
+#[test]
+fn scan_tables_must_be_named_csv() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    model_copy(d);
+    let scan = [
+        "scan",
+        "m.mech",
+        "--vary",
+        "k_on=1..2:2",
+        "--measure",
+        "P",
+        "--at",
+        "1",
+    ];
+    for extra in [
+        vec!["-o", "same.svg", "--plot", "same.svg"],
+        vec!["-o", "p.png"],
+        vec!["-o", "x.json"],
+    ] {
+        let args: Vec<&str> = scan.iter().copied().chain(extra.iter().copied()).collect();
+        let out = run_in(d, &args);
+        assert_eq!(out.status.code(), Some(2), "{extra:?}");
+        for f in ["same.svg", "p.png", "x.json"] {
+            assert!(!d.join(f).exists(), "{f} written for {extra:?}");
+        }
+    }
+}
+
+/// Usage errors under `--format json` printed nothing on standard output
+/// (finding 11); they are the JSON report too.
+#[test]
+fn json_usage_errors_are_json_documents() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    model_copy(d);
+    for args in [
+        vec!["steady", "--format", "json", "--set", "nope=1", "m.mech"],
+        vec!["steady", "--format", "json", "--set", "k_cat=-1", "m.mech"],
+        vec!["derive", "--format", "json", "-o", "m.mech", "m.mech"],
+    ] {
+        let out = run_in(d, &args);
+        assert_eq!(out.status.code(), Some(2), "{args:?}");
+        let doc: serde_json::Value = serde_json::from_slice(&out.stdout)
+            .unwrap_or_else(|e| panic!("{args:?}: not JSON ({e})"));
+        assert_eq!(doc["ok"], false);
+        assert_eq!(doc["diagnostics"][0]["code"], "E0801", "{args:?}");
+    }
+}

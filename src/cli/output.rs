@@ -233,10 +233,13 @@ enum Content {
     Bytes(Vec<u8>),
 }
 
-/// A command's outputs, staged one by one and committed together.
+/// A command's outputs, staged one by one and committed together. From the
+/// first staged output to the commit the interrupt guard is held, so an
+/// interrupt waits until the temporary files are in place or removed.
 #[derive(Default)]
 pub struct Staged {
     entries: Vec<(Sink, Content)>,
+    no_interrupt: Option<std::sync::MutexGuard<'static, ()>>,
 }
 
 impl Staged {
@@ -260,6 +263,9 @@ impl Staged {
         suffix: &str,
         fill: impl FnOnce(&Path) -> Result<(), String>,
     ) -> Result<(), String> {
+        if self.no_interrupt.is_none() {
+            self.no_interrupt = Some(writing_guard());
+        }
         let content = match sink {
             Sink::File { target, .. } => {
                 let tmp = temporary_beside(target, suffix, sink)?;
@@ -287,9 +293,9 @@ impl Staged {
     }
 
     /// Puts every staged output in place, under the interrupt guard.
-    pub fn commit(self) -> Result<(), String> {
-        let _no_interrupt = writing_guard();
-        for (sink, content) in self.entries {
+    pub fn commit(mut self) -> Result<(), String> {
+        let _no_interrupt = self.no_interrupt.take().unwrap_or_else(writing_guard);
+        for (sink, content) in std::mem::take(&mut self.entries) {
             match (sink, content) {
                 (Sink::File { target, shown }, Content::Temporary(tmp)) => {
                     tmp.persist(&target)
