@@ -641,3 +641,51 @@ fn swapping_two_events_at_one_time_is_a_change() {
     let (code, _) = diff_json(a.to_str().unwrap(), a.to_str().unwrap());
     assert_eq!(code, 0);
 }
+
+/// Issue 23, finding 1: `diff -- '--output=../keep:m.mech' m.mech` passed
+/// the revision to `git show` as an option and wrote a file outside the
+/// repository; a range gave an empty model. Both are refused (E0804), and
+/// nothing is written.
+#[test]
+fn revisions_cannot_inject_git_options_or_be_ranges() {
+    let outer = tempfile::tempdir().unwrap();
+    let dir = outer.path().join("repo");
+    std::fs::create_dir(&dir).unwrap();
+    git(&dir, &["init", "-q"]);
+    git(&dir, &["config", "user.name", "Diff Test"]);
+    git(&dir, &["config", "user.email", "diff-test@example.org"]);
+    git(&dir, &["config", "commit.gpgsign", "false"]);
+    let text = "species A = 1 uM\nspecies B\nparam k = 2 /s\nstep r A -> B with k\n";
+    std::fs::write(dir.join("m.mech"), text).unwrap();
+    git(&dir, &["add", "."]);
+    git(&dir, &["commit", "-q", "-m", "one"]);
+    std::fs::write(dir.join("m.mech"), text.replace("2 /s", "3 /s")).unwrap();
+    git(&dir, &["commit", "-q", "-am", "two"]);
+    for side in [
+        "--output=../keep:m.mech",
+        "-p:m.mech",
+        "HEAD~1..HEAD:m.mech",
+        "HEAD...HEAD~1:m.mech",
+        "no-such-rev:m.mech",
+    ] {
+        let out = run_in(&dir, &["diff", "--", side, "m.mech"]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{side}: {stderr}");
+        assert!(stderr.contains("E0804"), "{side}: {stderr}");
+    }
+    assert!(
+        !outer.path().join("keep").exists(),
+        "git wrote a file outside the repository"
+    );
+    let entries: Vec<_> = std::fs::read_dir(outer.path()).unwrap().collect();
+    assert_eq!(entries.len(), 1, "only the repository is in the folder");
+    // A single revision still works: k changed, so exit 1 (docs/version-control.md).
+    let out = run_in(&dir, &["diff", "HEAD~1:m.mech", "m.mech"]);
+    assert_eq!(
+        out.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(String::from_utf8_lossy(&out.stdout).contains("k"));
+}

@@ -165,6 +165,49 @@ fn git_path(p: &Path) -> String {
         .join("/")
 }
 
+/// The one object a revision names, as git's hash. A revision is text the
+/// user typed, handed to git: one that starts with `-` would be read as an
+/// option (`--output=FILE` writes a file anywhere), and a range such as
+/// `HEAD~1..HEAD` names no single tree. Both are refused, and git is told
+/// where its options end.
+fn verify_revision(rev: &str, top: &Path) -> Result<String, Diagnostic> {
+    let help = "give a single revision such as HEAD, HEAD~1, a tag or a commit hash, as REV:PATH";
+    if rev.starts_with('-') {
+        return Err(git_error(
+            format!("`{rev}` is not a revision (it starts with `-`)"),
+            help,
+        ));
+    }
+    if rev.contains("..") {
+        return Err(git_error(
+            format!("`{rev}` is a range of revisions; a side of a comparison is one revision"),
+            help,
+        ));
+    }
+    let spec = format!("{rev}^{{tree}}");
+    let out = run_git(
+        top,
+        &[
+            "rev-parse",
+            "--verify",
+            "--quiet",
+            "--end-of-options",
+            &spec,
+        ],
+    )
+    .map_err(|_| {
+        git_error(
+            format!("`{rev}` names no revision of this repository"),
+            help,
+        )
+    })?;
+    let hash = String::from_utf8_lossy(&out).trim().to_string();
+    if hash.is_empty() || !hash.bytes().all(|b| b.is_ascii_hexdigit()) {
+        return Err(git_error(format!("`{rev}` names no single revision"), help));
+    }
+    Ok(hash)
+}
+
 /// Reads `rev:inside` and, following `use`, every file it includes, into `root`.
 fn fetch(
     rev: &str,
@@ -186,12 +229,13 @@ fn fetch(
         ));
     }
     let spec = format!("{rev}:{}", git_path(inside));
-    let bytes = run_git(top, &["show", "--no-textconv", &spec]).map_err(|d| {
-        git_error(
-            format!("cannot read {spec} from git: {}", d.message),
-            d.help.as_deref().unwrap_or(""),
-        )
-    })?;
+    let bytes =
+        run_git(top, &["show", "--no-textconv", "--end-of-options", &spec]).map_err(|d| {
+            git_error(
+                format!("cannot read {spec} from git: {}", d.message),
+                d.help.as_deref().unwrap_or(""),
+            )
+        })?;
     let target = root.join(inside);
     if let Some(dir) = target.parent() {
         std::fs::create_dir_all(dir).map_err(|e| {
@@ -243,6 +287,7 @@ fn fetch(
 /// from the same revision.
 pub fn load_revision(rev: &str, path: &Path, cwd: &Path) -> Result<Loaded, Diagnostic> {
     let (inside, top) = locate(path, cwd)?;
+    let commit = verify_revision(rev, &top)?;
     let temp = tempfile::Builder::new()
         .prefix("ratewright-rev-")
         .tempdir()
@@ -256,7 +301,10 @@ pub fn load_revision(rev: &str, path: &Path, cwd: &Path) -> Result<Loaded, Diagn
         .path()
         .canonicalize()
         .unwrap_or_else(|_| temp.path().to_path_buf());
-    fetch(rev, &inside, &top, &root, &mut BTreeSet::new())?;
+    fetch(&commit, &inside, &top, &root, &mut BTreeSet::new()).map_err(|d| Diagnostic {
+        message: d.message.replace(&commit, rev),
+        ..d
+    })?;
     let loaded = model::load_path(&root.join(&inside));
     Ok(relabel(loaded, &root, rev))
 }
