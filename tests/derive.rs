@@ -1044,6 +1044,9 @@ fn sympy_solution_of_the_same_linear_system_agrees() {
         ("pp", PING_PONG.to_string()),
         ("tc", THEORELL_CHANCE.to_string()),
         ("rerandom", RAPID_EQUILIBRIUM_RANDOM_BI_BI.to_string()),
+        ("fast_release", FAST_RELEASE_ISO.to_string()),
+        ("ordered_fast_q_first", ordered_fast_q_release(true)),
+        ("ordered_fast_q_last", ordered_fast_q_release(false)),
         (
             "mixed",
             inhibited(
@@ -1186,4 +1189,100 @@ fn a_dead_end_inhibitor_of_the_first_complex_gets_its_dissociation_constant() {
     let json = derive_json(&path, &[]);
     assert_same("Ki_I", constant(&json, "Ki_I"), "kmi/ki");
     assert!(json["constants"].get("Kii_I").is_none());
+}
+
+// ---------------------------------------------------------------------------
+// Issue 14's bug: a rapid-equilibrium step that carries the net flux.
+
+/// Uni-uni with isomerisation, substrate binding and product release at
+/// rapid equilibrium, the isomerisation slow (the issue's example). The
+/// overall rate read from the fast release step's mass-action rate was 0.
+const FAST_RELEASE_ISO: &str = r#"
+species S = 50 uM, P
+species E = 0.01 uM, ES, EP
+param ks_on = 10 /uM/s
+param ks_off = 100 /s
+param kf = 5 /s
+param kr = 1 /s
+param kp_off = 300 /s
+param kp_on = 3 /uM/s
+step s_on  E + S <=> ES  with ks_on, ks_off
+step chem  ES <=> EP     with kf, kr
+step p_off EP <=> E + P  with kp_off, kp_on
+total E_t = E + ES + EP
+assume steady E, ES, EP
+assume equilibrium s_on, p_off
+"#;
+
+/// Ordered bi bi with Q released at rapid equilibrium, written with Q
+/// declared before P (the ordering that gave 0) and after.
+fn ordered_fast_q_release(q_first: bool) -> String {
+    let species = if q_first {
+        "species A = 1 uM\nspecies B = 1 uM\nspecies Q = 0.1 uM\nspecies P = 0.1 uM\n"
+    } else {
+        "species A = 1 uM\nspecies B = 1 uM\nspecies P = 0.1 uM\nspecies Q = 0.1 uM\n"
+    };
+    format!(
+        "{species}species E = 0.01 uM\nspecies EA\nspecies EAB\nspecies EQ\n\
+         param k1 = 1 /uM/s\nparam k2 = 2 /s\nparam k3 = 3 /uM/s\nparam k4 = 4 /s\n\
+         param k5 = 5 /s\nparam k6 = 6 /uM/s\nparam k7 = 7 /s\nparam k8 = 8 /uM/s\n\
+         step s1 E + A <=> EA with k1, k2\nstep s2 EA + B <=> EAB with k3, k4\n\
+         step s3 EAB <=> EQ + P with k5, k6\nstep s4 EQ <=> E + Q with k7, k8\n\
+         total Et = E + EA + EAB + EQ\nassume steady E, EA, EAB, EQ\nassume equilibrium s4\n"
+    )
+}
+
+fn rate_of(path: &Path, extra: &[&str]) -> String {
+    derive_json(path, extra)["rate"]
+        .as_str()
+        .unwrap()
+        .to_string()
+}
+
+/// The rate is the same whichever species or slow step it is read from,
+/// and never 0; the issue's expected law (the flux through `chem`).
+#[test]
+fn a_fast_step_that_carries_the_flux_gives_the_slow_steps_rate() {
+    let m = write("fast_release", FAST_RELEASE_ISO);
+    let expected = "E_t*(ks_on*kf*kp_off*S - ks_off*kr*kp_on*P)/(ks_off*kp_off + ks_on*kp_off*S + ks_off*kp_on*P)";
+    let overall = rate_of(&m.path, &[]);
+    assert_same("overall", &overall, expected);
+    assert_same("dP/dt", &rate_of(&m.path, &["--species", "P"]), expected);
+    assert_same(
+        "-dS/dt",
+        &format!("-({})", rate_of(&m.path, &["--species", "S"])),
+        expected,
+    );
+    assert_same(
+        "flux chem",
+        &rate_of(&m.path, &["--flux", "chem"]),
+        expected,
+    );
+    // The derived mechanism moves: its law is not E_t * (0).
+    let out = ratewright(&["derive", m.path.to_str().unwrap(), "--format", "mech"]);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(!text.contains("(0)"), "{text}");
+
+    let mut rates = Vec::new();
+    for q_first in [true, false] {
+        let w = write("ordered_fast_q", &ordered_fast_q_release(q_first));
+        for extra in [
+            &[][..],
+            &["--species", "P"],
+            &["--species", "Q"],
+            &["--flux", "s3"],
+        ] {
+            let r = rate_of(&w.path, extra);
+            assert!(r != "0" && !r.contains("(0)"), "{q_first} {extra:?}: {r}");
+            rates.push(r);
+        }
+        assert_same(
+            "-dA/dt",
+            &format!("-({})", rate_of(&w.path, &["--species", "A"])),
+            &rates[0],
+        );
+    }
+    for r in &rates {
+        assert_same("every reading, every order", r, &rates[0]);
+    }
 }

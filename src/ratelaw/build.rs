@@ -158,12 +158,48 @@ pub fn derive_with_progress(
         qs.push(q);
     }
 
-    // Net rates only of the steps the requested rate needs.
-    let needed: Vec<bool> = match &request.target {
-        Target::Flux(name) => model.steps.iter().map(|s| &s.name == name).collect(),
-        _ => (0..model.steps.len())
-            .map(|j| !model.net_change(j).iter().all(|(i, _)| cx.is_form[*i]))
-            .collect(),
+    // The species whose rate is asked for, with its weights on the slow
+    // steps; then net rates only of the steps the requested rate needs.
+    let overall = match &request.target {
+        Target::Overall => Some(overall_reaction(model, &cx.is_form)?),
+        _ => None,
+    };
+    let read_from: Option<(usize, BigRational)> = match (&request.target, &overall) {
+        (Target::Flux(_), _) => None,
+        (Target::Species(name), _) => Some((
+            species_asked_for(model, name, &cx.is_form)?,
+            BigRational::one(),
+        )),
+        (Target::Overall, Some(o)) => Some(
+            o.products
+                .first()
+                .map(|(i, c)| (*i, BigRational::from_integer(c.clone())))
+                .or_else(|| {
+                    o.reactants
+                        .first()
+                        .map(|(i, c)| (*i, -BigRational::from_integer(c.clone())))
+                })
+                .ok_or_else(|| no_overall(model))?,
+        ),
+        (Target::Overall, None) => unreachable!("the overall reaction is found above"),
+    };
+    let weights: Option<Vec<BigRational>> = match read_from {
+        None => None,
+        Some((i, _)) => Some(slow_step_weights(model, i, &cx.is_form, &equilibrium).ok_or_else(|| {
+            Diagnostic::error(
+                Code::BadDerivationRequest,
+                format!(
+                    "the rate of `{}` cannot be read from the slow steps: a rapid-equilibrium step changes it with no intermediate to balance it",
+                    model.species[i].name
+                ),
+            )
+            .with_help("leave that step out of `assume equilibrium`, or ask for another species with --species")
+        })?),
+    };
+    let needed: Vec<bool> = match (&request.target, &weights) {
+        (Target::Flux(name), _) => model.steps.iter().map(|s| &s.name == name).collect(),
+        (_, Some(w)) => w.iter().map(|c| !c.is_zero()).collect(),
+        (_, None) => vec![false; model.steps.len()],
     };
     let rates: Vec<Part> = views
         .iter()
@@ -191,49 +227,20 @@ pub fn derive_with_progress(
             })?;
             (Derived::Flux(j), sum_parts(vec![rates[j].clone()], &qs))
         }
-        Target::Species(name) => {
-            let i = match model.lookup(name) {
-                Some(Sym::Species(i)) if cx.is_form[i] => {
-                    return Err(Diagnostic::error(
-                        Code::BadDerivationRequest,
-                        format!("`{name}` is an intermediate: at steady state its rate of change is zero"),
-                    )
-                    .with_help("choose a substrate or product, or a step with --flux"));
-                }
-                Some(Sym::Species(i)) => i,
-                Some(_) => {
-                    return Err(Diagnostic::error(
-                        Code::BadDerivationRequest,
-                        format!("`{name}` is not a dynamic species"),
-                    ));
-                }
-                None => {
-                    return Err(unknown_name(
-                        "species",
-                        name,
-                        &model
-                            .species
-                            .iter()
-                            .map(|s| s.name.clone())
-                            .collect::<Vec<_>>(),
-                    ));
-                }
-            };
-            (
-                Derived::Species(i),
-                species_rate(model, i, &rates, &BigRational::one(), &qs),
-            )
-        }
-        Target::Overall => {
-            let overall = overall_reaction(model, &cx.is_form)?;
-            let (i, nu) = overall
-                .products
-                .first()
-                .map(|(i, c)| (*i, c.clone()))
-                .or_else(|| overall.reactants.first().map(|(i, c)| (*i, -c.clone())))
-                .ok_or_else(|| no_overall(model))?;
-            let rate = species_rate(model, i, &rates, &BigRational::from_integer(nu), &qs);
-            (Derived::Overall(overall), rate)
+        Target::Species(_) | Target::Overall => {
+            let (i, nu) = read_from.expect("a species rate has the species it is read from");
+            let rate = species_rate(
+                weights
+                    .as_deref()
+                    .expect("weights exist for a species rate"),
+                &rates,
+                &nu,
+                &qs,
+            );
+            match overall {
+                Some(o) => (Derived::Overall(o), rate),
+                None => (Derived::Species(i), rate),
+            }
         }
     };
     let (rate, fully_cancelled) =
@@ -991,28 +998,137 @@ fn sum_parts(parts: Vec<Part>, qs: &[Poly]) -> RationalFunction {
     acc
 }
 
-/// d(species)/dt divided by `nu`.
+/// d(species)/dt divided by `nu`, from the steps' net rates weighted by
+/// [`slow_step_weights`].
 fn species_rate(
-    model: &Model,
-    i: usize,
+    weights: &[BigRational],
     rates: &[Part],
     nu: &BigRational,
     qs: &[Poly],
 ) -> RationalFunction {
     let mut parts = Vec::new();
-    for (j, r) in rates.iter().enumerate() {
-        for (k, c) in model.net_change(j) {
-            if k == i {
-                let c = BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom())) / nu;
-                parts.push(Part {
-                    num: r.num.scale(&c),
-                    den: r.den.clone(),
-                    component: r.component,
-                });
-            }
+    for (w, r) in weights.iter().zip(rates) {
+        if !w.is_zero() {
+            let c = w / nu;
+            parts.push(Part {
+                num: r.num.scale(&c),
+                den: r.den.clone(),
+                component: r.component,
+            });
         }
     }
     sum_parts(parts, qs)
+}
+
+fn exact(c: crate::model::Coef) -> BigRational {
+    BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom()))
+}
+
+/// The rate of change of `target` at the steady state as weights on the
+/// steps' net rates. A rapid-equilibrium step's mass-action net rate
+/// vanishes at equilibrium, but its flux does not: it carries whatever the
+/// slow steps feed it, so reading a rate from it gives 0. Adding multiples
+/// y_k of the forms' balances (each zero at the steady state),
+/// d[target]/dt = Σ_j (ν_target,j + Σ_k y_k ν_kj) v_j, with y chosen so
+/// that every fast step's weight is zero: only slow steps remain, whose
+/// net rates are the fluxes through the lumped graph. Any such y gives the
+/// same rate, since the forms' balances hold. `None` when no y exists (a
+/// fast step changes `target` with no form to balance it).
+fn slow_step_weights(
+    model: &Model,
+    target: usize,
+    is_form: &[bool],
+    equilibrium: &[usize],
+) -> Option<Vec<BigRational>> {
+    let forms: Vec<usize> = (0..model.species.len()).filter(|&i| is_form[i]).collect();
+    let column = |j: usize| -> (BigRational, Vec<BigRational>) {
+        let mut own = BigRational::zero();
+        let mut by_form = vec![BigRational::zero(); forms.len()];
+        for (i, c) in model.net_change(j) {
+            if i == target {
+                own += exact(c);
+            } else if let Ok(k) = forms.binary_search(&i) {
+                by_form[k] += exact(c);
+            }
+        }
+        (own, by_form)
+    };
+    // Rows: one per fast step, Σ_k ν_kf y_k = −ν_target,f.
+    let mut rows: Vec<(Vec<BigRational>, BigRational)> = equilibrium
+        .iter()
+        .map(|&f| {
+            let (own, by_form) = column(f);
+            (by_form, -own)
+        })
+        .collect();
+    let mut y = vec![BigRational::zero(); forms.len()];
+    let mut pivots: Vec<(usize, usize)> = Vec::new();
+    let mut r = 0;
+    for c in 0..forms.len() {
+        let Some(p) = (r..rows.len()).find(|&i| !rows[i].0[c].is_zero()) else {
+            continue;
+        };
+        rows.swap(r, p);
+        let inv = rows[r].0[c].recip();
+        for x in rows[r].0.iter_mut() {
+            *x = &*x * &inv;
+        }
+        rows[r].1 = &rows[r].1 * &inv;
+        let pivot = rows[r].clone();
+        for (i, row) in rows.iter_mut().enumerate() {
+            if i != r && !row.0[c].is_zero() {
+                let f = row.0[c].clone();
+                for (x, q) in row.0.iter_mut().zip(&pivot.0) {
+                    *x = &*x - &f * q;
+                }
+                row.1 = &row.1 - &f * &pivot.1;
+            }
+        }
+        pivots.push((r, c));
+        r += 1;
+    }
+    if rows[r..].iter().any(|(_, b)| !b.is_zero()) {
+        return None;
+    }
+    for (row, c) in pivots {
+        y[c] = rows[row].1.clone();
+    }
+    Some(
+        (0..model.steps.len())
+            .map(|j| {
+                if equilibrium.contains(&j) {
+                    return BigRational::zero();
+                }
+                let (own, by_form) = column(j);
+                by_form.iter().zip(&y).fold(own, |acc, (n, w)| acc + n * w)
+            })
+            .collect(),
+    )
+}
+
+/// The dynamic, non-intermediate species `name` names, for `--species`.
+fn species_asked_for(model: &Model, name: &str, is_form: &[bool]) -> Result<usize, Diagnostic> {
+    match model.lookup(name) {
+        Some(Sym::Species(i)) if is_form[i] => Err(Diagnostic::error(
+            Code::BadDerivationRequest,
+            format!("`{name}` is an intermediate: at steady state its rate of change is zero"),
+        )
+        .with_help("choose a substrate or product, or a step with --flux")),
+        Some(Sym::Species(i)) => Ok(i),
+        Some(_) => Err(Diagnostic::error(
+            Code::BadDerivationRequest,
+            format!("`{name}` is not a dynamic species"),
+        )),
+        None => Err(unknown_name(
+            "species",
+            name,
+            &model
+                .species
+                .iter()
+                .map(|s| s.name.clone())
+                .collect::<Vec<_>>(),
+        )),
+    }
 }
 
 fn no_overall(model: &Model) -> Diagnostic {
