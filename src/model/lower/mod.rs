@@ -1,0 +1,167 @@
+//! Lowering: syntax trees of a main file and its `use`d files → one Model.
+//!
+//! Order of work: read and parse every file (following `use`, refusing
+//! cycles), declare every name in one namespace, resolve and convert params
+//! (in dependency order), steps, totals, observables, events and
+//! assumptions, then lint. Errors are collected, not stopped at, so a user
+//! sees every problem of a file at once.
+//!
+//! One file per concern; each adds methods to [`Lowerer`], which holds the
+//! model being built and the diagnostics found so far. The invariants of
+//! the result are those of [`super::ir`].
+
+mod assumptions;
+mod declarations;
+mod diagnostics;
+mod dimensions;
+mod events;
+mod files;
+mod lints;
+mod names;
+mod observables;
+mod params;
+mod quantities;
+mod steps;
+mod totals;
+
+use super::ir::*;
+use super::load::Loaded;
+use super::units::Units;
+use crate::diagnostics::{Diagnostic, FileId, SourceMap, Span};
+use crate::syntax::{self, ParamValue, StatementKind};
+use declarations::Decl;
+use declarations::RESERVED;
+use diagnostics::*;
+use files::{collect_files, place_statements};
+pub use files::{load_path, load_str};
+use quantities::file_units;
+use std::collections::{HashMap, HashSet};
+
+struct FileUnits {
+    units: Units,
+}
+
+/// A statement with the units of the file it came from.
+struct Item<'a> {
+    kind: &'a StatementKind,
+    span: Span,
+    units: Units,
+}
+
+fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
+    let mut diags = Vec::new();
+    let mut trees: Vec<(FileId, syntax::File)> = Vec::new();
+    let mut stack = Vec::new();
+    collect_files(&mut sources, main, &mut stack, &mut trees, &mut diags);
+    if diags.iter().any(Diagnostic::is_error) {
+        return Loaded {
+            sources,
+            model: None,
+            diagnostics: diags,
+        };
+    }
+    let main_units = file_units(
+        trees.iter().find(|(f, _)| *f == main).map(|(_, t)| t),
+        &mut diags,
+    )
+    .units;
+    // Statements in declaration order: a used file's statements stand where
+    // its `use` is (so its species come there in the CSV columns), each
+    // file once.
+    let mut items = Vec::new();
+    let mut placed: Vec<FileId> = Vec::new();
+    place_statements(main, &trees, &sources, &mut placed, &mut items);
+    for (file, _) in &trees {
+        // Files not reached from the main file's `use` lines (none today),
+        // so that no statement is ever dropped.
+        place_statements(*file, &trees, &sources, &mut placed, &mut items);
+    }
+    let mut lowerer = Lowerer::new(main_units, &sources);
+    lowerer.lower(&items, main);
+    diags.extend(lowerer.diags);
+    let model = if diags.iter().any(Diagnostic::is_error) {
+        None
+    } else {
+        Some(lowerer.model)
+    };
+    Loaded {
+        sources,
+        model,
+        diagnostics: diags,
+    }
+}
+
+/// Appends `file`'s statements to `items`, with each file it `use`s placed
+
+struct Lowerer<'s> {
+    model: Model,
+    names: HashMap<String, (Decl, Span)>,
+    diags: Vec<Diagnostic>,
+    /// Per param: its AST value and file units, for resolution in order.
+    param_sources: Vec<(ParamValue, Units)>,
+    used: HashSet<Sym>,
+    /// Species whose written initial value was refused: their value is a
+    /// placeholder 0, so lints about starting at 0 would be follow-ons.
+    initial_refused: HashSet<usize>,
+    sources: &'s SourceMap,
+    /// Name comparisons left for "did you mean" suggestions. Each unknown
+    /// name is compared with every declared one, so without a bound a file
+    /// with thousands of unknown names took quadratic time (8,000: 49 s).
+    suggestion_budget: usize,
+}
+
+const SUGGESTION_COMPARISONS: usize = 2_000_000;
+
+impl<'s> Lowerer<'s> {
+    fn new(units: Units, sources: &'s SourceMap) -> Self {
+        Lowerer {
+            model: Model {
+                units,
+                ..Model::default()
+            },
+            names: HashMap::new(),
+            diags: Vec::new(),
+            param_sources: Vec::new(),
+            used: HashSet::new(),
+            initial_refused: HashSet::new(),
+            sources,
+            suggestion_budget: SUGGESTION_COMPARISONS,
+        }
+    }
+
+    fn error(&mut self, d: Diagnostic) {
+        self.diags.push(d);
+    }
+}
+
+impl Lowerer<'_> {
+    fn lower(&mut self, items: &[Item], main: FileId) {
+        self.declare_all(items, main);
+        self.resolve_params();
+        for item in items {
+            match item.kind {
+                StatementKind::Step { .. } => self.lower_step(item),
+                StatementKind::Observe { .. } => self.lower_observable(item),
+                _ => {}
+            }
+        }
+        self.check_observable_cycles();
+        for item in items {
+            match item.kind {
+                StatementKind::Total { .. } => self.lower_total(item),
+                StatementKind::Event { .. } | StatementKind::Set { .. } => self.lower_event(item),
+                StatementKind::AssumeSteady(_) | StatementKind::AssumeEquilibrium(_) => {
+                    self.lower_assumption(item)
+                }
+                _ => {}
+            }
+        }
+        // With errors, the lints would mostly describe their consequences
+        // (an unknown name leaves a step empty, a param unused): they wait
+        // until the errors are fixed.
+        if !self.diags.iter().any(Diagnostic::is_error) {
+            self.apply_total_values();
+            self.lint();
+        }
+    }
+}
