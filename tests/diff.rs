@@ -689,3 +689,53 @@ fn revisions_cannot_inject_git_options_or_be_ranges() {
     );
     assert!(String::from_utf8_lossy(&out.stdout).contains("k"));
 }
+
+/// A revision is read into memory (no temporary folder: with TMPDIR
+/// pointing nowhere it still loads), its `use` lines name files of the same
+/// revision, and a `use` that is missing there or climbs out of the
+/// repository is an error at that `use` line (E0804, exit 2).
+#[test]
+fn revisions_load_in_memory_and_their_use_errors_are_located() {
+    let repo = tempfile::tempdir().unwrap();
+    let dir = repo.path();
+    git(dir, &["init", "-q"]);
+    git(dir, &["config", "user.name", "Diff Test"]);
+    git(dir, &["config", "user.email", "diff-test@example.org"]);
+    git(dir, &["config", "commit.gpgsign", "false"]);
+    std::fs::create_dir_all(dir.join("parts")).unwrap();
+    std::fs::write(dir.join("parts/k.mech"), "param k = 2 /s\n").unwrap();
+    std::fs::write(
+        dir.join("m.mech"),
+        "use \"parts/k.mech\"\nspecies A = 1 uM\nspecies B\nstep r A -> B with k\n",
+    )
+    .unwrap();
+    std::fs::write(dir.join("out.mech"), "use \"../../x.mech\"\nspecies A\n").unwrap();
+    std::fs::write(dir.join("gap.mech"), "species A\nuse \"parts/none.mech\"\n").unwrap();
+    git(dir, &["add", "."]);
+    git(dir, &["commit", "-q", "-m", "one"]);
+    let run_without_tmp = |args: &[&str]| {
+        Command::new(bin())
+            .args(args)
+            .current_dir(dir)
+            .env("TMPDIR", dir.join("no-such-folder"))
+            .output()
+            .expect("ratewright runs")
+    };
+    let same = run_without_tmp(&["diff", "HEAD:m.mech", "m.mech"]);
+    assert_eq!(
+        same.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&same.stderr)
+    );
+    for (file, code, line) in [("out.mech", "E0804", ":1:"), ("gap.mech", "E0804", ":2:")] {
+        let out = run_without_tmp(&["diff", &format!("HEAD:{file}"), "m.mech"]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{file}: {stderr}");
+        assert!(stderr.contains(code), "{file}: {stderr}");
+        assert!(
+            stderr.contains(&format!("HEAD:{file}{line}")),
+            "{file}: located at the use line: {stderr}"
+        );
+    }
+}

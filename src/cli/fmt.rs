@@ -1,7 +1,8 @@
 //! `ratewright fmt FILE... [--check]`: rewrite files in the canonical layout.
 
 use super::common::{EXIT_MODEL, EXIT_OK, EXIT_USAGE, print_diagnostics, write_atomic};
-use crate::diagnostics::SourceMap;
+use crate::diagnostics::{Code, SourceMap};
+use crate::model::source::{Disk, Sources};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -32,24 +33,28 @@ pub fn run(args: &Args) -> ExitCode {
             }
             _ => {}
         }
-        let text = match std::fs::read(path) {
-            Ok(bytes) => match String::from_utf8(bytes) {
-                Ok(t) => t,
-                Err(_) => {
-                    // The loader's reading locates the first bad byte.
-                    let loaded = crate::model::load_path(path);
-                    print_diagnostics(&loaded.diagnostics, &loaded.sources);
-                    status = status.max(EXIT_MODEL);
-                    continue;
-                }
-            },
-            Err(e) => {
-                stderr_line!("error: cannot read {}: {e}", path.display());
+        let read = match Disk.read(path) {
+            Ok(read) => read,
+            Err(e) if e.diagnostic.code == Code::FileRead => {
+                stderr_line!("error: {}", e.diagnostic.message);
                 status = EXIT_USAGE;
                 continue;
             }
+            Err(e) => {
+                // Not UTF-8 or too large: located at the first bad byte.
+                let mut sources = SourceMap::new();
+                let d = e.locate(&mut sources);
+                print_diagnostics(&[d], &sources);
+                status = status.max(EXIT_MODEL);
+                continue;
+            }
         };
-        let body = text.strip_prefix('\u{FEFF}').unwrap_or(&text);
+        let body = read.text.as_str();
+        let text = if read.had_bom {
+            format!("\u{FEFF}{body}")
+        } else {
+            body.to_string()
+        };
         let mut sources = SourceMap::new();
         let id = sources.add(path.clone(), body.to_string());
         let tree = match crate::syntax::parse(body, id) {

@@ -134,16 +134,22 @@ pub fn run(args: &Args) -> ExitCode {
     };
     // The measured expression is parsed and resolved by the front end as an
     // observable appended to the model, so it follows the language exactly.
-    let text = match std::fs::read_to_string(&args.file) {
-        Ok(t) => t,
-        Err(e) => return usage_error(format!("cannot read {}: {e}", args.file.display())),
-    };
     // The model's own errors first, located in the file as written.
-    let alone = crate::model::load_str(&text, &args.file);
+    let alone = crate::model::load_path(&args.file);
     if alone.model.is_none() || alone.diagnostics.iter().any(|d| d.is_error()) {
         common::print_diagnostics(&alone.diagnostics, &alone.sources);
-        return ExitCode::from(common::EXIT_MODEL);
+        return ExitCode::from(
+            if common::names_an_unreadable_argument(&alone.diagnostics) {
+                common::EXIT_USAGE
+            } else {
+                common::EXIT_MODEL
+            },
+        );
     }
+    let Some(main) = alone.sources.files().first() else {
+        return ExitCode::from(common::EXIT_MODEL);
+    };
+    let text = main.text.clone();
     // Output paths are checked before any point is run: a path over an
     // input file or a figure of an unknown kind is a usage error.
     let inputs: Vec<PathBuf> = alone
@@ -159,7 +165,14 @@ pub fn run(args: &Args) -> ExitCode {
     }
     let measure_name = fresh_name(&text);
     let extended = format!("{text}\nobserve {measure_name} = {}\n", args.measure);
-    let loaded = crate::model::load_str(&extended, &args.file);
+    // The file's text with the line added, over the disk (its `use` lines
+    // read the same files).
+    let extended_file = crate::model::source::Overlay {
+        base: &crate::model::source::Disk,
+        path: args.file.clone(),
+        text: extended,
+    };
+    let loaded = crate::model::load_with(&extended_file, &args.file);
     let Some(base) = loaded
         .model
         .filter(|_| !loaded.diagnostics.iter().any(|d| d.is_error()))

@@ -18,6 +18,12 @@ pub fn load_path(path: &Path) -> Loaded {
     super::lower::load_path(path)
 }
 
+/// Reads, parses and lowers the file at `path` of `sources` and the files
+/// it `use`s, read from the same sources.
+pub fn load_with(sources: &dyn super::source::Sources, path: &Path) -> Loaded {
+    super::lower::load_with(sources, path)
+}
+
 /// Parses and lowers mechanism text; `path` names it in diagnostics and is
 /// the base for `use` paths.
 pub fn load_str(text: &str, path: &Path) -> Loaded {

@@ -13,5 +13,6 @@ pub use ir::*;
 pub use units::{ConcUnit, Dim, TimeUnit, Units};
 pub mod load;
 mod lower;
+pub mod source;
 
-pub use load::{Loaded, load_path, load_str};
+pub use load::{Loaded, load_path, load_str, load_with};

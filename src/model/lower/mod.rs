@@ -26,16 +26,18 @@ mod totals;
 
 use super::ir::*;
 use super::load::Loaded;
+use super::source::Sources;
 use super::units::Units;
 use crate::diagnostics::{Diagnostic, FileId, SourceMap, Span};
-use crate::syntax::{self, ParamValue, StatementKind};
+use crate::syntax::{ParamValue, StatementKind};
 use declarations::Decl;
 use declarations::RESERVED;
 use diagnostics::*;
 use files::{collect_files, place_statements};
-pub use files::{load_path, load_str};
+pub use files::{load_path, load_str, load_with};
 use quantities::file_units;
 use std::collections::{HashMap, HashSet};
+use std::path::Path;
 
 struct FileUnits {
     units: Units,
@@ -48,11 +50,14 @@ struct Item<'a> {
     units: Units,
 }
 
-fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
+fn lower_from(
+    files: &dyn Sources,
+    mut sources: SourceMap,
+    main: FileId,
+    main_path: &Path,
+) -> Loaded {
     let mut diags = Vec::new();
-    let mut trees: Vec<(FileId, syntax::File)> = Vec::new();
-    let mut stack = Vec::new();
-    collect_files(&mut sources, main, &mut stack, &mut trees, &mut diags);
+    let collected = collect_files(files, &mut sources, main, main_path, &mut diags);
     if diags.iter().any(Diagnostic::is_error) {
         return Loaded {
             sources,
@@ -61,7 +66,11 @@ fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
         };
     }
     let main_units = file_units(
-        trees.iter().find(|(f, _)| *f == main).map(|(_, t)| t),
+        collected
+            .trees
+            .iter()
+            .find(|(f, _)| *f == main)
+            .map(|(_, t)| t),
         &mut diags,
     )
     .units;
@@ -69,12 +78,12 @@ fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
     // its `use` is (so its species come there in the CSV columns), each
     // file once.
     let mut items = Vec::new();
-    let mut placed: Vec<FileId> = Vec::new();
-    place_statements(main, &trees, &sources, &mut placed, &mut items);
-    for (file, _) in &trees {
+    let mut placed = HashSet::new();
+    place_statements(main, &collected, &mut placed, &mut items);
+    for (file, _) in &collected.trees {
         // Files not reached from the main file's `use` lines (none today),
         // so that no statement is ever dropped.
-        place_statements(*file, &trees, &sources, &mut placed, &mut items);
+        place_statements(*file, &collected, &mut placed, &mut items);
     }
     let mut lowerer = Lowerer::new(main_units, &sources);
     lowerer.lower(&items, main);
@@ -90,8 +99,6 @@ fn lower_from(mut sources: SourceMap, main: FileId) -> Loaded {
         diagnostics: diags,
     }
 }
-
-/// Appends `file`'s statements to `items`, with each file it `use`s placed
 
 struct Lowerer<'s> {
     model: Model,
