@@ -13,6 +13,7 @@
 
 use super::expr::{BinOp, Expr};
 use super::units::{Dim, Units};
+use super::value_error::ValueError;
 use crate::diagnostics::Span;
 use num_rational::Rational64;
 use num_traits::{One, ToPrimitive, Zero};
@@ -186,13 +187,14 @@ impl Model {
         name: &str,
         text: &str,
         given: Option<super::Dim>,
-    ) -> Result<(), String> {
+    ) -> Result<(), ValueError> {
         match (given, self.dimension_of(name)) {
-            (Some(given), Some(needed)) if given != needed => Err(format!(
-                "`{}` cannot be a value of `{name}`, which is in {} (the unit given has dimension {given})",
-                text.trim(),
-                needed.display_in(self.units)
-            )),
+            (Some(given), Some(needed)) if given != needed => Err(ValueError::WrongDimension {
+                text: text.trim().to_string(),
+                name: name.to_string(),
+                needed: needed.display_in(self.units),
+                given,
+            }),
             _ => Ok(()),
         }
     }
@@ -366,19 +368,19 @@ impl Model {
     /// values, fixed species, total values), re-evaluating derived params and
     /// recomputing totals and the initial values that follow from them.
     /// Values are in default units.
-    pub fn with_overrides(&self, overrides: &[(String, f64)]) -> Result<Model, String> {
+    pub fn with_overrides(&self, overrides: &[(String, f64)]) -> Result<Model, ValueError> {
         let mut m = self.clone();
         let mut set_totals = Vec::new();
         let mut set_species = Vec::new();
         for (name, value) in overrides {
             if !value.is_finite() {
-                return Err(format!("value for `{name}` is not finite"));
+                return Err(ValueError::NotFinite { name: name.clone() });
             }
             match m.lookup(name) {
                 Some(Sym::Param(i)) => m.params[i].definition = ParamDef::Value(*value),
                 Some(Sym::Species(i)) => {
                     if *value < 0.0 {
-                        return Err(format!("initial value of `{name}` must not be negative"));
+                        return Err(ValueError::NegativeInitial { name: name.clone() });
                     }
                     m.species[i].initial = *value;
                     m.species[i].initial_given = true;
@@ -387,17 +389,17 @@ impl Model {
                 Some(Sym::Fixed(i)) => m.fixed[i].value = *value,
                 Some(Sym::Total(i)) => set_totals.push((i, *value)),
                 Some(Sym::Observable(_)) => {
-                    return Err(format!("`{name}` is an observable and cannot be set"));
+                    return Err(ValueError::NotSettable { name: name.clone() });
                 }
                 None => {
                     let names = m.all_names();
-                    let hint =
+                    let suggestion =
                         crate::diagnostics::did_you_mean(name, names.iter().map(|s| s.as_str()))
-                            .map(|s| format!(" (did you mean `{s}`?)"))
-                            .unwrap_or_default();
-                    return Err(format!(
-                        "no param, species, fixed species or total named `{name}`{hint}"
-                    ));
+                            .map(str::to_string);
+                    return Err(ValueError::UnknownName {
+                        name: name.clone(),
+                        suggestion,
+                    });
                 }
             }
         }
@@ -443,10 +445,11 @@ impl Model {
             }
         }
         if let Some((j, direction, v)) = m.negative_rate_constant() {
-            return Err(format!(
-                "the {direction} constant of step `{}` would be {v}; a rate constant cannot be negative",
-                m.steps[j].name
-            ));
+            return Err(ValueError::NegativeRateConstant {
+                step: m.steps[j].name.clone(),
+                direction,
+                value: v,
+            });
         }
         Ok(m)
     }
@@ -470,14 +473,17 @@ impl Model {
     }
 
     /// Re-evaluates every param in `param_order`.
-    pub fn evaluate_params(&mut self) -> Result<(), String> {
+    pub fn evaluate_params(&mut self) -> Result<(), ValueError> {
         for &i in &self.param_order.clone() {
             let v = match &self.params[i].definition {
                 ParamDef::Value(v) => *v,
                 ParamDef::Expr(e) => e.eval(&|s| self.initial_value(s), 0.0),
             };
             if !v.is_finite() {
-                return Err(format!("param `{}` evaluates to {v}", self.params[i].name));
+                return Err(ValueError::ParamNotFinite {
+                    name: self.params[i].name.clone(),
+                    value: v,
+                });
             }
             self.params[i].value = v;
         }
@@ -495,20 +501,19 @@ impl Model {
 
     /// Makes the initial values agree with a total's given value by adjusting
     /// the total's dependent species (see [`Model::total_adjusted_species`]).
-    pub fn apply_total_value(&mut self, total: usize) -> Result<(), String> {
+    pub fn apply_total_value(&mut self, total: usize) -> Result<(), ValueError> {
         let t = &self.totals[total];
         let Some(k) = self.total_adjusted_species(total) else {
-            return Err(format!(
-                "total `{}` has no species whose start value could follow from it",
-                t.name
-            ));
+            return Err(ValueError::TotalWithoutSpecies {
+                total: t.name.clone(),
+            });
         };
         self.adjust_for_total(total, k)
     }
 
     /// Sets species `k`'s start value so that the total's terms add up to
     /// its value.
-    fn adjust_for_total(&mut self, total: usize, k: usize) -> Result<(), String> {
+    fn adjust_for_total(&mut self, total: usize, k: usize) -> Result<(), ValueError> {
         let t = &self.totals[total];
         let ck = t
             .terms
@@ -524,10 +529,12 @@ impl Model {
             .sum();
         let v = (t.value - others) / ck;
         if v < -1e-12 * t.value.abs().max(1.0) {
-            return Err(format!(
-                "total `{}` = {} is less than the other species in it already hold; `{}` would start at {v}",
-                t.name, t.value, self.species[k].name
-            ));
+            return Err(ValueError::TotalTooSmall {
+                total: t.name.clone(),
+                value: t.value,
+                species: self.species[k].name.clone(),
+                would_start_at: v,
+            });
         }
         self.species[k].initial = v.max(0.0);
         Ok(())

@@ -7,10 +7,12 @@
 pub mod expr;
 pub mod ir;
 pub mod units;
+pub mod value_error;
 
 pub use expr::{BinOp, Expr, Func};
 pub use ir::*;
 pub use units::{ConcUnit, Dim, TimeUnit, Units};
+pub use value_error::ValueError;
 pub mod load;
 mod lower;
 pub mod source;

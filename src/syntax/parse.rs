@@ -563,7 +563,85 @@ impl Builder {
                     span,
                 }
             }
-            _ => return None,
+            // Every rule that is not a statement, listed so that a new
+            // statement rule in the grammar is a compile error here.
+            Rule::EOI
+            | Rule::WHITESPACE
+            | Rule::file
+            | Rule::newline
+            | Rule::line
+            | Rule::comment
+            | Rule::end_of_statement
+            | Rule::statement
+            | Rule::ident_char
+            | Rule::ident
+            | Rule::kw_mechanism
+            | Rule::kw_units
+            | Rule::kw_species
+            | Rule::kw_fixed
+            | Rule::kw_param
+            | Rule::kw_step
+            | Rule::kw_total
+            | Rule::kw_observe
+            | Rule::kw_assume
+            | Rule::kw_steady
+            | Rule::kw_equilibrium
+            | Rule::kw_add
+            | Rule::kw_remove
+            | Rule::kw_set
+            | Rule::kw_at
+            | Rule::kw_use
+            | Rule::kw_with
+            | Rule::kw_law
+            | Rule::kw_concentration
+            | Rule::kw_time
+            | Rule::equals
+            | Rule::comma
+            | Rule::plus
+            | Rule::minus
+            | Rule::lparen
+            | Rule::rparen
+            | Rule::string
+            | Rule::string_text
+            | Rule::number
+            | Rule::signed_number
+            | Rule::unit_word
+            | Rule::unit_power
+            | Rule::unit_factor
+            | Rule::unit
+            | Rule::quantity
+            | Rule::bare_number
+            | Rule::unit_setting
+            | Rule::species_decl
+            | Rule::param_value
+            | Rule::side
+            | Rule::empty_side
+            | Rule::term
+            | Rule::coefficient
+            | Rule::arrow
+            | Rule::reversible_arrow
+            | Rule::irreversible_arrow
+            | Rule::rate
+            | Rule::mass_action
+            | Rule::rate_law
+            | Rule::linear_combination
+            | Rule::signed_term
+            | Rule::sign
+            | Rule::assume_steady
+            | Rule::assume_equilibrium
+            | Rule::event_amount
+            | Rule::expr
+            | Rule::infix
+            | Rule::add
+            | Rule::sub
+            | Rule::mul
+            | Rule::div
+            | Rule::pow
+            | Rule::prefix
+            | Rule::neg
+            | Rule::primary
+            | Rule::paren
+            | Rule::call => return None,
         };
         Some(Statement { kind, span })
     }

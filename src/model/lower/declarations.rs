@@ -203,7 +203,13 @@ impl Lowerer<'_> {
                         });
                     }
                 }
-                _ => {}
+                // Declare nothing: read in later passes (units per file).
+                StatementKind::Units(_)
+                | StatementKind::AssumeSteady(_)
+                | StatementKind::AssumeEquilibrium(_)
+                | StatementKind::Event { .. }
+                | StatementKind::Set { .. }
+                | StatementKind::Use { .. } => {}
             }
         }
     }

@@ -6,32 +6,18 @@
 use super::*;
 use crate::diagnostics::{Code, Diagnostic};
 use crate::model::ir::*;
-use crate::syntax::{self, StatementKind};
+use crate::syntax::{Ident, Quantity};
 
 impl Lowerer<'_> {
-    pub(super) fn lower_event(&mut self, item: &Item) {
-        let (kind, target, amount, time) = match item.kind {
-            StatementKind::Event {
-                kind,
-                amount,
-                target,
-                time,
-            } => (
-                match kind {
-                    syntax::EventKindAst::Add => EventKind::Add,
-                    syntax::EventKindAst::Remove => EventKind::Remove,
-                },
-                target,
-                amount,
-                time,
-            ),
-            StatementKind::Set {
-                target,
-                value,
-                time,
-            } => (EventKind::Set, target, value, time),
-            _ => return,
-        };
+    /// An `add`, `remove` or `set` statement (`item`), taken apart.
+    pub(super) fn lower_event(
+        &mut self,
+        item: &Item,
+        kind: EventKind,
+        target: &Ident,
+        amount: &Quantity,
+        time: &Quantity,
+    ) {
         let species = match self.lookup(&target.name) {
             Some(Decl::Sym(Sym::Species(k))) => Some(k),
             Some(Decl::Sym(s)) => {

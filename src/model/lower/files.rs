@@ -110,20 +110,15 @@ impl Walk<'_> {
             }
         };
         self.stack.push((self.sources.identity(&path), shown));
-        let uses: Vec<(String, Span)> = tree
-            .statements()
-            .filter_map(|s| match &s.kind {
-                StatementKind::Use { path, span } => Some((path.clone(), *span)),
-                _ => None,
-            })
-            .collect();
-        let statement_starts: Vec<usize> = tree
-            .statements()
-            .filter(|s| matches!(s.kind, StatementKind::Use { .. }))
-            .map(|s| s.span.start)
-            .collect();
+        // (path, span of the path, start of the statement) of each `use`.
+        let mut uses: Vec<(String, Span, usize)> = Vec::new();
+        for st in tree.statements() {
+            if let StatementKind::Use { path, span } = &st.kind {
+                uses.push((path.clone(), *span, st.span.start));
+            }
+        }
         self.collected.trees.push((file, tree));
-        for ((rel, span), start) in uses.into_iter().zip(statement_starts) {
+        for (rel, span, start) in uses {
             if let Some(included) = self.include(&path, &rel, span) {
                 self.collected.includes.insert((file, start), included);
             }

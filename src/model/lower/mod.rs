@@ -29,7 +29,7 @@ use super::load::Loaded;
 use super::source::Sources;
 use super::units::Units;
 use crate::diagnostics::{Diagnostic, FileId, SourceMap, Span};
-use crate::syntax::{ParamValue, StatementKind};
+use crate::syntax::{EventKindAst, ParamValue, StatementKind};
 use declarations::Decl;
 use declarations::RESERVED;
 use diagnostics::*;
@@ -145,22 +145,57 @@ impl Lowerer<'_> {
     fn lower(&mut self, items: &[Item], main: FileId) {
         self.declare_all(items, main);
         self.resolve_params();
+        // Steps and observables first: totals, events and assumptions
+        // refer to them. Each statement kind is named in each pass, so a new
+        // kind is a compile error until its place is chosen.
         for item in items {
             match item.kind {
                 StatementKind::Step { .. } => self.lower_step(item),
                 StatementKind::Observe { .. } => self.lower_observable(item),
-                _ => {}
+                StatementKind::Mechanism { .. }
+                | StatementKind::Units(_)
+                | StatementKind::Species(_)
+                | StatementKind::Fixed(_)
+                | StatementKind::Param { .. }
+                | StatementKind::Total { .. }
+                | StatementKind::AssumeSteady(_)
+                | StatementKind::AssumeEquilibrium(_)
+                | StatementKind::Event { .. }
+                | StatementKind::Set { .. }
+                | StatementKind::Use { .. } => {}
             }
         }
         self.check_observable_cycles();
         for item in items {
             match item.kind {
                 StatementKind::Total { .. } => self.lower_total(item),
-                StatementKind::Event { .. } | StatementKind::Set { .. } => self.lower_event(item),
-                StatementKind::AssumeSteady(_) | StatementKind::AssumeEquilibrium(_) => {
-                    self.lower_assumption(item)
+                StatementKind::Event {
+                    kind,
+                    amount,
+                    target,
+                    time,
+                } => {
+                    let kind = match kind {
+                        EventKindAst::Add => EventKind::Add,
+                        EventKindAst::Remove => EventKind::Remove,
+                    };
+                    self.lower_event(item, kind, target, amount, time)
                 }
-                _ => {}
+                StatementKind::Set {
+                    target,
+                    value,
+                    time,
+                } => self.lower_event(item, EventKind::Set, target, value, time),
+                StatementKind::AssumeSteady(names) => self.lower_steady(names),
+                StatementKind::AssumeEquilibrium(names) => self.lower_equilibrium(names),
+                StatementKind::Mechanism { .. }
+                | StatementKind::Units(_)
+                | StatementKind::Species(_)
+                | StatementKind::Fixed(_)
+                | StatementKind::Param { .. }
+                | StatementKind::Step { .. }
+                | StatementKind::Observe { .. }
+                | StatementKind::Use { .. } => {}
             }
         }
         // With errors, the lints would mostly describe their consequences

@@ -128,7 +128,7 @@ impl Lowerer<'_> {
                     reported.push(i);
                     let span = self.model.totals[i].span;
                     self.error(
-                        Diagnostic::error(Code::TotalInconsistent, msg)
+                        Diagnostic::error(Code::TotalInconsistent, msg.to_string())
                             .with_label(span, "this total")
                             .with_help(
                                 "raise the total or lower the initial values of its species",
