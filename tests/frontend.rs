@@ -442,3 +442,81 @@ fn a_total_smaller_than_its_given_species_is_reported_once() {
         .count();
     assert_eq!(count, 1, "{}", rendered(&loaded));
 }
+
+/// Every mechanism file under `dir` (recursively), sorted.
+fn mechanisms_under(dir: &Path) -> Vec<std::path::PathBuf> {
+    let mut out = Vec::new();
+    let mut todo = vec![dir.to_path_buf()];
+    while let Some(d) = todo.pop() {
+        for entry in std::fs::read_dir(&d).unwrap() {
+            let path = entry.unwrap().path();
+            if path.is_dir() {
+                todo.push(path);
+            } else if path.extension().is_some_and(|e| e == "mech") {
+                out.push(path);
+            }
+        }
+    }
+    out.sort();
+    out
+}
+
+/// The IR's stated invariants (head of src/model/ir.rs) hold for every
+/// model that lowers: the demo models, the fixtures, and the hostile inputs
+/// that lower (with warnings at most).
+#[test]
+fn every_lowered_model_keeps_the_ir_invariants() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let mut checked = 0;
+    for dir in ["models", "tests/fixtures", "tests/bad_inputs"] {
+        for path in mechanisms_under(&root.join(dir)) {
+            let loaded = load_path(&path);
+            let Some(model) = loaded.model else { continue };
+            if let Err(broken) = ratewright::model::validate(&model) {
+                panic!(
+                    "{}: {}",
+                    path.display(),
+                    broken
+                        .iter()
+                        .map(ToString::to_string)
+                        .collect::<Vec<_>>()
+                        .join("; ")
+                );
+            }
+            checked += 1;
+        }
+    }
+    // models/ alone holds 6 mechanisms that lower.
+    assert!(checked >= 6, "only {checked} models lowered");
+}
+
+/// The checker finds what it promises to find: each invariant broken on
+/// purpose in a model that keeps them all.
+#[test]
+fn validate_reports_each_broken_invariant() {
+    use ratewright::model::{Rate, validate};
+    let loaded = load(
+        "species A = 1 uM\nspecies B\nparam k = 2 /s\nparam k2 = 3 * k\n\
+         step r A <=> B with k, k2\ntotal T = A + B = 1 uM\n",
+    );
+    let good = loaded.model.expect("lowers");
+    assert_eq!(validate(&good), Ok(()));
+    let broken = |change: &dyn Fn(&mut ratewright::model::Model)| {
+        let mut m = good.clone();
+        change(&mut m);
+        validate(&m).expect_err("a broken invariant").len()
+    };
+    assert_eq!(broken(&|m| m.species[0].initial = -1.0), 2); // and the total disagrees
+    assert_eq!(broken(&|m| m.param_order.reverse()), 1);
+    assert_eq!(
+        broken(
+            &|m| if let Rate::MassAction { reverse, .. } = &mut m.steps[0].rate {
+                *reverse = None
+            }
+        ),
+        1
+    );
+    assert_eq!(broken(&|m| m.totals[0].value = 5.0), 1);
+    assert_eq!(broken(&|m| m.params[1].name = "k".into()), 2); // repeated, and looks up to the other
+    assert_eq!(broken(&|m| m.steps[0].span.end = m.steps[0].span.start), 1);
+}

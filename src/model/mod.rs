@@ -12,9 +12,11 @@ pub mod value_error;
 pub use expr::{BinOp, Expr, Func};
 pub use ir::*;
 pub use units::{ConcUnit, Dim, TimeUnit, Units};
+pub use validate::{Violation, validate};
 pub use value_error::ValueError;
 pub mod load;
 mod lower;
 pub mod source;
+mod validate;
 
 pub use load::{Loaded, load_path, load_str, load_with};
