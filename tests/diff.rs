@@ -388,6 +388,14 @@ fn errors_exit_2_with_located_diagnostics() {
     );
 }
 
+/// An empty repository with an author, for tests that commit.
+fn init_repo(dir: &Path) {
+    git(dir, &["init", "-q"]);
+    git(dir, &["config", "user.name", "Diff Test"]);
+    git(dir, &["config", "user.email", "diff-test@example.org"]);
+    git(dir, &["config", "commit.gpgsign", "false"]);
+}
+
 fn git(dir: &Path, args: &[&str]) {
     let out = Command::new("git")
         .args(args)
@@ -413,10 +421,7 @@ fn run_in(dir: &Path, args: &[&str]) -> std::process::Output {
 fn revisions_are_read_through_git_with_their_own_included_files() {
     let repo = tempfile::tempdir().unwrap();
     let dir = repo.path();
-    git(dir, &["init", "-q"]);
-    git(dir, &["config", "user.name", "Diff Test"]);
-    git(dir, &["config", "user.email", "diff-test@example.org"]);
-    git(dir, &["config", "commit.gpgsign", "false"]);
+    init_repo(dir);
     std::fs::create_dir_all(dir.join("parts")).unwrap();
     std::fs::write(dir.join("parts/rates.mech"), "param k = 2 /s\n").unwrap();
     std::fs::write(
@@ -490,10 +495,7 @@ fn the_documented_git_diff_driver_shows_the_meaning_level_change() {
     // The recipe of docs/version-control.md, with the binary's full path.
     let repo = tempfile::tempdir().unwrap();
     let dir = repo.path();
-    git(dir, &["init", "-q"]);
-    git(dir, &["config", "user.name", "Diff Test"]);
-    git(dir, &["config", "user.email", "diff-test@example.org"]);
-    git(dir, &["config", "commit.gpgsign", "false"]);
+    init_repo(dir);
     std::fs::write(dir.join(".gitattributes"), "*.mech diff=mech\n").unwrap();
     git(
         dir,
@@ -651,10 +653,7 @@ fn revisions_cannot_inject_git_options_or_be_ranges() {
     let outer = tempfile::tempdir().unwrap();
     let dir = outer.path().join("repo");
     std::fs::create_dir(&dir).unwrap();
-    git(&dir, &["init", "-q"]);
-    git(&dir, &["config", "user.name", "Diff Test"]);
-    git(&dir, &["config", "user.email", "diff-test@example.org"]);
-    git(&dir, &["config", "commit.gpgsign", "false"]);
+    init_repo(&dir);
     let text = "species A = 1 uM\nspecies B\nparam k = 2 /s\nstep r A -> B with k\n";
     std::fs::write(dir.join("m.mech"), text).unwrap();
     git(&dir, &["add", "."]);
@@ -698,10 +697,7 @@ fn revisions_cannot_inject_git_options_or_be_ranges() {
 fn revisions_load_in_memory_and_their_use_errors_are_located() {
     let repo = tempfile::tempdir().unwrap();
     let dir = repo.path();
-    git(dir, &["init", "-q"]);
-    git(dir, &["config", "user.name", "Diff Test"]);
-    git(dir, &["config", "user.email", "diff-test@example.org"]);
-    git(dir, &["config", "commit.gpgsign", "false"]);
+    init_repo(dir);
     std::fs::create_dir_all(dir.join("parts")).unwrap();
     std::fs::write(dir.join("parts/k.mech"), "param k = 2 /s\n").unwrap();
     std::fs::write(

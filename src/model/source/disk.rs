@@ -5,7 +5,7 @@
 //! memory); a named pipe never blocks the open; a file is identified by
 //! device and inode, so a hard link to a file already read is that file.
 
-use super::{FileIdentity, ReadError, SourceText, Sources, decode};
+use super::{FileIdentity, ReadError, SourceText, Sources, beside, decode};
 use crate::diagnostics::{Code, Diagnostic};
 use std::path::{Path, PathBuf};
 
@@ -21,11 +21,7 @@ pub fn exists(path: &Path) -> bool {
 
 impl Sources for Disk {
     fn resolve(&self, including: &Path, relative: &str) -> Result<PathBuf, Diagnostic> {
-        let base = including
-            .parent()
-            .map(Path::to_path_buf)
-            .unwrap_or_default();
-        Ok(base.join(relative))
+        Ok(beside(including, relative))
     }
 
     fn identity(&self, path: &Path) -> FileIdentity {

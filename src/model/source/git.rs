@@ -12,7 +12,7 @@
 //! repository (a `use` that climbs out is an error); diagnostics name files
 //! `REV:PATH` as the user wrote the revision.
 
-use super::{FileIdentity, ReadError, SourceText, Sources, decode, normalize};
+use super::{FileIdentity, ReadError, SourceText, Sources, beside, decode, normalize};
 use crate::diagnostics::{Code, Diagnostic};
 use std::cell::Cell;
 use std::path::{Path, PathBuf};
@@ -201,11 +201,7 @@ impl GitRevision {
 
 impl Sources for GitRevision {
     fn resolve(&self, including: &Path, relative: &str) -> Result<PathBuf, Diagnostic> {
-        let base = including
-            .parent()
-            .map(Path::to_path_buf)
-            .unwrap_or_default();
-        normalize(&base.join(relative)).ok_or_else(|| {
+        normalize(&beside(including, relative)).ok_or_else(|| {
             git_error(
                 format!(
                     "`use \"{relative}\"` in {} points outside the repository",

@@ -5,7 +5,7 @@
 //! Invariants: no file I/O here; paths are compared after lexical
 //! normalization; a byte-order mark is dropped as from a file.
 
-use super::{FileIdentity, ReadError, SourceText, Sources, from_text, normalize};
+use super::{FileIdentity, ReadError, SourceText, Sources, beside, from_text, normalize};
 use crate::diagnostics::{Code, Diagnostic};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -58,17 +58,9 @@ impl InMemory {
     }
 }
 
-fn relative_to(including: &Path, relative: &str) -> PathBuf {
-    let base = including
-        .parent()
-        .map(Path::to_path_buf)
-        .unwrap_or_default();
-    key(&base.join(relative))
-}
-
 impl Sources for InMemory {
     fn resolve(&self, including: &Path, relative: &str) -> Result<PathBuf, Diagnostic> {
-        Ok(relative_to(including, relative))
+        Ok(key(&beside(including, relative)))
     }
 
     fn identity(&self, path: &Path) -> FileIdentity {

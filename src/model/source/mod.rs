@@ -101,6 +101,16 @@ pub trait Sources {
     fn read(&self, path: &Path) -> Result<SourceText, ReadError>;
 }
 
+/// The path `relative` names from the folder of the file at `including`
+/// (as written: `..` is left to the source).
+pub fn beside(including: &Path, relative: &str) -> PathBuf {
+    including
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_default()
+        .join(relative)
+}
+
 /// `a/./b/../c` → `a/c`, without touching the file system; `None` if `..`
 /// climbs above the start.
 pub fn normalize(path: &Path) -> Option<PathBuf> {
