@@ -5,6 +5,7 @@
 //! Scale factors are the SI definitions: 1 M = 1 mol/L, prefixes m = 1e-3,
 //! u (µ) = 1e-6, n = 1e-9, p = 1e-12; 1 min = 60 s, 1 h = 3600 s, 1 ms = 1e-3 s.
 
+use crate::diagnostics::{Code, Diagnostic};
 use std::fmt;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize)]
@@ -305,9 +306,73 @@ impl TimeUnit {
     }
 }
 
+/// Why a unit or a quantity written as text cannot be read. The messages
+/// are what users have always seen; each kind has a [`Code`].
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum UnitError {
+    MissingUnit { text: String },
+    BadPower { power: String, text: String },
+    TwoConcentrationUnits { text: String },
+    TwoTimeUnits { text: String },
+    UnknownWord { word: String },
+    UnexpectedSeparator { separator: String, text: String },
+    NotAQuantity { text: String },
+    NotFinite { text: String },
+}
+
+impl UnitError {
+    pub fn code(&self) -> Code {
+        match self {
+            UnitError::MissingUnit { .. }
+            | UnitError::BadPower { .. }
+            | UnitError::TwoConcentrationUnits { .. }
+            | UnitError::TwoTimeUnits { .. }
+            | UnitError::UnknownWord { .. }
+            | UnitError::UnexpectedSeparator { .. } => Code::UnknownUnit,
+            UnitError::NotAQuantity { .. } | UnitError::NotFinite { .. } => Code::BadNumber,
+        }
+    }
+}
+
+impl fmt::Display for UnitError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            UnitError::MissingUnit { text } => write!(f, "missing unit in `{text}`"),
+            UnitError::BadPower { power, text } => write!(f, "bad power `{power}` in `{text}`"),
+            UnitError::TwoConcentrationUnits { text } => {
+                write!(f, "two different concentration units in `{text}`")
+            }
+            UnitError::TwoTimeUnits { text } => write!(f, "two different time units in `{text}`"),
+            UnitError::UnknownWord { word } => write!(f, "unknown unit `{word}`"),
+            UnitError::UnexpectedSeparator { separator, text } => {
+                write!(f, "unexpected `{separator}` in unit `{text}`")
+            }
+            UnitError::NotAQuantity { text } => {
+                write!(f, "`{text}` is not a number with an optional unit")
+            }
+            UnitError::NotFinite { text } => write!(f, "`{text}` is not a finite number"),
+        }
+    }
+}
+
+impl std::error::Error for UnitError {}
+
+impl From<UnitError> for Diagnostic {
+    fn from(e: UnitError) -> Self {
+        Diagnostic::error(e.code(), e.to_string())
+    }
+}
+
+/// Callers that report a unit error as text (a usage error) keep doing so.
+impl From<UnitError> for String {
+    fn from(e: UnitError) -> Self {
+        e.to_string()
+    }
+}
+
 /// Parses a unit such as `uM`, `/uM/s`, `1/s`, `uM*s`, `uM^-1`, `/M^2/s`.
 /// Errors name the offending word.
-pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
+pub fn parse_unit(text: &str) -> Result<UnitExpr, UnitError> {
     let text = text.trim();
     let mut out = UnitExpr::default();
     let mut rest = text;
@@ -326,13 +391,15 @@ pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
             .unwrap_or(rest_trim.len());
         let word_pow = &rest_trim[..end];
         if word_pow.is_empty() {
-            return Err(format!("missing unit in `{text}`"));
+            return Err(UnitError::MissingUnit { text: text.into() });
         }
         let (word, power) = match word_pow.split_once('^') {
             Some((w, p)) => (
                 w,
-                p.parse::<i32>()
-                    .map_err(|_| format!("bad power `{p}` in `{text}`"))?,
+                p.parse::<i32>().map_err(|_| UnitError::BadPower {
+                    power: p.into(),
+                    text: text.into(),
+                })?,
             ),
             None => (word_pow, 1),
         };
@@ -340,17 +407,17 @@ pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
         if let Some(c) = ConcUnit::parse(word) {
             match &mut out.conc {
                 Some((u, p)) if *u == c => *p = p.saturating_add(power),
-                Some(_) => return Err(format!("two different concentration units in `{text}`")),
+                Some(_) => return Err(UnitError::TwoConcentrationUnits { text: text.into() }),
                 None => out.conc = Some((c, power)),
             }
         } else if let Some(t) = TimeUnit::parse(word) {
             match &mut out.time {
                 Some((u, p)) if *u == t => *p = p.saturating_add(power),
-                Some(_) => return Err(format!("two different time units in `{text}`")),
+                Some(_) => return Err(UnitError::TwoTimeUnits { text: text.into() }),
                 None => out.time = Some((t, power)),
             }
         } else {
-            return Err(format!("unknown unit `{word}`"));
+            return Err(UnitError::UnknownWord { word: word.into() });
         }
         let after = rest_trim[end..].trim_start();
         if after.is_empty() {
@@ -360,7 +427,12 @@ pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
         sign = match sep {
             "/" => -1,
             "*" | "·" => 1,
-            _ => return Err(format!("unexpected `{sep}` in unit `{text}`")),
+            _ => {
+                return Err(UnitError::UnexpectedSeparator {
+                    separator: sep.into(),
+                    text: text.into(),
+                });
+            }
         };
         rest = tail;
     }
@@ -370,7 +442,7 @@ pub fn parse_unit(text: &str) -> Result<UnitExpr, String> {
 /// A number with an optional unit, as written on the command line
 /// (`20`, `5mM`, `20 min`, `1e6 /M/s`), converted to the default units.
 /// Returns the value and the dimension of the unit, if one was written.
-pub fn parse_quantity(text: &str, units: Units) -> Result<(f64, Option<Dim>), String> {
+pub fn parse_quantity(text: &str, units: Units) -> Result<(f64, Option<Dim>), UnitError> {
     let text = text.trim();
     let split = text
         .char_indices()
@@ -390,9 +462,9 @@ pub fn parse_quantity(text: &str, units: Units) -> Result<(f64, Option<Dim>), St
     let value: f64 = num
         .trim()
         .parse()
-        .map_err(|_| format!("`{text}` is not a number with an optional unit"))?;
+        .map_err(|_| UnitError::NotAQuantity { text: text.into() })?;
     if !value.is_finite() {
-        return Err(format!("`{text}` is not a finite number"));
+        return Err(UnitError::NotFinite { text: text.into() });
     }
     let unit = unit.trim();
     if unit.is_empty() {

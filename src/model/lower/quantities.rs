@@ -144,7 +144,7 @@ impl Lowerer<'_> {
                         .map(|c| format!("did you mean `{c}`? "))
                         .unwrap_or_default();
                     let _ = file_units;
-                    self.error(Diagnostic::error(Code::UnknownUnit, msg).with_label(*span, "not a unit").with_help(format!(
+                    self.error(Diagnostic::error(Code::UnknownUnit, msg.to_string()).with_label(*span, "not a unit").with_help(format!(
                         "{hint}units are products of concentration (M, mM, uM, nM, pM) and time (s, ms, min, h) powers, e.g. `/uM/s`"
                     )));
                     None
