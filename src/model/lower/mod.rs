@@ -38,6 +38,7 @@ pub use files::{load_path, load_str, load_with};
 use quantities::file_units;
 use std::collections::{HashMap, HashSet};
 use std::path::Path;
+use steps::StepParts;
 
 struct FileUnits {
     units: Units,
@@ -150,8 +151,30 @@ impl Lowerer<'_> {
         // kind is a compile error until its place is chosen.
         for item in items {
             match item.kind {
-                StatementKind::Step { .. } => self.lower_step(item),
-                StatementKind::Observe { .. } => self.lower_observable(item),
+                StatementKind::Step {
+                    name,
+                    lhs,
+                    reversible,
+                    arrow_text: _,
+                    arrow_span,
+                    rhs,
+                    rate,
+                    rate_span,
+                    description,
+                } => self.lower_step(
+                    item,
+                    StepParts {
+                        name,
+                        lhs,
+                        reversible,
+                        arrow_span,
+                        rhs,
+                        rate,
+                        rate_span,
+                        description,
+                    },
+                ),
+                StatementKind::Observe { name, expr } => self.lower_observable(item, name, expr),
                 StatementKind::Mechanism { .. }
                 | StatementKind::Units(_)
                 | StatementKind::Species(_)
@@ -168,7 +191,9 @@ impl Lowerer<'_> {
         self.check_observable_cycles();
         for item in items {
             match item.kind {
-                StatementKind::Total { .. } => self.lower_total(item),
+                StatementKind::Total { name, terms, value } => {
+                    self.lower_total(item, name, terms, value)
+                }
                 StatementKind::Event {
                     kind,
                     amount,

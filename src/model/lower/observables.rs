@@ -6,13 +6,11 @@
 use super::*;
 use crate::diagnostics::{Code, Diagnostic};
 use crate::model::ir::*;
-use crate::syntax::StatementKind;
+use crate::syntax::{AstExpr, Ident};
 
 impl Lowerer<'_> {
-    pub(super) fn lower_observable(&mut self, item: &Item) {
-        let StatementKind::Observe { name, expr } = item.kind else {
-            return;
-        };
+    /// An `observe` statement (`item`): its name and expression.
+    pub(super) fn lower_observable(&mut self, item: &Item, name: &Ident, expr: &AstExpr) {
         let Some(Decl::Sym(Sym::Observable(i))) = self.lookup(&name.name) else {
             return;
         };

@@ -9,8 +9,20 @@ use crate::diagnostics::{Code, Diagnostic, Span};
 use crate::model::expr::Expr;
 use crate::model::ir::*;
 use crate::model::units::Dim;
-use crate::syntax::{Ident, RateAst, Side, StatementKind, StepTerm};
+use crate::syntax::{Ident, RateAst, Side, StepTerm};
 use num_traits::{CheckedAdd, CheckedDiv, CheckedSub, One, Signed, ToPrimitive, Zero};
+
+/// The parts of a `step` statement that lowering reads.
+pub(super) struct StepParts<'a> {
+    pub name: &'a Ident,
+    pub lhs: &'a Side,
+    pub reversible: &'a bool,
+    pub arrow_span: &'a Span,
+    pub rhs: &'a Side,
+    pub rate: &'a RateAst,
+    pub rate_span: &'a Span,
+    pub description: &'a Option<String>,
+}
 
 impl Lowerer<'_> {
     pub(super) fn lower_terms(&mut self, side: &Side) -> Vec<Term> {
@@ -96,8 +108,9 @@ impl Lowerer<'_> {
         }
     }
 
-    pub(super) fn lower_step(&mut self, item: &Item) {
-        let StatementKind::Step {
+    /// A `step` statement (`item`), taken apart by the driver.
+    pub(super) fn lower_step(&mut self, item: &Item, step: StepParts) {
+        let StepParts {
             name,
             lhs,
             reversible,
@@ -106,11 +119,7 @@ impl Lowerer<'_> {
             rate,
             rate_span,
             description,
-            ..
-        } = item.kind
-        else {
-            return;
-        };
+        } = step;
         let Some(Decl::Step(idx)) = self.lookup(&name.name) else {
             return;
         };

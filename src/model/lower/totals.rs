@@ -8,15 +8,19 @@
 use super::*;
 use crate::diagnostics::{Code, Diagnostic};
 use crate::model::ir::*;
-use crate::syntax::StatementKind;
+use crate::syntax::{Ident, Quantity, StepTerm};
 use num_traits::Zero;
 use std::collections::HashMap;
 
 impl Lowerer<'_> {
-    pub(super) fn lower_total(&mut self, item: &Item) {
-        let StatementKind::Total { name, terms, value } = item.kind else {
-            return;
-        };
+    /// A `total` statement (`item`): its name, terms and value if given.
+    pub(super) fn lower_total(
+        &mut self,
+        item: &Item,
+        name: &Ident,
+        terms: &[StepTerm],
+        value: &Option<Quantity>,
+    ) {
         let Some(Decl::Sym(Sym::Total(i))) = self.lookup(&name.name) else {
             return;
         };
