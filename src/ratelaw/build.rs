@@ -7,6 +7,7 @@ use super::{
     Derivation, Derived, FormTotal, Overall, Progress, Request, Target, VarKind, constants,
     unknown_name,
 };
+use super::{constants_form, patterns};
 use crate::algebra::poly::{Monomial, Poly, Var, Vars};
 use crate::algebra::rational::{RationalFunction, rational_from_f64};
 use crate::diagnostics::{Code, Diagnostic, Span};
@@ -287,12 +288,16 @@ pub fn derive_with_progress(
         rate,
         forms,
         constants: Vec::new(),
+        constants_form: None,
+        inhibition_patterns: Vec::new(),
         relations: Vec::new(),
         notes,
         trees: trees_visited,
     };
     if let Derived::Overall(_) = derivation.derived {
         constants::name_constants(&mut derivation, model);
+        derivation.constants_form = constants_form::build(&derivation, model);
+        derivation.inhibition_patterns = patterns::inhibition_patterns(&derivation, model);
     }
     Ok(derivation)
 }

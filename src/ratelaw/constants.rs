@@ -329,6 +329,59 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
         }
     }
 
+    // Product inhibition constants (Cleland 1963): a species X of the other
+    // side that multiplies a direction's saturating term (A·B·P of an
+    // ordered bi bi, A·P of a uni bi) has Ki_X = d(top) / d(top·X), the
+    // constant of its inhibition with that direction's substrates
+    // saturating (Kip, Kib). Where Ki_X is already named for another term,
+    // or both directions are uni (iso uni uni), the constant is an iso
+    // inhibition constant Kii_X (Kiip, Kiiq): X binds a form the free
+    // enzyme isomerizes to.
+    let uni_uni = substrates.len() == 1 && products.len() == 1;
+    let full = den
+        .set_zero(&|v: Var| modifiers.contains(&v))
+        .collect(&conc);
+    let full_get = |m: &Monomial| full.get(m).filter(|p| !p.is_zero());
+    for (dir, other) in [(&directions[0], &products), (&directions[1], &substrates)] {
+        let Some(dir) = dir else { continue };
+        for (x, name, _) in other.iter() {
+            let with_x = dir.top.mul(&Monomial::var(*x));
+            let (Some(top), Some(top_x)) = (full_get(&dir.top), full_get(&with_x)) else {
+                continue;
+            };
+            let Some(value) = ratio(top, top_x) else {
+                continue;
+            };
+            let ki = format!("Ki_{name}");
+            let existing = constants.iter().find(|c| c.name == ki);
+            if existing.is_some_and(|c| c.value.equals(&value)) {
+                continue;
+            }
+            let (constant_name, meaning) = if uni_uni || existing.is_some() {
+                (
+                    format!("Kii_{name}"),
+                    format!(
+                        "iso inhibition constant of {name}: from the other direction's saturating term with and without {name} (it binds a form the free enzyme isomerizes to)"
+                    ),
+                )
+            } else {
+                (
+                    ki,
+                    format!(
+                        "product inhibition constant of {name}: from the other direction's saturating term with and without {name} (the other direction's substrates saturating)"
+                    ),
+                )
+            };
+            if constants.iter().all(|c| c.name != constant_name) {
+                constants.push(Constant {
+                    name: constant_name,
+                    value,
+                    meaning,
+                });
+            }
+        }
+    }
+
     // Dead-end modifiers (inhibitors): slope and intercept constants.
     if let Some(f) = &directions[0] {
         for &i in &modifiers {

@@ -14,7 +14,9 @@
 
 mod build;
 pub mod constants;
+pub mod constants_form;
 pub mod output;
+pub mod patterns;
 pub mod trees;
 
 use crate::algebra::poly::{Poly, Var, Vars};
@@ -129,6 +131,12 @@ pub struct Derivation {
     /// Each intermediate's concentration (species index, expression).
     pub forms: Vec<(usize, RationalFunction)>,
     pub constants: Vec<Constant>,
+    /// The rate over the named constants (overall rates with one enzyme
+    /// total and named constants).
+    pub constants_form: Option<constants_form::ConstantsForm>,
+    /// Each product's and dead-end inhibitor's pattern against each
+    /// substrate (overall rates only).
+    pub inhibition_patterns: Vec<patterns::InhibitionPattern>,
     pub relations: Vec<Relation>,
     pub notes: Vec<String>,
     /// Single-term spanning trees enumerated.

@@ -6,7 +6,8 @@
 //! mechanism language's syntax over params, totals and non-intermediate
 //! species, so it parses back with the same meaning.
 
-use super::{Derivation, Derived, VarKind};
+use super::constants_form::{readable_value, value_of};
+use super::{Constant, Derivation, Derived, VarKind};
 use crate::algebra::poly::{Monomial, Poly, Printer, Syntax, Var};
 use crate::algebra::print::{self, plain_literal};
 use crate::algebra::rational::RationalFunction;
@@ -94,6 +95,12 @@ fn rational_text(r: &RationalFunction, p: &Printer) -> String {
     } else {
         format!("{num}/({})", den)
     }
+}
+
+/// The named constants and those the constants form adds.
+fn all_constants(d: &Derivation) -> Vec<&Constant> {
+    let added = d.constants_form.iter().flat_map(|f| f.added.iter());
+    d.constants.iter().chain(added).collect()
 }
 
 fn keys_for<'a>(d: &'a Derivation) -> impl Fn(Var) -> bool + 'a {
@@ -223,6 +230,77 @@ pub fn human(d: &Derivation, model: &Model) -> String {
             ));
         }
     }
+    if let Some(form) = &d.constants_form {
+        out.push_str(&format!(
+            "\nrate law in these constants ({} identifiable combinations: the coefficient ratios):\n  v = {}\n",
+            form.identifiable,
+            form.text(d, Syntax::Plain)
+        ));
+        for c in &form.added {
+            out.push_str(&format!(
+                "  {} = {}    ({})\n",
+                c.name,
+                rational_text(&c.value, &p),
+                c.meaning
+            ));
+        }
+        let values: Vec<(&Constant, String)> = all_constants(d)
+            .into_iter()
+            .filter_map(|c| {
+                let (value, dim) = value_of(c, d, model);
+                value
+                    .is_finite()
+                    .then(|| (c, readable_value(value, dim, model)))
+            })
+            .collect();
+        if !values.is_empty() {
+            out.push_str("\nvalues at the file's params:\n");
+            let width = values
+                .iter()
+                .map(|(c, _)| c.name.chars().count())
+                .max()
+                .unwrap_or(0);
+            for (c, text) in values {
+                let padding = " ".repeat(width - c.name.chars().count());
+                out.push_str(&format!("  {}{padding} = {text}\n", c.name));
+            }
+        }
+    }
+    if !d.inhibition_patterns.is_empty() {
+        out.push_str(
+            "\ninhibition patterns (1/v against 1/varied; other products and inhibitors absent):\n",
+        );
+        let rows: Vec<[&str; 4]> = d
+            .inhibition_patterns
+            .iter()
+            .map(|x| {
+                [
+                    x.inhibitor.as_str(),
+                    x.varied.as_str(),
+                    x.others.word(),
+                    x.pattern.word(),
+                ]
+            })
+            .collect();
+        let header = ["inhibitor", "varied", "others", "pattern"];
+        let widths: Vec<usize> = (0..4)
+            .map(|k| {
+                rows.iter()
+                    .map(|r| r[k].chars().count())
+                    .chain([header[k].len()])
+                    .max()
+                    .unwrap_or(0)
+            })
+            .collect();
+        for row in std::iter::once(header).chain(rows) {
+            let cells: Vec<String> = row
+                .iter()
+                .zip(&widths)
+                .map(|(c, w)| format!("{c}{}", " ".repeat(w - c.chars().count())))
+                .collect();
+            out.push_str(&format!("  {}\n", cells.join("  ").trim_end()));
+        }
+    }
     for r in &d.relations {
         let status = if r.holds {
             "holds identically"
@@ -345,8 +423,24 @@ pub fn json(d: &Derivation, model: &Model) -> Value {
             "declared": t.declared.is_some(),
             "value": t.value,
         })).collect::<Vec<_>>(),
-        "constants": Value::Object(d.constants.iter().map(|c| (c.name.clone(), json!(rational_text(&c.value, &p)))).collect()),
-        "constant_meanings": Value::Object(d.constants.iter().map(|c| (c.name.clone(), json!(c.meaning))).collect()),
+        "constants": Value::Object(all_constants(d).into_iter().map(|c| (c.name.clone(), json!(rational_text(&c.value, &p)))).collect()),
+        "constant_meanings": Value::Object(all_constants(d).into_iter().map(|c| (c.name.clone(), json!(c.meaning))).collect()),
+        "constants_form": d.constants_form.as_ref().map(|f| f.text(d, Syntax::Mech)),
+        "inhibition_patterns": d.inhibition_patterns.iter().map(|x| json!({
+            "inhibitor": x.inhibitor,
+            "varied": x.varied,
+            "others": x.others.word(),
+            "pattern": x.pattern.word(),
+        })).collect::<Vec<_>>(),
+        "identifiable_combinations": d.constants_form.as_ref().map(|f| f.identifiable),
+        "constant_values": Value::Object(all_constants(d).into_iter().filter_map(|c| {
+            let (value, dim) = value_of(c, d, model);
+            value.is_finite().then(|| (c.name.clone(), json!({
+                "value": value,
+                "unit": dim.map(|x| x.display_in(model.units)),
+                "dimension": dim.map(|x| json!({ "concentration": x.conc, "time": x.time })),
+            })))
+        }).collect()),
         "relations": d.relations.iter().map(|r| json!({ "name": r.name, "lhs": r.lhs, "rhs": r.rhs, "holds": r.holds })).collect::<Vec<_>>(),
         "intermediates": Value::Object(d.forms.iter().map(|(i, r)| {
             let s = match RationalFunction::new(r.num.clone(), r.den.clone()) { Some(c) => c, None => r.clone() };
