@@ -1045,6 +1045,12 @@ fn sympy_solution_of_the_same_linear_system_agrees() {
         ("tc", THEORELL_CHANCE.to_string()),
         ("rerandom", RAPID_EQUILIBRIUM_RANDOM_BI_BI.to_string()),
         ("fast_release", FAST_RELEASE_ISO.to_string()),
+        ("iso_uni_uni", ISO_UNI_UNI.to_string()),
+        ("uni_bi", UNI_BI.to_string()),
+        ("ordered_ter_bi", ORDERED_TER_BI.to_string()),
+        ("partial", PARTIAL_INHIBITION.to_string()),
+        ("two_site", TWO_SITE.to_string()),
+        ("random_bi_uni", RANDOM_BI_UNI.to_string()),
         ("ordered_fast_q_first", ordered_fast_q_release(true)),
         ("ordered_fast_q_last", ordered_fast_q_release(false)),
         (
@@ -1285,4 +1291,743 @@ fn a_fast_step_that_carries_the_flux_gives_the_slow_steps_rate() {
     for r in &rates {
         assert_same("every reading, every order", r, &rates[0]);
     }
+}
+
+// ---------------------------------------------------------------------------
+// Issue 14: the law in its named constants, their values, and inhibition
+// patterns.
+
+const ISO_UNI_UNI: &str = r#"
+mechanism iso_uni_uni
+species A = 5 uM, P = 1 uM
+species E = 0.01 uM, EA, F
+param k1 = 2 /uM/s
+param k2 = 3 /s
+param k3 = 4 /s
+param k4 = 0.5 /uM/s
+param k5 = 6 /s
+param k6 = 7 /s
+step bind    E + A <=> EA with k1, k2
+step release EA <=> F + P with k3, k4
+step iso     F <=> E with k5, k6
+total Et = E + EA + F
+assume steady E, EA, F
+"#;
+
+const UNI_BI: &str = r#"
+mechanism ordered_uni_bi
+species A = 5 uM, P = 1 uM, Q = 1 uM
+species E = 0.01 uM, EA, EQ
+param k1 = 2 /uM/s
+param k2 = 3 /s
+param k3 = 4 /s
+param k4 = 0.5 /uM/s
+param k5 = 6 /s
+param k6 = 0.7 /uM/s
+step bind  E + A <=> EA with k1, k2
+step leave EA <=> EQ + P with k3, k4
+step last  EQ <=> E + Q with k5, k6
+total Et = E + EA + EQ
+assume steady E, EA, EQ
+"#;
+
+const ORDERED_TER_BI: &str = r#"
+mechanism ordered_ter_bi
+species A = 2 uM, B = 3 uM, C = 1.5 uM, P = 0.1 uM, Q = 0.2 uM
+species E = 0.01 uM, EA, EAB, EABC, EQ
+param k1 = 1.5 /uM/s
+param km1 = 2 /s
+param k2 = 2.5 /uM/s
+param km2 = 3 /s
+param k3 = 0.7 /uM/s
+param km3 = 4 /s
+param k4 = 5 /s
+param km4 = 0.6 /uM/s
+param k5 = 6 /s
+param km5 = 0.8 /uM/s
+step s1 E + A <=> EA with k1, km1
+step s2 EA + B <=> EAB with k2, km2
+step s3 EAB + C <=> EABC with k3, km3
+step s4 EABC <=> EQ + P with k4, km4
+step s5 EQ <=> E + Q with k5, km5
+total Et = E + EA + EAB + EABC + EQ
+assume steady E, EA, EAB, EABC, EQ
+"#;
+
+/// Partial (hyperbolic) mixed inhibition: ESI still turns over.
+const PARTIAL_INHIBITION: &str = r#"
+mechanism partial_inhibition
+species S = 10 uM, P, I = 2 uM
+species E = 0.01 uM, ES, EI, ESI
+param k1 = 1 /uM/s
+param km1 = 5 /s
+param k2 = 2 /s
+param ki = 2 /uM/s
+param kmi = 4 /s
+param kj = 0.5 /uM/s
+param kmj = 3 /s
+param kp = 0.5 /s
+step bind   E + S <=> ES with k1, km1
+step cat    ES -> E + P with k2
+step e_i    E + I <=> EI with ki, kmi
+step es_i   ES + I <=> ESI with kj, kmj
+step slow   ESI -> EI + P with kp
+total Et = E + ES + EI + ESI
+assume steady E, ES, EI, ESI
+"#;
+
+/// Two substrate sites, both complexes catalytic: a law of degree two in S.
+const TWO_SITE: &str = r#"
+mechanism two_site
+species S = 10 uM, P
+species E = 0.01 uM, ES, ESS
+param k1 = 0.2 /uM/s
+param km1 = 5 /s
+param k2 = 1 /s
+param k3 = 2 /uM/s
+param km3 = 4 /s
+param k4 = 20 /s
+step first  E + S <=> ES with k1, km1
+step cat1   ES -> E + P with k2
+step second ES + S <=> ESS with k3, km3
+step cat2   ESS -> ES + P with k4
+total Et = E + ES + ESS
+assume steady E, ES, ESS
+"#;
+
+/// Random bi uni in steady state: squared terms in A and B.
+const RANDOM_BI_UNI: &str = r#"
+mechanism random_bi_uni
+species A = 2 uM, B = 3 uM, P
+species E = 0.01 uM, EA, EB, EAB
+param k1 = 1 /uM/s
+param km1 = 2 /s
+param k2 = 3 /uM/s
+param km2 = 4 /s
+param k3 = 5 /uM/s
+param km3 = 6 /s
+param k4 = 7 /uM/s
+param km4 = 8 /s
+param kcat = 9 /s
+step a_first  E + A <=> EA with k1, km1
+step b_first  E + B <=> EB with k2, km2
+step b_second EA + B <=> EAB with k3, km3
+step a_second EB + A <=> EAB with k4, km4
+step cat      EAB -> E + P with kcat
+total Et = E + EA + EB + EAB
+assume steady E, EA, EB, EAB
+"#;
+
+/// Rapid-equilibrium random bi bi whose products bind too; only the
+/// interconversion of the ternary complexes is slow.
+const RAPID_EQUILIBRIUM_RANDOM_WITH_PRODUCTS: &str = r#"
+mechanism rapid_equilibrium_random_products
+species A = 1 uM, B = 1 uM, P = 0.1 uM, Q = 0.1 uM
+species E = 0.01 uM, EA, EB, EAB, EPQ, EP, EQ
+param k1 = 1 /uM/s
+param km1 = 2 /s
+param k2 = 3 /uM/s
+param km2 = 4 /s
+param k3 = 5 /uM/s
+param km3 = 6 /s
+param k4 = 7 /uM/s
+param km4 = 48 /s
+param kf = 9 /s
+param kr = 1 /s
+param kp1 = 10 /s
+param kmp1 = 2 /uM/s
+param kq1 = 11 /s
+param kmq1 = 3 /uM/s
+param kp2 = 12 /s
+param kmp2 = 4 /uM/s
+param kq2 = 13 /s
+param kmq2 = 22 /uM/s
+step a_first  E + A <=> EA with k1, km1
+step b_first  E + B <=> EB with k2, km2
+step b_second EA + B <=> EAB with k3, km3
+step a_second EB + A <=> EAB with k4, km4
+step chem     EAB <=> EPQ with kf, kr
+step p_off    EPQ <=> EQ + P with kp1, kmp1
+step q_off    EPQ <=> EP + Q with kq1, kmq1
+step q_last   EQ <=> E + Q with kq2, kmq2
+step p_last   EP <=> E + P with kp2, kmp2
+total Et = E + EA + EB + EAB + EPQ + EP + EQ
+assume steady E, EA, EB, EAB, EPQ, EP, EQ
+assume equilibrium a_first, b_first, b_second, a_second, p_off, q_off, q_last, p_last
+"#;
+
+fn competitive() -> String {
+    inhibited("species EI", "step block E + I <=> EI with ki, kmi", "EI")
+}
+
+fn uncompetitive() -> String {
+    inhibited(
+        "species ESI",
+        "step block ES + I <=> ESI with kiu, kmiu",
+        "ESI",
+    )
+}
+
+fn mixed() -> String {
+    inhibited(
+        "species EI\nspecies ESI",
+        "step block_e E + I <=> EI with ki, kmi\nstep block_es ES + I <=> ESI with kiu, kmiu",
+        "EI + ESI",
+    )
+    .replace(
+        "assume steady E, ES, EI + ESI",
+        "assume steady E, ES, EI, ESI",
+    )
+}
+
+/// The textbook mechanisms of issue 14's list.
+fn textbook_mechanisms() -> Vec<(&'static str, String)> {
+    vec![
+        ("briggs_haldane", BRIGGS_HALDANE.to_string()),
+        ("reversible", REVERSIBLE.to_string()),
+        ("competitive", competitive()),
+        ("uncompetitive", uncompetitive()),
+        ("mixed", mixed()),
+        ("substrate_inhibition", SUBSTRATE_INHIBITION.to_string()),
+        ("partial", PARTIAL_INHIBITION.to_string()),
+        ("two_site", TWO_SITE.to_string()),
+        ("ordered_bi_bi", ORDERED_BI_BI.to_string()),
+        ("ping_pong", PING_PONG.to_string()),
+        ("theorell_chance", THEORELL_CHANCE.to_string()),
+        ("ordered_ter_ter", ORDERED_TER_TER.to_string()),
+        ("ordered_ter_bi", ORDERED_TER_BI.to_string()),
+        ("iso_uni_uni", ISO_UNI_UNI.to_string()),
+        ("uni_bi", UNI_BI.to_string()),
+        (
+            "re_random_bi_bi",
+            RAPID_EQUILIBRIUM_RANDOM_BI_BI.to_string(),
+        ),
+        (
+            "re_random_with_products",
+            RAPID_EQUILIBRIUM_RANDOM_WITH_PRODUCTS.to_string(),
+        ),
+        ("random_bi_uni", RANDOM_BI_UNI.to_string()),
+    ]
+}
+
+/// Replaces each whole name of `text` found in `by` with `(definition)`.
+fn with_definitions(text: &str, by: &serde_json::Map<String, Value>) -> String {
+    let mut out = String::new();
+    let mut word = String::new();
+    let flush = |word: &mut String, out: &mut String| {
+        if word.is_empty() {
+            return;
+        }
+        let starts_name = word
+            .chars()
+            .next()
+            .is_some_and(|c| c.is_alphabetic() || c == '_');
+        match by.get(word.as_str()).and_then(Value::as_str) {
+            Some(def) if starts_name => out.push_str(&format!("({def})")),
+            _ => out.push_str(word),
+        }
+        word.clear();
+    };
+    for c in text.chars() {
+        if c.is_alphanumeric() || c == '_' || (c == '.' && !word.is_empty()) {
+            word.push(c);
+        } else {
+            flush(&mut word, &mut out);
+            out.push(c);
+        }
+    }
+    flush(&mut word, &mut out);
+    out
+}
+
+/// For every textbook mechanism, the constants form with each constant
+/// replaced by its definition is the microscopic rate law, exactly; its
+/// identifiable combinations are the coefficient ratios.
+#[test]
+fn the_constants_form_is_the_microscopic_law_exactly() {
+    for (name, text) in textbook_mechanisms() {
+        let m = write(name, &text);
+        let j = derive_json(&m.path, &[]);
+        let form = j["constants_form"]
+            .as_str()
+            .unwrap_or_else(|| panic!("{name}: no constants form: {}", j["notes"]));
+        let constants = j["constants"].as_object().unwrap();
+        let substituted = with_definitions(form, constants);
+        assert_same(
+            &format!("{name}: {form}"),
+            &substituted,
+            j["rate"].as_str().unwrap(),
+        );
+        let terms = j["coefficients"]["numerator"].as_array().unwrap().len()
+            + j["coefficients"]["denominator"].as_array().unwrap().len();
+        assert_eq!(
+            j["identifiable_combinations"].as_u64().unwrap() as usize,
+            terms - 1,
+            "{name}"
+        );
+        // Every name in the form is a constant, a concentration or the total.
+        let mut vars = Vars::new();
+        rational(form, &mut vars);
+        for v in 0..vars.len() {
+            let n = vars.name(v as u32);
+            let known = constants.contains_key(n)
+                || text.contains(&format!("species {n}"))
+                || text.contains(&format!(", {n}"))
+                || text.contains(&format!("total {n} "));
+            assert!(known, "{name}: `{n}` in {form}");
+        }
+    }
+}
+
+/// Published laws in their constants, with the published definitions in
+/// rate constants: each named constant is the textbook one, and the
+/// published law is the derived law.
+#[test]
+fn the_constants_form_is_the_published_form() {
+    // (mechanism, published law, published constants): Segel (1975),
+    // Enzyme Kinetics, ch. 2-3 and 9; Cleland (1963) Biochim. Biophys.
+    // Acta 67:104; Cornish-Bowden, Fundamentals of Enzyme Kinetics, ch. 6
+    // (laws and definitions from memory).
+    let ordered_law = "kcat*Et*(A*B - P*Q/Keq)/(Ki_A*Km_B + Km_B*A + Km_A*B + A*B \
+        + kcat/(kcat_r*Keq)*(Km_Q*P + Km_P*Q + P*Q) + Km_A*B*Q/Ki_Q \
+        + kcat*Km_Q*A*P/(kcat_r*Ki_A*Keq) + A*B*P/Ki_P + kcat*B*P*Q/(kcat_r*Ki_B*Keq))";
+    let theorell_chance_law = "kcat*Et*(A*B - P*Q/Keq)/(Ki_A*Km_B + Km_B*A + Km_A*B + A*B \
+        + kcat/(kcat_r*Keq)*(Km_Q*P + Km_P*Q + P*Q) + Km_A*B*Q/Ki_Q \
+        + kcat*Km_Q*A*P/(kcat_r*Ki_A*Keq))";
+    let ping_pong_law = "kcat*Et*(A*B - P*Q/Keq)/(Km_B*A + Km_A*B + A*B \
+        + kcat/(kcat_r*Keq)*(Km_Q*P + Km_P*Q + P*Q) + Km_A*B*Q/Ki_Q \
+        + kcat*Km_Q*A*P/(kcat_r*Ki_A*Keq))";
+    let cases: Vec<(&str, String, &str, Vec<(&str, &str)>)> = vec![
+        (
+            "briggs_haldane",
+            BRIGGS_HALDANE.into(),
+            "kcat*Et*S/(Km_S + S)",
+            vec![("kcat", "k2"), ("Km_S", "(km1 + k2)/k1")],
+        ),
+        (
+            "reversible",
+            REVERSIBLE.into(),
+            "(kcat*Et*S/Km_S - kcat_r*Et*P/Km_P)/(1 + S/Km_S + P/Km_P)",
+            vec![
+                ("kcat", "k2"),
+                ("kcat_r", "km1"),
+                ("Km_S", "(km1 + k2)/k1"),
+                ("Km_P", "(km1 + k2)/km2"),
+            ],
+        ),
+        (
+            "competitive",
+            competitive(),
+            "kcat*Et*S/(Km_S*(1 + I/Ki_I) + S)",
+            vec![
+                ("kcat", "k2"),
+                ("Km_S", "(km1 + k2)/k1"),
+                ("Ki_I", "kmi/ki"),
+            ],
+        ),
+        (
+            "uncompetitive",
+            uncompetitive(),
+            "kcat*Et*S/(Km_S + S*(1 + I/Kii_I))",
+            vec![
+                ("kcat", "k2"),
+                ("Km_S", "(km1 + k2)/k1"),
+                ("Kii_I", "kmiu/kiu"),
+            ],
+        ),
+        (
+            "mixed",
+            mixed(),
+            "kcat*Et*S/(Km_S*(1 + I/Ki_I) + S*(1 + I/Kii_I))",
+            vec![
+                ("kcat", "k2"),
+                ("Km_S", "(km1 + k2)/k1"),
+                ("Ki_I", "kmi/ki"),
+                ("Kii_I", "kmiu/kiu"),
+            ],
+        ),
+        (
+            "substrate_inhibition",
+            SUBSTRATE_INHIBITION.into(),
+            "kcat*Et*S/(Km_S + S + S^2/Ksi_S)",
+            vec![
+                ("kcat", "k2"),
+                ("Km_S", "(km1 + k2)/k1"),
+                ("Ksi_S", "km3/k3"),
+            ],
+        ),
+        (
+            "ordered_bi_bi",
+            ORDERED_BI_BI.into(),
+            ordered_law,
+            vec![
+                ("kcat", "k5*k7/(k5 + k7)"),
+                ("kcat_r", "k2*k4/(k2 + k4)"),
+                ("Km_A", "k5*k7/(k1*(k5 + k7))"),
+                ("Km_B", "k7*(k4 + k5)/(k3*(k5 + k7))"),
+                ("Km_P", "k2*(k4 + k5)/(k6*(k2 + k4))"),
+                ("Km_Q", "k2*k4/(k8*(k2 + k4))"),
+                ("Ki_A", "k2/k1"),
+                ("Ki_B", "(k2 + k4)/k3"),
+                ("Ki_P", "(k5 + k7)/k6"),
+                ("Ki_Q", "k7/k8"),
+                ("Keq", "k1*k3*k5*k7/(k2*k4*k6*k8)"),
+            ],
+        ),
+        (
+            "theorell_chance",
+            THEORELL_CHANCE.into(),
+            theorell_chance_law,
+            vec![
+                ("kcat", "k5"),
+                ("kcat_r", "k2"),
+                ("Km_A", "k5/k1"),
+                ("Km_B", "k5/k3"),
+                ("Km_P", "k2/k4"),
+                ("Km_Q", "k2/k6"),
+                ("Ki_A", "k2/k1"),
+                ("Ki_Q", "k5/k6"),
+                ("Keq", "k1*k3*k5/(k2*k4*k6)"),
+            ],
+        ),
+        (
+            "ping_pong",
+            PING_PONG.into(),
+            ping_pong_law,
+            vec![
+                ("kcat", "k3*k7/(k3 + k7)"),
+                ("kcat_r", "k2*k6/(k2 + k6)"),
+                ("Km_A", "k7*(k2 + k3)/(k1*(k3 + k7))"),
+                ("Km_B", "k3*(k6 + k7)/(k5*(k3 + k7))"),
+                ("Km_P", "k6*(k2 + k3)/(k4*(k2 + k6))"),
+                ("Km_Q", "k2*(k6 + k7)/(k8*(k2 + k6))"),
+                ("Ki_A", "k2/k1"),
+                ("Ki_Q", "k7/k8"),
+                ("Keq", "k1*k3*k5*k7/(k2*k4*k6*k8)"),
+            ],
+        ),
+        (
+            "re_random_bi_bi",
+            RAPID_EQUILIBRIUM_RANDOM_BI_BI.into(),
+            "kcat*Et*A*B/(Ki_A*Km_B + Km_B*A + Km_A*B + A*B)",
+            vec![
+                ("kcat", "kcat"),
+                ("Ki_A", "km1/k1"),
+                ("Km_B", "km3/k3"),
+                ("Km_A", "(km1/k1)*(km3/k3)/(km2/k2)"),
+            ],
+        ),
+    ];
+    for (name, text, law, published) in cases {
+        let m = write(name, &text);
+        let j = derive_json(&m.path, &[]);
+        let mut definitions = serde_json::Map::new();
+        for (constant_name, def) in &published {
+            assert_same(
+                &format!("{name}: {constant_name}"),
+                constant(&j, constant_name),
+                def,
+            );
+            definitions.insert(constant_name.to_string(), Value::from(*def));
+        }
+        assert_same(
+            &format!("{name}: the published law"),
+            &with_definitions(law, &definitions),
+            j["rate"].as_str().unwrap(),
+        );
+    }
+}
+
+/// Ordered ter bi with the products absent (Segel 1975, ch. 9, from
+/// memory): v = V A B C / (Kia Kib Kc + Kib Kc A + Kia Kb C + Kc A B
+/// + Kb A C + Ka B C + A B C), Kia and Kib the dissociation constants of A
+/// and B.
+#[test]
+fn ordered_ter_bi_initial_rate_is_the_published_form() {
+    let m = write("ordered_ter_bi", ORDERED_TER_BI);
+    let j = derive_json(&m.path, &[]);
+    assert_same("Kia", constant(&j, "Ki_A"), "km1/k1");
+    assert_same("Kib", constant(&j, "Ki_B"), "km2/k2");
+    let no_products = |text: &str| {
+        let mut by = serde_json::Map::new();
+        by.insert("P".into(), Value::from("0"));
+        by.insert("Q".into(), Value::from("0"));
+        with_definitions(text, &by)
+    };
+    let law = "kcat*Et*A*B*C/(Ki_A*Ki_B*Km_C + Ki_B*Km_C*A + Ki_A*Km_B*C + Km_C*A*B + Km_B*A*C + Km_A*B*C + A*B*C)";
+    let law = with_definitions(law, j["constants"].as_object().unwrap());
+    assert_same(
+        "ordered ter bi, products absent",
+        &no_products(j["rate"].as_str().unwrap()),
+        &law,
+    );
+}
+
+fn patterns(j: &Value) -> Vec<(String, String, String, String)> {
+    j["inhibition_patterns"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| {
+            let s = |k: &str| p[k].as_str().unwrap().to_string();
+            (s("inhibitor"), s("varied"), s("others"), s("pattern"))
+        })
+        .collect()
+}
+
+/// Product inhibition patterns (Cleland 1963; Segel 1975, ch. 9, table of
+/// product inhibition patterns, from memory): C competitive, U
+/// uncompetitive, N noncompetitive, - none; the other substrate
+/// non-saturating, then saturating.
+#[test]
+fn product_inhibition_patterns_are_the_textbook_tables() {
+    let word = |c: char| match c {
+        'C' => "competitive",
+        'U' => "uncompetitive",
+        'N' => "noncompetitive",
+        _ => "none",
+    };
+    let tables: Vec<(&str, String, &[(&str, &str, &str)])> = vec![
+        (
+            "ordered_bi_bi",
+            ORDERED_BI_BI.into(),
+            &[
+                ("P", "A", "NU"),
+                ("P", "B", "NN"),
+                ("Q", "A", "CC"),
+                ("Q", "B", "N-"),
+            ],
+        ),
+        (
+            "theorell_chance",
+            THEORELL_CHANCE.into(),
+            &[
+                ("P", "A", "N-"),
+                ("P", "B", "CC"),
+                ("Q", "A", "CC"),
+                ("Q", "B", "N-"),
+            ],
+        ),
+        (
+            "ping_pong",
+            PING_PONG.into(),
+            &[
+                ("P", "A", "N-"),
+                ("P", "B", "CC"),
+                ("Q", "A", "CC"),
+                ("Q", "B", "N-"),
+            ],
+        ),
+        (
+            "re_random_with_products",
+            RAPID_EQUILIBRIUM_RANDOM_WITH_PRODUCTS.into(),
+            &[
+                ("P", "A", "C-"),
+                ("P", "B", "C-"),
+                ("Q", "A", "C-"),
+                ("Q", "B", "C-"),
+            ],
+        ),
+        // One substrate: "others" is empty, both rows agree. Iso uni uni:
+        // the product binds the isomerized free enzyme, so it is
+        // noncompetitive where uni uni's is competitive (Cleland 1963).
+        ("reversible", REVERSIBLE.into(), &[("P", "S", "CC")]),
+        ("iso_uni_uni", ISO_UNI_UNI.into(), &[("P", "A", "NN")]),
+        (
+            "uni_bi",
+            UNI_BI.into(),
+            &[("P", "A", "NN"), ("Q", "A", "CC")],
+        ),
+        // Dead-end inhibitors (Segel 1975, ch. 3).
+        ("competitive", competitive(), &[("I", "S", "CC")]),
+        ("uncompetitive", uncompetitive(), &[("I", "S", "UU")]),
+        ("mixed", mixed(), &[("I", "S", "NN")]),
+        ("partial", PARTIAL_INHIBITION.into(), &[("I", "S", "NN")]),
+    ];
+    for (name, text, expected) in tables {
+        let m = write(name, &text);
+        let got = patterns(&derive_json(&m.path, &[]));
+        for (inhibitor, varied, two) in expected.iter() {
+            for (which, c) in ["nonsaturating", "saturating"].iter().zip(two.chars()) {
+                let row = got
+                    .iter()
+                    .find(|r| r.0 == *inhibitor && r.1 == *varied && r.2 == *which)
+                    .unwrap_or_else(|| {
+                        panic!("{name}: no row {inhibitor} vs {varied} ({which}): {got:?}")
+                    });
+                assert_eq!(
+                    row.3,
+                    word(c),
+                    "{name}: {inhibitor} against {varied}, others {which}"
+                );
+            }
+        }
+    }
+}
+
+/// Each named constant's value at the file's params, against SymPy's
+/// evaluation of the textbook definition with SymPy's units (values in
+/// mol/L and s, and the dimension).
+#[test]
+fn constant_values_agree_with_sympy_and_carry_units() {
+    let cases: Vec<(&str, String, Vec<(&str, &str)>)> = vec![
+        (
+            "briggs_haldane",
+            BRIGGS_HALDANE.into(),
+            vec![("kcat", "k2"), ("Km_S", "(km1 + k2)/k1")],
+        ),
+        (
+            "substrate_inhibition",
+            SUBSTRATE_INHIBITION.into(),
+            vec![("Ksi_S", "km3/k3"), ("Km_S", "(km1 + k2)/k1")],
+        ),
+        (
+            "ordered_bi_bi",
+            ORDERED_BI_BI.into(),
+            vec![
+                ("kcat", "k5*k7/(k5 + k7)"),
+                ("Km_B", "k7*(k4 + k5)/(k3*(k5 + k7))"),
+                ("Ki_A", "k2/k1"),
+                ("Ki_P", "(k5 + k7)/k6"),
+                ("Keq", "k1*k3*k5*k7/(k2*k4*k6*k8)"),
+            ],
+        ),
+    ];
+    let params_of = |text: &str| -> Vec<(String, String)> {
+        text.lines()
+            .filter_map(|l| l.trim().strip_prefix("param "))
+            .filter_map(|l| l.split_once(" = "))
+            .map(|(n, v)| (n.trim().to_string(), v.trim().to_string()))
+            .collect()
+    };
+    let script = root().join("tests/python/derive_values_sympy.py");
+    let dir = tempfile::tempdir().unwrap();
+    for (name, text, definitions) in cases {
+        let m = write(name, &text);
+        let j = derive_json(&m.path, &[]);
+        let spec = serde_json::json!({
+            "params": params_of(&text),
+            "constants": definitions.iter().map(|(n, d)| (n.to_string(), d.to_string())).collect::<Vec<_>>(),
+        });
+        let spec_path = dir.path().join(format!("{name}.json"));
+        std::fs::write(&spec_path, spec.to_string()).unwrap();
+        let out = python(&script, &[&spec_path.to_string_lossy()]);
+        assert!(
+            out.status.success(),
+            "SymPy script failed: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let expected: Value = serde_json::from_slice(&out.stdout).unwrap();
+        let model = load_path(&m.path).model.unwrap();
+        for (constant_name, _) in &definitions {
+            let got = &j["constant_values"][constant_name];
+            let e = &expected[constant_name];
+            let (conc, time) = (
+                got["dimension"]["concentration"].as_i64().unwrap() as i32,
+                got["dimension"]["time"].as_i64().unwrap() as i32,
+            );
+            assert_eq!(
+                (conc as i64, time as i64),
+                (
+                    e["concentration"].as_i64().unwrap(),
+                    e["time"].as_i64().unwrap()
+                ),
+                "{name}: dimension of {constant_name}"
+            );
+            // From the model's units to mol/L and s.
+            let to_base = model.units.concentration.molar().powi(conc)
+                * model.units.time.seconds().powi(time);
+            let value = got["value"].as_f64().unwrap() * to_base;
+            let reference = e["value"].as_f64().unwrap();
+            assert!(
+                ((value - reference) / reference).abs() < 1e-12,
+                "{name}: {constant_name} = {value} (mol/L, s), SymPy {reference}"
+            );
+            let unit = ratewright::model::Dim::new(conc, time).display_in(model.units);
+            assert_eq!(
+                got["unit"].as_str().unwrap(),
+                unit,
+                "{name}: {constant_name}"
+            );
+        }
+    }
+}
+
+/// Substrate inhibition (Haldane 1930; Segel 1975, ch. 3, from memory):
+/// v = V S / (Km + S + S^2/Ksi) peaks at S = sqrt(Km Ksi) with
+/// v = V / (1 + 2 sqrt(Km/Ksi)); half the peak on the rising side is the
+/// smaller root of S^2/Ksi + (1 - 2 V/v_peak) S + Km = 0. kcat is not
+/// called the maximal rate. Two-site and random bi-uni laws (higher degree) get a
+/// limiting turnover number and K0.5 where v is half the limit.
+#[test]
+fn higher_degree_laws_get_half_saturation_and_honest_labels() {
+    let m = write("si", SUBSTRATE_INHIBITION);
+    let j = derive_json(&m.path, &[]);
+    let h = &j["half_saturation"][0];
+    assert_eq!(h["species"], "S");
+    assert_eq!(h["reference"], "peak");
+    // File values: k1 = 1, km1 = 5, k2 = 2, k3 = 0.1, km3 = 7, Et = 0.01.
+    let (km, ksi, v) = (7.0f64, 70.0f64, 2.0 * 0.01);
+    let peak_at = (km * ksi).sqrt();
+    let peak = v / (1.0 + 2.0 * (km / ksi).sqrt());
+    let close = |a: f64, b: f64| ((a - b) / b).abs() < 1e-6;
+    assert!(close(h["peak_at"].as_f64().unwrap(), peak_at), "{h}");
+    assert!(close(h["reference_rate"].as_f64().unwrap(), peak), "{h}");
+    // v S... = peak/2: S^2/Ksi + (1 - 2 v/peak) S + Km = 0, smaller root.
+    let b = 1.0 - 2.0 * v / peak;
+    let k_half = (-b - (b * b - 4.0 * km / ksi).sqrt()) / (2.0 / ksi);
+    assert!(
+        close(h["k_half"].as_f64().unwrap(), k_half),
+        "{h} vs {k_half}"
+    );
+    // Hill number: 4 S v'(S) / peak at K0.5, v' of the published law.
+    let dv = v * (km - k_half * k_half / ksi) / (km + k_half + k_half * k_half / ksi).powi(2);
+    assert!(
+        close(h["hill"].as_f64().unwrap(), 4.0 * k_half * dv / peak),
+        "{h}"
+    );
+    let meaning = j["constant_meanings"]["kcat"].as_str().unwrap();
+    assert!(
+        meaning.contains("never reaches") && !meaning.contains("maximal"),
+        "{meaning}"
+    );
+
+    // Two sites, both catalytic: the limit at saturation is k4 (ESS's
+    // turnover, common practice); at K0.5 the published-form rate is half.
+    let m = write("two_site", TWO_SITE);
+    let j = derive_json(&m.path, &[]);
+    assert_same("kcat", constant(&j, "kcat"), "k4");
+    let h = &j["half_saturation"][0];
+    assert_eq!(h["reference"], "limit");
+    // Steady state of E, ES, ESS (King & Altman 1956): with K1 =
+    // (km1 + k2)/k1 and K2 = (km3 + k4)/k3, v = Et (k2 S/K1 + k4 S^2/(K1 K2))
+    // / (1 + S/K1 + S^2/(K1 K2)) (Segel 1975, ch. 7, from memory).
+    let (k1, km1, k2, k3, km3, k4, et) = (0.2, 5.0, 1.0, 2.0, 4.0, 20.0, 0.01);
+    let (big1, big2) = ((km1 + k2) / k1, (km3 + k4) / k3);
+    let rate = |s: f64| {
+        et * (k2 * s / big1 + k4 * s * s / (big1 * big2)) / (1.0 + s / big1 + s * s / (big1 * big2))
+    };
+    let kh = h["k_half"].as_f64().unwrap();
+    assert!(close(rate(kh), k4 * et / 2.0), "v(K0.5) = {}", rate(kh));
+    let dv = (rate(kh * (1.0 + 1e-6)) - rate(kh * (1.0 - 1e-6))) / (2e-6 * kh);
+    assert!(
+        (h["hill"].as_f64().unwrap() - 4.0 * kh * dv / (k4 * et)).abs() < 1e-4,
+        "{h}"
+    );
+    assert!(
+        h["hill"].as_f64().unwrap() > 1.0,
+        "positive cooperativity: {h}"
+    );
+
+    // Random bi uni in steady state: squared terms; the limiting turnover
+    // number is the catalytic step's constant, and no note calls it missing.
+    let m = write("random_bi_uni", RANDOM_BI_UNI);
+    let j = derive_json(&m.path, &[]);
+    assert_same("kcat", constant(&j, "kcat"), "kcat");
+    assert!(
+        !j["notes"].to_string().contains("no forward turnover"),
+        "{}",
+        j["notes"]
+    );
+    assert_eq!(j["half_saturation"].as_array().unwrap().len(), 2);
 }

@@ -7,7 +7,7 @@ use super::{
     Derivation, Derived, FormTotal, Overall, Progress, Request, Target, VarKind, constants,
     unknown_name,
 };
-use super::{constants_form, patterns};
+use super::{constants_form, patterns, saturation};
 use crate::algebra::poly::{Monomial, Poly, Var, Vars};
 use crate::algebra::rational::{RationalFunction, rational_from_f64};
 use crate::diagnostics::{Code, Diagnostic, Span};
@@ -290,6 +290,7 @@ pub fn derive_with_progress(
         constants: Vec::new(),
         constants_form: None,
         inhibition_patterns: Vec::new(),
+        half_saturation: Vec::new(),
         relations: Vec::new(),
         notes,
         trees: trees_visited,
@@ -298,6 +299,7 @@ pub fn derive_with_progress(
         constants::name_constants(&mut derivation, model);
         derivation.constants_form = constants_form::build(&derivation, model);
         derivation.inhibition_patterns = patterns::inhibition_patterns(&derivation, model);
+        derivation.half_saturation = saturation::half_saturation(&derivation, model);
     }
     Ok(derivation)
 }

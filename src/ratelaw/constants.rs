@@ -131,18 +131,51 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
         } else {
             ("kcat_r", "reverse")
         };
+        let side_names = side
+            .iter()
+            .map(|s| s.1.as_str())
+            .collect::<Vec<_>>()
+            .join(", ");
         match &dir {
-            None if forward || !nc.is_empty() => notes.push(format!(
-                "no {label} turnover number: the {label} numerator has no single saturating term in {}",
-                side.iter().map(|s| s.1.as_str()).collect::<Vec<_>>().join(", ")
-            )),
+            None if forward || !nc.is_empty() => match saturating_limit(&nc, &dc) {
+                // A law of higher degree (two sites, squared terms of a
+                // random steady state): the limit at saturation is still a
+                // turnover number, but no Michaelis constant goes with it.
+                Some(k) => constants.push(Constant {
+                    name: kcat_name.into(),
+                    value: k,
+                    meaning: format!(
+                        "{label} turnover number: the limit of the {label} rate per unit of {} as {side_names} grow without bound (the law is of higher degree: half-saturation and Hill number below, no Michaelis constant)",
+                        d.totals[0].name
+                    ),
+                }),
+                None => notes.push(format!(
+                    "no {label} turnover number: the {label} rate has no finite limit, or one that depends on the ratio of {side_names}, as they grow without bound"
+                )),
+            },
             None => {}
             Some(dir) => {
+                let inhibiting: Vec<&str> = side
+                    .iter()
+                    .filter(|(v, _, _)| {
+                        dir.den.keys().map(|m| m.exponent(*v)).max() > Some(dir.top.exponent(*v))
+                    })
+                    .map(|s| s.1.as_str())
+                    .collect();
+                let meaning = if inhibiting.is_empty() {
+                    format!("{label} turnover number: maximal {label} rate per unit of {}", d.totals[0].name)
+                } else {
+                    format!(
+                        "{label} turnover number of the saturating term, per unit of {}; the rate never reaches it, since {} inhibits at high concentration",
+                        d.totals[0].name,
+                        inhibiting.join(", ")
+                    )
+                };
                 if let Some(k) = ratio(&dir.n, &dir.d(&dir.top)) {
                     constants.push(Constant {
                         name: kcat_name.into(),
                         value: k,
-                        meaning: format!("{label} turnover number: maximal {label} rate per unit of {}", d.totals[0].name),
+                        meaning,
                     });
                 }
                 for (v, name, _) in side.iter() {
@@ -453,6 +486,36 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
     d.constants = constants;
     d.relations = relations;
     d.notes.extend(notes);
+}
+
+/// The limit of `N / D` as every concentration grows by one factor: the
+/// ratio of their highest-degree parts, where that ratio holds no
+/// concentration.
+fn saturating_limit(
+    nc: &BTreeMap<Monomial, Poly>,
+    dc: &BTreeMap<Monomial, Poly>,
+) -> Option<RationalFunction> {
+    let top = |map: &BTreeMap<Monomial, Poly>| -> Vec<(Monomial, Poly)> {
+        let live: Vec<(&Monomial, &Poly)> = map.iter().filter(|(_, p)| !p.is_zero()).collect();
+        let degree = live.iter().map(|(m, _)| m.degree()).max().unwrap_or(0);
+        live.into_iter()
+            .filter(|(m, _)| m.degree() == degree)
+            .map(|(m, p)| (m.clone(), p.clone()))
+            .collect()
+    };
+    let (n, d) = (top(nc), top(dc));
+    if n.is_empty() || n.len() != d.len() || n[0].0.degree() != d[0].0.degree() {
+        return None;
+    }
+    let (first_m, first_n) = &n[0];
+    let first_d = d.iter().find(|(m, _)| m == first_m)?.1.clone();
+    let k = RationalFunction::new(first_n.clone(), first_d)?;
+    let all_same = n.iter().all(|(m, pn)| {
+        d.iter()
+            .find(|(md, _)| md == m)
+            .is_some_and(|(_, pd)| RationalFunction::raw(pn.clone(), pd.clone()).equals(&k))
+    });
+    all_same.then_some(k)
 }
 
 /// One direction's coefficient form: the numerator's single saturating

@@ -59,7 +59,7 @@ pub fn build(d: &Derivation, model: &Model) -> Option<ConstantsForm> {
     let Derived::Overall(_) = &d.derived else {
         return None;
     };
-    if d.totals.len() != 1 || d.constants.is_empty() {
+    if d.totals.len() != 1 {
         return None;
     }
     let total = d.vars.get(&d.totals[0].name)?;
@@ -528,7 +528,7 @@ pub fn value_of(c: &Constant, d: &Derivation, model: &Model) -> (f64, Option<Dim
     (value, dim)
 }
 
-fn variable_value(d: &Derivation, model: &Model, v: Var) -> f64 {
+pub(crate) fn variable_value(d: &Derivation, model: &Model, v: Var) -> f64 {
     use super::VarKind;
     match d.kind(v) {
         Some(VarKind::Param(i)) => model.params[i].value,

@@ -17,6 +17,7 @@ pub mod constants;
 pub mod constants_form;
 pub mod output;
 pub mod patterns;
+pub mod saturation;
 pub mod trees;
 
 use crate::algebra::poly::{Poly, Var, Vars};
@@ -137,6 +138,9 @@ pub struct Derivation {
     /// Each product's and dead-end inhibitor's pattern against each
     /// substrate (overall rates only).
     pub inhibition_patterns: Vec<patterns::InhibitionPattern>,
+    /// K0.5 and the Hill number of each substrate the law is of degree two
+    /// or more in (at the file's values).
+    pub half_saturation: Vec<saturation::HalfSaturation>,
     pub relations: Vec<Relation>,
     pub notes: Vec<String>,
     /// Single-term spanning trees enumerated.

@@ -266,6 +266,24 @@ pub fn human(d: &Derivation, model: &Model) -> String {
             }
         }
     }
+    for h in &d.half_saturation {
+        let rate = readable_value(h.reference_rate, Some(Dim::RATE), model);
+        let reference = match h.peak_at {
+            Some(at) => format!(
+                "half of the peak rate {rate}, reached at {} = {}: {} inhibits",
+                h.species,
+                readable_value(at, Some(Dim::CONC), model),
+                h.species
+            ),
+            None => format!("half of the limiting rate {rate}"),
+        };
+        out.push_str(&format!(
+            "\nhalf saturation in {} (the law is of higher degree in it; at the file's values, products absent):\n  K0.5 = {}  ({reference})\n  Hill number at K0.5 = {:.3}\n",
+            h.species,
+            readable_value(h.k_half, Some(Dim::CONC), model),
+            h.hill
+        ));
+    }
     if !d.inhibition_patterns.is_empty() {
         out.push_str(
             "\ninhibition patterns (1/v against 1/varied; other products and inhibitors absent):\n",
@@ -431,6 +449,16 @@ pub fn json(d: &Derivation, model: &Model) -> Value {
             "varied": x.varied,
             "others": x.others.word(),
             "pattern": x.pattern.word(),
+        })).collect::<Vec<_>>(),
+        "half_saturation": d.half_saturation.iter().map(|h| json!({
+            "species": h.species,
+            "k_half": h.k_half,
+            "unit": Dim::CONC.display_in(model.units),
+            "hill": h.hill,
+            "reference_rate": h.reference_rate,
+            "rate_unit": Dim::RATE.display_in(model.units),
+            "reference": if h.peak { "peak" } else { "limit" },
+            "peak_at": h.peak_at,
         })).collect::<Vec<_>>(),
         "identifiable_combinations": d.constants_form.as_ref().map(|f| f.identifiable),
         "constant_values": Value::Object(all_constants(d).into_iter().filter_map(|c| {
