@@ -45,6 +45,11 @@ pub struct Args {
     /// Write the output to a file instead of standard output.
     #[arg(short = 'o', long, value_name = "PATH")]
     pub output: Option<PathBuf>,
+    /// With `--format mech`: params are the named kinetic constants (kcat,
+    /// Km_*, Ki_*, ...) valued at the file's params, and the law is written
+    /// in them.
+    #[arg(long)]
+    pub constants: bool,
     /// Report the time spent loading and deriving on standard error.
     #[arg(long)]
     pub timing: bool,
@@ -52,6 +57,12 @@ pub struct Args {
 
 pub fn run(args: &Args) -> ExitCode {
     let json = args.format == DeriveFormat::Json;
+    if args.constants && args.format != DeriveFormat::Mech {
+        return common::usage_error_as(
+            json,
+            "`--constants` writes a mechanism: use it with `--format mech`".to_string(),
+        );
+    }
     // The output path is checked before any work (exit 2).
     if let Some(path) = &args.output
         && let Err(e) = super::output::sink_for(path)
@@ -133,7 +144,7 @@ pub fn run(args: &Args) -> ExitCode {
                 .file_name()
                 .map(|s| s.to_string_lossy().to_string())
                 .unwrap_or_default();
-            match output::mechanism(&derivation, &model, &source) {
+            match output::mechanism(&derivation, &model, &source, args.constants) {
                 Ok(s) => in_canonical_layout(s),
                 Err(e) => return common::usage_error_as(json, e),
             }

@@ -481,9 +481,24 @@ pub fn json(d: &Derivation, model: &Model) -> Value {
 
 /// A new mechanism: the non-intermediate species, the params the law
 /// needs, each total as a param, and one step carrying the derived law.
-pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, String> {
+///
+/// With `in_constants`, the params are the named constants of the
+/// constants form, valued at the file's params, and the law is that form.
+pub fn mechanism(
+    d: &Derivation,
+    model: &Model,
+    source: &str,
+    in_constants: bool,
+) -> Result<String, String> {
     let Derived::Overall(o) = &d.derived else {
         return Err("`--format mech` writes the overall reaction; it cannot be combined with --species or --flux".into());
+    };
+    let form = match (in_constants, &d.constants_form) {
+        (false, _) => None,
+        (true, Some(f)) => Some(f),
+        (true, None) => {
+            return Err("`--constants`: this rate law has no form in named constants (it needs one enzyme total the rate is proportional to)".into());
+        }
     };
     let keys = keys_for(d);
     let p = printer(d, Syntax::Mech, &keys);
@@ -574,8 +589,30 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
         needed.extend(more);
     }
     let name_of = |s: Sym| model.name_of(s).to_string();
+    if let Some(form) = form {
+        for c in form.constants_used(d) {
+            let (value, dim) = value_of(c, d, model);
+            if !value.is_finite() {
+                return Err(format!(
+                    "`--constants`: {} has no finite value at the file's params",
+                    c.name
+                ));
+            }
+            // A dimensionless value as an expression, whose dimension is
+            // known (a bare number's is not), so the law's checks hold.
+            let written = match dim {
+                Some(Dim::NONE) => format!("({})", plain_literal(value)),
+                _ => with_unit(value, dim, model),
+            };
+            out.push_str(&format!(
+                "param {} = {written} \"{}\"\n",
+                c.name,
+                c.meaning.replace('"', "'")
+            ));
+        }
+    }
     for &i in &model.param_order {
-        if !needed.contains(&i) {
+        if form.is_some() || !needed.contains(&i) {
             continue;
         }
         let prm = &model.params[i];
@@ -624,7 +661,10 @@ pub fn mechanism(d: &Derivation, model: &Model, source: &str) -> Result<String, 
         "\nstep overall {} {arrow} {} law {}\n",
         side(&o.reactants),
         side(&o.products),
-        rate_text(d, &p, &keys)
+        match form {
+            Some(f) => f.text(d, Syntax::Mech),
+            None => rate_text(d, &p, &keys),
+        }
     ));
     let kept = |i: usize| !is_form(i);
     let mut events = String::new();
