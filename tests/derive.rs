@@ -1510,6 +1510,17 @@ fn textbook_mechanisms() -> Vec<(&'static str, String)> {
     ]
 }
 
+/// Published constants: name and definition in rate constants.
+type Definitions = Vec<(&'static str, &'static str)>;
+/// A mechanism, its published law in constants, and the constants.
+type PublishedForm = (&'static str, String, &'static str, Definitions);
+/// A mechanism and its pattern rows: inhibitor, varied, the two patterns.
+type PatternTable = (
+    &'static str,
+    String,
+    &'static [(&'static str, &'static str, &'static str)],
+);
+
 /// Replaces each whole name of `text` found in `by` with `(definition)`.
 fn with_definitions(text: &str, by: &serde_json::Map<String, Value>) -> String {
     let mut out = String::new();
@@ -1597,7 +1608,7 @@ fn the_constants_form_is_the_published_form() {
     let ping_pong_law = "kcat*Et*(A*B - P*Q/Keq)/(Km_B*A + Km_A*B + A*B \
         + kcat/(kcat_r*Keq)*(Km_Q*P + Km_P*Q + P*Q) + Km_A*B*Q/Ki_Q \
         + kcat*Km_Q*A*P/(kcat_r*Ki_A*Keq))";
-    let cases: Vec<(&str, String, &str, Vec<(&str, &str)>)> = vec![
+    let cases: Vec<PublishedForm> = vec![
         (
             "briggs_haldane",
             BRIGGS_HALDANE.into(),
@@ -1706,6 +1717,37 @@ fn the_constants_form_is_the_published_form() {
                 ("Keq", "k1*k3*k5*k7/(k2*k4*k6*k8)"),
             ],
         ),
+        // Uni bi and iso uni uni: the laws' shapes as Cleland (1963)
+        // tabulates them, with Kip and the iso constant Kiip (from memory);
+        // the definitions are the King–Altman solution's (checked against
+        // SymPy above), not a table's.
+        (
+            "uni_bi",
+            UNI_BI.into(),
+            "kcat*Et*(A - P*Q/Keq)/(Km_A + A + kcat/(kcat_r*Keq)*(Km_Q*P + Km_P*Q + P*Q) + A*P/Ki_P)",
+            vec![
+                ("kcat", "k3*k5/(k3 + k5)"),
+                ("kcat_r", "k2"),
+                ("Km_A", "k5*(k2 + k3)/(k1*(k3 + k5))"),
+                ("Km_P", "(k2 + k3)/k4"),
+                ("Km_Q", "k2/k6"),
+                ("Ki_P", "(k3 + k5)/k4"),
+                ("Keq", "k1*k3*k5/(k2*k4*k6)"),
+            ],
+        ),
+        (
+            "iso_uni_uni",
+            ISO_UNI_UNI.into(),
+            "kcat*Et*(A - P/Keq)/(Km_A + A + kcat*P/(kcat_r*Keq) + A*P/Kii_P)",
+            vec![
+                ("kcat", "k3*k5/(k3 + k5)"),
+                ("kcat_r", "k2*k6/(k2 + k6)"),
+                ("Km_A", "(k2 + k3)*(k5 + k6)/(k1*(k3 + k5))"),
+                ("Km_P", "(k2 + k3)*(k5 + k6)/(k4*(k2 + k6))"),
+                ("Kii_P", "(k3 + k5)/k4"),
+                ("Keq", "k1*k3*k5/(k2*k4*k6)"),
+            ],
+        ),
         (
             "re_random_bi_bi",
             RAPID_EQUILIBRIUM_RANDOM_BI_BI.into(),
@@ -1739,8 +1781,8 @@ fn the_constants_form_is_the_published_form() {
 }
 
 /// Ordered ter bi with the products absent (Segel 1975, ch. 9, from
-/// memory): v = V A B C / (Kia Kib Kc + Kib Kc A + Kia Kb C + Kc A B
-/// + Kb A C + Ka B C + A B C), Kia and Kib the dissociation constants of A
+/// memory): v = V A B C / (Kia Kib Kc + Kib Kc A + Kia Kb C + Kc A B +
+/// Kb A C + Ka B C + A B C), Kia and Kib the dissociation constants of A
 /// and B.
 #[test]
 fn ordered_ter_bi_initial_rate_is_the_published_form() {
@@ -1787,7 +1829,7 @@ fn product_inhibition_patterns_are_the_textbook_tables() {
         'N' => "noncompetitive",
         _ => "none",
     };
-    let tables: Vec<(&str, String, &[(&str, &str, &str)])> = vec![
+    let tables: Vec<PatternTable> = vec![
         (
             "ordered_bi_bi",
             ORDERED_BI_BI.into(),
@@ -1870,7 +1912,7 @@ fn product_inhibition_patterns_are_the_textbook_tables() {
 /// mol/L and s, and the dimension).
 #[test]
 fn constant_values_agree_with_sympy_and_carry_units() {
-    let cases: Vec<(&str, String, Vec<(&str, &str)>)> = vec![
+    let cases: Vec<(&str, String, Definitions)> = vec![
         (
             "briggs_haldane",
             BRIGGS_HALDANE.into(),

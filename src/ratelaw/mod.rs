@@ -161,6 +161,19 @@ impl Derivation {
     pub fn denominator(&self) -> &Poly {
         &self.rate.den
     }
+    /// The variables of the overall reaction's substrates and products
+    /// (`None` for a species or flux rate).
+    pub fn reaction_vars(&self, model: &Model) -> Option<(Vec<Var>, Vec<Var>)> {
+        let Derived::Overall(overall) = &self.derived else {
+            return None;
+        };
+        let vars = |side: &[(usize, BigInt)]| -> Vec<Var> {
+            side.iter()
+                .filter_map(|(i, _)| self.vars.get(&model.species[*i].name))
+                .collect()
+        };
+        Some((vars(&overall.reactants), vars(&overall.products)))
+    }
     /// Evaluates the rate with `value` giving each variable's value.
     pub fn eval(&self, value: &dyn Fn(Var) -> f64) -> f64 {
         self.rate.eval(value)

@@ -18,7 +18,7 @@
 //! Invariant: a pattern is given only where 1/v is linear in 1/A; a law of
 //! higher degree in A (substrate inhibition, squared terms) gives none.
 
-use super::{Derivation, Derived};
+use super::Derivation;
 use crate::algebra::poly::{Poly, Var};
 use crate::algebra::rational::RationalFunction;
 use crate::model::Model;
@@ -74,20 +74,9 @@ pub struct InhibitionPattern {
 /// The patterns of every product and dead-end modifier against every
 /// substrate of the overall reaction.
 pub fn inhibition_patterns(d: &Derivation, model: &Model) -> Vec<InhibitionPattern> {
-    let Derived::Overall(overall) = &d.derived else {
+    let Some((substrates, products)) = d.reaction_vars(model) else {
         return Vec::new();
     };
-    let var_of = |i: &usize| d.vars.get(&model.species[*i].name);
-    let substrates: Vec<Var> = overall
-        .reactants
-        .iter()
-        .filter_map(|(i, _)| var_of(i))
-        .collect();
-    let products: Vec<Var> = overall
-        .products
-        .iter()
-        .filter_map(|(i, _)| var_of(i))
-        .collect();
     let mut modifiers: Vec<Var> = d
         .rate
         .num

@@ -13,7 +13,7 @@
 //! other species at their initial values and the products absent; each is
 //! reported only where the rate is positive and the half level is crossed.
 
-use super::{Derivation, Derived};
+use super::Derivation;
 use crate::algebra::poly::{Poly, Var};
 use crate::model::Model;
 
@@ -35,20 +35,13 @@ pub struct HalfSaturation {
 /// The curves of every substrate in which the law is of degree two or
 /// more.
 pub fn half_saturation(d: &Derivation, model: &Model) -> Vec<HalfSaturation> {
-    let Derived::Overall(overall) = &d.derived else {
+    let Some((substrates, products)) = d.reaction_vars(model) else {
         return Vec::new();
     };
-    let var_of = |i: &usize| d.vars.get(&model.species[*i].name);
-    let products: Vec<Var> = overall
-        .products
-        .iter()
-        .filter_map(|(i, _)| var_of(i))
-        .collect();
     let absent = |v: Var| products.contains(&v);
     let (num, den) = (d.rate.num.set_zero(&absent), d.rate.den.set_zero(&absent));
     let mut out = Vec::new();
-    for (i, _) in &overall.reactants {
-        let Some(s) = var_of(i) else { continue };
+    for &s in &substrates {
         if num.degree_in(s).max(den.degree_in(s)) < 2 {
             continue;
         }
