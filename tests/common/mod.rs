@@ -39,6 +39,28 @@ pub fn models() -> Vec<PathBuf> {
 
 static PYTHON_READY: OnceLock<Result<(), String>> = OnceLock::new();
 
+/// Runs `install` holding one lock shared by every test thread and every
+/// test binary (a file lock under target/), so that a fresh machine's first
+/// `cargo test` never runs two package managers at once: parallel apt-get
+/// processes collide on dpkg's lock, and parallel pip installs on
+/// site-packages.
+fn serialised<T>(install: impl FnOnce() -> T) -> T {
+    static IN_PROCESS: std::sync::Mutex<()> = std::sync::Mutex::new(());
+    let _thread = IN_PROCESS.lock().unwrap_or_else(|e| e.into_inner());
+    let dir = root().join("target");
+    let _ = std::fs::create_dir_all(&dir);
+    let file = std::fs::OpenOptions::new()
+        .create(true)
+        .truncate(false)
+        .write(true)
+        .open(dir.join("test-installs.lock"))
+        .expect("the install lock file opens");
+    file.lock().expect("the install lock is taken");
+    let result = install();
+    let _ = file.unlock();
+    result
+}
+
 /// Makes sure `python3` can import numpy, scipy, sympy and libsbml,
 /// installing them with pip if needed. Panics with the pip output if that
 /// fails: a cross-check that cannot run is a failed test, not a skipped one.
@@ -54,27 +76,33 @@ pub fn ensure_python() {
         if probe("import numpy, scipy, sympy, libsbml") {
             return Ok(());
         }
-        let out = Command::new("python3")
-            .args([
-                "-m",
-                "pip",
-                "install",
-                "--quiet",
-                "numpy",
-                "scipy",
-                "sympy",
-                "python-libsbml",
-            ])
-            .output()
-            .map_err(|e| format!("cannot run pip: {e}"))?;
-        if !out.status.success() || !probe("import numpy, scipy, sympy, libsbml") {
-            return Err(format!(
-                "installing numpy scipy sympy python-libsbml failed:\n{}\n{}",
-                String::from_utf8_lossy(&out.stdout),
-                String::from_utf8_lossy(&out.stderr)
-            ));
-        }
-        Ok(())
+        serialised(|| {
+            // Another binary may have installed them while this one waited.
+            if probe("import numpy, scipy, sympy, libsbml") {
+                return Ok(());
+            }
+            let out = Command::new("python3")
+                .args([
+                    "-m",
+                    "pip",
+                    "install",
+                    "--quiet",
+                    "numpy",
+                    "scipy",
+                    "sympy",
+                    "python-libsbml",
+                ])
+                .output()
+                .map_err(|e| format!("cannot run pip: {e}"))?;
+            if !out.status.success() || !probe("import numpy, scipy, sympy, libsbml") {
+                return Err(format!(
+                    "installing numpy scipy sympy python-libsbml failed:\n{}\n{}",
+                    String::from_utf8_lossy(&out.stdout),
+                    String::from_utf8_lossy(&out.stderr)
+                ));
+            }
+            Ok(())
+        })
     });
     if let Err(e) = ready {
         panic!("{e}");
@@ -152,39 +180,47 @@ fn ensure_tool(
         if works() {
             return Ok(());
         }
-        let root = Command::new("id")
-            .arg("-u")
-            .output()
-            .map(|o| String::from_utf8_lossy(&o.stdout).trim() == "0")
-            .unwrap_or(false);
-        let apt = |args: &[&str]| {
-            let mut cmd = if root {
-                Command::new("apt-get")
-            } else {
-                Command::new("sudo")
-            };
-            if !root {
-                cmd.arg("apt-get");
+        serialised(|| {
+            if works() {
+                return Ok(());
             }
-            cmd.args(args)
-                .env("DEBIAN_FRONTEND", "noninteractive")
+            let root = Command::new("id")
+                .arg("-u")
                 .output()
-        };
-        let update = apt(&["update", "-qq"]).map_err(|e| format!("cannot run apt-get: {e}"))?;
-        let mut args = vec!["install", "-y", "-qq"];
-        args.extend_from_slice(packages);
-        let install = apt(&args).map_err(|e| format!("cannot run apt-get: {e}"))?;
-        if works() {
-            Ok(())
-        } else {
-            Err(format!(
-                "installing {} failed (apt-get install -y {}):\n{}{}",
-                program,
-                packages.join(" "),
-                String::from_utf8_lossy(&update.stderr),
-                String::from_utf8_lossy(&install.stderr)
-            ))
-        }
+                .map(|o| String::from_utf8_lossy(&o.stdout).trim() == "0")
+                .unwrap_or(false);
+            let apt = |args: &[&str]| {
+                let mut cmd = if root {
+                    Command::new("apt-get")
+                } else {
+                    Command::new("sudo")
+                };
+                if !root {
+                    cmd.arg("apt-get");
+                }
+                cmd.args(args)
+                    .env("DEBIAN_FRONTEND", "noninteractive")
+                    .output()
+            };
+            // apt-get waits for dpkg's lock (held by a package manager outside
+            // the tests, say) instead of failing at once.
+            let update = apt(&["-o", "DPkg::Lock::Timeout=900", "update", "-qq"])
+                .map_err(|e| format!("cannot run apt-get: {e}"))?;
+            let mut args = vec!["-o", "DPkg::Lock::Timeout=900", "install", "-y", "-qq"];
+            args.extend_from_slice(packages);
+            let install = apt(&args).map_err(|e| format!("cannot run apt-get: {e}"))?;
+            if works() {
+                Ok(())
+            } else {
+                Err(format!(
+                    "installing {} failed (apt-get install -y {}):\n{}{}",
+                    program,
+                    packages.join(" "),
+                    String::from_utf8_lossy(&update.stderr),
+                    String::from_utf8_lossy(&install.stderr)
+                ))
+            }
+        })
     });
     if let Err(e) = ready {
         panic!("{e}");
