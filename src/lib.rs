@@ -9,6 +9,7 @@ pub mod cli;
 pub mod compare;
 pub mod diagnostics;
 pub mod emit;
+pub mod fit;
 pub mod model;
 pub mod network;
 pub mod numeric;

@@ -34,6 +34,7 @@ mod check;
 mod derive;
 mod diff;
 mod emit;
+mod fit;
 mod fmt;
 pub mod output;
 mod plot;
@@ -83,6 +84,8 @@ pub enum Command {
     Scan(scan::Args),
     /// Meaning-level difference of two mechanisms.
     Diff(diff::Args),
+    /// Estimate params from assay data; rank rival mechanisms.
+    Fit(fit::Args),
 }
 
 /// Parses arguments and runs one command. Usage errors exit with 2.
@@ -106,6 +109,7 @@ pub fn main() -> ExitCode {
         Command::Steady(a) => steady::run(&a),
         Command::Scan(a) => scan::run(&a),
         Command::Diff(a) => diff::run(&a),
+        Command::Fit(a) => fit::run(&a),
     }
 }
 

@@ -1,7 +1,7 @@
 //! Stable diagnostic codes. A code, once published, keeps its meaning: new
 //! problems get new codes. Ranges: E01 syntax and files, E02 names, E03 units,
 //! E04 model rules, E05 conservation, E06 rate-law derivation, E07 numerics,
-//! E08 command line and output; W.. warnings.
+//! E08 command line and output; E09 assay data and fitting; W.. warnings.
 
 macro_rules! codes {
     ($($variant:ident => $text:literal, $title:literal;)*) => {
@@ -74,6 +74,10 @@ codes! {
     OutputRefused => "E0802", "output refused";
     WriteFailed => "E0803", "output could not be written";
     GitRead => "E0804", "file cannot be read from git";
+
+    BadData => "E0901", "assay data cannot be used";
+    BadFitRequest => "E0902", "invalid fit request";
+    FitFailed => "E0903", "the fit failed";
 
     UnusedParam => "W0101", "unused parameter";
     UntouchedSpecies => "W0102", "species that no step touches";

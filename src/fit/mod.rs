@@ -1,0 +1,610 @@
+//! Fitting mechanisms to assay data.
+//!
+//! Why: practitioners measure rates (or progress curves) and need the
+//! constants with honest uncertainties and a verdict between rival
+//! mechanisms; fitting the same version-controlled file that is checked,
+//! derived and simulated keeps one source of truth.
+//!
+//! This stage takes a loaded model, parsed data tables ([`data`]) and a
+//! [`Request`], and returns a [`Fit`]: the estimates, their statistics
+//! ([`stats`]) and the stop reason of the minimizer ([`lm`]). A rate table
+//! is fitted by the model's rate ([`rates`]): the overall rate that
+//! `derive` gives when the file has `assume steady` (in the named
+//! constants when a free name is one of them), otherwise the net rate of
+//! its only step, or the step or observable `--response` names.
+//!
+//! Invariants: the fit never changes the caller's model; every free name
+//! is a param with a value (not an expression); estimates are inside their
+//! bounds; statistics are computed at the returned point with the exact
+//! Jacobian.
+
+pub mod data;
+pub mod lm;
+pub mod rates;
+pub mod stats;
+
+use crate::diagnostics::{Code, Diagnostic, did_you_mean};
+use crate::model::{Dim, Expr, Model, ParamDef, Sym, load_str};
+use crate::ratelaw;
+use data::Table;
+use lm::{Options, minimize};
+use rates::{FreeParam, RateProblem, Weight};
+use std::path::Path;
+
+/// A free name with an optional start and bounds (`NAME=START:LO..HI`).
+#[derive(Clone, Debug, Default)]
+pub struct FreeSpec {
+    pub name: String,
+    pub start: Option<f64>,
+    pub lower: Option<f64>,
+    pub upper: Option<f64>,
+}
+
+#[derive(Clone, Debug)]
+pub struct Request {
+    pub free: Vec<FreeSpec>,
+    /// `(column, name)`: the measured column and the step or observable it
+    /// measures.
+    pub response: Option<(String, String)>,
+    pub weight: Weight,
+    pub profile: bool,
+    /// Fit positive params by their logarithms (the default) rather than
+    /// on their own scale.
+    pub log_scale: bool,
+}
+
+#[derive(Clone, Debug)]
+pub struct FittedParam {
+    pub name: String,
+    pub value: f64,
+    pub stderr: f64,
+    pub ci95: (f64, f64),
+    /// Profile-likelihood interval, with `--profile`.
+    pub profile: Option<(f64, f64)>,
+    pub unit: Option<String>,
+    pub log_scale: bool,
+}
+
+#[derive(Clone, Debug)]
+pub struct Fit {
+    pub params: Vec<FittedParam>,
+    pub ssr: f64,
+    pub n: usize,
+    pub dof: usize,
+    pub sigma: f64,
+    pub aic: f64,
+    pub aicc: f64,
+    pub bic: f64,
+    pub correlation: Vec<Vec<f64>>,
+    pub converged: bool,
+    pub iterations: usize,
+    pub stop: String,
+    pub warnings: Vec<String>,
+    /// Per point: table index, line, observed and fitted response.
+    pub points: Vec<(usize, usize, f64, f64)>,
+    /// What the fitted rate is.
+    pub rate_of: String,
+}
+
+fn request_error(message: String) -> Vec<Diagnostic> {
+    vec![Diagnostic::error(Code::BadFitRequest, message)]
+}
+
+/// The model whose rate is fitted and that rate: the file's own, or the
+/// mechanism `derive` writes (in the named constants if a free name is one).
+fn rate_model(
+    model: &Model,
+    label: &str,
+    request: &Request,
+) -> Result<(Model, Expr, String), Vec<Diagnostic>> {
+    if let Some((_, target)) = &request.response {
+        if let Some(Sym::Observable(k)) = model.lookup(target) {
+            return Ok((
+                model.clone(),
+                Expr::name(Sym::Observable(k)),
+                format!("observable {target}"),
+            ));
+        }
+        if let Some(j) = model.step_index(target) {
+            return Ok((
+                model.clone(),
+                model.step_rate(j),
+                format!("net rate of step {target}"),
+            ));
+        }
+        let mut names: Vec<String> = model.steps.iter().map(|s| s.name.clone()).collect();
+        names.extend(model.observables.iter().map(|o| o.name.clone()));
+        let mut d = Diagnostic::error(
+            Code::BadFitRequest,
+            format!("--response: `{target}` is no step or observable of {label}"),
+        );
+        if let Some(h) = did_you_mean(target, names.iter().map(String::as_str)) {
+            d = d.with_help(format!("did you mean `{h}`?"));
+        }
+        return Err(vec![d]);
+    }
+    if !model.assumptions.steady.is_empty() {
+        let derivation =
+            ratelaw::derive(model, &ratelaw::Request::default()).map_err(|d| vec![d])?;
+        let constant_names: Vec<&str> = derivation
+            .constants
+            .iter()
+            .chain(
+                derivation
+                    .constants_form
+                    .iter()
+                    .flat_map(|f| f.added.iter()),
+            )
+            .map(|c| c.name.as_str())
+            .collect();
+        let in_constants = request
+            .free
+            .iter()
+            .any(|f| constant_names.contains(&f.name.as_str()));
+        let text = ratelaw::output::mechanism(&derivation, model, label, in_constants)
+            .map_err(request_error)?;
+        let loaded = load_str(&text, Path::new("derived.mech"));
+        let Some(derived) = loaded.model else {
+            return Err(request_error(format!(
+                "the derived mechanism of {label} does not load (a bug): {:?}",
+                loaded.diagnostics.first().map(|d| &d.message)
+            )));
+        };
+        let how = if in_constants {
+            "the derived rate law in its named constants"
+        } else {
+            "the derived rate law"
+        };
+        let rate = derived.step_rate(0);
+        return Ok((derived, rate, how.to_string()));
+    }
+    match model.steps.len() {
+        1 => Ok((
+            model.clone(),
+            model.step_rate(0),
+            format!("net rate of step {}", model.steps[0].name),
+        )),
+        _ => Err(request_error(format!(
+            "{label} has {} steps and no `assume steady`: name the rate the data measure with --response v=STEP (or an observable)",
+            model.steps.len()
+        ))),
+    }
+}
+
+fn free_params(
+    model: &Model,
+    request: &Request,
+) -> Result<(Vec<FreeParam>, Vec<f64>, Options), Vec<Diagnostic>> {
+    if request.free.is_empty() {
+        return Err(request_error(
+            "nothing to fit: name the free params with --free NAME[=START][:LO..HI]".into(),
+        ));
+    }
+    let mut free = Vec::new();
+    let mut start = Vec::new();
+    let mut options = Options::unbounded(request.free.len());
+    let mut errors = Vec::new();
+    for (k, spec) in request.free.iter().enumerate() {
+        let i = match model.lookup(&spec.name) {
+            Some(Sym::Param(i)) => i,
+            other => {
+                let what = match other {
+                    Some(Sym::Species(_)) => {
+                        " (a species: initial values are fitted to progress curves, not rate tables)"
+                    }
+                    Some(_) => " (not a param)",
+                    None => "",
+                };
+                let names: Vec<&str> = model.params.iter().map(|p| p.name.as_str()).collect();
+                let mut d = Diagnostic::error(
+                    Code::BadFitRequest,
+                    format!(
+                        "--free: `{}` is no param of the fitted rate{what}",
+                        spec.name
+                    ),
+                );
+                if let Some(h) = did_you_mean(&spec.name, names.iter().copied()) {
+                    d = d.with_help(format!("did you mean `{h}`?"));
+                }
+                errors.push(d);
+                continue;
+            }
+        };
+        if matches!(model.params[i].definition, ParamDef::Expr(_)) {
+            errors.push(Diagnostic::error(
+                Code::BadFitRequest,
+                format!(
+                    "--free: `{}` is defined by an expression; free the params it is made of",
+                    spec.name
+                ),
+            ));
+            continue;
+        }
+        if free.iter().any(|f: &FreeParam| f.sym == Sym::Param(i)) {
+            errors.push(Diagnostic::error(
+                Code::BadFitRequest,
+                format!("--free: `{}` is named twice", spec.name),
+            ));
+            continue;
+        }
+        let value = spec.start.unwrap_or(model.params[i].value);
+        let (lo, hi) = (
+            spec.lower.unwrap_or(f64::NEG_INFINITY),
+            spec.upper.unwrap_or(f64::INFINITY),
+        );
+        if lo >= hi || value < lo || value > hi || !value.is_finite() {
+            errors.push(Diagnostic::error(
+                Code::BadFitRequest,
+                format!(
+                    "--free: the start {value} of `{}` is not inside its bounds {lo}..{hi}",
+                    spec.name
+                ),
+            ));
+            continue;
+        }
+        // Positive constants are fitted on a log scale (common practice):
+        // the steps are relative, and the estimate stays positive.
+        let log_scale = request.log_scale && value > 0.0 && spec.lower.is_none_or(|l| l >= 0.0);
+        if log_scale {
+            start.push(value.ln());
+            options.lower[k] = if lo > 0.0 { lo.ln() } else { f64::NEG_INFINITY };
+            // An upper bound of +inf stays +inf.
+            options.upper[k] = hi.ln();
+        } else {
+            start.push(value);
+            options.lower[k] = lo;
+            options.upper[k] = hi;
+        }
+        free.push(FreeParam {
+            sym: Sym::Param(i),
+            log_scale,
+        });
+    }
+    if errors.is_empty() {
+        Ok((free, start, options))
+    } else {
+        Err(errors)
+    }
+}
+
+/// Fits a rate table (or several, globally) with the model's rate.
+pub fn fit_rates(
+    model: &Model,
+    label: &str,
+    tables: &[Table],
+    request: &Request,
+) -> Result<Fit, Vec<Diagnostic>> {
+    let (fitted_model, rate, rate_of) = rate_model(model, label, request)?;
+    let (free, start, options) = free_params(&fitted_model, request)?;
+    let mut problem = RateProblem::new(&fitted_model, &rate, free);
+    let response = request
+        .response
+        .as_ref()
+        .map(|(c, _)| c.as_str())
+        .unwrap_or("v");
+    let rate_dim = if request.response.is_some() {
+        None
+    } else {
+        Some(Dim::RATE)
+    };
+    let mut errors = Vec::new();
+    for (k, table) in tables.iter().enumerate() {
+        if let Err(e) = problem.add_table(k, table, response, &request.weight, rate_dim) {
+            errors.extend(e);
+        }
+    }
+    if !errors.is_empty() {
+        return Err(errors);
+    }
+    let (n, p) = (problem.points.len(), problem.free.len());
+    if n <= p {
+        return Err(request_error(format!(
+            "{n} usable data points cannot determine {p} free params"
+        )));
+    }
+    let outcome = minimize(&problem, &start, &options);
+    if let lm::Stop::StartFailed(e) = &outcome.stop {
+        return Err(vec![
+            Diagnostic::error(Code::FitFailed, format!("fitting {label}: {e}"))
+                .with_help("choose other starting values with --free NAME=START"),
+        ]);
+    }
+    let values = problem.values(&outcome.x);
+    let linear_jacobian: Vec<f64> = outcome
+        .jacobian
+        .iter()
+        .enumerate()
+        .map(|(k, d)| {
+            let j = k % p;
+            if problem.free[j].log_scale {
+                d / values[j]
+            } else {
+                *d
+            }
+        })
+        .collect();
+    let summary = stats::summarize(&values, &linear_jacobian, outcome.ssr, n);
+    let names: Vec<String> = problem
+        .free
+        .iter()
+        .map(|f| fitted_model.name_of(f.sym).to_string())
+        .collect();
+    let profiles = if request.profile {
+        Some(profile_intervals(
+            &problem,
+            &outcome.x,
+            outcome.ssr,
+            &options,
+            &summary,
+        ))
+    } else {
+        None
+    };
+    let mut warnings = identifiability_warnings(&names, &values, &summary, &options, &outcome.x);
+    if outcome.failed_evaluations > 0 {
+        warnings.push(format!(
+            "the model could not be evaluated at {} trial points; the steps were shrunk",
+            outcome.failed_evaluations
+        ));
+    }
+    let params = names
+        .iter()
+        .enumerate()
+        .map(|(j, name)| {
+            let i = match problem.free[j].sym {
+                Sym::Param(i) => i,
+                _ => 0,
+            };
+            FittedParam {
+                name: name.clone(),
+                value: values[j],
+                stderr: summary.stderr[j],
+                ci95: summary.ci95[j],
+                profile: profiles.as_ref().map(|p| p[j]),
+                unit: fitted_model.params[i]
+                    .dim
+                    .map(|d| d.display_in(fitted_model.units)),
+                log_scale: problem.free[j].log_scale,
+            }
+        })
+        .collect();
+    let points = problem
+        .points
+        .iter()
+        .map(|pt| (pt.table, pt.line, pt.observed, problem.rate_at(pt, &values)))
+        .collect();
+    Ok(Fit {
+        params,
+        ssr: outcome.ssr,
+        n,
+        dof: summary.dof,
+        sigma: summary.sigma,
+        aic: summary.aic,
+        aicc: summary.aicc,
+        bic: summary.bic,
+        correlation: summary.correlation,
+        converged: outcome.stop.converged(),
+        iterations: outcome.iterations,
+        stop: outcome.stop.describe(),
+        warnings,
+        points,
+        rate_of,
+    })
+}
+
+fn identifiability_warnings(
+    names: &[String],
+    values: &[f64],
+    s: &stats::Summary,
+    options: &Options,
+    x: &[f64],
+) -> Vec<String> {
+    let mut out = Vec::new();
+    for v in &s.undetermined {
+        let combination: Vec<String> = v
+            .iter()
+            .zip(names)
+            .filter(|(c, _)| c.abs() > 1e-3)
+            .map(|(c, n)| format!("{c:+.3}·{n}"))
+            .collect();
+        out.push(format!(
+            "the data do not determine the combination {} (a near-zero singular value of the Jacobian); standard errors are undefined",
+            combination.join(" ")
+        ));
+    }
+    let p = names.len();
+    for a in 0..p {
+        for b in a + 1..p {
+            let r = s.correlation[a][b];
+            if r.abs() > 0.99 {
+                out.push(format!("{} and {} are correlated (r = {r:.4}): the data determine a combination of them better than either", names[a], names[b]));
+            }
+        }
+    }
+    for j in 0..p {
+        let (lo, hi) = s.ci95[j];
+        if values[j] > 0.0 && (lo <= 0.0 || hi / lo > 100.0) {
+            out.push(format!("the 95% interval of {} spans more than two orders of magnitude: it is poorly determined", names[j]));
+        }
+        if x[j] <= options.lower[j] || x[j] >= options.upper[j] {
+            out.push(format!(
+                "{} is at a bound; its interval assumes it is not",
+                names[j]
+            ));
+        }
+    }
+    out
+}
+
+/// Profile-likelihood 95% intervals: for each param, the values where the
+/// sum of squares, minimized over the other params, reaches
+/// SSR · (1 + F(0.95; 1, n − p)/(n − p)) (Bates & Watts 1988, ch. 6).
+fn profile_intervals(
+    problem: &RateProblem,
+    best: &[f64],
+    ssr: f64,
+    options: &Options,
+    s: &stats::Summary,
+) -> Vec<(f64, f64)> {
+    let threshold = ssr * (1.0 + stats::f_quantile_95(1, s.dof) / s.dof as f64);
+    let p = best.len();
+    (0..p)
+        .map(|j| {
+            let profile_ssr = |fixed: f64, from: &[f64]| -> f64 {
+                if p == 1 {
+                    let mut r = vec![0.0; problem.points.len()];
+                    let mut jac = vec![0.0; problem.points.len()];
+                    use lm::Residuals;
+                    return match problem.evaluate(&[fixed], &mut r, &mut jac) {
+                        Ok(()) => r.iter().map(|v| v * v).sum(),
+                        Err(_) => f64::INFINITY,
+                    };
+                }
+                let reduced = Fixed {
+                    problem,
+                    index: j,
+                    value: fixed,
+                };
+                let start: Vec<f64> = from
+                    .iter()
+                    .enumerate()
+                    .filter(|(k, _)| *k != j)
+                    .map(|(_, v)| *v)
+                    .collect();
+                let mut o = Options::unbounded(p - 1);
+                let keep: Vec<usize> = (0..p).filter(|k| *k != j).collect();
+                o.lower = keep.iter().map(|&k| options.lower[k]).collect();
+                o.upper = keep.iter().map(|&k| options.upper[k]).collect();
+                o.max_iterations = 500;
+                let out = minimize(&reduced, &start, &o);
+                if out.ssr.is_finite() {
+                    out.ssr
+                } else {
+                    f64::INFINITY
+                }
+            };
+            let value = problem.values(best)[j];
+            let spread = if problem.free[j].log_scale {
+                s.stderr[j] / value
+            } else {
+                s.stderr[j]
+            };
+            let spread = if spread.is_finite() && spread > 0.0 {
+                spread
+            } else {
+                0.1 * best[j].abs().max(1.0)
+            };
+            let mut ends = [f64::NAN; 2];
+            for (side, sign) in [(0usize, -1.0f64), (1, 1.0)] {
+                // Walk out until the threshold is crossed, then bisect.
+                let mut inner = best[j];
+                let mut outer = best[j];
+                let mut step = spread;
+                let mut crossed = false;
+                for _ in 0..60 {
+                    outer = (best[j] + sign * step).clamp(options.lower[j], options.upper[j]);
+                    if profile_ssr(outer, best) >= threshold {
+                        crossed = true;
+                        break;
+                    }
+                    if outer == options.lower[j] || outer == options.upper[j] {
+                        break;
+                    }
+                    inner = outer;
+                    step *= 2.0;
+                }
+                if !crossed {
+                    ends[side] = if sign < 0.0 {
+                        f64::NEG_INFINITY
+                    } else {
+                        f64::INFINITY
+                    };
+                    continue;
+                }
+                for _ in 0..50 {
+                    let mid = 0.5 * (inner + outer);
+                    if profile_ssr(mid, best) >= threshold {
+                        outer = mid;
+                    } else {
+                        inner = mid;
+                    }
+                }
+                ends[side] = 0.5 * (inner + outer);
+            }
+            let to_value = |v: f64| {
+                if problem.free[j].log_scale {
+                    v.exp()
+                } else {
+                    v
+                }
+            };
+            (to_value(ends[0]), to_value(ends[1]))
+        })
+        .collect()
+}
+
+/// The problem with one unknown held at a value.
+struct Fixed<'a, 'b> {
+    problem: &'a RateProblem<'b>,
+    index: usize,
+    value: f64,
+}
+
+impl lm::Residuals for Fixed<'_, '_> {
+    fn residual_count(&self) -> usize {
+        self.problem.points.len()
+    }
+    fn evaluate(&self, x: &[f64], r: &mut [f64], jacobian: &mut [f64]) -> Result<(), String> {
+        let p = x.len() + 1;
+        let mut full = x.to_vec();
+        full.insert(self.index, self.value);
+        let mut jac = vec![0.0; r.len() * p];
+        self.problem.evaluate(&full, r, &mut jac)?;
+        for i in 0..r.len() {
+            let mut c = 0;
+            for k in 0..p {
+                if k != self.index {
+                    jacobian[i * (p - 1) + c] = jac[i * p + k];
+                    c += 1;
+                }
+            }
+        }
+        Ok(())
+    }
+}
+
+/// One fitted model of a comparison.
+pub struct Ranked {
+    pub index: usize,
+    pub delta_aicc: f64,
+    /// Akaike weight, exp(−Δ/2) normalized (Burnham & Anderson 2002).
+    pub weight: f64,
+}
+
+/// Models ranked by AICc, best first.
+pub fn rank(fits: &[Fit]) -> Vec<Ranked> {
+    let best = fits.iter().map(|f| f.aicc).fold(f64::INFINITY, f64::min);
+    let total: f64 = fits.iter().map(|f| (-(f.aicc - best) / 2.0).exp()).sum();
+    let mut out: Vec<Ranked> = fits
+        .iter()
+        .enumerate()
+        .map(|(index, f)| Ranked {
+            index,
+            delta_aicc: f.aicc - best,
+            weight: (-(f.aicc - best) / 2.0).exp() / total,
+        })
+        .collect();
+    out.sort_by(|a, b| a.delta_aicc.total_cmp(&b.delta_aicc));
+    out
+}
+
+/// The extra-sum-of-squares F test of a model with fewer params (`small`)
+/// against one with more (`large`), on the same points: (F, p-value).
+pub fn f_test(small: &Fit, large: &Fit) -> Option<(f64, f64)> {
+    let (p1, p2) = (small.params.len(), large.params.len());
+    if small.n != large.n || p1 >= p2 || large.dof == 0 {
+        return None;
+    }
+    let f = ((small.ssr - large.ssr) / (p2 - p1) as f64) / (large.ssr / large.dof as f64);
+    Some((f, stats::f_p_value(f, p2 - p1, large.dof)))
+}
