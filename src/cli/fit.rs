@@ -191,6 +191,7 @@ pub fn run(args: &Args) -> ExitCode {
             weight: weight.clone(),
             profile: args.profile,
             log_scale: args.scale == Scale::Log,
+            skip_missing: args.files.len() > 1,
         };
         let label = file.display().to_string();
         match fit::fit_rates(&model, &label, &tables, &request) {

@@ -51,6 +51,9 @@ pub struct Request {
     /// Fit positive params by their logarithms (the default) rather than
     /// on their own scale.
     pub log_scale: bool,
+    /// Skip free names the model does not have (rival models share one
+    /// list of free names), with a warning.
+    pub skip_missing: bool,
 }
 
 #[derive(Clone, Debug)]
@@ -171,20 +174,25 @@ fn rate_model(
     }
 }
 
+/// The free params, their starting points and bounds in the fitted
+/// scale, and the names skipped (with `skip_missing`).
 fn free_params(
     model: &Model,
     request: &Request,
-) -> Result<(Vec<FreeParam>, Vec<f64>, Options), Vec<Diagnostic>> {
-    if request.free.is_empty() {
+) -> Result<(Vec<FreeParam>, Vec<f64>, Options, Vec<String>), Vec<Diagnostic>> {
+    let (specs, skipped): (Vec<&FreeSpec>, Vec<&FreeSpec>) = request.free.iter().partition(|f| {
+        !request.skip_missing || matches!(model.lookup(&f.name), Some(Sym::Param(_)))
+    });
+    if specs.is_empty() {
         return Err(request_error(
             "nothing to fit: name the free params with --free NAME[=START][:LO..HI]".into(),
         ));
     }
     let mut free = Vec::new();
     let mut start = Vec::new();
-    let mut options = Options::unbounded(request.free.len());
+    let mut options = Options::unbounded(specs.len());
     let mut errors = Vec::new();
-    for (k, spec) in request.free.iter().enumerate() {
+    for (k, spec) in specs.into_iter().enumerate() {
         let i = match model.lookup(&spec.name) {
             Some(Sym::Param(i)) => i,
             other => {
@@ -260,8 +268,9 @@ fn free_params(
             log_scale,
         });
     }
+    let skipped = skipped.into_iter().map(|f| f.name.clone()).collect();
     if errors.is_empty() {
-        Ok((free, start, options))
+        Ok((free, start, options, skipped))
     } else {
         Err(errors)
     }
@@ -275,7 +284,7 @@ pub fn fit_rates(
     request: &Request,
 ) -> Result<Fit, Vec<Diagnostic>> {
     let (fitted_model, rate, rate_of) = rate_model(model, label, request)?;
-    let (free, start, options) = free_params(&fitted_model, request)?;
+    let (free, start, options, skipped) = free_params(&fitted_model, request)?;
     let mut problem = RateProblem::new(&fitted_model, &rate, free);
     let response = request
         .response
@@ -341,6 +350,12 @@ pub fn fit_rates(
         None
     };
     let mut warnings = identifiability_warnings(&names, &values, &summary, &options, &outcome.x);
+    if !skipped.is_empty() {
+        warnings.push(format!(
+            "not in this model, so not fitted here: {}",
+            skipped.join(", ")
+        ));
+    }
     if outcome.failed_evaluations > 0 {
         warnings.push(format!(
             "the model could not be evaluated at {} trial points; the steps were shrunk",
