@@ -144,6 +144,26 @@ fn rate_model(
             .free
             .iter()
             .any(|f| constant_names.contains(&f.name.as_str()));
+        // A name that is neither a constant nor a param: suggest from both.
+        for f in &request.free {
+            let known = constant_names.contains(&f.name.as_str())
+                || matches!(model.lookup(&f.name), Some(Sym::Param(_)));
+            if !known && !request.skip_missing {
+                let params = model.params.iter().map(|p| p.name.as_str());
+                let mut d = Diagnostic::error(
+                    Code::BadFitRequest,
+                    format!(
+                        "--free: `{}` is neither a param of {label} nor a named constant of its rate law",
+                        f.name
+                    ),
+                );
+                if let Some(h) = did_you_mean(&f.name, constant_names.iter().copied().chain(params))
+                {
+                    d = d.with_help(format!("did you mean `{h}`?"));
+                }
+                return Err(vec![d]);
+            }
+        }
         let text = ratelaw::output::mechanism(&derivation, model, label, in_constants)
             .map_err(request_error)?;
         let loaded = load_str(&text, Path::new("derived.mech"));
@@ -491,6 +511,10 @@ fn profile_intervals(
                 o.lower = keep.iter().map(|&k| options.lower[k]).collect();
                 o.upper = keep.iter().map(|&k| options.upper[k]).collect();
                 o.max_iterations = 500;
+                // The threshold is found to a few digits; the inner fits
+                // need not be tighter than that.
+                o.ssr_tolerance = 1e-10;
+                o.step_tolerance = 1e-9;
                 let out = minimize(&reduced, &start, &o);
                 if out.ssr.is_finite() {
                     out.ssr
@@ -536,7 +560,7 @@ fn profile_intervals(
                     };
                     continue;
                 }
-                for _ in 0..50 {
+                while (outer - inner).abs() > 1e-7 * spread {
                     let mid = 0.5 * (inner + outer);
                     if profile_ssr(mid, best) >= threshold {
                         outer = mid;
