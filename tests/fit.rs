@@ -532,3 +532,63 @@ fn bad_data_gets_located_errors() {
     ]);
     assert_eq!(out.status.code(), Some(2));
 }
+
+// ---------------------------------------------------------------------------
+// Progress curves.
+
+const FOUR_STEPS: &str = "species A = 10 uM, B, C, D, F\n\
+    param k1 = 0.5 /s\nparam k2 = 0.2 /s\nparam k3 = 0.3 /s\nparam k4 = 0.1 /s\nparam k5 = 0.05 /s\n\
+    step s1 A -> B with k1\nstep s2 B -> C with k2\nstep s3 C <=> D with k3, k4\nstep s4 D -> F with k5\n";
+
+/// Three series (A(0) = 5, 10, 20 uM) of B and D at 16 times each, made
+/// by `run` of the true model with seeded noise (sd 0.02 uM).
+fn four_step_curves(dir: &Path) -> (String, Value) {
+    let mut noise = Noise(42);
+    let mut csv = String::from("series,t,A(0),B,D\n");
+    let mut series = Vec::new();
+    for (k, a0) in [5.0, 10.0, 20.0].iter().enumerate() {
+        let m = dir.join("truth.mech");
+        std::fs::write(&m, FOUR_STEPS.replace("A = 10 uM", &format!("A = {a0} uM"))).unwrap();
+        let out_csv = dir.join("truth.csv");
+        let out = ratewright(&["run", m.to_str().unwrap(), "--until", "30", "--points", "16", "-o", out_csv.to_str().unwrap()]);
+        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        let text = std::fs::read_to_string(&out_csv).unwrap();
+        let (mut ts, mut bs, mut ds) = (vec![], vec![], vec![]);
+        for line in text.lines().skip(1) {
+            let v: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
+            let (b, d) = (v[2] + 0.02 * noise.normal(), v[4] + 0.02 * noise.normal());
+            csv.push_str(&format!("{},{},{a0},{b},{d}\n", k + 1, v[0]));
+            ts.push(v[0]);
+            bs.push(b);
+            ds.push(d);
+        }
+        series.push(serde_json::json!({"A0": a0, "t": ts, "B": bs, "D": ds}));
+    }
+    (csv, serde_json::json!({"series": series, "k5": 0.05}))
+}
+
+/// Against SciPy (least_squares around solve_ivp Radau, rtol 1e-10) on the
+/// same curves: the same optimum to 1e-6 relative and the same standard
+/// errors to 1e-3.
+#[test]
+fn progress_curves_agree_with_scipy() {
+    let dir = tempfile::tempdir().unwrap();
+    let (csv, mut spec) = four_step_curves(dir.path());
+    let start = [("k1", 0.3), ("k2", 0.3), ("k3", 0.2), ("k4", 0.2)];
+    spec["start"] = serde_json::json!(start.iter().map(|(n, v)| (n.to_string(), Value::from(*v))).collect::<serde_json::Map<String, Value>>());
+    let free: Vec<String> = start.iter().map(|(n, v)| format!("{n}={v}")).collect();
+    let j = fit_json(dir.path(), FOUR_STEPS, &csv, &["--free", &free.join(",")]);
+    assert_eq!(j["n"], 96);
+    let spec_path = dir.path().join("spec.json");
+    std::fs::write(&spec_path, spec.to_string()).unwrap();
+    let out = common::python(&root().join("tests/python/fit_progress_scipy.py"), &[spec_path.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let reference: Value = serde_json::from_slice(&out.stdout).unwrap();
+    for (name, _) in start {
+        let (v, se) = (j["parameters"][name]["value"].as_f64().unwrap(), j["parameters"][name]["stderr"].as_f64().unwrap());
+        let (rv, rse) = (reference["params"][name].as_f64().unwrap(), reference["stderr"][name].as_f64().unwrap());
+        assert!(relative(v, rv) < 1e-6, "{name}: {v} vs SciPy {rv}");
+        assert!(relative(se, rse) < 1e-3, "se({name}): {se} vs SciPy {rse}");
+    }
+    assert!(relative(j["ssr"].as_f64().unwrap(), reference["ssr"].as_f64().unwrap()) < 1e-8);
+}

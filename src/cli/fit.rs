@@ -194,7 +194,7 @@ pub fn run(args: &Args) -> ExitCode {
             skip_missing: args.files.len() > 1,
         };
         let label = file.display().to_string();
-        match fit::fit_rates(&model, &label, &tables, &request) {
+        match fit::fit(&model, &label, &tables, &request) {
             Ok(f) => fits.push((label, f)),
             Err(diags) => {
                 let sources = if diags.iter().any(|d| d.primary_span().is_some()) {

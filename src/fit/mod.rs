@@ -18,6 +18,7 @@
 //! bounds; statistics are computed at the returned point with the exact
 //! Jacobian.
 
+pub mod curves;
 pub mod data;
 pub mod lm;
 pub mod rates;
@@ -331,49 +332,269 @@ pub fn fit_rates(
             "{n} usable data points cannot determine {p} free params"
         )));
     }
-    let outcome = minimize(&problem, &start, &options);
+    let names: Vec<String> = problem
+        .free
+        .iter()
+        .map(|f| fitted_model.name_of(f.sym).to_string())
+        .collect();
+    let units: Vec<Option<String>> = problem
+        .free
+        .iter()
+        .map(|f| match f.sym {
+            Sym::Param(i) => fitted_model.params[i]
+                .dim
+                .map(|d| d.display_in(fitted_model.units)),
+            _ => None,
+        })
+        .collect();
+    let log: Vec<bool> = problem.free.iter().map(|f| f.log_scale).collect();
+    let unknowns = Unknowns {
+        names,
+        units,
+        log,
+        skipped,
+    };
+    let mut fit = estimate(&problem, &unknowns, &start, &options, request, label)?;
+    let values: Vec<f64> = fit.params.iter().map(|p| p.value).collect();
+    fit.points = problem
+        .points
+        .iter()
+        .map(|pt| (pt.table, pt.line, pt.observed, problem.rate_at(pt, &values)))
+        .collect();
+    fit.rate_of = rate_of;
+    Ok(fit)
+}
+
+/// Fits assay data: progress curves when the tables have a `t` column,
+/// rate tables otherwise.
+pub fn fit(
+    model: &Model,
+    label: &str,
+    tables: &[Table],
+    request: &Request,
+) -> Result<Fit, Vec<Diagnostic>> {
+    let timed: Vec<bool> = tables.iter().map(|t| t.column("t").is_some()).collect();
+    match (timed.iter().all(|t| *t), timed.iter().any(|t| *t)) {
+        (true, _) => fit_curves(model, label, tables, request),
+        (false, false) => fit_rates(model, label, tables, request),
+        (false, true) => {
+            let k = timed.iter().position(|t| !*t).unwrap_or(0);
+            Err(vec![
+                Diagnostic::error(
+                    Code::BadData,
+                    format!("{} has no `t` column, but other data files are progress curves: fit rate tables and progress curves separately", tables[k].label),
+                )
+                .with_label(tables[k].columns[0].span, "the header"),
+            ])
+        }
+    }
+}
+
+/// Fits progress curves: every series simulated from its own start.
+pub fn fit_curves(
+    model: &Model,
+    label: &str,
+    tables: &[Table],
+    request: &Request,
+) -> Result<Fit, Vec<Diagnostic>> {
+    if request.free.is_empty() {
+        return Err(request_error(
+            "nothing to fit: name the free params with --free NAME[=START][:LO..HI]".into(),
+        ));
+    }
+    let mut free = Vec::new();
+    let mut start = Vec::new();
+    let mut names = Vec::new();
+    let mut units = Vec::new();
+    let mut log = Vec::new();
+    let mut skipped = Vec::new();
+    let mut errors = Vec::new();
+    let mut lower = Vec::new();
+    let mut upper = Vec::new();
+    for spec in &request.free {
+        let conc = Some(Dim::CONC.display_in(model.units));
+        let found = match spec.name.strip_suffix("(0)") {
+            Some(species) => match model.lookup(species) {
+                Some(Sym::Species(i)) => {
+                    Some((species.to_string(), model.species[i].initial, conc))
+                }
+                _ => None,
+            },
+            None => match model.lookup(&spec.name) {
+                Some(Sym::Param(i)) if matches!(model.params[i].definition, ParamDef::Value(_)) => {
+                    Some((
+                        spec.name.clone(),
+                        model.params[i].value,
+                        model.params[i].dim.map(|d| d.display_in(model.units)),
+                    ))
+                }
+                Some(Sym::Total(k)) if model.totals[k].value_given => {
+                    Some((spec.name.clone(), model.totals[k].value, conc))
+                }
+                Some(Sym::Fixed(k)) => Some((spec.name.clone(), model.fixed[k].value, conc)),
+                _ => None,
+            },
+        };
+        let Some((target, default, unit)) = found else {
+            if request.skip_missing {
+                skipped.push(spec.name.clone());
+                continue;
+            }
+            let mut d = Diagnostic::error(
+                Code::BadFitRequest,
+                format!(
+                    "--free: `{}` is no param (with a value), initial value NAME(0), total with a value or fixed species of {label}",
+                    spec.name
+                ),
+            );
+            let names = model.all_names();
+            if let Some(h) = did_you_mean(
+                spec.name.trim_end_matches("(0)"),
+                names.iter().map(String::as_str),
+            ) {
+                d = d.with_help(format!("did you mean `{h}`?"));
+            }
+            errors.push(d);
+            continue;
+        };
+        let value = spec.start.unwrap_or(default);
+        let (lo, hi) = (
+            spec.lower.unwrap_or(f64::NEG_INFINITY),
+            spec.upper.unwrap_or(f64::INFINITY),
+        );
+        if lo >= hi || value < lo || value > hi || !value.is_finite() {
+            errors.push(Diagnostic::error(
+                Code::BadFitRequest,
+                format!(
+                    "--free: the start {value} of `{}` is not inside its bounds {lo}..{hi}",
+                    spec.name
+                ),
+            ));
+            continue;
+        }
+        let log_scale = request.log_scale && value > 0.0 && spec.lower.is_none_or(|l| l >= 0.0);
+        if log_scale {
+            start.push(value.ln());
+            lower.push(if lo > 0.0 { lo.ln() } else { f64::NEG_INFINITY });
+            upper.push(hi.ln());
+        } else {
+            start.push(value);
+            lower.push(lo);
+            upper.push(hi);
+        }
+        free.push(curves::FreeValue { target, log_scale });
+        names.push(spec.name.clone());
+        units.push(unit);
+        log.push(log_scale);
+    }
+    if !errors.is_empty() {
+        return Err(errors);
+    }
+    if free.is_empty() {
+        return Err(request_error(
+            "nothing to fit: none of the free names is in this model".into(),
+        ));
+    }
+    let mut options = Options::unbounded(free.len());
+    options.lower = lower;
+    options.upper = upper;
+    let mut problem = curves::CurveProblem::new(model, free).map_err(|d| vec![d])?;
+    for table in tables {
+        if let Err(e) = problem.add_table(table, &request.weight) {
+            errors.extend(e);
+        }
+    }
+    if !errors.is_empty() {
+        return Err(errors);
+    }
+    if problem.count <= names.len() {
+        return Err(request_error(format!(
+            "{} measurements cannot determine {} free values",
+            problem.count,
+            names.len()
+        )));
+    }
+    let unknowns = Unknowns {
+        names,
+        units,
+        log,
+        skipped,
+    };
+    let mut fit = estimate(&problem, &unknowns, &start, &options, request, label)?;
+    let values: Vec<f64> = fit.params.iter().map(|p| p.value).collect();
+    if let Ok(predicted) = problem.predictions(&values) {
+        let mut k = 0;
+        for s in &problem.series {
+            for &(_, _, observed, _, line) in &s.measurements {
+                fit.points.push((0, line, observed, predicted[k]));
+                k += 1;
+            }
+        }
+    }
+    fit.rate_of = format!("progress curves of {} series", problem.series.len());
+    Ok(fit)
+}
+
+/// The unknowns of a fit, for its report.
+struct Unknowns {
+    names: Vec<String>,
+    units: Vec<Option<String>>,
+    log: Vec<bool>,
+    skipped: Vec<String>,
+}
+
+/// Minimizes and computes the statistics at the optimum.
+fn estimate(
+    problem: &dyn lm::Residuals,
+    unknowns: &Unknowns,
+    start: &[f64],
+    options: &Options,
+    request: &Request,
+    label: &str,
+) -> Result<Fit, Vec<Diagnostic>> {
+    let n = problem.residual_count();
+    let p = start.len();
+    let outcome = minimize(problem, start, options);
     if let lm::Stop::StartFailed(e) = &outcome.stop {
         return Err(vec![
             Diagnostic::error(Code::FitFailed, format!("fitting {label}: {e}"))
                 .with_help("choose other starting values with --free NAME=START"),
         ]);
     }
-    let values = problem.values(&outcome.x);
+    let values: Vec<f64> = outcome
+        .x
+        .iter()
+        .zip(&unknowns.log)
+        .map(|(x, log)| if *log { x.exp() } else { *x })
+        .collect();
     let linear_jacobian: Vec<f64> = outcome
         .jacobian
         .iter()
         .enumerate()
         .map(|(k, d)| {
             let j = k % p;
-            if problem.free[j].log_scale {
-                d / values[j]
-            } else {
-                *d
-            }
+            if unknowns.log[j] { d / values[j] } else { *d }
         })
         .collect();
     let summary = stats::summarize(&values, &linear_jacobian, outcome.ssr, n);
-    let names: Vec<String> = problem
-        .free
-        .iter()
-        .map(|f| fitted_model.name_of(f.sym).to_string())
-        .collect();
     let profiles = if request.profile {
         Some(profile_intervals(
-            &problem,
+            problem,
+            &unknowns.log,
             &outcome.x,
             outcome.ssr,
-            &options,
+            options,
             &summary,
         ))
     } else {
         None
     };
-    let mut warnings = identifiability_warnings(&names, &values, &summary, &options, &outcome.x);
-    if !skipped.is_empty() {
+    let mut warnings =
+        identifiability_warnings(&unknowns.names, &values, &summary, options, &outcome.x);
+    if !unknowns.skipped.is_empty() {
         warnings.push(format!(
             "not in this model, so not fitted here: {}",
-            skipped.join(", ")
+            unknowns.skipped.join(", ")
         ));
     }
     if outcome.failed_evaluations > 0 {
@@ -382,31 +603,16 @@ pub fn fit_rates(
             outcome.failed_evaluations
         ));
     }
-    let params = names
-        .iter()
-        .enumerate()
-        .map(|(j, name)| {
-            let i = match problem.free[j].sym {
-                Sym::Param(i) => i,
-                _ => 0,
-            };
-            FittedParam {
-                name: name.clone(),
-                value: values[j],
-                stderr: summary.stderr[j],
-                ci95: summary.ci95[j],
-                profile: profiles.as_ref().map(|p| p[j]),
-                unit: fitted_model.params[i]
-                    .dim
-                    .map(|d| d.display_in(fitted_model.units)),
-                log_scale: problem.free[j].log_scale,
-            }
+    let params = (0..p)
+        .map(|j| FittedParam {
+            name: unknowns.names[j].clone(),
+            value: values[j],
+            stderr: summary.stderr[j],
+            ci95: summary.ci95[j],
+            profile: profiles.as_ref().map(|pr| pr[j]),
+            unit: unknowns.units[j].clone(),
+            log_scale: unknowns.log[j],
         })
-        .collect();
-    let points = problem
-        .points
-        .iter()
-        .map(|pt| (pt.table, pt.line, pt.observed, problem.rate_at(pt, &values)))
         .collect();
     Ok(Fit {
         params,
@@ -422,8 +628,8 @@ pub fn fit_rates(
         iterations: outcome.iterations,
         stop: outcome.stop.describe(),
         warnings,
-        points,
-        rate_of,
+        points: Vec::new(),
+        rate_of: String::new(),
     })
 }
 
@@ -475,7 +681,8 @@ fn identifiability_warnings(
 /// sum of squares, minimized over the other params, reaches
 /// SSR · (1 + F(0.95; 1, n − p)/(n − p)) (Bates & Watts 1988, ch. 6).
 fn profile_intervals(
-    problem: &RateProblem,
+    problem: &dyn lm::Residuals,
+    log: &[bool],
     best: &[f64],
     ssr: f64,
     options: &Options,
@@ -487,9 +694,8 @@ fn profile_intervals(
         .map(|j| {
             let profile_ssr = |fixed: f64, from: &[f64]| -> f64 {
                 if p == 1 {
-                    let mut r = vec![0.0; problem.points.len()];
-                    let mut jac = vec![0.0; problem.points.len()];
-                    use lm::Residuals;
+                    let mut r = vec![0.0; problem.residual_count()];
+                    let mut jac = vec![0.0; problem.residual_count()];
                     return match problem.evaluate(&[fixed], &mut r, &mut jac) {
                         Ok(()) => r.iter().map(|v| v * v).sum(),
                         Err(_) => f64::INFINITY,
@@ -522,8 +728,8 @@ fn profile_intervals(
                     f64::INFINITY
                 }
             };
-            let value = problem.values(best)[j];
-            let spread = if problem.free[j].log_scale {
+            let value = if log[j] { best[j].exp() } else { best[j] };
+            let spread = if log[j] {
                 s.stderr[j] / value
             } else {
                 s.stderr[j]
@@ -571,11 +777,7 @@ fn profile_intervals(
                 ends[side] = 0.5 * (inner + outer);
             }
             let to_value = |v: f64| {
-                if problem.free[j].log_scale {
-                    v.exp()
-                } else {
-                    v
-                }
+                if log[j] { v.exp() } else { v }
             };
             (to_value(ends[0]), to_value(ends[1]))
         })
@@ -583,15 +785,15 @@ fn profile_intervals(
 }
 
 /// The problem with one unknown held at a value.
-struct Fixed<'a, 'b> {
-    problem: &'a RateProblem<'b>,
+struct Fixed<'a> {
+    problem: &'a dyn lm::Residuals,
     index: usize,
     value: f64,
 }
 
-impl lm::Residuals for Fixed<'_, '_> {
+impl lm::Residuals for Fixed<'_> {
     fn residual_count(&self) -> usize {
-        self.problem.points.len()
+        self.problem.residual_count()
     }
     fn evaluate(&self, x: &[f64], r: &mut [f64], jacobian: &mut [f64]) -> Result<(), String> {
         let p = x.len() + 1;
