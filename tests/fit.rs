@@ -550,8 +550,21 @@ fn four_step_curves(dir: &Path) -> (String, Value) {
         let m = dir.join("truth.mech");
         std::fs::write(&m, FOUR_STEPS.replace("A = 10 uM", &format!("A = {a0} uM"))).unwrap();
         let out_csv = dir.join("truth.csv");
-        let out = ratewright(&["run", m.to_str().unwrap(), "--until", "30", "--points", "16", "-o", out_csv.to_str().unwrap()]);
-        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        let out = ratewright(&[
+            "run",
+            m.to_str().unwrap(),
+            "--until",
+            "30",
+            "--points",
+            "16",
+            "-o",
+            out_csv.to_str().unwrap(),
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
         let text = std::fs::read_to_string(&out_csv).unwrap();
         let (mut ts, mut bs, mut ds) = (vec![], vec![], vec![]);
         for line in text.lines().skip(1) {
@@ -575,20 +588,112 @@ fn progress_curves_agree_with_scipy() {
     let dir = tempfile::tempdir().unwrap();
     let (csv, mut spec) = four_step_curves(dir.path());
     let start = [("k1", 0.3), ("k2", 0.3), ("k3", 0.2), ("k4", 0.2)];
-    spec["start"] = serde_json::json!(start.iter().map(|(n, v)| (n.to_string(), Value::from(*v))).collect::<serde_json::Map<String, Value>>());
+    spec["start"] = serde_json::json!(
+        start
+            .iter()
+            .map(|(n, v)| (n.to_string(), Value::from(*v)))
+            .collect::<serde_json::Map<String, Value>>()
+    );
     let free: Vec<String> = start.iter().map(|(n, v)| format!("{n}={v}")).collect();
     let j = fit_json(dir.path(), FOUR_STEPS, &csv, &["--free", &free.join(",")]);
     assert_eq!(j["n"], 96);
     let spec_path = dir.path().join("spec.json");
     std::fs::write(&spec_path, spec.to_string()).unwrap();
-    let out = common::python(&root().join("tests/python/fit_progress_scipy.py"), &[spec_path.to_str().unwrap()]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let out = common::python(
+        &root().join("tests/python/fit_progress_scipy.py"),
+        &[spec_path.to_str().unwrap()],
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let reference: Value = serde_json::from_slice(&out.stdout).unwrap();
     for (name, _) in start {
-        let (v, se) = (j["parameters"][name]["value"].as_f64().unwrap(), j["parameters"][name]["stderr"].as_f64().unwrap());
-        let (rv, rse) = (reference["params"][name].as_f64().unwrap(), reference["stderr"][name].as_f64().unwrap());
+        let (v, se) = (
+            j["parameters"][name]["value"].as_f64().unwrap(),
+            j["parameters"][name]["stderr"].as_f64().unwrap(),
+        );
+        let (rv, rse) = (
+            reference["params"][name].as_f64().unwrap(),
+            reference["stderr"][name].as_f64().unwrap(),
+        );
         assert!(relative(v, rv) < 1e-6, "{name}: {v} vs SciPy {rv}");
         assert!(relative(se, rse) < 1e-3, "se({name}): {se} vs SciPy {rse}");
     }
-    assert!(relative(j["ssr"].as_f64().unwrap(), reference["ssr"].as_f64().unwrap()) < 1e-8);
+    assert!(
+        relative(
+            j["ssr"].as_f64().unwrap(),
+            reference["ssr"].as_f64().unwrap()
+        ) < 1e-8
+    );
+}
+
+/// `-o fitted.mech`: the model file with the fitted values in place, each
+/// in the unit it was written in, layout and comments kept, one provenance
+/// line (replaced, not added, on a refit, which moves the value only at
+/// round-off). Never over an input.
+#[test]
+fn the_fitted_model_is_written_in_place() {
+    let dir = tempfile::tempdir().unwrap();
+    let model = dir.path().join("decay.mech");
+    // Invented: first-order decay written in minutes; data in seconds.
+    std::fs::write(&model, "# a decay\nspecies A = 1 uM, B  # start\nparam k = 0.5 /min \"rate\"\nstep s A -> B with k\n").unwrap();
+    let data = dir.path().join("d.csv");
+    let mut csv = String::from("t [s],A\n");
+    for t in [0.0, 30.0, 60.0, 120.0, 240.0] {
+        csv.push_str(&format!(
+            "{t},{}\n",
+            (-0.02 * t / 60.0 * 60.0f64).exp() * 1.0
+        ));
+    }
+    std::fs::write(&data, &csv).unwrap();
+    let out_path = dir.path().join("fitted.mech");
+    let run = |m: &Path, o: &Path| {
+        ratewright(&[
+            "fit",
+            m.to_str().unwrap(),
+            "--data",
+            data.to_str().unwrap(),
+            "--free",
+            "k",
+            "-o",
+            o.to_str().unwrap(),
+        ])
+    };
+    let r = run(&model, &out_path);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    let text = std::fs::read_to_string(&out_path).unwrap();
+    // k = 0.02 /s = 1.2 /min.
+    let line = text.lines().find(|l| l.starts_with("param k")).unwrap();
+    let value: f64 = line.split_whitespace().nth(3).unwrap().parse().unwrap();
+    assert!(relative(value, 1.2) < 1e-6, "{line}");
+    assert!(line.contains("/min") && line.contains("\"rate\""), "{line}");
+    assert!(text.starts_with("# fitted by `ratewright fit`"), "{text}");
+    assert!(
+        text.contains("# a decay\nspecies A = 1 uM, B  # start\n"),
+        "{text}"
+    );
+    assert!(
+        ratewright(&["check", "--deny-warnings", out_path.to_str().unwrap()])
+            .status
+            .success()
+    );
+    // Refit the written file into a second one: the same text.
+    let again = dir.path().join("again.mech");
+    assert!(run(&out_path, &again).status.success());
+    let again_text = std::fs::read_to_string(&again).unwrap();
+    assert_eq!(again_text.lines().count(), text.lines().count());
+    assert_eq!(again_text.matches("# fitted by").count(), 1);
+    let line = again_text
+        .lines()
+        .find(|l| l.starts_with("param k"))
+        .unwrap();
+    let refit: f64 = line.split_whitespace().nth(3).unwrap().parse().unwrap();
+    assert!(relative(refit, value) < 1e-9, "{line}");
+    // Never over an input.
+    let before = std::fs::read_to_string(&model).unwrap();
+    let r = run(&model, &model);
+    assert_eq!(r.status.code(), Some(2));
+    assert_eq!(std::fs::read_to_string(&model).unwrap(), before);
 }

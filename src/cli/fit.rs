@@ -41,6 +41,9 @@ pub struct Args {
     /// Output format.
     #[arg(long, value_enum, default_value_t = super::Format::Human)]
     pub format: super::Format,
+    /// Write the model file with the fitted values in place (one model).
+    #[arg(short = 'o', long, value_name = "FITTED.mech")]
+    pub output: Option<PathBuf>,
 }
 
 #[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
@@ -161,6 +164,22 @@ pub fn run(args: &Args) -> ExitCode {
             }
         },
     };
+    // The output is checked before any work (exit 2), and is never an input.
+    if let Some(path) = &args.output {
+        if args.files.len() > 1 {
+            return usage_error_as(json, "-o writes one fitted model: give one model file");
+        }
+        if path.extension().is_none_or(|e| e != "mech") {
+            return usage_error_as(
+                json,
+                format!("-o {}: the fitted model is a .mech file", path.display()),
+            );
+        }
+        let inputs: Vec<PathBuf> = args.files.iter().chain(&args.data).cloned().collect();
+        if let Err(e) = super::output::sinks_for(&[path.as_path()], &inputs) {
+            return usage_error_as(json, e);
+        }
+    }
     let (tables, data_sources) = match read_tables(&args.data) {
         Ok(t) => t,
         Err((diags, sources, unreadable)) => {
@@ -195,7 +214,28 @@ pub fn run(args: &Args) -> ExitCode {
         };
         let label = file.display().to_string();
         match fit::fit(&model, &label, &tables, &request) {
-            Ok(f) => fits.push((label, f)),
+            Ok(f) => {
+                if let Some(path) = &args.output {
+                    let file = model_sources.find(file).unwrap_or_default();
+                    let text = model_sources
+                        .get(file)
+                        .map(|s| s.text.clone())
+                        .unwrap_or_default();
+                    let data: Vec<String> =
+                        args.data.iter().map(|d| d.display().to_string()).collect();
+                    let written =
+                        match fit::write::with_fitted_values(&text, file, &model, &f, &data) {
+                            Ok(t) => t,
+                            Err(e) => return usage_error_as(json, format!("-o: {e}")),
+                        };
+                    let inputs: Vec<PathBuf> =
+                        args.files.iter().chain(&args.data).cloned().collect();
+                    if let Err(e) = super::common::write_atomic(path, written.as_bytes(), &inputs) {
+                        return super::common::run_error(e);
+                    }
+                }
+                fits.push((label, f))
+            }
             Err(diags) => {
                 let sources = if diags.iter().any(|d| d.primary_span().is_some()) {
                     &data_sources

@@ -23,6 +23,7 @@ pub mod data;
 pub mod lm;
 pub mod rates;
 pub mod stats;
+pub mod write;
 
 use crate::diagnostics::{Code, Diagnostic, did_you_mean};
 use crate::model::{Dim, Expr, Model, ParamDef, Sym, load_str};

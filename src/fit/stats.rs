@@ -145,7 +145,7 @@ mod tests {
     #[test]
     fn standard_error_of_a_slope() {
         // Residuals of y = b x at b = 7/5: (0, 1 - 7/5, 3 - 14/5).
-        let b = 7.0 / 5.0;
+        let b: f64 = 7.0 / 5.0;
         let ssr = (1.0 - b).powi(2) + (3.0 - 2.0 * b).powi(2);
         let s = summarize(&[b], &[0.0, 1.0, 2.0], ssr, 3);
         assert!((s.stderr[0] - (ssr / 2.0 / 5.0).sqrt()).abs() < 1e-12);
