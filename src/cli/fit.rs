@@ -41,6 +41,10 @@ pub struct Args {
     /// Output format.
     #[arg(long, value_enum, default_value_t = super::Format::Human)]
     pub format: super::Format,
+    /// Minimize from this many starting points (the given one and a Latin
+    /// hypercube over the bounds), in parallel; the best is kept.
+    #[arg(long, default_value_t = 1, value_name = "N")]
+    pub starts: usize,
     /// Write the model file with the fitted values in place (one model).
     #[arg(short = 'o', long, value_name = "FITTED.mech")]
     pub output: Option<PathBuf>,
@@ -211,6 +215,7 @@ pub fn run(args: &Args) -> ExitCode {
             profile: args.profile,
             log_scale: args.scale == Scale::Log,
             skip_missing: args.files.len() > 1,
+            starts: args.starts,
         };
         let label = file.display().to_string();
         match fit::fit(&model, &label, &tables, &request) {

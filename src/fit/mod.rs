@@ -56,6 +56,8 @@ pub struct Request {
     /// Skip free names the model does not have (rival models share one
     /// list of free names), with a warning.
     pub skip_missing: bool,
+    /// Starting points of a multi-start (1: the given start only).
+    pub starts: usize,
 }
 
 #[derive(Clone, Debug)]
@@ -546,7 +548,7 @@ struct Unknowns {
 
 /// Minimizes and computes the statistics at the optimum.
 fn estimate(
-    problem: &dyn lm::Residuals,
+    problem: &(dyn lm::Residuals + Sync),
     unknowns: &Unknowns,
     start: &[f64],
     options: &Options,
@@ -555,7 +557,7 @@ fn estimate(
 ) -> Result<Fit, Vec<Diagnostic>> {
     let n = problem.residual_count();
     let p = start.len();
-    let outcome = minimize(problem, start, options);
+    let (outcome, spread) = multi_start(problem, start, options, request.starts);
     if let lm::Stop::StartFailed(e) = &outcome.stop {
         return Err(vec![
             Diagnostic::error(Code::FitFailed, format!("fitting {label}: {e}"))
@@ -603,6 +605,9 @@ fn estimate(
             "the model could not be evaluated at {} trial points; the steps were shrunk",
             outcome.failed_evaluations
         ));
+    }
+    if let Some(spread) = &spread {
+        warnings.push(spread.clone());
     }
     let params = (0..p)
         .map(|j| FittedParam {
@@ -678,11 +683,107 @@ fn identifiability_warnings(
     out
 }
 
+/// Minimizes from `start` and, with `starts` > 1, from a Latin hypercube
+/// of further starting points over the bounds (where a bound is missing,
+/// the start ± its size on the fitted scale, at least a decade on the log
+/// scale), in parallel; the best optimum is kept and the spread of the
+/// others summarized.
+fn multi_start(
+    problem: &(dyn lm::Residuals + Sync),
+    start: &[f64],
+    options: &Options,
+    starts: usize,
+) -> (lm::Outcome, Option<String>) {
+    use rayon::prelude::*;
+    if starts <= 1 {
+        return (minimize(problem, start, options), None);
+    }
+    let p = start.len();
+    let ranges: Vec<(f64, f64)> = (0..p)
+        .map(|j| {
+            let width = if start[j].abs() > 0.0 {
+                start[j].abs()
+            } else {
+                1.0
+            };
+            let width = width.max(std::f64::consts::LN_10);
+            let lo = if options.lower[j].is_finite() {
+                options.lower[j]
+            } else {
+                start[j] - width
+            };
+            let hi = if options.upper[j].is_finite() {
+                options.upper[j]
+            } else {
+                start[j] + width
+            };
+            (lo, hi)
+        })
+        .collect();
+    // Latin hypercube: each coordinate's strata in a shuffled order, the
+    // shuffle and the point within a stratum from a fixed seed (SplitMix64),
+    // so a run is reproducible.
+    let mut state = 0x5EED_u64;
+    let mut next = || {
+        state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = state;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let extra = starts - 1;
+    let mut points = vec![start.to_vec()];
+    let mut strata: Vec<Vec<usize>> = Vec::new();
+    for _ in 0..p {
+        let mut order: Vec<usize> = (0..extra).collect();
+        for i in (1..extra).rev() {
+            let k = (next() * (i + 1) as f64) as usize;
+            order.swap(i, k.min(i));
+        }
+        strata.push(order);
+    }
+    for k in 0..extra {
+        points.push(
+            (0..p)
+                .map(|j| {
+                    let u = (strata[j][k] as f64 + next()) / extra as f64;
+                    ranges[j].0 + u * (ranges[j].1 - ranges[j].0)
+                })
+                .collect(),
+        );
+    }
+    let outcomes: Vec<lm::Outcome> = points
+        .par_iter()
+        .map(|x0| minimize(problem, x0, options))
+        .collect();
+    let finite: Vec<&lm::Outcome> = outcomes.iter().filter(|o| o.ssr.is_finite()).collect();
+    let Some(best) = finite
+        .iter()
+        .min_by(|a, b| a.ssr.total_cmp(&b.ssr))
+        .copied()
+    else {
+        return (
+            outcomes.into_iter().next().expect("one start at least"),
+            None,
+        );
+    };
+    let reached = finite
+        .iter()
+        .filter(|o| (o.ssr - best.ssr).abs() <= 1e-6 * best.ssr.max(f64::MIN_POSITIVE))
+        .count();
+    let worst = finite.iter().map(|o| o.ssr).fold(best.ssr, f64::max);
+    let note = format!(
+        "multi-start: {reached} of {starts} starts reached the best SSR (within 1e-6); {} failed; the worst optimum found had SSR {worst:.6e}",
+        starts - finite.len()
+    );
+    (best.clone(), Some(note))
+}
+
 /// Profile-likelihood 95% intervals: for each param, the values where the
 /// sum of squares, minimized over the other params, reaches
 /// SSR · (1 + F(0.95; 1, n − p)/(n − p)) (Bates & Watts 1988, ch. 6).
 fn profile_intervals(
-    problem: &dyn lm::Residuals,
+    problem: &(dyn lm::Residuals + Sync),
     log: &[bool],
     best: &[f64],
     ssr: f64,
