@@ -6,11 +6,13 @@ params themselves.
 
 Input (a JSON file): {"series": [{"A0": .., "t": [..], "B": [..], "D": [..]}],
 "start": {"k1": .., "k2": .., "k3": .., "k4": ..}, "k5": ..}.
-Output: {"params": {name: value}, "stderr": {name: se}, "ssr": ..}.
+Output: {"params": {name: value}, "stderr": {name: se}, "ssr": ..,
+"seconds": the fit's time in process}.
 """
 
 import json
 import sys
+import time
 
 import numpy as np
 from scipy.integrate import solve_ivp
@@ -39,7 +41,9 @@ def main():
         return np.array(out)
 
     x0 = np.log([spec["start"][n] for n in NAMES])
+    started = time.perf_counter()
     fit = least_squares(residuals, x0, method="lm", jac="3-point", xtol=1e-15, ftol=1e-15, gtol=1e-15)
+    seconds = time.perf_counter() - started
     k = np.exp(fit.x)
     jac = fit.jac / k  # d r / d k = (d r / d ln k) / k
     n, p = jac.shape
@@ -49,6 +53,7 @@ def main():
         "params": dict(zip(NAMES, map(float, k))),
         "stderr": dict(zip(NAMES, map(float, np.sqrt(np.diag(cov))))),
         "ssr": ssr,
+        "seconds": seconds,
     }))
 
 
