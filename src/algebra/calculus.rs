@@ -381,30 +381,30 @@ fn power(base: Expr, exponent: Expr) -> Expr {
         (Some(1.0), _) => return num(1.0),
         _ => {}
     }
-    if let (Expr::Binary(BinOp::Pow, inner, m), Some(n)) = (&base, number(&exponent)) {
-        if let Some(m) = number(m) {
-            if is_integer(n) {
-                return power((**inner).clone(), num(m * n));
-            }
-        }
+    if let (Expr::Binary(BinOp::Pow, inner, m), Some(n)) = (&base, number(&exponent))
+        && let Some(m) = number(m)
+        && is_integer(n)
+    {
+        return power((**inner).clone(), num(m * n));
     }
     // A product raised to an integer: distribute, so factors can collect.
-    if let Some(n) = number(&exponent) {
-        if is_integer(n) && matches!(base, Expr::Binary(BinOp::Mul | BinOp::Div, _, _)) {
-            let mut inner = Product::one();
-            collect_product(&base, true, &mut inner);
-            let mut p = Product::one();
-            p.coef = crate::model::expr::pow(inner.coef, n);
-            for (b, x) in inner.factors {
-                let x = match number(&x) {
-                    Some(v) => num(v * n),
-                    None => simplify(&mul(x, num(n))),
-                };
-                p.add_factor(b, x);
-            }
-            if p.coef.is_finite() {
-                return p.build();
-            }
+    if let Some(n) = number(&exponent)
+        && is_integer(n)
+        && matches!(base, Expr::Binary(BinOp::Mul | BinOp::Div, _, _))
+    {
+        let mut inner = Product::one();
+        collect_product(&base, true, &mut inner);
+        let mut p = Product::one();
+        p.coef = crate::model::expr::pow(inner.coef, n);
+        for (b, x) in inner.factors {
+            let x = match number(&x) {
+                Some(v) => num(v * n),
+                None => simplify(&mul(x, num(n))),
+            };
+            p.add_factor(b, x);
+        }
+        if p.coef.is_finite() {
+            return p.build();
         }
     }
     Expr::pow(base, exponent)

@@ -98,9 +98,11 @@ fn parse_free(text: &str, model: &Model) -> Result<FreeSpec, String> {
     })
 }
 
-fn read_tables(
-    paths: &[PathBuf],
-) -> Result<(Vec<fit::data::Table>, SourceMap), (Vec<Diagnostic>, SourceMap, bool)> {
+/// The tables with the source map holding their text; or the diagnostics,
+/// that map, and whether a file could not be read at all (exit 2).
+type TablesRead = Result<(Vec<fit::data::Table>, SourceMap), (Vec<Diagnostic>, SourceMap, bool)>;
+
+fn read_tables(paths: &[PathBuf]) -> TablesRead {
     let mut sources = SourceMap::new();
     let mut tables = Vec::new();
     let mut errors = Vec::new();

@@ -279,14 +279,14 @@ fn named_details(ctx: &Context, a: Sym, b: Sym) -> Vec<Detail> {
                             new: quantity(new, *y, dq),
                         });
                     }
-                    if let (Some(x), Some(y)) = (dp, dq) {
-                        if x != y {
-                            d.push(Detail {
-                                aspect: "dimension",
-                                old: Shown::Text(x.to_string()),
-                                new: Shown::Text(y.to_string()),
-                            });
-                        }
+                    if let (Some(x), Some(y)) = (dp, dq)
+                        && x != y
+                    {
+                        d.push(Detail {
+                            aspect: "dimension",
+                            old: Shown::Text(x.to_string()),
+                            new: Shown::Text(y.to_string()),
+                        });
                     }
                 }
                 _ => {
@@ -376,14 +376,14 @@ fn named_details(ctx: &Context, a: Sym, b: Sym) -> Vec<Detail> {
                 old: Shown::Text(kind_word(a).into()),
                 new: Shown::Text(kind_word(b).into()),
             });
-            if let (Some(x), Some(y)) = (value_of(old, a), value_of(new, b)) {
-                if !ctx.same_value(x, y, conc) {
-                    d.push(Detail {
-                        aspect: "value",
-                        old: quantity(old, x, conc),
-                        new: quantity(new, y, conc),
-                    });
-                }
+            if let (Some(x), Some(y)) = (value_of(old, a), value_of(new, b))
+                && !ctx.same_value(x, y, conc)
+            {
+                d.push(Detail {
+                    aspect: "value",
+                    old: quantity(old, x, conc),
+                    new: quantity(new, y, conc),
+                });
             }
         }
     }

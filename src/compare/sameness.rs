@@ -62,13 +62,12 @@ impl Dims {
         for step in &model.steps {
             if let Rate::MassAction { forward, reverse } = &step.rate {
                 let mut infer = |e: &Expr, side: &[Term]| {
-                    if let Expr::Name(Sym::Param(i)) = e {
-                        if params[*i].is_none() {
-                            let order = Model::order(side);
-                            if order.is_integer() {
-                                params[*i] =
-                                    Some(Dim::mass_action_constant(order.to_integer() as i32));
-                            }
+                    if let Expr::Name(Sym::Param(i)) = e
+                        && params[*i].is_none()
+                    {
+                        let order = Model::order(side);
+                        if order.is_integer() {
+                            params[*i] = Some(Dim::mass_action_constant(order.to_integer() as i32));
                         }
                     }
                 };

@@ -135,10 +135,10 @@ fn document(sys: &System, options: &EmitOptions) -> String {
     let mut dims: BTreeSet<(i32, i32)> = BTreeSet::new();
     dims.insert((1, 0));
     for p in &m.params {
-        if let Some(d) = p.dim {
-            if d != Dim::NONE {
-                dims.insert((d.conc, d.time));
-            }
+        if let Some(d) = p.dim
+            && d != Dim::NONE
+        {
+            dims.insert((d.conc, d.time));
         }
     }
     o.push_str("    <listOfUnitDefinitions>\n");

@@ -204,10 +204,9 @@ fn rate_model(
 
 /// The free params, their starting points and bounds in the fitted
 /// scale, and the names skipped (with `skip_missing`).
-fn free_params(
-    model: &Model,
-    request: &Request,
-) -> Result<(Vec<FreeParam>, Vec<f64>, Options, Vec<String>), Vec<Diagnostic>> {
+type FreeSetup = (Vec<FreeParam>, Vec<f64>, Options, Vec<String>);
+
+fn free_params(model: &Model, request: &Request) -> Result<FreeSetup, Vec<Diagnostic>> {
     let (specs, skipped): (Vec<&FreeSpec>, Vec<&FreeSpec>) = request.free.iter().partition(|f| {
         !request.skip_missing || matches!(model.lookup(&f.name), Some(Sym::Param(_)))
     });

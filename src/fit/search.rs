@@ -67,6 +67,7 @@ pub(super) fn multi_start(
         }
         strata.push(order);
     }
+    #[allow(clippy::needless_range_loop)] // k picks a stratum of every coordinate
     for k in 0..extra {
         points.push(
             (0..p)

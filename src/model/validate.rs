@@ -215,7 +215,7 @@ impl Checker<'_> {
                     format!("changes species #{}, which does not exist", e.species),
                 );
             }
-            if !(e.time.is_finite() && e.time >= 0.0) || !e.amount.is_finite() {
+            if !e.time.is_finite() || e.time < 0.0 || !e.amount.is_finite() {
                 self.broken(&item, format!("is {} at {}", e.amount, e.time));
             }
         }

@@ -270,7 +270,7 @@ fn never_fire(model: &Model) -> Vec<usize> {
     let mut users: Vec<Vec<usize>> = vec![Vec::new(); n + nf];
     let sides = |d: usize| {
         let s = &model.steps[d / 2];
-        if d % 2 == 0 {
+        if d.is_multiple_of(2) {
             (&s.reactants, &s.products)
         } else {
             (&s.products, &s.reactants)

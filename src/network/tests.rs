@@ -395,7 +395,7 @@ fn reduced_system_reproduces_the_full_one_on_random_networks() {
                     terms.join(" + ")
                 });
             }
-            let arrow = if next(&mut state) % 2 == 0 {
+            let arrow = if next(&mut state).is_multiple_of(2) {
                 "->"
             } else {
                 "<=>"

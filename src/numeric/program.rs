@@ -161,11 +161,11 @@ impl<'a> ProgramBuilder<'a> {
                 self.emit(Node::Neg(a))
             }
             Expr::Binary(op, a, b) => {
-                if *op == BinOp::Pow {
-                    if let Some(n) = small_integer(b) {
-                        let a = self.lower(a)?;
-                        return Ok(self.emit(Node::PowInt(a, n)));
-                    }
+                if *op == BinOp::Pow
+                    && let Some(n) = small_integer(b)
+                {
+                    let a = self.lower(a)?;
+                    return Ok(self.emit(Node::PowInt(a, n)));
                 }
                 let (a, b) = (self.lower(a)?, self.lower(b)?);
                 match op {
@@ -178,11 +178,12 @@ impl<'a> ProgramBuilder<'a> {
                 }
             }
             Expr::Call(f, args) => {
-                if *f == Func::Pow && args.len() == 2 {
-                    if let Some(n) = small_integer(&args[1]) {
-                        let a = self.lower(&args[0])?;
-                        return Ok(self.emit(Node::PowInt(a, n)));
-                    }
+                if *f == Func::Pow
+                    && args.len() == 2
+                    && let Some(n) = small_integer(&args[1])
+                {
+                    let a = self.lower(&args[0])?;
+                    return Ok(self.emit(Node::PowInt(a, n)));
                 }
                 let mut regs = Vec::with_capacity(args.len());
                 for a in args {

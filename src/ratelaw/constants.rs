@@ -231,8 +231,8 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                     let mut before = Monomial::one();
                     for (k, (x, name, _)) in side[..side.len() - 1].iter().enumerate() {
                         let with_x = before.mul(&Monomial::var(*x));
-                        if let (Some(d_before), Some(d_with)) = (dir.get(&before), dir.get(&with_x)) {
-                            if let Some(value) = ratio(d_before, d_with) {
+                        if let (Some(d_before), Some(d_with)) = (dir.get(&before), dir.get(&with_x))
+                            && let Some(value) = ratio(d_before, d_with) {
                                 let meaning = if k == 0 {
                                     format!("inhibition (dissociation) constant of {name}, the first to bind, from the constant term")
                                 } else {
@@ -248,7 +248,6 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
                                     meaning,
                                 });
                             }
-                        }
                         before = with_x;
                     }
                 } else if side.len() == 2 && dir.top.degree() == 2 {
@@ -279,86 +278,86 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
     }
 
     // Keq and the Haldane relation.
-    if let (Some(f), Some(r)) = (&directions[0], &directions[1]) {
-        if let Some(keq) = ratio(&f.n, &r.n) {
-            constants.push(Constant {
-                name: "Keq".into(),
-                value: keq.clone(),
-                meaning: "equilibrium constant of the overall reaction (products over substrates)"
-                    .into(),
-            });
-            let find = |name: &str| {
-                constants
-                    .iter()
-                    .find(|c| c.name == name)
-                    .map(|c| c.value.clone())
+    if let (Some(f), Some(r)) = (&directions[0], &directions[1])
+        && let Some(keq) = ratio(&f.n, &r.n)
+    {
+        constants.push(Constant {
+            name: "Keq".into(),
+            value: keq.clone(),
+            meaning: "equilibrium constant of the overall reaction (products over substrates)"
+                .into(),
+        });
+        let find = |name: &str| {
+            constants
+                .iter()
+                .find(|c| c.name == name)
+                .map(|c| c.value.clone())
+        };
+        // K_S of the relation: Km of a single substrate; for several,
+        // the Ki of each but the last to bind times the last one's Km
+        // (Ki_A*Km_B, Ki_A*Ki_B*Km_C).
+        let k_side = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
+            let ((_, last, _), rest) = side.split_last()?;
+            let mut names = Vec::new();
+            let mut value = RationalFunction::one();
+            for (_, x, _) in rest {
+                names.push(format!("Ki_{x}"));
+                value = value.mul(&find(&format!("Ki_{x}"))?);
+            }
+            names.push(format!("Km_{last}"));
+            value = value.mul(&find(&format!("Km_{last}"))?);
+            Some((names.join("*"), value))
+        };
+        // Ping-pong: no constant term, so no Ki_A·Km_B product; the
+        // relation over the four Michaelis constants holds instead
+        // (common practice, the ping-pong bi bi Haldane relation).
+        let ping_pong = substrates.len() == 2
+            && products.len() == 2
+            && den
+                .collect(&conc)
+                .get(&Monomial::one())
+                .is_none_or(Poly::is_zero);
+        let km_product = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
+            let [(_, a, _), (_, b, _)] = side else {
+                return None;
             };
-            // K_S of the relation: Km of a single substrate; for several,
-            // the Ki of each but the last to bind times the last one's Km
-            // (Ki_A*Km_B, Ki_A*Ki_B*Km_C).
-            let k_side = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
-                let ((_, last, _), rest) = side.split_last()?;
-                let mut names = Vec::new();
-                let mut value = RationalFunction::one();
-                for (_, x, _) in rest {
-                    names.push(format!("Ki_{x}"));
-                    value = value.mul(&find(&format!("Ki_{x}"))?);
-                }
-                names.push(format!("Km_{last}"));
-                value = value.mul(&find(&format!("Km_{last}"))?);
-                Some((names.join("*"), value))
-            };
-            // Ping-pong: no constant term, so no Ki_A·Km_B product; the
-            // relation over the four Michaelis constants holds instead
-            // (common practice, the ping-pong bi bi Haldane relation).
-            let ping_pong = substrates.len() == 2
-                && products.len() == 2
-                && den
-                    .collect(&conc)
-                    .get(&Monomial::one())
-                    .is_none_or(Poly::is_zero);
-            let km_product = |side: &[(Var, String, usize)]| -> Option<(String, RationalFunction)> {
-                let [(_, a, _), (_, b, _)] = side else {
-                    return None;
-                };
-                let v = find(&format!("Km_{a}"))?.mul(&find(&format!("Km_{b}"))?);
-                Some((format!("Km_{a}*Km_{b}"), v))
-            };
-            if ping_pong {
-                if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
-                    km_product(&substrates),
-                    km_product(&products),
-                    find("kcat"),
-                    find("kcat_r"),
-                ) {
-                    let ratio_v = kf.div(&kr);
-                    let rhs = ratio_v
-                        .as_ref()
-                        .map(|q| q.mul(q).mul(&kp_v))
-                        .and_then(|top| top.div(&ks_v));
-                    let holds = rhs.is_some_and(|r| r.equals(&keq));
-                    relations.push(Relation {
-                        name: "Haldane".into(),
-                        lhs: "Keq".into(),
-                        rhs: format!("(kcat/kcat_r)^2*{kp}/({ks})"),
-                        holds,
-                    });
-                }
-            } else if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
-                k_side(&substrates),
-                k_side(&products),
+            let v = find(&format!("Km_{a}"))?.mul(&find(&format!("Km_{b}"))?);
+            Some((format!("Km_{a}*Km_{b}"), v))
+        };
+        if ping_pong {
+            if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
+                km_product(&substrates),
+                km_product(&products),
                 find("kcat"),
                 find("kcat_r"),
             ) {
-                let rhs = kf.mul(&kp_v).div(&kr.mul(&ks_v));
+                let ratio_v = kf.div(&kr);
+                let rhs = ratio_v
+                    .as_ref()
+                    .map(|q| q.mul(q).mul(&kp_v))
+                    .and_then(|top| top.div(&ks_v));
                 let holds = rhs.is_some_and(|r| r.equals(&keq));
                 relations.push(Relation {
                     name: "Haldane".into(),
                     lhs: "Keq".into(),
-                    rhs: format!("kcat*{kp}/(kcat_r*{ks})"),
+                    rhs: format!("(kcat/kcat_r)^2*{kp}/({ks})"),
                     holds,
                 });
             }
+        } else if let (Some((ks, ks_v)), Some((kp, kp_v)), Some(kf), Some(kr)) = (
+            k_side(&substrates),
+            k_side(&products),
+            find("kcat"),
+            find("kcat_r"),
+        ) {
+            let rhs = kf.mul(&kp_v).div(&kr.mul(&ks_v));
+            let holds = rhs.is_some_and(|r| r.equals(&keq));
+            relations.push(Relation {
+                name: "Haldane".into(),
+                lhs: "Keq".into(),
+                rhs: format!("kcat*{kp}/(kcat_r*{ks})"),
+                holds,
+            });
         }
     }
 
@@ -429,26 +428,26 @@ pub fn name_constants(d: &mut Derivation, model: &Model) {
             let nc = num.set_zero(&zero).collect(&conc);
             let get = |m: &Monomial| dc.get(m).filter(|p| !p.is_zero());
             let mut named = false;
-            if let (Some(d1), Some(di)) = (get(&Monomial::one()), get(&Monomial::var(i))) {
-                if let Some(k) = ratio(d1, di) {
-                    constants.push(Constant {
-                        name: format!("Ki_{name}"),
-                        value: k,
-                        meaning: format!("competitive (slope) inhibition constant of {name}"),
-                    });
-                    named = true;
-                }
+            if let (Some(d1), Some(di)) = (get(&Monomial::one()), get(&Monomial::var(i)))
+                && let Some(k) = ratio(d1, di)
+            {
+                constants.push(Constant {
+                    name: format!("Ki_{name}"),
+                    value: k,
+                    meaning: format!("competitive (slope) inhibition constant of {name}"),
+                });
+                named = true;
             }
             let top_i = f.top.mul(&Monomial::var(i));
-            if let (Some(dt), Some(dti)) = (get(&f.top), get(&top_i)) {
-                if let Some(k) = ratio(dt, dti) {
-                    constants.push(Constant {
-                        name: format!("Kii_{name}"),
-                        value: k,
-                        meaning: format!("uncompetitive (intercept) inhibition constant of {name}"),
-                    });
-                    named = true;
-                }
+            if let (Some(dt), Some(dti)) = (get(&f.top), get(&top_i))
+                && let Some(k) = ratio(dt, dti)
+            {
+                constants.push(Constant {
+                    name: format!("Kii_{name}"),
+                    value: k,
+                    meaning: format!("uncompetitive (intercept) inhibition constant of {name}"),
+                });
+                named = true;
             }
             if !named {
                 // A dead-end inhibitor that binds one form other than the

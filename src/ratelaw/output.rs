@@ -575,10 +575,10 @@ pub fn mechanism(
         for &i in &needed {
             if let ParamDef::Expr(e) = &model.params[i].definition {
                 for s in e.names() {
-                    if let Sym::Param(k) = s {
-                        if !needed.contains(&k) {
-                            more.push(k);
-                        }
+                    if let Sym::Param(k) = s
+                        && !needed.contains(&k)
+                    {
+                        more.push(k);
                     }
                 }
             }

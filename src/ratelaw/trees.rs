@@ -162,7 +162,7 @@ impl Enumeration<'_> {
             );
             self.sum.add_term(self.coef.clone(), m);
             *self.visited += 1;
-            if *self.visited % (1 << 16) == 0 {
+            if (*self.visited).is_multiple_of(1 << 16) {
                 (self.progress)(*self.visited);
             }
             return;

@@ -93,13 +93,13 @@ impl Lowerer<'_> {
             }
         }
         let mut given = None;
-        if let Some(q) = value {
-            if let Some(v) = self.concentration(q, item.units, "a total") {
-                if v < 0.0 {
-                    self.negative_value(name, q.span);
-                }
-                given = Some(v);
+        if let Some(q) = value
+            && let Some(v) = self.concentration(q, item.units, "a total")
+        {
+            if v < 0.0 {
+                self.negative_value(name, q.span);
             }
+            given = Some(v);
         }
         let t = &mut self.model.totals[i];
         t.terms = lowered;

@@ -98,6 +98,9 @@ pub trait Sources {
     /// Which file `path` is.
     fn identity(&self, path: &Path) -> FileIdentity;
     /// The file's text.
+    // A read error is rare and carries a whole diagnostic; boxing it would
+    // only move the allocation.
+    #[allow(clippy::result_large_err)]
     fn read(&self, path: &Path) -> Result<SourceText, ReadError>;
 }
 
@@ -149,6 +152,7 @@ pub fn from_text(text: &str, shown: &Path) -> SourceText {
 /// Bytes of a file → its text: the size limit, the UTF-8 check (located at
 /// the first bad byte) and a dropped byte-order mark, the same for every
 /// source. `shown` names the file in messages.
+#[allow(clippy::result_large_err)]
 pub fn decode(bytes: Vec<u8>, shown: &Path) -> Result<SourceText, ReadError> {
     let limit = crate::syntax::parse::MAX_FILE_BYTES;
     if bytes.len() > limit {
