@@ -714,3 +714,44 @@ fn multi_start_finds_the_certified_optimum_of_eckerle4() {
     }
     assert!(j["warnings"].to_string().contains("multi-start"), "{j}");
 }
+
+/// `NAME[series]`: one value per series. The four-step curves without
+/// their A(0) column, with A(0) free per series: the three starting
+/// amounts (5, 10, 20 uM, the values the data were made with) lie in their
+/// 95% intervals, and the shared constants in theirs.
+#[test]
+fn per_series_free_values() {
+    let dir = tempfile::tempdir().unwrap();
+    let (csv, _) = four_step_curves(dir.path());
+    let without: String = csv
+        .lines()
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            format!("{},{},{},{}\n", cells[0], cells[1], cells[3], cells[4])
+        })
+        .collect();
+    let j = fit_json(
+        dir.path(),
+        FOUR_STEPS,
+        &without,
+        &["--free", "k1=0.3,k2=0.3,k3=0.2,k4=0.2,A(0)[series]=8"],
+    );
+    for (name, truth) in [
+        ("A(0)[1]", 5.0),
+        ("A(0)[2]", 10.0),
+        ("A(0)[3]", 20.0),
+        ("k1", 0.5),
+        ("k4", 0.1),
+    ] {
+        let p = &j["parameters"][name];
+        let (lo, hi) = (
+            p["ci95"][0].as_f64().unwrap(),
+            p["ci95"][1].as_f64().unwrap(),
+        );
+        assert!(
+            lo <= truth && truth <= hi,
+            "{name}: [{lo}, {hi}] misses {truth}: {j}"
+        );
+    }
+    assert_eq!(j["parameters"].as_object().unwrap().len(), 7);
+}

@@ -29,12 +29,16 @@ pub struct FreeValue {
     /// The name given to the model's overrides (a species for `S(0)`).
     pub target: String,
     pub log_scale: bool,
+    /// The one series this value is for (`NAME[series]`), or all.
+    pub series: Option<String>,
 }
 
 /// One series: its conditions and its measurements.
 #[derive(Clone, Debug)]
 pub struct Series {
     pub name: String,
+    /// The `series` cell's value as written ("1" without the column).
+    pub key: String,
     pub conditions: Vec<(String, f64)>,
     pub times: Vec<f64>,
     /// (index into `times`, output column, observed, weight, data line).
@@ -214,6 +218,7 @@ impl<'a> CurveProblem<'a> {
                     }
                     self.series.push(Series {
                         name: label.clone(),
+                        key: key.clone(),
                         conditions: set,
                         times: Vec::new(),
                         measurements: Vec::new(),
@@ -292,6 +297,7 @@ impl<'a> CurveProblem<'a> {
                 self.free
                     .iter()
                     .zip(values)
+                    .filter(|(f, _)| f.series.as_ref().is_none_or(|k| *k == s.name))
                     .map(|(f, v)| (f.target.clone(), *v)),
             );
             let m = self

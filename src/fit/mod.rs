@@ -418,26 +418,31 @@ pub fn fit_curves(
     let mut lower = Vec::new();
     let mut upper = Vec::new();
     for spec in &request.free {
+        // `NAME[series]`: one value of NAME per series.
+        let (base, per_series) = match spec.name.strip_suffix("[series]") {
+            Some(b) => (b, true),
+            None => (spec.name.as_str(), false),
+        };
         let conc = Some(Dim::CONC.display_in(model.units));
-        let found = match spec.name.strip_suffix("(0)") {
+        let found = match base.strip_suffix("(0)") {
             Some(species) => match model.lookup(species) {
                 Some(Sym::Species(i)) => {
                     Some((species.to_string(), model.species[i].initial, conc))
                 }
                 _ => None,
             },
-            None => match model.lookup(&spec.name) {
+            None => match model.lookup(base) {
                 Some(Sym::Param(i)) if matches!(model.params[i].definition, ParamDef::Value(_)) => {
                     Some((
-                        spec.name.clone(),
+                        base.to_string(),
                         model.params[i].value,
                         model.params[i].dim.map(|d| d.display_in(model.units)),
                     ))
                 }
                 Some(Sym::Total(k)) if model.totals[k].value_given => {
-                    Some((spec.name.clone(), model.totals[k].value, conc))
+                    Some((base.to_string(), model.totals[k].value, conc))
                 }
-                Some(Sym::Fixed(k)) => Some((spec.name.clone(), model.fixed[k].value, conc)),
+                Some(Sym::Fixed(k)) => Some((base.to_string(), model.fixed[k].value, conc)),
                 _ => None,
             },
         };
@@ -488,8 +493,12 @@ pub fn fit_curves(
             lower.push(lo);
             upper.push(hi);
         }
-        free.push(curves::FreeValue { target, log_scale });
-        names.push(spec.name.clone());
+        free.push(curves::FreeValue {
+            target,
+            log_scale,
+            series: per_series.then(String::new),
+        });
+        names.push(base.to_string());
         units.push(unit);
         log.push(log_scale);
     }
@@ -504,7 +513,7 @@ pub fn fit_curves(
     let mut options = Options::unbounded(free.len());
     options.lower = lower;
     options.upper = upper;
-    let mut problem = curves::CurveProblem::new(model, free).map_err(|d| vec![d])?;
+    let mut problem = curves::CurveProblem::new(model, Vec::new()).map_err(|d| vec![d])?;
     for table in tables {
         if let Err(e) = problem.add_table(table, &request.weight) {
             errors.extend(e);
@@ -513,6 +522,55 @@ pub fn fit_curves(
     if !errors.is_empty() {
         return Err(errors);
     }
+    // Per-series names become one unknown per series, named NAME[series].
+    // Named by the series' key, and by file too when there are several.
+    let keys: Vec<(String, String)> = problem
+        .series
+        .iter()
+        .map(|s| {
+            (
+                s.name.clone(),
+                if tables.len() > 1 {
+                    s.name.clone()
+                } else {
+                    s.key.clone()
+                },
+            )
+        })
+        .collect();
+    let mut expanded = (
+        Vec::new(),
+        Vec::new(),
+        Vec::new(),
+        Vec::new(),
+        Vec::new(),
+        Vec::new(),
+    );
+    for (k, f) in free.into_iter().enumerate() {
+        let copies: Vec<(Option<String>, String)> = match &f.series {
+            Some(_) => keys
+                .iter()
+                .map(|(series, key)| (Some(series.clone()), format!("{}[{key}]", names[k])))
+                .collect(),
+            None => vec![(None, names[k].clone())],
+        };
+        for (series, name) in copies {
+            expanded.0.push(curves::FreeValue {
+                series,
+                ..f.clone()
+            });
+            expanded.1.push(name);
+            expanded.2.push(units[k].clone());
+            expanded.3.push(log[k]);
+            expanded.4.push(start[k]);
+            expanded.5.push((options.lower[k], options.upper[k]));
+        }
+    }
+    let (free, names, units, log, start, bounds) = expanded;
+    problem.free = free;
+    let mut options = Options::unbounded(problem.free.len());
+    options.lower = bounds.iter().map(|b| b.0).collect();
+    options.upper = bounds.iter().map(|b| b.1).collect();
     if problem.count <= names.len() {
         return Err(request_error(format!(
             "{} measurements cannot determine {} free values",
