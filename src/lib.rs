@@ -7,6 +7,7 @@
 pub mod algebra;
 pub mod cli;
 pub mod compare;
+pub mod control;
 pub mod diagnostics;
 pub mod emit;
 pub mod fit;

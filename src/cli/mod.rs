@@ -31,6 +31,7 @@ pub mod common;
 
 mod analyze;
 mod check;
+mod control;
 mod derive;
 mod diff;
 mod emit;
@@ -86,6 +87,8 @@ pub enum Command {
     Diff(diff::Args),
     /// Estimate params from assay data; rank rival mechanisms.
     Fit(fit::Args),
+    /// Metabolic control analysis at the steady state.
+    Control(control::Args),
 }
 
 /// Parses arguments and runs one command. Usage errors exit with 2.
@@ -110,6 +113,7 @@ pub fn main() -> ExitCode {
         Command::Scan(a) => scan::run(&a),
         Command::Diff(a) => diff::run(&a),
         Command::Fit(a) => fit::run(&a),
+        Command::Control(a) => control::run(&a),
     }
 }
 
