@@ -491,3 +491,54 @@ fn messages_read_correctly() {
         "{stderr}"
     );
 }
+
+/// docs/cli.md, the project's command reference, names every command the
+/// binary has and every long option of each (read from `--help`).
+#[test]
+fn docs_cli_lists_every_command_and_option() {
+    let doc = std::fs::read_to_string(common::root().join("docs/cli.md")).unwrap();
+    let top = String::from_utf8(common::ratewright(&["--help"]).stdout).unwrap();
+    let commands: Vec<String> = top
+        .split("Commands:")
+        .nth(1)
+        .unwrap()
+        .split("Options:")
+        .next()
+        .unwrap()
+        .lines()
+        .filter_map(|l| l.split_whitespace().next().map(str::to_string))
+        .filter(|c| c != "help")
+        .collect();
+    assert!(commands.len() >= 11, "{commands:?}");
+    for c in &commands {
+        assert!(
+            doc.contains(&format!("## `{c}`")),
+            "docs/cli.md has no section for `{c}`"
+        );
+        let help = String::from_utf8(common::ratewright(&[c, "--help"]).stdout).unwrap();
+        let section = doc
+            .split(&format!("## `{c}`"))
+            .nth(1)
+            .unwrap()
+            .split("\n## ")
+            .next()
+            .unwrap();
+        for option in help
+            .split_whitespace()
+            .filter(|w| w.starts_with("--") && w.len() > 2)
+        {
+            let option = option
+                .trim_end_matches(',')
+                .split('=')
+                .next()
+                .unwrap()
+                .split('<')
+                .next()
+                .unwrap();
+            assert!(
+                section.contains(option),
+                "docs/cli.md does not describe `{c} {option}`"
+            );
+        }
+    }
+}
