@@ -5,10 +5,11 @@
 //!
 //! 1. A reaction is *critical* when it can fire and fewer than
 //!    [`CRITICAL_FIRINGS`] firings would exhaust one of its reactants.
-//! 2. For the others, τ′ is the largest leap over which the expected change
-//!    (and its standard deviation) of every reactant species i stays within
-//!    max(ε x_i / g_i, 1), with g_i from the highest order of the
-//!    reactions that consume it (their eq. 27, generalised to any order:
+//! 2. τ′ is the largest leap over which the expected change that the
+//!    non-critical reactions make to every reactant species i (and its
+//!    standard deviation) stays within max(ε x_i / g_i, 1), with g_i from
+//!    the highest order of the reactions that consume i (their cases for
+//!    orders 1 to 3, generalised to any order as
 //!    `g = (m/ν) Σ_{k<ν} (1 + k/(x − k))` for a reaction of order m that
 //!    takes ν molecules of i).
 //! 3. If τ′ is below [`EXACT_BELOW`]/a0, a leap would be hardly longer than
@@ -42,7 +43,10 @@ pub struct Leap {
     sigma2: Vec<f64>,
     /// For each species, (order, multiplicity) of the reactions consuming it.
     consumers: Vec<Vec<(u32, u32)>>,
-    /// Whether a species is a reactant of a non-critical reaction.
+    /// Whether a species is a reactant of any reaction (I_rs of Cao et al.:
+    /// the changes that non-critical reactions make to it are bounded even
+    /// when only critical reactions consume it, since their propensities
+    /// are held fixed over the leap).
     in_rs: Vec<bool>,
 }
 
@@ -63,8 +67,8 @@ impl Leap {
             proposal: vec![0; n],
             mu: vec![0.0; n],
             sigma2: vec![0.0; n],
+            in_rs: consumers.iter().map(|c| !c.is_empty()).collect(),
             consumers,
-            in_rs: vec![false; n],
         }
     }
 
@@ -86,17 +90,9 @@ impl Leap {
     fn tau_noncritical(&mut self, net: &Network, counts: &[i64]) -> f64 {
         self.mu.iter_mut().for_each(|v| *v = 0.0);
         self.sigma2.iter_mut().for_each(|v| *v = 0.0);
-        self.in_rs.iter_mut().for_each(|v| *v = false);
         for j in 0..self.a.len() {
-            if self.critical[j] {
-                continue;
-            }
-            let (rs, _) = net.reactants_of(j);
-            for &i in rs {
-                self.in_rs[i as usize] = true;
-            }
             let aj = self.a[j];
-            if aj <= 0.0 {
+            if self.critical[j] || aj <= 0.0 {
                 continue;
             }
             let (sp, d) = net.change_of(j);
