@@ -216,7 +216,9 @@ impl Leap {
                     }
                 }
                 if self.proposal.iter().any(|&n| n < 0) {
-                    tau1 /= 2.0;
+                    // Halving the leap actually tried keeps τ′ finite even
+                    // when it started infinite.
+                    tau1 = tau1.min(leap) / 2.0;
                     continue;
                 }
                 st.counts.copy_from_slice(&self.proposal);
