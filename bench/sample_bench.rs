@@ -5,9 +5,10 @@
 //!                                   (E + S <=> ES -> E + P, P -> Q, Q -> S) in
 //!                                   1 pL, exact runs until about EVENTS
 //!                                   reaction events; direct and next-reaction.
-//!   sample_bench network FILE T     FILE (the generated 1,000-species network of
-//!                                   `sim_bench network`) in 1 fL to time T,
-//!                                   direct and next-reaction.
+//!   sample_bench network FILE T [A] FILE (the generated 1,000-species network
+//!                                   of `sim_bench network`) in 1 fL to time T,
+//!                                   next-reaction and direct (or only A:
+//!                                   NextReaction or Direct).
 //!   sample_bench threshold          events per second of both exact methods on
 //!                                   random networks of 4 to 256 reactions.
 //!   sample_bench leap RUNS          exact against tau-leaping on the 20-species
@@ -87,7 +88,7 @@ fn small(events: f64) {
     }
 }
 
-fn big(file: &Path, until: f64) {
+fn big(file: &Path, until: f64, only: Option<&str>) {
     let model = load_path(file).model.expect("the network loads");
     let net = network(&model, 1e-15);
     println!(
@@ -96,6 +97,9 @@ fn big(file: &Path, until: f64) {
         net.reactions.len()
     );
     for algorithm in [Algorithm::NextReaction, Algorithm::Direct] {
+        if only.is_some_and(|o| o != format!("{algorithm:?}")) {
+            continue;
+        }
         let (rate, fired) = events_per_second(&net, algorithm, Method::Exact, until);
         println!("network_{algorithm:?}_events {fired}");
         println!("network_{algorithm:?}_events_per_second {rate:.4e}");
@@ -191,9 +195,12 @@ fn main() {
         Some("network") => big(
             Path::new(args.get(2).expect("a network file")),
             args.get(3).and_then(|v| v.parse().ok()).unwrap_or(0.01),
+            args.get(4).map(String::as_str),
         ),
         Some("threshold") => threshold(),
         Some("leap") => leap(args.get(2).and_then(|v| v.parse().ok()).unwrap_or(20)),
-        _ => eprintln!("usage: sample_bench small EVENTS | network FILE T | threshold | leap RUNS"),
+        _ => eprintln!(
+            "usage: sample_bench small EVENTS | network FILE T [ALGORITHM] | threshold | leap RUNS"
+        ),
     }
 }

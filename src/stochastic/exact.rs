@@ -56,7 +56,7 @@ impl Algorithm {
 
 /// A propensity, refused when it is negative or not a number (only a law
 /// can be).
-#[inline]
+#[inline(always)]
 pub fn checked(net: &Network, j: usize, st: &RunState) -> Result<f64, StochasticError> {
     let a = net.propensity(j, &st.counts, &st.constants, &st.totals);
     if a >= 0.0 && a.is_finite() {
@@ -165,39 +165,49 @@ impl Direct {
 }
 
 /// A binary heap of reaction indices keyed by putative time, with each
-/// reaction's position kept so that its key can change in O(log n).
+/// reaction's position kept so that its key can change in O(log n). Keys
+/// sit beside their reaction in the heap array, so a comparison reads one
+/// place in memory rather than following an index.
 struct IndexedQueue {
-    heap: Vec<u32>,
+    heap: Vec<(f64, u32)>,
     pos: Vec<u32>,
-    key: Vec<f64>,
 }
 
 impl IndexedQueue {
     fn new(n: usize) -> IndexedQueue {
         IndexedQueue {
-            heap: (0..n as u32).collect(),
+            heap: (0..n as u32).map(|j| (f64::INFINITY, j)).collect(),
             pos: (0..n as u32).collect(),
-            key: vec![f64::INFINITY; n],
         }
     }
 
-    /// Restores the heap order after every key was set.
-    fn rebuild(&mut self) {
+    /// The key of reaction `j`.
+    #[inline]
+    fn key(&self, j: usize) -> f64 {
+        self.heap[self.pos[j] as usize].0
+    }
+
+    /// Sets every key (indexed by reaction) and restores the heap order.
+    fn rebuild(&mut self, keys: impl Iterator<Item = f64>) {
+        for (j, k) in keys.enumerate() {
+            self.heap[j] = (k, j as u32);
+            self.pos[j] = j as u32;
+        }
         for i in (0..self.heap.len() / 2).rev() {
             self.down(i);
         }
     }
 
+    #[inline]
     fn top(&self) -> Option<(usize, f64)> {
-        self.heap
-            .first()
-            .map(|&j| (j as usize, self.key[j as usize]))
+        self.heap.first().map(|&(k, j)| (j as usize, k))
     }
 
+    #[inline]
     fn update(&mut self, j: usize, key: f64) {
-        let old = self.key[j];
-        self.key[j] = key;
         let i = self.pos[j] as usize;
+        let old = self.heap[i].0;
+        self.heap[i].0 = key;
         if key < old {
             self.up(i);
         } else {
@@ -205,42 +215,46 @@ impl IndexedQueue {
         }
     }
 
-    #[inline]
-    fn swap(&mut self, a: usize, b: usize) {
-        self.heap.swap(a, b);
-        self.pos[self.heap[a] as usize] = a as u32;
-        self.pos[self.heap[b] as usize] = b as u32;
-    }
-
     fn up(&mut self, mut i: usize) {
+        let item = self.heap[i];
         while i > 0 {
             let parent = (i - 1) / 2;
-            if self.key[self.heap[i] as usize] < self.key[self.heap[parent] as usize] {
-                self.swap(i, parent);
+            if item.0 < self.heap[parent].0 {
+                self.heap[i] = self.heap[parent];
+                self.pos[self.heap[i].1 as usize] = i as u32;
                 i = parent;
             } else {
                 break;
             }
         }
+        self.heap[i] = item;
+        self.pos[item.1 as usize] = i as u32;
     }
 
     fn down(&mut self, mut i: usize) {
         let n = self.heap.len();
+        let item = self.heap[i];
         loop {
-            let (l, r) = (2 * i + 1, 2 * i + 2);
-            let mut m = i;
-            if l < n && self.key[self.heap[l] as usize] < self.key[self.heap[m] as usize] {
-                m = l;
-            }
-            if r < n && self.key[self.heap[r] as usize] < self.key[self.heap[m] as usize] {
-                m = r;
-            }
-            if m == i {
+            let l = 2 * i + 1;
+            if l >= n {
                 break;
             }
-            self.swap(i, m);
-            i = m;
+            let r = l + 1;
+            let c = if r < n && self.heap[r].0 < self.heap[l].0 {
+                r
+            } else {
+                l
+            };
+            if self.heap[c].0 < item.0 {
+                self.heap[i] = self.heap[c];
+                self.pos[self.heap[i].1 as usize] = i as u32;
+                i = c;
+            } else {
+                break;
+            }
         }
+        self.heap[i] = item;
+        self.pos[item.1 as usize] = i as u32;
     }
 }
 
@@ -267,14 +281,19 @@ impl NextReaction {
         rng: &mut Rng,
     ) -> Result<(), StochasticError> {
         all_propensities(net, st, &mut self.a)?;
-        for (j, &aj) in self.a.iter().enumerate() {
-            self.queue.key[j] = if aj > 0.0 {
-                st.t + rng.sample::<f64, _>(Exp1) / aj
-            } else {
-                f64::INFINITY
-            };
-        }
-        self.queue.rebuild();
+        let t = st.t;
+        let keys: Vec<f64> = self
+            .a
+            .iter()
+            .map(|&aj| {
+                if aj > 0.0 {
+                    t + rng.sample::<f64, _>(Exp1) / aj
+                } else {
+                    f64::INFINITY
+                }
+            })
+            .collect();
+        self.queue.rebuild(keys.into_iter());
         Ok(())
     }
 
@@ -306,7 +325,7 @@ impl NextReaction {
                 let old = self.a[k];
                 let new = checked(net, k, st)?;
                 self.a[k] = new;
-                let tk = self.queue.key[k];
+                let tk = self.queue.key(k);
                 let key = if new <= 0.0 {
                     f64::INFINITY
                 } else if old > 0.0 && tk.is_finite() {
@@ -335,10 +354,7 @@ mod tests {
     #[test]
     fn the_queue_keeps_the_earliest_time_on_top() {
         let mut q = IndexedQueue::new(6);
-        for (j, k) in [5.0, 3.0, 9.0, 1.0, 7.0, 4.0].into_iter().enumerate() {
-            q.key[j] = k;
-        }
-        q.rebuild();
+        q.rebuild([5.0, 3.0, 9.0, 1.0, 7.0, 4.0].into_iter());
         assert_eq!(q.top(), Some((3, 1.0)));
         q.update(3, 8.0);
         assert_eq!(q.top(), Some((1, 3.0)));
@@ -347,8 +363,12 @@ mod tests {
         q.update(2, f64::INFINITY);
         q.update(1, f64::INFINITY);
         assert_eq!(q.top(), Some((5, 4.0)));
-        for (i, &j) in q.heap.iter().enumerate() {
+        for (i, &(_, j)) in q.heap.iter().enumerate() {
             assert_eq!(q.pos[j as usize] as usize, i);
+        }
+        assert_eq!(q.key(0), 5.0);
+        for i in 1..q.heap.len() {
+            assert!(q.heap[(i - 1) / 2].0 <= q.heap[i].0);
         }
     }
 

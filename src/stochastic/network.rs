@@ -486,7 +486,7 @@ impl Network {
 
     /// The propensity of reaction `j`. A law's value is returned as it is
     /// (the caller refuses one below zero), or 0 while a reactant is short.
-    #[inline]
+    #[inline(always)]
     pub fn propensity(&self, j: usize, counts: &[i64], constants: &[f64], totals: &[f64]) -> f64 {
         let (sp, nu) = self.reactants_of(j);
         if self.is_law[j] {
