@@ -25,9 +25,9 @@ pub type Rng = rand_xoshiro::Xoshiro256PlusPlus;
 
 /// Above this many reactions the next-reaction method is used. Measured
 /// with `sample_bench threshold` (docs/benchmarks.md): on random networks
-/// of isomerisations the direct method is faster up to 64 reactions, the
-/// two cost the same per event at 80 to 96, and the next-reaction method is
-/// faster from 112 on (1.7 times at 256).
+/// of isomerisations the direct method is faster up to 80 reactions, the
+/// two are level at 96, and the next-reaction method is faster from 112 on
+/// (2.3 times at 256).
 pub const NEXT_REACTION_ABOVE: usize = 80;
 
 /// The exact method chosen for a network.
