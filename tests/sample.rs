@@ -816,3 +816,76 @@ fn a_positive_law_runs_with_a_warning_and_follows_its_mean() {
         rows[0][1]
     );
 }
+
+#[test]
+fn as_the_volume_grows_runs_approach_the_rate_equations_like_one_over_root_volume() {
+    // 2 A ⇌ B in concentration units: the rate equations (`run`, checked
+    // against SciPy in tests/sim.rs) are the large-volume limit of the
+    // master equation, and a single run's deviation from them shrinks like
+    // V^(−1/2) (the linear noise approximation: van Kampen, Stochastic
+    // Processes in Physics and Chemistry, ch. X; Kurtz 1972, J. Chem. Phys.
+    // 57:2976; from memory). Fitted on four volumes over a factor of 64.
+    let dir = tempfile::tempdir().unwrap();
+    let model = write_model(
+        dir.path(),
+        "dimer_conc.mech",
+        "units concentration uM, time s\nspecies A = 1 uM, B\nparam k1 = 1 /uM/s\nparam k2 = 0.5 /s\nstep pair 2 A <=> B with k1, k2\n",
+    );
+    let ode = dir.path().join("ode.csv");
+    run_ok(&[
+        "run",
+        model.to_str().unwrap(),
+        "--times",
+        "1",
+        "--rtol",
+        "1e-10",
+        "--atol",
+        "1e-14",
+        "-o",
+        ode.to_str().unwrap(),
+    ]);
+    let a_ode = read_csv(&ode).1[0][1];
+    let mut points = Vec::new();
+    for femtolitres in [0.04, 0.16, 0.64, 2.56] {
+        let omega = 1e-6 * AVOGADRO * femtolitres * 1e-15;
+        let volume = format!("{femtolitres} fL");
+        let (_, rows) = sample_runs(
+            dir.path(),
+            &model,
+            &[
+                "--volume", &volume, "--runs", "800", "--seed", "4", "--times", "1",
+            ],
+        );
+        let a: Vec<f64> = counts_at(&rows, 1.0, 2)
+            .into_iter()
+            .map(|n| n as f64 / omega)
+            .collect();
+        let rms = (a.iter().map(|x| (x - a_ode).powi(2)).sum::<f64>() / a.len() as f64).sqrt();
+        points.push((femtolitres.ln(), rms.ln()));
+        if femtolitres == 2.56 {
+            // At the largest volume (about 1,500 molecules) the ensemble
+            // mean is the rate equations' value within 4 standard errors
+            // plus the O(1/Ω) bias, bounded here by 1/Ω.
+            let n = a.len() as f64;
+            let mean = a.iter().sum::<f64>() / n;
+            let sd = (a.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+            assert!(
+                (mean - a_ode).abs() < 4.0 * sd / n.sqrt() + 1.0 / omega,
+                "mean {mean} against the rate equations' {a_ode}"
+            );
+        }
+    }
+    // Least-squares slope of ln(rms) against ln(V).
+    let n = points.len() as f64;
+    let (mx, my) = (
+        points.iter().map(|p| p.0).sum::<f64>() / n,
+        points.iter().map(|p| p.1).sum::<f64>() / n,
+    );
+    let slope = points.iter().map(|p| (p.0 - mx) * (p.1 - my)).sum::<f64>()
+        / points.iter().map(|p| (p.0 - mx).powi(2)).sum::<f64>();
+    println!("fitted slope of ln(rms deviation) against ln(volume): {slope:.4}");
+    // Each rms has a relative standard error of about 1/sqrt(2·800) = 2.5 %,
+    // so the slope over ln 64 = 4.2 has about 0.01; 0.06 allows for the
+    // small-volume corrections as well.
+    assert!((slope + 0.5).abs() < 0.06, "slope {slope}");
+}
