@@ -1,7 +1,7 @@
 //! ratewright: a compiler for a plain-text language of reaction mechanisms.
 //!
 //! Stages, each a module with one job (see docs/architecture.md):
-//! `syntax` → `model` → {`network`, `algebra` → `ratelaw`, `numeric` → `sim`,
+//! `syntax` → `model` → {`network`, `algebra` → `ratelaw`, `numeric` → `sim`, `stochastic`,
 //! `emit`, `compare`} → `cli`. `diagnostics` is shared by all.
 
 pub mod algebra;
@@ -16,4 +16,5 @@ pub mod network;
 pub mod numeric;
 pub mod ratelaw;
 pub mod sim;
+pub mod stochastic;
 pub mod syntax;

@@ -191,11 +191,12 @@ fn usage_errors_exit_2_and_model_errors_exit_1_for_every_command() {
     std::fs::write(&bad, "species A = 1 uM\nstep decay A -> 0 with k_missing\n").unwrap();
     let bad = bad.to_str().unwrap();
     let good = "models/robertson.mech";
-    let commands: [&[&str]; 7] = [
+    let commands: [&[&str]; 8] = [
         &["analyze"],
         &["derive"],
         &["emit", "--target", "python"],
         &["run"],
+        &["sample", "--volume", "1 fL", "--runs", "2"],
         &["steady"],
         &[
             "scan",
@@ -250,6 +251,77 @@ fn json_commands_report_model_errors_as_json_on_stdout() {
         assert_eq!(report["diagnostics"][0]["code"], "E0201", "{command}");
         assert_eq!(report["diagnostics"][0]["line"], 2, "{command}");
         assert!(out.stderr.is_empty(), "{command}: nothing for people");
+    }
+    let out = ratewright(&["sample", bad, "--volume", "1 fL", "--format", "json"]);
+    assert_eq!(out.status.code(), Some(1), "sample");
+    let report = json(&out);
+    assert_eq!(report["diagnostics"][0]["code"], "E0201", "sample");
+    assert_eq!(report["diagnostics"][0]["line"], 2, "sample");
+    assert!(out.stderr.is_empty(), "sample: nothing for people");
+}
+
+/// `sample -o x.csv` (CLI.md, second round): `run,t,<species counts>`, one
+/// row per run and output time; with `--stats`,
+/// `t,<NAME_mean,NAME_sd,NAME_q05,NAME_q95 for each species>`, one row per
+/// output time; on every demo model.
+#[test]
+fn sample_csv_shapes_are_runs_or_statistics_per_species() {
+    let dir = tempfile::tempdir().unwrap();
+    for path in models() {
+        let model = load_path(&path).model.expect("demo models are valid");
+        let names: Vec<String> = model.species.iter().map(|s| s.name.clone()).collect();
+        for stats in [false, true] {
+            let out_csv = dir.path().join("out.csv");
+            let mut args = vec![
+                "sample",
+                path.to_str().unwrap(),
+                "--volume",
+                "1 fL",
+                "--runs",
+                "3",
+                "--until",
+                "0.01",
+                "--points",
+                "4",
+                "-o",
+                out_csv.to_str().unwrap(),
+            ];
+            if stats {
+                args.push("--stats");
+            }
+            let out = ratewright(&args);
+            assert!(
+                out.status.success(),
+                "{}: {}",
+                path.display(),
+                String::from_utf8_lossy(&out.stderr)
+            );
+            let text = std::fs::read_to_string(&out_csv).unwrap();
+            let mut lines = text.lines();
+            let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+            let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect()).collect();
+            if stats {
+                let mut expected = vec!["t".to_string()];
+                for n in &names {
+                    for part in ["mean", "sd", "q05", "q95"] {
+                        expected.push(format!("{n}_{part}"));
+                    }
+                }
+                assert_eq!(header, expected, "{}", path.display());
+                assert_eq!(rows.len(), 4);
+                assert!(rows.iter().flatten().all(|v| v.parse::<f64>().is_ok()));
+            } else {
+                let mut expected = vec!["run".to_string(), "t".to_string()];
+                expected.extend(names.iter().cloned());
+                assert_eq!(header, expected, "{}", path.display());
+                assert_eq!(rows.len(), 3 * 4);
+                for (k, row) in rows.iter().enumerate() {
+                    assert_eq!(row.len(), expected.len());
+                    assert_eq!(row[0], (k / 4 + 1).to_string(), "runs numbered from 1");
+                    assert!(row[2..].iter().all(|v| v.parse::<u64>().is_ok()), "{row:?}");
+                }
+            }
+        }
     }
 }
 
@@ -352,13 +424,14 @@ fn unreadable_arguments_exit_2_and_unreadable_uses_exit_1() {
     let missing = dir.path().join("absent.mech");
     let uses_missing = dir.path().join("uses.mech");
     std::fs::write(&uses_missing, "use \"absent.mech\"\nspecies A = 1 uM\n").unwrap();
-    let commands: [&[&str]; 6] = [
+    let commands: [&[&str]; 7] = [
         &["check"],
         &["analyze"],
         &["derive"],
         &["emit", "--target", "python"],
         &["run"],
         &["steady"],
+        &["sample", "--volume", "1 fL"],
     ];
     for cmd in commands {
         for (file, code) in [

@@ -40,6 +40,7 @@ mod fmt;
 pub mod output;
 mod plot;
 mod run;
+mod sample;
 mod scan;
 mod steady;
 
@@ -89,6 +90,8 @@ pub enum Command {
     Fit(fit::Args),
     /// Metabolic control analysis at the steady state.
     Control(control::Args),
+    /// Stochastic runs of molecule counts (exact or tau-leaping), ensembles with statistics.
+    Sample(sample::Args),
 }
 
 /// Parses arguments and runs one command. Usage errors exit with 2.
@@ -114,6 +117,7 @@ pub fn main() -> ExitCode {
         Command::Diff(a) => diff::run(&a),
         Command::Fit(a) => fit::run(&a),
         Command::Control(a) => control::run(&a),
+        Command::Sample(a) => sample::run(&a),
     }
 }
 
@@ -122,7 +126,7 @@ pub(crate) type Paths = Vec<PathBuf>;
 
 /// Options whose value is a quantity, which users write as the language
 /// writes quantities: `--until 20 min`, `--set S=5 mM`.
-const QUANTITY_OPTIONS: [&str; 4] = ["--until", "--every", "--at", "--set"];
+const QUANTITY_OPTIONS: [&str; 5] = ["--until", "--every", "--at", "--set", "--hist"];
 
 /// Joins a quantity option's number and a following unit word given as two
 /// arguments (`--until 20 min` → `--until` `20 min`), so the spelling of the
@@ -149,6 +153,22 @@ fn join_spaced_units(args: Vec<std::ffi::OsString>) -> Vec<std::ffi::OsString> {
                 i += 3;
                 continue;
             }
+        }
+        // A volume's units are not the language's, so `--volume 1 pL` is
+        // joined by its own list.
+        if args[i].to_str() == Some("--volume")
+            && let (Some(value), Some(unit)) = (
+                args.get(i + 1).and_then(|v| v.to_str()),
+                args.get(i + 2).and_then(|u| u.to_str()),
+            )
+            && value.trim().parse::<f64>().is_ok()
+            && crate::stochastic::convert::VOLUME_UNITS
+                .iter()
+                .any(|(u, _)| *u == unit)
+        {
+            out.push(format!("{value} {unit}").into());
+            i += 3;
+            continue;
         }
         i += 1;
     }
@@ -183,6 +203,14 @@ mod tests {
         assert_eq!(
             joined(&["rw", "run", "--until", "20min", "--points", "5"]),
             ["rw", "run", "--until", "20min", "--points", "5"]
+        );
+        assert_eq!(
+            joined(&[
+                "rw", "sample", "m.mech", "--volume", "1", "pL", "--hist", "5", "min"
+            ]),
+            [
+                "rw", "sample", "m.mech", "--volume", "1 pL", "--hist", "5 min"
+            ]
         );
     }
 }

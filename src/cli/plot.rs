@@ -1,5 +1,6 @@
-//! Figures for `run` and `scan`: line plots (time courses, 1-D scans) and
-//! heat maps (2-D scans), as SVG or PNG, with unit-labelled axes, a legend
+//! Figures for `run`, `scan` and `sample`: line plots (time courses, 1-D
+//! scans), heat maps (2-D scans), bands (ensemble means with a quantile
+//! band and sample paths) and bars (histograms of counts), as SVG or PNG, with unit-labelled axes, a legend
 //! and optional log axes.
 //!
 //! Figures are staged with the command's other outputs (`cli::output`), so
@@ -37,6 +38,39 @@ pub struct HeatMap {
     pub values: Vec<Vec<f64>>,
     pub log_x: bool,
     pub log_y: bool,
+}
+
+/// Lines, each in a shaded band, with thin sample paths in the band's
+/// colour (ensembles of stochastic runs: mean, a quantile band, a few runs).
+pub struct BandPlot {
+    pub title: String,
+    pub x_label: String,
+    pub y_label: String,
+    pub x: Vec<f64>,
+    pub bands: Vec<Band>,
+    /// (band index, values): sample paths drawn thin in the band's colour.
+    pub paths: Vec<(usize, Vec<f64>)>,
+}
+
+/// One series of a [`BandPlot`]: a line inside a band from `low` to `high`.
+pub struct Band {
+    pub name: String,
+    pub line: Vec<f64>,
+    pub low: Vec<f64>,
+    pub high: Vec<f64>,
+}
+
+/// Bars over whole numbers (histograms of counts), one colour per series,
+/// side by side within each bar's width.
+pub struct BarPlot {
+    pub title: String,
+    pub x_label: String,
+    pub y_label: String,
+    /// Left edges of the bins and their common width.
+    pub edges: Vec<f64>,
+    pub width: f64,
+    /// (name, height of each bin).
+    pub series: Vec<(String, Vec<f64>)>,
 }
 
 /// Colour-blind-safe line colours (Okabe & Ito, "Color Universal Design", 2002).
@@ -147,6 +181,193 @@ pub fn draw_heat_map(staged: &mut Staged, sink: &Sink, spec: &HeatMap) -> Result
             spec,
         ),
     })
+}
+
+/// Stages a band plot (.svg or .png by the sink's name).
+pub fn draw_bands(staged: &mut Staged, sink: &Sink, spec: &BandPlot) -> Result<(), String> {
+    stage_figure(staged, sink, |tmp, kind| match kind {
+        Kind::Svg => bands_on(SVGBackend::new(tmp, (960, 640)).into_drawing_area(), spec),
+        Kind::Png => bands_on(
+            BitMapBackend::new(tmp, (1440, 960)).into_drawing_area(),
+            spec,
+        ),
+    })
+}
+
+/// Stages a bar plot (.svg or .png by the sink's name).
+pub fn draw_bars(staged: &mut Staged, sink: &Sink, spec: &BarPlot) -> Result<(), String> {
+    stage_figure(staged, sink, |tmp, kind| match kind {
+        Kind::Svg => bars_on(SVGBackend::new(tmp, (960, 640)).into_drawing_area(), spec),
+        Kind::Png => bars_on(
+            BitMapBackend::new(tmp, (1440, 960)).into_drawing_area(),
+            spec,
+        ),
+    })
+}
+
+fn bands_on<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, spec: &BandPlot) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    root.fill(&WHITE).map_err(err)?;
+    let (x0, x1) =
+        range_of(spec.x.iter().copied(), false).ok_or("nothing to plot on the x axis")?;
+    let (y0, y1) = range_of(
+        spec.bands
+            .iter()
+            .flat_map(|b| b.line.iter().chain(&b.low).chain(&b.high).copied())
+            .chain(spec.paths.iter().flat_map(|(_, p)| p.iter().copied())),
+        false,
+    )
+    .ok_or("nothing to plot: every value is missing")?;
+    let mut chart = ChartBuilder::on(&root)
+        .caption(&spec.title, ("sans-serif", 26))
+        .margin(18)
+        .x_label_area_size(56)
+        .y_label_area_size(90)
+        .build_cartesian_2d(x0..x1, y0..y1)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .x_desc(spec.x_label.as_str())
+        .y_desc(spec.y_label.as_str())
+        .x_label_formatter(&tick)
+        .y_label_formatter(&tick)
+        .label_style(("sans-serif", 16))
+        .axis_desc_style(("sans-serif", 19))
+        .light_line_style(RGBColor(235, 235, 235))
+        .draw()
+        .map_err(err)?;
+    let finite = |x: &f64, y: &f64| x.is_finite() && y.is_finite();
+    for (
+        k,
+        Band {
+            low: lo, high: hi, ..
+        },
+    ) in spec.bands.iter().enumerate()
+    {
+        let color = PALETTE[k % PALETTE.len()];
+        let mut outline: Vec<(f64, f64)> = spec
+            .x
+            .iter()
+            .zip(hi)
+            .filter(|(x, y)| finite(x, y))
+            .map(|(x, y)| (*x, *y))
+            .collect();
+        outline.extend(
+            spec.x
+                .iter()
+                .zip(lo)
+                .rev()
+                .filter(|(x, y)| finite(x, y))
+                .map(|(x, y)| (*x, *y)),
+        );
+        chart
+            .draw_series(std::iter::once(Polygon::new(
+                outline,
+                color.mix(0.18).filled(),
+            )))
+            .map_err(err)?;
+    }
+    for (k, path) in &spec.paths {
+        let color = PALETTE[k % PALETTE.len()];
+        let points: Vec<(f64, f64)> = spec
+            .x
+            .iter()
+            .zip(path)
+            .filter(|(x, y)| finite(x, y))
+            .map(|(x, y)| (*x, *y))
+            .collect();
+        chart
+            .draw_series(LineSeries::new(points, color.mix(0.55).stroke_width(1)))
+            .map_err(err)?;
+    }
+    for (k, Band { name, line, .. }) in spec.bands.iter().enumerate() {
+        let color = PALETTE[k % PALETTE.len()];
+        let points: Vec<(f64, f64)> = spec
+            .x
+            .iter()
+            .zip(line)
+            .filter(|(x, y)| finite(x, y))
+            .map(|(x, y)| (*x, *y))
+            .collect();
+        chart
+            .draw_series(LineSeries::new(points, color.stroke_width(3)))
+            .map_err(err)?
+            .label(name.as_str())
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 24, y)], color.stroke_width(3))
+            });
+    }
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .label_font(("sans-serif", 16))
+        .background_style(WHITE.mix(0.85))
+        .border_style(RGBColor(120, 120, 120))
+        .draw()
+        .map_err(err)?;
+    root.present().map_err(err)?;
+    Ok(())
+}
+
+fn bars_on<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, spec: &BarPlot) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    root.fill(&WHITE).map_err(err)?;
+    let (Some(first), Some(last)) = (spec.edges.first(), spec.edges.last()) else {
+        return Err("nothing to plot: no counts".into());
+    };
+    let (x0, x1) = (*first, *last + spec.width);
+    let top = spec
+        .series
+        .iter()
+        .flat_map(|(_, v)| v.iter().copied())
+        .filter(|v| v.is_finite())
+        .fold(0.0, f64::max);
+    let top = if top > 0.0 { top * 1.06 } else { 1.0 };
+    let mut chart = ChartBuilder::on(&root)
+        .caption(&spec.title, ("sans-serif", 26))
+        .margin(18)
+        .x_label_area_size(56)
+        .y_label_area_size(90)
+        .build_cartesian_2d(x0..x1, 0.0..top)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .x_desc(spec.x_label.as_str())
+        .y_desc(spec.y_label.as_str())
+        .x_label_formatter(&tick)
+        .y_label_formatter(&tick)
+        .label_style(("sans-serif", 16))
+        .axis_desc_style(("sans-serif", 19))
+        .light_line_style(RGBColor(235, 235, 235))
+        .draw()
+        .map_err(err)?;
+    let n = spec.series.len().max(1) as f64;
+    for (k, (name, heights)) in spec.series.iter().enumerate() {
+        let color = PALETTE[k % PALETTE.len()];
+        let w = spec.width / n;
+        chart
+            .draw_series(spec.edges.iter().zip(heights).map(|(&e, &h)| {
+                let left = e + k as f64 * w;
+                Rectangle::new([(left, 0.0), (left + w * 0.9, h)], color.filled())
+            }))
+            .map_err(err)?
+            .label(name.as_str())
+            .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], color.filled()));
+    }
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .label_font(("sans-serif", 16))
+        .background_style(WHITE.mix(0.85))
+        .border_style(RGBColor(120, 120, 120))
+        .draw()
+        .map_err(err)?;
+    root.present().map_err(err)?;
+    Ok(())
 }
 
 fn range_of(values: impl Iterator<Item = f64>, log: bool) -> Option<(f64, f64)> {

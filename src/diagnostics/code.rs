@@ -69,6 +69,9 @@ codes! {
     SolverFailed => "E0701", "numerical integration failed";
     NoSteadyState => "E0702", "no steady state found";
     BadNumericInput => "E0703", "numerical input out of range";
+    NotCountable => "E0704", "step or value that has no molecule-count form";
+    NegativePropensity => "E0705", "rate law negative at a reached state";
+    CountOutOfRange => "E0706", "molecule count out of range";
 
     BadOption => "E0801", "invalid command-line value";
     OutputRefused => "E0802", "output refused";
@@ -85,4 +88,5 @@ codes! {
     LawDimensionUnknown => "W0104", "dimension of a rate law cannot be inferred";
     ConsumedOnly => "W0105", "species only ever consumed, with no source";
     LawDimensionMismatch => "W0106", "rate law does not have the dimension of a rate";
+    LawAsPropensity => "W0107", "rate law used as a propensity (an approximation)";
 }
