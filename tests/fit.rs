@@ -755,3 +755,54 @@ fn per_series_free_values() {
     }
     assert_eq!(j["parameters"].as_object().unwrap().len(), 7);
 }
+
+/// `--plot`: a figure of the data, the fitted curves (one per inhibitor
+/// level) and the residuals, committed with the other outputs; refused
+/// before any work for several models or a wrong extension.
+#[test]
+fn the_fit_figure_is_drawn() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = inhibition_table(2.0, f64::INFINITY, 0.0002, 3);
+    let m = dir.path().join("c.mech");
+    std::fs::write(&m, inhibition_mechanism("competitive")).unwrap();
+    let d = dir.path().join("d.csv");
+    std::fs::write(&d, &csv).unwrap();
+    let svg = dir.path().join("fit.svg");
+    let base = [
+        "fit",
+        m.to_str().unwrap(),
+        "--data",
+        d.to_str().unwrap(),
+        "--free",
+        "kcat=1,Km_S=3,Ki_I=1",
+    ];
+    let mut args = base.to_vec();
+    args.extend(["--plot", svg.to_str().unwrap()]);
+    let out = ratewright(&args);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&svg).unwrap();
+    // 28 data points and 28 residuals as circles; four curves, one per I.
+    assert_eq!(text.matches("<circle").count(), 56, "circles");
+    for level in ["I = 0", "I = 1", "I = 3", "I = 9"] {
+        assert!(text.contains(level), "no curve labelled {level}");
+    }
+    let mut args = base.to_vec();
+    args.extend(["--plot", "fit.pdf"]);
+    assert_eq!(ratewright(&args).status.code(), Some(2));
+    let out = ratewright(&[
+        "fit",
+        m.to_str().unwrap(),
+        m.to_str().unwrap(),
+        "--data",
+        d.to_str().unwrap(),
+        "--free",
+        "kcat",
+        "--plot",
+        svg.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+}

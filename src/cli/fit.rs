@@ -45,6 +45,9 @@ pub struct Args {
     /// hypercube over the bounds), in parallel; the best is kept.
     #[arg(long, default_value_t = 1, value_name = "N")]
     pub starts: usize,
+    /// A figure of the data, the fitted curves and the residuals (.svg or .png; one model).
+    #[arg(long, value_name = "FIGURE")]
+    pub plot: Option<PathBuf>,
     /// Write the model file with the fitted values in place (one model).
     #[arg(short = 'o', long, value_name = "FITTED.mech")]
     pub output: Option<PathBuf>,
@@ -181,11 +184,28 @@ pub fn run(args: &Args) -> ExitCode {
                 format!("-o {}: the fitted model is a .mech file", path.display()),
             );
         }
-        let inputs: Vec<PathBuf> = args.files.iter().chain(&args.data).cloned().collect();
-        if let Err(e) = super::output::sinks_for(&[path.as_path()], &inputs) {
+    }
+    if let Some(path) = &args.plot {
+        if args.files.len() > 1 {
+            return usage_error_as(json, "--plot draws one fitted model: give one model file");
+        }
+        if let Err(e) = super::plot::check_figure_path(path) {
             return usage_error_as(json, e);
         }
     }
+    // Outputs are checked before the work and committed together after it.
+    let outputs: Vec<&std::path::Path> = args
+        .output
+        .iter()
+        .chain(&args.plot)
+        .map(PathBuf::as_path)
+        .collect();
+    let inputs: Vec<PathBuf> = args.files.iter().chain(&args.data).cloned().collect();
+    let sinks = match super::output::sinks_for(&outputs, &inputs) {
+        Ok(s) => s,
+        Err(e) => return usage_error_as(json, e),
+    };
+    let mut staged = super::output::Staged::new();
     let (tables, data_sources) = match read_tables(&args.data) {
         Ok(t) => t,
         Err((diags, sources, unreadable)) => {
@@ -235,9 +255,21 @@ pub fn run(args: &Args) -> ExitCode {
                             Ok(t) => t,
                             Err(e) => return usage_error_as(json, format!("-o: {e}")),
                         };
-                    let inputs: Vec<PathBuf> =
-                        args.files.iter().chain(&args.data).cloned().collect();
-                    if let Err(e) = super::common::write_atomic(path, written.as_bytes(), &inputs) {
+                    let _ = path;
+                    if let Err(e) = staged.bytes(&sinks[0], written.as_bytes()) {
+                        return super::common::run_error(e);
+                    }
+                }
+                if args.plot.is_some() {
+                    let sink = &sinks[outputs.len() - 1];
+                    let Some(figure) = &f.figure else {
+                        return usage_error_as(
+                            json,
+                            "--plot: no condition varies in the data, so there is nothing to draw against",
+                        );
+                    };
+                    let title = model.name.clone().unwrap_or_else(|| label.clone());
+                    if let Err(e) = super::plot::draw_fit(&mut staged, sink, &title, figure) {
                         return super::common::run_error(e);
                     }
                 }
@@ -252,6 +284,9 @@ pub fn run(args: &Args) -> ExitCode {
                 return report_failure(&diags, sources, json, EXIT_MODEL);
             }
         }
+    }
+    if let Err(e) = staged.commit() {
+        return super::common::run_error(e);
     }
     let text = if json {
         let document = if fits.len() == 1 {

@@ -687,3 +687,152 @@ mod tests {
         assert!((e[0] - 0.1).abs() < 1e-12 && (e[2] - 1000.0).abs() < 1e-9);
     }
 }
+
+/// Stages the figure of a fit: data as points and fitted curves above, the
+/// residuals against the same x below (.svg or .png by the sink's name).
+pub fn draw_fit(
+    staged: &mut Staged,
+    sink: &Sink,
+    title: &str,
+    figure: &crate::fit::figure::Figure,
+) -> Result<(), String> {
+    stage_figure(staged, sink, |tmp, kind| match kind {
+        Kind::Svg => fit_on(
+            SVGBackend::new(tmp, (960, 800)).into_drawing_area(),
+            title,
+            figure,
+        ),
+        Kind::Png => fit_on(
+            BitMapBackend::new(tmp, (1440, 1200)).into_drawing_area(),
+            title,
+            figure,
+        ),
+    })
+}
+
+macro_rules! fit_panels {
+    ($top:expr, $bottom:expr, $title:expr, $fig:expr, $xr:expr, $xr2:expr, $yr:expr, $rr:expr) => {{
+        let fig = $fig;
+        let mut chart = ChartBuilder::on($top)
+            .caption($title, ("sans-serif", 26))
+            .margin(18)
+            .x_label_area_size(40)
+            .y_label_area_size(90)
+            .build_cartesian_2d($xr, $yr)
+            .map_err(err)?;
+        chart
+            .configure_mesh()
+            .y_desc(fig.y_label.as_str())
+            .x_label_formatter(&tick)
+            .y_label_formatter(&tick)
+            .label_style(("sans-serif", 16))
+            .axis_desc_style(("sans-serif", 19))
+            .light_line_style(RGBColor(235, 235, 235))
+            .draw()
+            .map_err(err)?;
+        for (k, g) in fig.groups.iter().enumerate() {
+            let color = PALETTE[k % PALETTE.len()];
+            let curve: Vec<(f64, f64)> = g
+                .curve
+                .iter()
+                .copied()
+                .filter(|(x, y)| x.is_finite() && y.is_finite() && (!fig.log_x || *x > 0.0))
+                .collect();
+            chart
+                .draw_series(LineSeries::new(curve, color.stroke_width(3)))
+                .map_err(err)?
+                .label(g.label.as_str())
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 24, y)], color.stroke_width(3))
+                });
+            chart
+                .draw_series(
+                    g.data
+                        .iter()
+                        .filter(|(x, _)| !fig.log_x || *x > 0.0)
+                        .map(|&(x, y)| Circle::new((x, y), 4, color.filled())),
+                )
+                .map_err(err)?;
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::LowerRight)
+            .label_font(("sans-serif", 15))
+            .background_style(WHITE.mix(0.85))
+            .border_style(RGBColor(120, 120, 120))
+            .draw()
+            .map_err(err)?;
+        let mut residuals = ChartBuilder::on($bottom)
+            .margin(18)
+            .x_label_area_size(56)
+            .y_label_area_size(90)
+            .build_cartesian_2d($xr2, $rr)
+            .map_err(err)?;
+        residuals
+            .configure_mesh()
+            .x_desc(fig.x_label.as_str())
+            .y_desc("residual")
+            .x_label_formatter(&tick)
+            .y_label_formatter(&tick)
+            .label_style(("sans-serif", 16))
+            .axis_desc_style(("sans-serif", 19))
+            .light_line_style(RGBColor(235, 235, 235))
+            .draw()
+            .map_err(err)?;
+        for (k, g) in fig.groups.iter().enumerate() {
+            let color = PALETTE[k % PALETTE.len()];
+            residuals
+                .draw_series(
+                    g.residuals
+                        .iter()
+                        .filter(|(x, _)| !fig.log_x || *x > 0.0)
+                        .map(|&(x, y)| Circle::new((x, y), 3, color.filled())),
+                )
+                .map_err(err)?;
+        }
+    }};
+}
+
+fn fit_on<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    title: &str,
+    fig: &crate::fit::figure::Figure,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    root.fill(&WHITE).map_err(err)?;
+    let xs = fig
+        .groups
+        .iter()
+        .flat_map(|g| g.data.iter().chain(&g.curve).map(|p| p.0));
+    let (x0, x1) = range_of(xs, fig.log_x).ok_or("nothing to plot on the x axis")?;
+    let ys = fig
+        .groups
+        .iter()
+        .flat_map(|g| g.data.iter().chain(&g.curve).map(|p| p.1));
+    let (y0, y1) = range_of(ys, false).ok_or("nothing to plot")?;
+    let r = fig
+        .groups
+        .iter()
+        .flat_map(|g| g.residuals.iter().map(|p| p.1.abs()))
+        .fold(0.0f64, f64::max);
+    let r = if r > 0.0 { r * 1.1 } else { 1.0 };
+    let (top, bottom) = root.split_vertically((root.dim_in_pixel().1 as f64 * 0.7) as u32);
+    if fig.log_x {
+        fit_panels!(
+            &top,
+            &bottom,
+            title,
+            fig,
+            (x0..x1).log_scale(),
+            (x0..x1).log_scale(),
+            y0..y1,
+            -r..r
+        );
+    } else {
+        fit_panels!(&top, &bottom, title, fig, x0..x1, x0..x1, y0..y1, -r..r);
+    }
+    root.present().map_err(err)?;
+    Ok(())
+}

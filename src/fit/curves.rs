@@ -288,6 +288,29 @@ impl<'a> CurveProblem<'a> {
         }
     }
 
+    /// Series `k` simulated at `times` with params `values`.
+    pub fn trajectory(
+        &self,
+        values: &[f64],
+        k: usize,
+        times: &[f64],
+    ) -> Result<crate::sim::Trajectory, String> {
+        let s = &self.series[k];
+        let mut overrides = s.conditions.clone();
+        overrides.extend(
+            self.free
+                .iter()
+                .zip(values)
+                .filter(|(f, _)| f.series.as_ref().is_none_or(|key| *key == s.name))
+                .map(|(f, v)| (f.target.clone(), *v)),
+        );
+        let m = self
+            .model
+            .with_overrides(&overrides)
+            .map_err(|e| e.to_string())?;
+        simulate(&m, &self.system, &self.settings, times).map_err(|e| e.to_string())
+    }
+
     /// The simulated outputs of every measurement at params `values`.
     pub fn predictions(&self, values: &[f64]) -> Result<Vec<f64>, String> {
         let mut out = Vec::with_capacity(self.count);

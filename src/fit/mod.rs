@@ -21,6 +21,7 @@
 pub mod compare;
 pub mod curves;
 pub mod data;
+pub mod figure;
 pub mod lm;
 pub mod rates;
 mod search;
@@ -95,6 +96,8 @@ pub struct Fit {
     pub points: Vec<(usize, usize, f64, f64)>,
     /// What the fitted rate is.
     pub rate_of: String,
+    /// The data, fitted curves and residuals, as they are plotted.
+    pub figure: Option<figure::Figure>,
 }
 
 fn request_error(message: String) -> Vec<Diagnostic> {
@@ -368,6 +371,12 @@ pub fn fit_rates(
         .map(|pt| (pt.table, pt.line, pt.observed, problem.rate_at(pt, &values)))
         .collect();
     fit.rate_of = rate_of;
+    let response = request
+        .response
+        .as_ref()
+        .map(|(c, _)| c.as_str())
+        .unwrap_or("v");
+    fit.figure = figure::of_rates(&problem, &values, response);
     Ok(fit)
 }
 
@@ -596,6 +605,7 @@ pub fn fit_curves(
         }
     }
     fit.rate_of = format!("progress curves of {} series", problem.series.len());
+    fit.figure = figure::of_curves(&problem, &values);
     Ok(fit)
 }
 
@@ -697,6 +707,7 @@ fn estimate(
         warnings,
         points: Vec::new(),
         rate_of: String::new(),
+        figure: None,
     })
 }
 
