@@ -676,18 +676,6 @@ where
     Ok(())
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn log_cell_edges_are_geometric_midpoints() {
-        let e = edges(&[1.0, 100.0], true);
-        assert!((e[1] - 10.0).abs() < 1e-12);
-        assert!((e[0] - 0.1).abs() < 1e-12 && (e[2] - 1000.0).abs() < 1e-9);
-    }
-}
-
 /// Stages the figure of a fit: data as points and fitted curves above, the
 /// residuals against the same x below (.svg or .png by the sink's name).
 pub fn draw_fit(
@@ -835,4 +823,16 @@ where
     }
     root.present().map_err(err)?;
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn log_cell_edges_are_geometric_midpoints() {
+        let e = edges(&[1.0, 100.0], true);
+        assert!((e[1] - 10.0).abs() < 1e-12);
+        assert!((e[0] - 0.1).abs() < 1e-12 && (e[2] - 1000.0).abs() < 1e-9);
+    }
 }
