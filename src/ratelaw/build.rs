@@ -2,43 +2,42 @@
 //! graph of forms (lumping rapid equilibria), sums spanning trees, and
 //! writes the requested flux with the forms' totals.
 
-use super::trees::{FormGraph, expanded_term_count, tree_sums};
+use super::lumping::*;
+use super::overall::*;
+use super::trees::{expanded_term_count, tree_sums};
 use super::{
-    Derivation, Derived, FormTotal, Overall, Progress, Request, Target, VarKind, constants,
-    unknown_name,
+    Derivation, Derived, FormTotal, Progress, Request, Target, VarKind, constants, unknown_name,
 };
 use super::{constants_form, patterns, saturation};
 use crate::algebra::poly::{Monomial, Poly, Var, Vars};
 use crate::algebra::rational::{RationalFunction, rational_from_f64};
 use crate::diagnostics::{Code, Diagnostic, Span};
 use crate::model::{BinOp, Expr, Model, Rate, Sym};
-use num_bigint::BigInt;
-use num_integer::Integer;
 use num_rational::BigRational;
 use num_traits::{One, Signed, ToPrimitive, Zero};
 use std::collections::BTreeMap;
 
 /// One step seen from the forms: at most one form on each side.
-struct StepView {
-    left: Option<usize>,
-    right: Option<usize>,
+pub(super) struct StepView {
+    pub(super) left: Option<usize>,
+    pub(super) right: Option<usize>,
     /// Forward pseudo-first-order rate: constant times the other reactants.
-    forward: RationalFunction,
+    pub(super) forward: RationalFunction,
     /// Reverse, for a reversible mass-action step.
-    reverse: Option<RationalFunction>,
+    pub(super) reverse: Option<RationalFunction>,
     /// An explicit law (only on steps without forms).
-    law: Option<RationalFunction>,
+    pub(super) law: Option<RationalFunction>,
 }
 
-struct Context<'a> {
-    model: &'a Model,
-    vars: Vars,
-    kinds: Vec<VarKind>,
+pub(super) struct Context<'a> {
+    pub(super) model: &'a Model,
+    pub(super) vars: Vars,
+    pub(super) kinds: Vec<VarKind>,
     /// Variable of each param / fixed / species (None for intermediates).
-    param_var: Vec<Var>,
-    fixed_var: Vec<Var>,
-    species_var: Vec<Option<Var>>,
-    is_form: Vec<bool>,
+    pub(super) param_var: Vec<Var>,
+    pub(super) fixed_var: Vec<Var>,
+    pub(super) species_var: Vec<Option<Var>>,
+    pub(super) is_form: Vec<bool>,
 }
 
 pub fn derive_with_progress(
@@ -304,7 +303,7 @@ pub fn derive_with_progress(
     Ok(derivation)
 }
 
-fn format_count(x: f64) -> String {
+pub(super) fn format_count(x: f64) -> String {
     if x < 1e6 {
         format!("{}", x.round())
     } else {
@@ -312,7 +311,7 @@ fn format_count(x: f64) -> String {
     }
 }
 
-fn resolve_steady(model: &Model, request: &Request) -> Result<Vec<usize>, Diagnostic> {
+pub(super) fn resolve_steady(model: &Model, request: &Request) -> Result<Vec<usize>, Diagnostic> {
     let mut out: Vec<usize> = Vec::new();
     match &request.steady {
         Some(names) => {
@@ -347,7 +346,10 @@ fn resolve_steady(model: &Model, request: &Request) -> Result<Vec<usize>, Diagno
     Ok(out)
 }
 
-fn resolve_equilibrium(model: &Model, request: &Request) -> Result<Vec<usize>, Diagnostic> {
+pub(super) fn resolve_equilibrium(
+    model: &Model,
+    request: &Request,
+) -> Result<Vec<usize>, Diagnostic> {
     let mut out: Vec<usize> = match &request.equilibrium {
         Some(names) => {
             let all: Vec<String> = model.steps.iter().map(|s| s.name.clone()).collect();
@@ -372,7 +374,7 @@ fn resolve_equilibrium(model: &Model, request: &Request) -> Result<Vec<usize>, D
     Ok(out)
 }
 
-fn check_fast_step(model: &Model, j: usize, v: &StepView) -> Result<(), Diagnostic> {
+pub(super) fn check_fast_step(model: &Model, j: usize, v: &StepView) -> Result<(), Diagnostic> {
     let step = &model.steps[j];
     let problem = match (v.left, v.right, &v.reverse) {
         _ if v.law.is_some() => Some("it has an explicit law, so it has no equilibrium constant"),
@@ -395,7 +397,7 @@ fn check_fast_step(model: &Model, j: usize, v: &StepView) -> Result<(), Diagnost
 }
 
 impl<'a> Context<'a> {
-    fn new(model: &'a Model, steady: &[usize]) -> Context<'a> {
+    pub(super) fn new(model: &'a Model, steady: &[usize]) -> Context<'a> {
         let mut vars = Vars::new();
         let mut kinds = Vec::new();
         let mut is_form = vec![false; model.species.len()];
@@ -442,7 +444,7 @@ impl<'a> Context<'a> {
         }
     }
 
-    fn view(&mut self, j: usize) -> Result<StepView, Diagnostic> {
+    pub(super) fn view(&mut self, j: usize) -> Result<StepView, Diagnostic> {
         let step = &self.model.steps[j];
         let left = self.side_form(j, &step.reactants, "left")?;
         let right = self.side_form(j, &step.products, "right")?;
@@ -519,7 +521,7 @@ impl<'a> Context<'a> {
     }
 
     /// The one intermediate on a side, or a diagnostic if there are more.
-    fn side_form(
+    pub(super) fn side_form(
         &self,
         j: usize,
         terms: &[crate::model::Term],
@@ -567,7 +569,7 @@ impl<'a> Context<'a> {
     }
 
     /// Product of the non-intermediate concentrations of a side.
-    fn others(
+    pub(super) fn others(
         &self,
         j: usize,
         terms: &[crate::model::Term],
@@ -597,7 +599,7 @@ impl<'a> Context<'a> {
     }
 
     /// A rate constant as a rational function of params and concentrations.
-    fn rational(&self, e: &Expr, span: Span) -> Result<RationalFunction, Diagnostic> {
+    pub(super) fn rational(&self, e: &Expr, span: Span) -> Result<RationalFunction, Diagnostic> {
         let bad = |why: String| {
             Diagnostic::error(Code::BadDerivationRequest, format!("rate expression is not a rational function of params: {why}"))
                 .with_label(span, "rate")
@@ -668,241 +670,27 @@ impl<'a> Context<'a> {
     }
 }
 
-/// The graph of lumps of one connected set of forms, with each form's share
-/// of its lump and each lump's out-edge scale.
-struct Plan {
-    graph: FormGraph,
-    lump_of: BTreeMap<usize, usize>,
-    share: BTreeMap<usize, RationalFunction>,
-    scale: Vec<Poly>,
-}
-
-fn plan_component(
-    cx: &Context,
-    forms: &[usize],
-    views: &[StepView],
-    equilibrium: &[usize],
-    lump: &mut UnionFind,
-    notes: &mut Vec<String>,
-) -> Result<Plan, Diagnostic> {
-    let model = cx.model;
-    // Lumps in order of their first form.
-    let mut roots: Vec<usize> = Vec::new();
-    let mut lump_of = BTreeMap::new();
-    for &f in forms {
-        let r = lump.find(f);
-        let idx = match roots.iter().position(|&x| x == r) {
-            Some(i) => i,
-            None => {
-                roots.push(r);
-                roots.len() - 1
-            }
-        };
-        lump_of.insert(f, idx);
-    }
-    // Equilibrium shares within each lump (Cha 1968): relative amounts along
-    // a spanning tree of the fast steps, then divided by the lump's sum.
-    let mut share = BTreeMap::new();
-    for g in 0..roots.len() {
-        let members: Vec<usize> = forms.iter().copied().filter(|f| lump_of[f] == g).collect();
-        let mut rel: BTreeMap<usize, RationalFunction> = BTreeMap::new();
-        rel.insert(members[0], RationalFunction::one());
-        let mut used = vec![false; views.len()];
-        let mut changed = true;
-        while changed {
-            changed = false;
-            for &j in equilibrium {
-                let v = &views[j];
-                let (Some(a), Some(b)) = (v.left, v.right) else {
-                    continue;
-                };
-                if used[j] || !members.contains(&a) {
-                    continue;
-                }
-                let reverse = v.reverse.as_ref().expect("checked fast step");
-                match (rel.get(&a).cloned(), rel.get(&b).cloned()) {
-                    (Some(x), None) => {
-                        let k = v
-                            .forward
-                            .div(reverse)
-                            .unwrap_or_else(RationalFunction::zero);
-                        rel.insert(b, x.mul(&k));
-                        used[j] = true;
-                        changed = true;
-                    }
-                    (None, Some(y)) => {
-                        let k = reverse
-                            .div(&v.forward)
-                            .unwrap_or_else(RationalFunction::zero);
-                        rel.insert(a, y.mul(&k));
-                        used[j] = true;
-                        changed = true;
-                    }
-                    _ => {}
-                }
-            }
-        }
-        // Fast steps of this lump that the spanning tree left out: they
-        // close cycles.
-        let left_out: Vec<usize> = equilibrium
-            .iter()
-            .copied()
-            .filter(|&j| !used[j] && views[j].left.is_some_and(|a| members.contains(&a)))
-            .collect();
-        let cyclic: Vec<&str> = left_out
-            .iter()
-            .map(|&j| model.steps[j].name.as_str())
-            .collect();
-        if !cyclic.is_empty() {
-            let (steps, its) = if cyclic.len() == 1 {
-                ("step", "its equilibrium constant equals the one")
-            } else {
-                ("steps", "their equilibrium constants equal the ones")
-            };
-            notes.push(format!(
-                "the rapid equilibria among {} close a cycle; the derivation takes the ratios of these forms from the other equilibria and assumes that, for {steps} {}, {its} the other equilibria imply (detailed balance: the product of the equilibrium constants around the cycle is 1)",
-                members.iter().map(|&f| model.species[f].name.as_str()).collect::<Vec<_>>().join(", "),
-                cyclic.join(", ")
-            ));
-            // With the values given, check that assumption (Wegscheider's
-            // condition). The ratio does not depend on concentrations (both
-            // routes bind the same species), so they are set to 1.
-            let value = |v: Var| match cx.kinds[v as usize] {
-                VarKind::Param(i) => model.params[i].value,
-                VarKind::Fixed(i) => model.fixed[i].value,
-                VarKind::Species(_) | VarKind::Total(_) => 1.0,
-            };
-            for &j in &left_out {
-                let v = &views[j];
-                let (Some(ra), Some(rb), Some(reverse)) = (
-                    v.left.and_then(|a| rel.get(&a)),
-                    v.right.and_then(|b| rel.get(&b)),
-                    v.reverse.as_ref(),
-                ) else {
-                    continue;
-                };
-                let implied = rb.eval(&value) / ra.eval(&value);
-                let given = v.forward.eval(&value) / reverse.eval(&value);
-                let factor = given / implied;
-                if factor.is_finite() && (factor - 1.0).abs() > 1e-6 {
-                    notes.push(format!(
-                        "detailed balance does not hold with the values given: step {}'s equilibrium constant is {} times what the other equilibria of the cycle imply; the rate law follows the other equilibria, so check the constants (in a true equilibrium cycle their product around the cycle is 1)",
-                        model.steps[j].name,
-                        if (1e-3..1e4).contains(&factor.abs()) {
-                            format!("{factor:.4}")
-                        } else {
-                            format!("{factor:.3e}")
-                        }
-                    ));
-                }
-            }
-        }
-        let mut sum = RationalFunction::zero();
-        for r in rel.values() {
-            sum = sum.add(r);
-        }
-        for (&f, r) in &rel {
-            share.insert(f, r.div(&sum).unwrap_or_else(RationalFunction::zero));
-        }
-    }
-    // Lumped edges with rational weights, then scaled to polynomials per source.
-    let n = roots.len();
-    let mut weights: Vec<BTreeMap<usize, RationalFunction>> = vec![BTreeMap::new(); n];
-    for (j, v) in views.iter().enumerate() {
-        if equilibrium.contains(&j) {
-            continue;
-        }
-        let (Some(a), Some(b)) = (v.left, v.right) else {
-            continue;
-        };
-        let (Some(&ga), Some(&gb)) = (lump_of.get(&a), lump_of.get(&b)) else {
-            continue;
-        };
-        if ga == gb {
-            continue;
-        }
-        let fw = v.forward.mul(&share[&a]);
-        let e = weights[ga].entry(gb).or_insert_with(RationalFunction::zero);
-        *e = e.add(&fw);
-        if let Some(r) = &v.reverse {
-            let rw = r.mul(&share[&b]);
-            let e = weights[gb].entry(ga).or_insert_with(RationalFunction::zero);
-            *e = e.add(&rw);
-        }
-    }
-    let mut graph = FormGraph::new(n);
-    let mut scale = Vec::with_capacity(n);
-    for (g, out) in weights.iter().enumerate() {
-        let mut c = Poly::one();
-        for w in out.values() {
-            let gcd = c.gcd(&w.den);
-            c = c.mul(&w.den.div_exact(&gcd).unwrap_or_else(|| w.den.clone()));
-        }
-        for (&h, w) in out {
-            let factor = c.div_exact(&w.den).unwrap_or_else(|| c.clone());
-            graph.add_edge(g, h, &w.num.mul(&factor));
-        }
-        scale.push(c);
-    }
-    Ok(Plan {
-        graph,
-        lump_of,
-        share,
-        scale,
-    })
-}
-
-fn name_total(model: &Model, forms: &[usize], existing: &[FormTotal]) -> FormTotal {
-    let value: f64 = forms.iter().map(|&f| model.species[f].initial).sum();
-    for (ti, t) in model.totals.iter().enumerate() {
-        let mut species: Vec<usize> = t.terms.iter().map(|(i, _)| *i).collect();
-        species.sort_unstable();
-        let unit = t.terms.iter().all(|(_, c)| c.is_one());
-        if unit && species == forms {
-            return FormTotal {
-                name: t.name.clone(),
-                forms: forms.to_vec(),
-                declared: Some(ti),
-                value: t.value,
-            };
-        }
-    }
-    let base = format!("{}_total", model.species[forms[0]].name);
-    let mut name = base.clone();
-    let mut k = 2;
-    while model.lookup(&name).is_some() || existing.iter().any(|t| t.name == name) {
-        name = format!("{base}{k}");
-        k += 1;
-    }
-    FormTotal {
-        name,
-        forms: forms.to_vec(),
-        declared: None,
-        value,
-    }
-}
-
 /// Above this many denominator terms the forms' expressions are not kept.
-const FORM_EXPRESSION_LIMIT: usize = 20_000;
+pub(super) const FORM_EXPRESSION_LIMIT: usize = 20_000;
 
 /// A form's steady-state concentration `num / (den * Q[component])`.
-struct FormConc {
-    num: Poly,
-    den: Poly,
-    component: usize,
+pub(super) struct FormConc {
+    pub(super) num: Poly,
+    pub(super) den: Poly,
+    pub(super) component: usize,
 }
 
 /// A rate `num / (den * Q[component])` (no Q factor for `None`): sums over
 /// one component's steps share Q, so it is never copied per step.
 #[derive(Clone)]
-struct Part {
-    num: Poly,
-    den: Poly,
-    component: Option<usize>,
+pub(super) struct Part {
+    pub(super) num: Poly,
+    pub(super) den: Poly,
+    pub(super) component: Option<usize>,
 }
 
 impl Part {
-    fn zero() -> Part {
+    pub(super) fn zero() -> Part {
         Part {
             num: Poly::zero(),
             den: Poly::one(),
@@ -911,7 +699,7 @@ impl Part {
     }
     /// The sum, without cancelling; `None` when the two do not share the
     /// component's denominator.
-    fn add(&self, o: &Part) -> Option<Part> {
+    pub(super) fn add(&self, o: &Part) -> Option<Part> {
         if o.num.is_zero() {
             return Some(self.clone());
         }
@@ -934,7 +722,7 @@ impl Part {
             component: self.component,
         })
     }
-    fn into_rational(self, qs: &[Poly]) -> RationalFunction {
+    pub(super) fn into_rational(self, qs: &[Poly]) -> RationalFunction {
         let den = match self.component {
             Some(c) if self.den.is_one() => qs[c].clone(),
             Some(c) => self.den.mul(&qs[c]),
@@ -946,7 +734,7 @@ impl Part {
 
 /// Net rate of a step with intermediates replaced by their steady-state
 /// concentrations; nothing is cancelled here (that happens once, at the end).
-fn step_net_rate(v: &StepView, conc: &BTreeMap<usize, FormConc>) -> Part {
+pub(super) fn step_net_rate(v: &StepView, conc: &BTreeMap<usize, FormConc>) -> Part {
     if let Some(law) = &v.law {
         return Part {
             num: law.num.clone(),
@@ -983,7 +771,7 @@ fn step_net_rate(v: &StepView, conc: &BTreeMap<usize, FormConc>) -> Part {
 }
 
 /// Sums rates, sharing each component's denominator where possible.
-fn sum_parts(parts: Vec<Part>, qs: &[Poly]) -> RationalFunction {
+pub(super) fn sum_parts(parts: Vec<Part>, qs: &[Poly]) -> RationalFunction {
     let mut groups: Vec<Part> = Vec::new();
     for p in parts {
         if p.num.is_zero() {
@@ -1003,341 +791,4 @@ fn sum_parts(parts: Vec<Part>, qs: &[Poly]) -> RationalFunction {
         acc = acc.add_lazy(&g.into_rational(qs));
     }
     acc
-}
-
-/// d(species)/dt divided by `nu`, from the steps' net rates weighted by
-/// [`slow_step_weights`].
-fn species_rate(
-    weights: &[BigRational],
-    rates: &[Part],
-    nu: &BigRational,
-    qs: &[Poly],
-) -> RationalFunction {
-    let mut parts = Vec::new();
-    for (w, r) in weights.iter().zip(rates) {
-        if !w.is_zero() {
-            let c = w / nu;
-            parts.push(Part {
-                num: r.num.scale(&c),
-                den: r.den.clone(),
-                component: r.component,
-            });
-        }
-    }
-    sum_parts(parts, qs)
-}
-
-fn exact(c: crate::model::Coef) -> BigRational {
-    BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom()))
-}
-
-/// The rate of change of `target` at the steady state as weights on the
-/// steps' net rates. A rapid-equilibrium step's mass-action net rate
-/// vanishes at equilibrium, but its flux does not: it carries whatever the
-/// slow steps feed it, so reading a rate from it gives 0. Adding multiples
-/// y_k of the forms' balances (each zero at the steady state),
-/// d[target]/dt = Σ_j (ν_target,j + Σ_k y_k ν_kj) v_j, with y chosen so
-/// that every fast step's weight is zero: only slow steps remain, whose
-/// net rates are the fluxes through the lumped graph. Any such y gives the
-/// same rate, since the forms' balances hold. `None` when no y exists (a
-/// fast step changes `target` with no form to balance it).
-fn slow_step_weights(
-    model: &Model,
-    target: usize,
-    is_form: &[bool],
-    equilibrium: &[usize],
-) -> Option<Vec<BigRational>> {
-    let forms: Vec<usize> = (0..model.species.len()).filter(|&i| is_form[i]).collect();
-    let column = |j: usize| -> (BigRational, Vec<BigRational>) {
-        let mut own = BigRational::zero();
-        let mut by_form = vec![BigRational::zero(); forms.len()];
-        for (i, c) in model.net_change(j) {
-            if i == target {
-                own += exact(c);
-            } else if let Ok(k) = forms.binary_search(&i) {
-                by_form[k] += exact(c);
-            }
-        }
-        (own, by_form)
-    };
-    // Rows: one per fast step, Σ_k ν_kf y_k = −ν_target,f.
-    let mut rows: Vec<(Vec<BigRational>, BigRational)> = equilibrium
-        .iter()
-        .map(|&f| {
-            let (own, by_form) = column(f);
-            (by_form, -own)
-        })
-        .collect();
-    let mut y = vec![BigRational::zero(); forms.len()];
-    let mut pivots: Vec<(usize, usize)> = Vec::new();
-    let mut r = 0;
-    for c in 0..forms.len() {
-        let Some(p) = (r..rows.len()).find(|&i| !rows[i].0[c].is_zero()) else {
-            continue;
-        };
-        rows.swap(r, p);
-        let inv = rows[r].0[c].recip();
-        for x in rows[r].0.iter_mut() {
-            *x = &*x * &inv;
-        }
-        rows[r].1 = &rows[r].1 * &inv;
-        let pivot = rows[r].clone();
-        for (i, row) in rows.iter_mut().enumerate() {
-            if i != r && !row.0[c].is_zero() {
-                let f = row.0[c].clone();
-                for (x, q) in row.0.iter_mut().zip(&pivot.0) {
-                    *x = &*x - &f * q;
-                }
-                row.1 = &row.1 - &f * &pivot.1;
-            }
-        }
-        pivots.push((r, c));
-        r += 1;
-    }
-    if rows[r..].iter().any(|(_, b)| !b.is_zero()) {
-        return None;
-    }
-    for (row, c) in pivots {
-        y[c] = rows[row].1.clone();
-    }
-    Some(
-        (0..model.steps.len())
-            .map(|j| {
-                if equilibrium.contains(&j) {
-                    return BigRational::zero();
-                }
-                let (own, by_form) = column(j);
-                by_form.iter().zip(&y).fold(own, |acc, (n, w)| acc + n * w)
-            })
-            .collect(),
-    )
-}
-
-/// The dynamic, non-intermediate species `name` names, for `--species`.
-fn species_asked_for(model: &Model, name: &str, is_form: &[bool]) -> Result<usize, Diagnostic> {
-    match model.lookup(name) {
-        Some(Sym::Species(i)) if is_form[i] => Err(Diagnostic::error(
-            Code::BadDerivationRequest,
-            format!("`{name}` is an intermediate: at steady state its rate of change is zero"),
-        )
-        .with_help("choose a substrate or product, or a step with --flux")),
-        Some(Sym::Species(i)) => Ok(i),
-        Some(_) => Err(Diagnostic::error(
-            Code::BadDerivationRequest,
-            format!("`{name}` is not a dynamic species"),
-        )),
-        None => Err(unknown_name(
-            "species",
-            name,
-            &model
-                .species
-                .iter()
-                .map(|s| s.name.clone())
-                .collect::<Vec<_>>(),
-        )),
-    }
-}
-
-fn no_overall(model: &Model) -> Diagnostic {
-    let _ = model;
-    Diagnostic::error(
-        Code::NoOverallReaction,
-        "the steady-state fluxes change no species other than the intermediates",
-    )
-    .with_help("there is no overall reaction to give a rate for; use --flux STEP for a step's rate")
-}
-
-/// The overall reaction: the net change of the non-intermediate species
-/// over the steady-state flux modes (the null space of the intermediates'
-/// stoichiometry). Exactly one is required.
-fn overall_reaction(model: &Model, is_form: &[bool]) -> Result<Overall, Diagnostic> {
-    let n = model.stoichiometry();
-    let to_big = |c: num_rational::Rational64| {
-        BigRational::new(BigInt::from(*c.numer()), BigInt::from(*c.denom()))
-    };
-    let steps = model.steps.len();
-    let internal: Vec<Vec<BigRational>> = (0..model.species.len())
-        .filter(|&i| is_form[i])
-        .map(|i| n[i].iter().map(|c| to_big(*c)).collect())
-        .collect();
-    let basis = null_space(internal, steps);
-    let external: Vec<usize> = (0..model.species.len()).filter(|&i| !is_form[i]).collect();
-    let image = |b: &[BigRational]| -> Vec<BigRational> {
-        external
-            .iter()
-            .map(|&i| {
-                (0..steps)
-                    .map(|j| to_big(n[i][j]) * &b[j])
-                    .fold(BigRational::zero(), |a, x| a + x)
-            })
-            .collect()
-    };
-    let images: Vec<(Vec<BigRational>, &Vec<BigRational>)> = basis
-        .iter()
-        .map(|b| (image(b), b))
-        .filter(|(v, _)| v.iter().any(|x| !x.is_zero()))
-        .collect();
-    let rank = null_space(
-        images.iter().map(|(v, _)| v.clone()).collect(),
-        external.len(),
-    );
-    let dim = external.len() - rank.len();
-    if dim == 0 {
-        return Err(no_overall(model));
-    }
-    if dim > 1 {
-        // A basis of the overall reactions: keep each image that raises the rank.
-        let mut basis: Vec<Vec<BigRational>> = Vec::new();
-        let mut list: Vec<String> = Vec::new();
-        for (v, _) in &images {
-            let mut trial = basis.clone();
-            trial.push(v.clone());
-            if external.len() - null_space(trial.clone(), external.len()).len() > basis.len() {
-                basis = trial;
-                list.push(reaction_text(model, &external, v));
-            }
-        }
-        return Err(Diagnostic::error(
-            Code::NoOverallReaction,
-            format!("the mechanism has {dim} independent overall reactions ({}), so there is no single rate", list.join("; ")),
-        )
-        .with_help("choose a rate with --species NAME (rate of change of one species) or --flux STEP (net rate of one step)"));
-    }
-    let (v, b) = &images[0];
-    let flip = b
-        .iter()
-        .fold(BigRational::zero(), |a, x| a + x)
-        .is_negative();
-    // Scale to coprime integers.
-    let lcm = v.iter().fold(BigInt::one(), |a, x| a.lcm(x.denom()));
-    let ints: Vec<BigInt> = v
-        .iter()
-        .map(|x| (x * BigRational::from_integer(lcm.clone())).to_integer())
-        .collect();
-    let g = ints.iter().fold(BigInt::zero(), |a, x| a.gcd(x));
-    let mut overall = Overall::default();
-    for (k, x) in ints.iter().enumerate() {
-        let x = if flip { -x / &g } else { x / &g };
-        if x.is_positive() {
-            overall.products.push((external[k], x));
-        } else if x.is_negative() {
-            overall.reactants.push((external[k], -x));
-        }
-    }
-    Ok(overall)
-}
-
-fn reaction_text(model: &Model, external: &[usize], v: &[BigRational]) -> String {
-    let side = |pos: bool| {
-        let parts: Vec<String> = v
-            .iter()
-            .enumerate()
-            .filter(|(_, x)| {
-                if pos {
-                    x.is_positive()
-                } else {
-                    x.is_negative()
-                }
-            })
-            .map(|(k, x)| {
-                let c = x.abs();
-                let name = &model.species[external[k]].name;
-                if c.is_one() {
-                    name.clone()
-                } else {
-                    format!("{c} {name}")
-                }
-            })
-            .collect();
-        if parts.is_empty() {
-            "0".to_string()
-        } else {
-            parts.join(" + ")
-        }
-    };
-    format!("{} -> {}", side(false), side(true))
-}
-
-/// A basis of the null space of a matrix given by rows (exact).
-fn null_space(mut rows: Vec<Vec<BigRational>>, cols: usize) -> Vec<Vec<BigRational>> {
-    let mut pivots = Vec::new();
-    let mut r = 0;
-    for c in 0..cols {
-        let Some(p) = (r..rows.len()).find(|&i| !rows[i][c].is_zero()) else {
-            continue;
-        };
-        rows.swap(r, p);
-        let inv = rows[r][c].recip();
-        for x in rows[r].iter_mut() {
-            *x = &*x * &inv;
-        }
-        for i in 0..rows.len() {
-            if i != r && !rows[i][c].is_zero() {
-                let f = rows[i][c].clone();
-                let pivot_row = rows[r].clone();
-                for (x, y) in rows[i].iter_mut().zip(&pivot_row) {
-                    *x = &*x - &f * y;
-                }
-            }
-        }
-        pivots.push(c);
-        r += 1;
-        if r == rows.len() {
-            break;
-        }
-    }
-    let free: Vec<usize> = (0..cols).filter(|c| !pivots.contains(c)).collect();
-    free.iter()
-        .map(|&f| {
-            let mut v = vec![BigRational::zero(); cols];
-            v[f] = BigRational::one();
-            for (k, &p) in pivots.iter().enumerate() {
-                v[p] = -rows[k][f].clone();
-            }
-            v
-        })
-        .collect()
-}
-
-struct UnionFind(Vec<usize>);
-
-impl UnionFind {
-    fn new(n: usize) -> UnionFind {
-        UnionFind((0..n).collect())
-    }
-    fn find(&mut self, x: usize) -> usize {
-        let mut r = x;
-        while self.0[r] != r {
-            r = self.0[r];
-        }
-        let mut y = x;
-        while self.0[y] != r {
-            let next = self.0[y];
-            self.0[y] = r;
-            y = next;
-        }
-        r
-    }
-    fn union(&mut self, a: usize, b: usize) {
-        let (ra, rb) = (self.find(a), self.find(b));
-        if ra != rb {
-            let (lo, hi) = if ra < rb { (ra, rb) } else { (rb, ra) };
-            self.0[hi] = lo;
-        }
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn null_space_of_a_two_form_cycle() {
-        // E: bind -1, cleave +1; ES: bind +1, cleave -1 (Michaelis–Menten
-        // cycle, common practice): one flux mode, both steps forward.
-        let one = || BigRational::one();
-        let rows = vec![vec![-one(), one()], vec![one(), -one()]];
-        let b = null_space(rows, 2);
-        assert_eq!(b, vec![vec![one(), one()]]);
-    }
 }

@@ -15,7 +15,9 @@
 mod build;
 pub mod constants;
 pub mod constants_form;
+mod lumping;
 pub mod output;
+mod overall;
 pub mod patterns;
 pub mod saturation;
 pub mod trees;
