@@ -603,6 +603,15 @@ fn statistics_are_those_of_the_runs_and_json_reports_the_conversion() {
     assert_eq!(reactions[1]["stochastic_constant"].as_f64().unwrap(), 40.0);
     assert_eq!(reactions[2]["stochastic_constant"].as_f64().unwrap(), 12.0);
     assert_eq!(doc["t"].as_array().unwrap().len(), 4);
+    // Observables on counts / Ω: signal = 850 P + 120 is linear, so its
+    // mean is 850 mean(P)/Ω + 120 (P is column 3 of the runs).
+    for (k, t) in [0.0, 30.0, 600.0, 650.0].into_iter().enumerate() {
+        let p = counts_at(&rows, t, 3);
+        let mean_p = p.iter().sum::<i64>() as f64 / p.len() as f64;
+        let got = doc["observables"]["signal"]["mean"][k].as_f64().unwrap();
+        let want = 850.0 * mean_p / omega + 120.0;
+        assert!((got - want).abs() < 1e-9 * want, "t = {t}: {got} vs {want}");
+    }
     // The addition at 600 s: S + ES + P grows by exactly 1204 molecules.
     let substrate_total = |t: f64| -> Vec<i64> {
         rows.iter()

@@ -649,6 +649,24 @@ fn json_report(
             )
         })
         .collect();
+    let obs = ens.observable_statistics(net);
+    let observables: Map<String, Value> = net
+        .model
+        .observables
+        .iter()
+        .enumerate()
+        .map(|(i, o)| {
+            (
+                o.name.clone(),
+                json!({
+                    "mean": col(&obs.mean, i),
+                    "sd": col(&obs.sd, i),
+                    "q05": col(&obs.q05, i),
+                    "q95": col(&obs.q95, i),
+                }),
+            )
+        })
+        .collect();
     let start: Map<String, Value> = net
         .model
         .species
@@ -688,6 +706,7 @@ fn json_report(
         "reactions": reactions,
         "t": shown.iter().map(|&k| ens.times[k]).collect::<Vec<f64>>(),
         "statistics": statistics,
+        "observables": observables,
         "reaction_events": ens.firings,
         "warnings": warnings,
     });

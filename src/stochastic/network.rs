@@ -417,7 +417,7 @@ impl Network {
     }
 
     /// The value of a name with species at `counts / Ω` and the given totals.
-    fn value(&self, sym: Sym, counts: &[i64], totals: &[f64]) -> f64 {
+    pub fn value(&self, sym: Sym, counts: &[i64], totals: &[f64]) -> f64 {
         match sym {
             Sym::Species(i) => counts[i] as f64 / self.omega,
             Sym::Total(k) => totals[k],
