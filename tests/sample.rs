@@ -898,3 +898,49 @@ fn as_the_volume_grows_runs_approach_the_rate_equations_like_one_over_root_volum
     // small-volume corrections as well.
     assert!((slope + 0.5).abs() < 0.06, "slope {slope}");
 }
+
+#[test]
+fn an_interrupted_ensemble_writes_nothing() {
+    // SIGINT while the runs are under way: no output file and no temporary
+    // file is left, the old file at the path is kept, and the exit is not
+    // a success.
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("runs.csv");
+    std::fs::write(&out, "old\n").unwrap();
+    let model = root().join("models/protease_assay.mech");
+    let mut child = std::process::Command::new(common::bin())
+        .args([
+            "sample",
+            model.to_str().unwrap(),
+            "--volume",
+            "100 fL",
+            "--runs",
+            "100000",
+            "--until",
+            "1200",
+            "-o",
+            out.to_str().unwrap(),
+        ])
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    std::thread::sleep(std::time::Duration::from_millis(400));
+    assert!(
+        child.try_wait().unwrap().is_none(),
+        "finished before the interrupt"
+    );
+    let kill = std::process::Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(kill.success());
+    let status = child.wait().unwrap();
+    assert!(!status.success());
+    assert_eq!(std::fs::read_to_string(&out).unwrap(), "old\n");
+    let names: Vec<String> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(names, ["runs.csv"], "left behind: {names:?}");
+}

@@ -504,7 +504,7 @@ fn human_report(
         args.file.display(),
         ens.runs,
         args.seed,
-        number(net.litres),
+        format_g(net.litres),
         format_g(net.omega),
         units.concentration.symbol()
     );
