@@ -652,6 +652,24 @@ fn histograms_and_plots_are_written_together() {
     assert!(rows.iter().all(|r| r[1] != 75.0));
     let svg = std::fs::read_to_string(&fig).unwrap();
     assert!(svg.contains("<svg") && svg.contains("fraction of runs"));
+    // `-o -`: the table alone on standard output, the report on standard
+    // error.
+    let (stdout, stderr) = run_ok(&[
+        "sample",
+        model.to_str().unwrap(),
+        "--volume",
+        "0.05 fL",
+        "--runs",
+        "2",
+        "--times",
+        "0,10",
+        "-o",
+        "-",
+    ]);
+    let lines: Vec<&str> = stdout.lines().collect();
+    assert_eq!(lines[0], "run,t,S,P,E,ES");
+    assert_eq!(lines.len(), 1 + 2 * 2, "{stdout}");
+    assert!(stderr.contains("start counts"), "{stderr}");
     let band = dir.path().join("band.png");
     run_ok(&[
         "sample",

@@ -162,6 +162,15 @@ pub fn run(args: &Args) -> ExitCode {
         Ok(s) => s,
         Err(e) => return usage(e),
     };
+    // `-o -` puts the table on standard output, so the report for people
+    // goes to standard error there, and a JSON report cannot share it.
+    let table_on_stdout =
+        args.output.is_some() && matches!(sinks.first(), Some(super::output::Sink::Stdout));
+    if table_on_stdout && json {
+        return usage(
+            "-o - and --format json both write to standard output; give -o a file".into(),
+        );
+    }
     let (model, sources) = match super::run::model_with_overrides(&args.file, &args.set, json) {
         Ok(m) => m,
         Err(code) => return code,
@@ -293,7 +302,7 @@ pub fn run(args: &Args) -> ExitCode {
     if let Err(e) = staged.commit() {
         return common::run_error(format!("[E0803] {e}"));
     }
-    if let Some(path) = &args.output {
+    if let Some(path) = args.output.as_ref().filter(|_| !table_on_stdout) {
         let rows = if args.stats {
             shown.len()
         } else {
@@ -325,7 +334,9 @@ pub fn run(args: &Args) -> ExitCode {
     } else {
         human_report(&net, &ensemble, &stats, &shown, hist_index, args)
     };
-    if let Err(failed) = common::write_stdout(&report) {
+    if table_on_stdout {
+        common::write_stderr(format_args!("{report}"));
+    } else if let Err(failed) = common::write_stdout(&report) {
         return failed;
     }
     ExitCode::SUCCESS
