@@ -627,7 +627,13 @@ fn format_g(v: f64) -> String {
             s
         }
     } else {
-        format!("{v:.5e}")
+        let text = format!("{v:.5e}");
+        match text.split_once('e') {
+            Some((m, e)) if m.contains('.') => {
+                format!("{}e{e}", m.trim_end_matches('0').trim_end_matches('.'))
+            }
+            _ => text,
+        }
     }
 }
 

@@ -67,7 +67,8 @@ pub struct Ensemble {
     /// Reaction events over all runs.
     pub firings: u64,
     pub method: Method,
-    /// The exact method used (alone, or for the leap's exact steps).
+    /// The exact method used (alone, or for the leap's exact steps, which
+    /// are always direct-method steps).
     pub algorithm: Algorithm,
 }
 
@@ -263,7 +264,12 @@ pub fn sample(
         counts,
         firings,
         method: settings.method,
-        algorithm: Algorithm::for_network(net),
+        // The leap's exact steps are direct-method steps on the
+        // propensities it has just computed.
+        algorithm: match settings.method {
+            Method::Exact => Algorithm::for_network(net),
+            Method::Leap => Algorithm::Direct,
+        },
     })
 }
 
