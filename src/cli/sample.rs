@@ -162,6 +162,15 @@ pub fn run(args: &Args) -> ExitCode {
         Ok(s) => s,
         Err(e) => return usage(e),
     };
+    // `-o -` puts the table on standard output, so the report for people
+    // goes to standard error there, and a JSON report cannot share it.
+    let table_on_stdout =
+        args.output.is_some() && matches!(sinks.first(), Some(super::output::Sink::Stdout));
+    if table_on_stdout && json {
+        return usage(
+            "-o - and --format json both write to standard output; give -o a file".into(),
+        );
+    }
     let (model, sources) = match super::run::model_with_overrides(&args.file, &args.set, json) {
         Ok(m) => m,
         Err(code) => return code,
@@ -293,7 +302,7 @@ pub fn run(args: &Args) -> ExitCode {
     if let Err(e) = staged.commit() {
         return common::run_error(format!("[E0803] {e}"));
     }
-    if let Some(path) = &args.output {
+    if let Some(path) = args.output.as_ref().filter(|_| !table_on_stdout) {
         let rows = if args.stats {
             shown.len()
         } else {
@@ -325,7 +334,9 @@ pub fn run(args: &Args) -> ExitCode {
     } else {
         human_report(&net, &ensemble, &stats, &shown, hist_index, args)
     };
-    if let Err(failed) = common::write_stdout(&report) {
+    if table_on_stdout {
+        common::write_stderr(format_args!("{report}"));
+    } else if let Err(failed) = common::write_stdout(&report) {
         return failed;
     }
     ExitCode::SUCCESS
@@ -504,7 +515,7 @@ fn human_report(
         args.file.display(),
         ens.runs,
         args.seed,
-        number(net.litres),
+        format_g(net.litres),
         format_g(net.omega),
         units.concentration.symbol()
     );
@@ -616,7 +627,13 @@ fn format_g(v: f64) -> String {
             s
         }
     } else {
-        format!("{v:.5e}")
+        let text = format!("{v:.5e}");
+        match text.split_once('e') {
+            Some((m, e)) if m.contains('.') => {
+                format!("{}e{e}", m.trim_end_matches('0').trim_end_matches('.'))
+            }
+            _ => text,
+        }
     }
 }
 
@@ -645,6 +662,24 @@ fn json_report(
                     "sd": col(&st.sd, i),
                     "q05": col(&st.q05, i),
                     "q95": col(&st.q95, i),
+                }),
+            )
+        })
+        .collect();
+    let obs = ens.observable_statistics(net);
+    let observables: Map<String, Value> = net
+        .model
+        .observables
+        .iter()
+        .enumerate()
+        .map(|(i, o)| {
+            (
+                o.name.clone(),
+                json!({
+                    "mean": col(&obs.mean, i),
+                    "sd": col(&obs.sd, i),
+                    "q05": col(&obs.q05, i),
+                    "q95": col(&obs.q95, i),
                 }),
             )
         })
@@ -688,6 +723,7 @@ fn json_report(
         "reactions": reactions,
         "t": shown.iter().map(|&k| ens.times[k]).collect::<Vec<f64>>(),
         "statistics": statistics,
+        "observables": observables,
         "reaction_events": ens.firings,
         "warnings": warnings,
     });

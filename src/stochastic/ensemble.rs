@@ -67,7 +67,8 @@ pub struct Ensemble {
     /// Reaction events over all runs.
     pub firings: u64,
     pub method: Method,
-    /// The exact method used (alone, or for the leap's exact steps).
+    /// The exact method used (alone, or for the leap's exact steps, which
+    /// are always direct-method steps).
     pub algorithm: Algorithm,
 }
 
@@ -263,7 +264,12 @@ pub fn sample(
         counts,
         firings,
         method: settings.method,
-        algorithm: Algorithm::for_network(net),
+        // The leap's exact steps are direct-method steps on the
+        // propensities it has just computed.
+        algorithm: match settings.method {
+            Method::Exact => Algorithm::for_network(net),
+            Method::Leap => Algorithm::Direct,
+        },
     })
 }
 
@@ -290,36 +296,77 @@ pub fn quantile(sorted: &[f64], p: f64) -> f64 {
     sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
 }
 
-impl Ensemble {
-    pub fn statistics(&self) -> Statistics {
-        let (nt, ns) = (self.times.len(), self.species.len());
+/// Mean, sample sd, 5 % and 95 % quantiles of `values` (sorted in place).
+fn summary(values: &mut [f64]) -> [f64; 4] {
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    let ss: f64 = values.iter().map(|v| (v - mean) * (v - mean)).sum();
+    values.sort_by(f64::total_cmp);
+    let sd = if values.len() > 1 {
+        (ss / (n - 1.0)).sqrt()
+    } else {
+        0.0
+    };
+    [mean, sd, quantile(values, 0.05), quantile(values, 0.95)]
+}
+
+impl Statistics {
+    /// Statistics of `columns` values per time and quantity, each column of
+    /// runs filled by `fill(time, quantity, runs)`.
+    fn of(nt: usize, nq: usize, runs: usize, fill: impl Fn(usize, usize, &mut [f64])) -> Self {
         let mut s = Statistics {
-            mean: vec![vec![0.0; ns]; nt],
-            sd: vec![vec![0.0; ns]; nt],
-            q05: vec![vec![0.0; ns]; nt],
-            q95: vec![vec![0.0; ns]; nt],
+            mean: vec![vec![0.0; nq]; nt],
+            sd: vec![vec![0.0; nq]; nt],
+            q05: vec![vec![0.0; nq]; nt],
+            q95: vec![vec![0.0; nq]; nt],
         };
-        let mut column = vec![0.0; self.runs];
+        let mut column = vec![0.0; runs];
         for t in 0..nt {
-            for i in 0..ns {
-                for (r, v) in column.iter_mut().enumerate() {
-                    *v = self.row(r, t)[i] as f64;
-                }
-                let n = column.len() as f64;
-                let mean = column.iter().sum::<f64>() / n;
-                let ss: f64 = column.iter().map(|v| (v - mean) * (v - mean)).sum();
-                column.sort_by(f64::total_cmp);
+            for i in 0..nq {
+                fill(t, i, &mut column);
+                let [mean, sd, q05, q95] = summary(&mut column);
                 s.mean[t][i] = mean;
-                s.sd[t][i] = if column.len() > 1 {
-                    (ss / (n - 1.0)).sqrt()
-                } else {
-                    0.0
-                };
-                s.q05[t][i] = quantile(&column, 0.05);
-                s.q95[t][i] = quantile(&column, 0.95);
+                s.sd[t][i] = sd;
+                s.q05[t][i] = q05;
+                s.q95[t][i] = q95;
             }
         }
         s
+    }
+}
+
+impl Ensemble {
+    /// Statistics of the counts of each species.
+    pub fn statistics(&self) -> Statistics {
+        Statistics::of(
+            self.times.len(),
+            self.species.len(),
+            self.runs,
+            |t, i, col| {
+                for (r, v) in col.iter_mut().enumerate() {
+                    *v = self.row(r, t)[i] as f64;
+                }
+            },
+        )
+    }
+
+    /// Statistics of each observable of the model, evaluated in every run
+    /// at the concentrations `counts / Ω` (totals recomputed from the
+    /// counts, as after an event), in the model's units.
+    pub fn observable_statistics(&self, net: &Network) -> Statistics {
+        let model = &net.model;
+        Statistics::of(
+            self.times.len(),
+            model.observables.len(),
+            self.runs,
+            |t, o, col| {
+                for (r, v) in col.iter_mut().enumerate() {
+                    let counts = self.row(r, t);
+                    let totals = net.totals_of(counts);
+                    *v = net.value(crate::model::Sym::Observable(o), counts, &totals);
+                }
+            },
+        )
     }
 }
 

@@ -88,6 +88,19 @@ pub struct Network {
     dep_start: Vec<u32>,
     dep: Vec<u32>,
     is_law: Vec<bool>,
+    /// Each reaction's shape for the inner loop, in one place in memory.
+    shape: Vec<Shape>,
+}
+
+/// How the inner loop computes a propensity: the common mass-action forms
+/// (no reactant, or one or two reactant species each taken once) read one
+/// entry; anything else takes the general path.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Shape {
+    Zero,
+    One(u32),
+    Two(u32, u32),
+    General,
 }
 
 /// Builds the count-level network of `model` in `litres`. Warnings (a law
@@ -268,6 +281,7 @@ pub fn prepare(
         dep_start: Vec::new(),
         dep: Vec::new(),
         is_law: Vec::new(),
+        shape: Vec::new(),
     };
     net.flatten();
     // Constants are checked once here, at the start totals, so a bad one
@@ -343,6 +357,13 @@ impl Network {
                 readers[i].push(j as u32);
             }
             self.is_law.push(matches!(r.kind, Kind::Law { .. }));
+            self.shape.push(match (&r.kind, r.reactants.as_slice()) {
+                (Kind::Law { .. }, _) => Shape::General,
+                (_, []) => Shape::Zero,
+                (_, [(i, 1)]) => Shape::One(*i as u32),
+                (_, [(i, 1), (k, 1)]) => Shape::Two(*i as u32, *k as u32),
+                _ => Shape::General,
+            });
         }
         self.dep_start.push(0);
         for r in &self.reactions {
@@ -417,7 +438,7 @@ impl Network {
     }
 
     /// The value of a name with species at `counts / Ω` and the given totals.
-    fn value(&self, sym: Sym, counts: &[i64], totals: &[f64]) -> f64 {
+    pub fn value(&self, sym: Sym, counts: &[i64], totals: &[f64]) -> f64 {
         match sym {
             Sym::Species(i) => counts[i] as f64 / self.omega,
             Sym::Total(k) => totals[k],
@@ -488,6 +509,14 @@ impl Network {
     /// (the caller refuses one below zero), or 0 while a reactant is short.
     #[inline(always)]
     pub fn propensity(&self, j: usize, counts: &[i64], constants: &[f64], totals: &[f64]) -> f64 {
+        match self.shape[j] {
+            Shape::Zero => return constants[j],
+            Shape::One(i) => return constants[j] * counts[i as usize] as f64,
+            Shape::Two(i, k) => {
+                return constants[j] * counts[i as usize] as f64 * counts[k as usize] as f64;
+            }
+            Shape::General => {}
+        }
         let (sp, nu) = self.reactants_of(j);
         if self.is_law[j] {
             if sp
