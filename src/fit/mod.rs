@@ -100,6 +100,14 @@ pub struct Fit {
     pub figure: Option<figure::Figure>,
 }
 
+/// A free name without its `[series]` suffix, and whether it had one.
+fn base_name(name: &str) -> (&str, bool) {
+    match name.strip_suffix("[series]") {
+        Some(b) => (b, true),
+        None => (name, false),
+    }
+}
+
 fn request_error(message: String) -> Vec<Diagnostic> {
     vec![Diagnostic::error(Code::BadFitRequest, message)]
 }
@@ -154,11 +162,12 @@ fn rate_model(
         let in_constants = request
             .free
             .iter()
-            .any(|f| constant_names.contains(&f.name.as_str()));
+            .any(|f| constant_names.contains(&base_name(&f.name).0));
         // A name that is neither a constant nor a param: suggest from both.
         for f in &request.free {
-            let known = constant_names.contains(&f.name.as_str())
-                || matches!(model.lookup(&f.name), Some(Sym::Param(_)));
+            let base = base_name(&f.name).0;
+            let known =
+                constant_names.contains(&base) || matches!(model.lookup(base), Some(Sym::Param(_)));
             if !known && !request.skip_missing {
                 let params = model.params.iter().map(|p| p.name.as_str());
                 let mut d = Diagnostic::error(
@@ -211,7 +220,7 @@ type FreeSetup = (Vec<FreeParam>, Vec<f64>, Options, Vec<String>);
 
 fn free_params(model: &Model, request: &Request) -> Result<FreeSetup, Vec<Diagnostic>> {
     let (specs, skipped): (Vec<&FreeSpec>, Vec<&FreeSpec>) = request.free.iter().partition(|f| {
-        !request.skip_missing || matches!(model.lookup(&f.name), Some(Sym::Param(_)))
+        !request.skip_missing || matches!(model.lookup(base_name(&f.name).0), Some(Sym::Param(_)))
     });
     if specs.is_empty() {
         return Err(request_error(
@@ -223,7 +232,8 @@ fn free_params(model: &Model, request: &Request) -> Result<FreeSetup, Vec<Diagno
     let mut options = Options::unbounded(specs.len());
     let mut errors = Vec::new();
     for (k, spec) in specs.into_iter().enumerate() {
-        let i = match model.lookup(&spec.name) {
+        let (base, per_series) = base_name(&spec.name);
+        let i = match model.lookup(base) {
             Some(Sym::Param(i)) => i,
             other => {
                 let what = match other {
@@ -296,6 +306,7 @@ fn free_params(model: &Model, request: &Request) -> Result<FreeSetup, Vec<Diagno
         free.push(FreeParam {
             sym: Sym::Param(i),
             log_scale,
+            series: per_series.then(String::new),
         });
     }
     let skipped = skipped.into_iter().map(|f| f.name.clone()).collect();
@@ -335,6 +346,43 @@ pub fn fit_rates(
     if !errors.is_empty() {
         return Err(errors);
     }
+    // Per-series names become one unknown per series, named NAME[KEY].
+    let mut keys: Vec<String> = Vec::new();
+    for pt in &problem.points {
+        if let Some(k) = &pt.series
+            && !keys.contains(k)
+        {
+            keys.push(k.clone());
+        }
+    }
+    let mut free = Vec::new();
+    let (mut start2, mut lower, mut upper) = (Vec::new(), Vec::new(), Vec::new());
+    for (k, f) in problem.free.iter().enumerate() {
+        let copies: Vec<Option<String>> = match &f.series {
+            Some(_) if keys.is_empty() => {
+                return Err(request_error(format!(
+                    "--free {}[series]: the data have no `series` column",
+                    fitted_model.name_of(f.sym)
+                )));
+            }
+            Some(_) => keys.iter().cloned().map(Some).collect(),
+            None => vec![None],
+        };
+        for series in copies {
+            free.push(FreeParam {
+                series,
+                ..f.clone()
+            });
+            start2.push(start[k]);
+            lower.push(options.lower[k]);
+            upper.push(options.upper[k]);
+        }
+    }
+    problem.set_free(free);
+    let start = start2;
+    let mut options = options;
+    options.lower = lower;
+    options.upper = upper;
     let (n, p) = (problem.points.len(), problem.free.len());
     if n <= p {
         return Err(request_error(format!(
@@ -344,7 +392,13 @@ pub fn fit_rates(
     let names: Vec<String> = problem
         .free
         .iter()
-        .map(|f| fitted_model.name_of(f.sym).to_string())
+        .map(|f| {
+            let name = fitted_model.name_of(f.sym);
+            match &f.series {
+                Some(key) => format!("{name}[{key}]"),
+                None => name.to_string(),
+            }
+        })
         .collect();
     let units: Vec<Option<String>> = problem
         .free

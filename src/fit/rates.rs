@@ -36,6 +36,8 @@ pub struct Point {
     pub conditions: Vec<(Sym, f64)>,
     pub observed: f64,
     pub weight: f64,
+    /// The row's `series` value, if the table has the column.
+    pub series: Option<String>,
 }
 
 /// A free param: its symbol, whether it is fitted on a log scale.
@@ -43,6 +45,16 @@ pub struct Point {
 pub struct FreeParam {
     pub sym: Sym,
     pub log_scale: bool,
+    /// The one series this value is for (`NAME[series]`), or all.
+    pub series: Option<String>,
+}
+
+impl FreeParam {
+    fn applies_to(&self, point: &Point) -> bool {
+        self.series
+            .as_ref()
+            .is_none_or(|k| point.series.as_ref() == Some(k))
+    }
 }
 
 pub struct RateProblem<'a> {
@@ -79,6 +91,12 @@ impl<'a> RateProblem<'a> {
         }
     }
 
+    /// Replaces the free params (after per-series names are expanded).
+    pub fn set_free(&mut self, free: Vec<FreeParam>) {
+        self.derivatives = free.iter().map(|f| derivative(&self.rate, f.sym)).collect();
+        self.free = free;
+    }
+
     /// The params' values for a trial point `x` (log values where fitted
     /// on a log scale).
     pub fn values(&self, x: &[f64]) -> Vec<f64> {
@@ -90,7 +108,11 @@ impl<'a> RateProblem<'a> {
     }
 
     fn value_of(&self, point: &Point, params: &[f64], s: Sym) -> f64 {
-        if let Some(k) = self.free.iter().position(|f| f.sym == s) {
+        if let Some(k) = self
+            .free
+            .iter()
+            .position(|f| f.sym == s && f.applies_to(point))
+        {
             return params[k];
         }
         if let Some((_, v)) = point.conditions.iter().find(|(c, _)| *c == s) {
@@ -176,6 +198,7 @@ impl<'a> RateProblem<'a> {
                 (Some(u), _) => u.factor_to(model.units),
             }
         };
+        let series_col = table.column("series");
         let mut conditions: Vec<(usize, Sym, f64)> = Vec::new();
         for (k, column) in table.columns.iter().enumerate() {
             if k == response_col || Some(k) == weight_col || column.name == "series" {
@@ -294,6 +317,9 @@ impl<'a> RateProblem<'a> {
                 conditions: values,
                 observed,
                 weight,
+                series: series_col
+                    .and_then(|k| row.cells[k].value)
+                    .map(|v| format!("{v}")),
             });
         }
         if errors.is_empty() {
@@ -320,7 +346,11 @@ impl Residuals for RateProblem<'_> {
                 } else {
                     1.0
                 };
-                jacobian[i * p + j] = point.weight * chain * d.eval(&value, 0.0);
+                jacobian[i * p + j] = if self.free[j].applies_to(point) {
+                    point.weight * chain * d.eval(&value, 0.0)
+                } else {
+                    0.0
+                };
             }
         }
         match r.iter().position(|v| !v.is_finite()) {
