@@ -93,42 +93,11 @@ impl<'a> CurveProblem<'a> {
             .expect("a progress-curve table has a t column");
         let series_col = table.column("series");
         let weight_col = match weight {
-            Weight::Column(name) => match table.column(name) {
-                Some(k) => Some(k),
-                None => {
-                    return Err(vec![
-                        Diagnostic::error(
-                            Code::BadData,
-                            format!("{} has no weight column `{name}`", table.label),
-                        )
-                        .with_label(table.columns[0].span, "the header"),
-                    ]);
-                }
-            },
+            Weight::Column(name) => Some(table.named_column(name, "weight")?),
             _ => None,
         };
-        let factor = |k: usize, dim: Option<Dim>, errors: &mut Vec<Diagnostic>| -> f64 {
-            let column = &table.columns[k];
-            match (&column.unit, dim) {
-                (None, _) => 1.0,
-                (Some(u), Some(d)) if u.dim() != d => {
-                    errors.push(
-                        Diagnostic::error(
-                            Code::BadData,
-                            format!(
-                                "column `{}` of {} has a unit of dimension {}, expected {}",
-                                column.name,
-                                table.label,
-                                u.dim(),
-                                d
-                            ),
-                        )
-                        .with_label(column.span, "this unit"),
-                    );
-                    1.0
-                }
-                (Some(u), _) => u.factor_to(model.units),
-            }
+        let factor = |k: usize, dim: Option<Dim>, errors: &mut Vec<Diagnostic>| {
+            table.unit_factor(k, dim, model.units, errors)
         };
         let t_factor = factor(t_col, Some(Dim::TIME), &mut errors);
         // Columns: measured outputs, initial values, conditions.

@@ -11,6 +11,7 @@
 
 use crate::diagnostics::{Code, Diagnostic, FileId, Span};
 use crate::model::units::{UnitExpr, parse_unit};
+use crate::model::{Dim, Units};
 
 /// One column of a table: its name, its unit if the header gives one, and
 /// the header cell's span.
@@ -46,6 +47,52 @@ pub struct Table {
 impl Table {
     pub fn column(&self, name: &str) -> Option<usize> {
         self.columns.iter().position(|c| c.name == name)
+    }
+
+    /// The factor from column `k`'s unit to the model's default units (1
+    /// without a unit); a unit of another dimension than `dim` is an error
+    /// located at the header cell.
+    pub fn unit_factor(
+        &self,
+        k: usize,
+        dim: Option<Dim>,
+        units: Units,
+        errors: &mut Vec<Diagnostic>,
+    ) -> f64 {
+        let column = &self.columns[k];
+        match (&column.unit, dim) {
+            (None, _) => 1.0,
+            (Some(u), Some(d)) if u.dim() != d => {
+                errors.push(
+                    Diagnostic::error(
+                        Code::BadData,
+                        format!(
+                            "column `{}` of {} has a unit of dimension {}, expected {}",
+                            column.name,
+                            self.label,
+                            u.dim(),
+                            d
+                        ),
+                    )
+                    .with_label(column.span, "this unit"),
+                );
+                1.0
+            }
+            (Some(u), _) => u.factor_to(units),
+        }
+    }
+
+    /// The column a `--weight COLUMN` names, located when it is missing.
+    pub fn named_column(&self, name: &str, what: &str) -> Result<usize, Vec<Diagnostic>> {
+        self.column(name).ok_or_else(|| {
+            vec![
+                Diagnostic::error(
+                    Code::BadData,
+                    format!("{} has no {what} column `{name}`", self.label),
+                )
+                .with_label(self.columns[0].span, "the header"),
+            ]
+        })
     }
 }
 

@@ -214,6 +214,49 @@ fn rate_model(
     }
 }
 
+/// A free name's start, bounds and scale on the fitted scale: positive
+/// constants are fitted by their logarithms (common practice: the steps are
+/// relative, and the estimate stays positive).
+struct Scaled {
+    start: f64,
+    lower: f64,
+    upper: f64,
+    log_scale: bool,
+}
+
+fn scaled(spec: &FreeSpec, default: f64, request: &Request) -> Result<Scaled, Diagnostic> {
+    let value = spec.start.unwrap_or(default);
+    let (lo, hi) = (
+        spec.lower.unwrap_or(f64::NEG_INFINITY),
+        spec.upper.unwrap_or(f64::INFINITY),
+    );
+    if lo >= hi || value < lo || value > hi || !value.is_finite() {
+        return Err(Diagnostic::error(
+            Code::BadFitRequest,
+            format!(
+                "--free: the start {value} of `{}` is not inside its bounds {lo}..{hi}",
+                spec.name
+            ),
+        ));
+    }
+    let log_scale = request.log_scale && value > 0.0 && spec.lower.is_none_or(|l| l >= 0.0);
+    Ok(if log_scale {
+        Scaled {
+            start: value.ln(),
+            lower: if lo > 0.0 { lo.ln() } else { f64::NEG_INFINITY },
+            upper: hi.ln(),
+            log_scale,
+        }
+    } else {
+        Scaled {
+            start: value,
+            lower: lo,
+            upper: hi,
+            log_scale,
+        }
+    })
+}
+
 /// The free params, their starting points and bounds in the fitted
 /// scale, and the names skipped (with `skip_missing`).
 type FreeSetup = (Vec<FreeParam>, Vec<f64>, Options, Vec<String>);
@@ -275,34 +318,17 @@ fn free_params(model: &Model, request: &Request) -> Result<FreeSetup, Vec<Diagno
             ));
             continue;
         }
-        let value = spec.start.unwrap_or(model.params[i].value);
-        let (lo, hi) = (
-            spec.lower.unwrap_or(f64::NEG_INFINITY),
-            spec.upper.unwrap_or(f64::INFINITY),
-        );
-        if lo >= hi || value < lo || value > hi || !value.is_finite() {
-            errors.push(Diagnostic::error(
-                Code::BadFitRequest,
-                format!(
-                    "--free: the start {value} of `{}` is not inside its bounds {lo}..{hi}",
-                    spec.name
-                ),
-            ));
-            continue;
-        }
-        // Positive constants are fitted on a log scale (common practice):
-        // the steps are relative, and the estimate stays positive.
-        let log_scale = request.log_scale && value > 0.0 && spec.lower.is_none_or(|l| l >= 0.0);
-        if log_scale {
-            start.push(value.ln());
-            options.lower[k] = if lo > 0.0 { lo.ln() } else { f64::NEG_INFINITY };
-            // An upper bound of +inf stays +inf.
-            options.upper[k] = hi.ln();
-        } else {
-            start.push(value);
-            options.lower[k] = lo;
-            options.upper[k] = hi;
-        }
+        let sc = match scaled(spec, model.params[i].value, request) {
+            Ok(sc) => sc,
+            Err(d) => {
+                errors.push(d);
+                continue;
+            }
+        };
+        start.push(sc.start);
+        options.lower[k] = sc.lower;
+        options.upper[k] = sc.upper;
+        let log_scale = sc.log_scale;
         free.push(FreeParam {
             sym: Sym::Param(i),
             log_scale,
@@ -531,31 +557,17 @@ pub fn fit_curves(
             errors.push(d);
             continue;
         };
-        let value = spec.start.unwrap_or(default);
-        let (lo, hi) = (
-            spec.lower.unwrap_or(f64::NEG_INFINITY),
-            spec.upper.unwrap_or(f64::INFINITY),
-        );
-        if lo >= hi || value < lo || value > hi || !value.is_finite() {
-            errors.push(Diagnostic::error(
-                Code::BadFitRequest,
-                format!(
-                    "--free: the start {value} of `{}` is not inside its bounds {lo}..{hi}",
-                    spec.name
-                ),
-            ));
-            continue;
-        }
-        let log_scale = request.log_scale && value > 0.0 && spec.lower.is_none_or(|l| l >= 0.0);
-        if log_scale {
-            start.push(value.ln());
-            lower.push(if lo > 0.0 { lo.ln() } else { f64::NEG_INFINITY });
-            upper.push(hi.ln());
-        } else {
-            start.push(value);
-            lower.push(lo);
-            upper.push(hi);
-        }
+        let sc = match scaled(spec, default, request) {
+            Ok(sc) => sc,
+            Err(d) => {
+                errors.push(d);
+                continue;
+            }
+        };
+        start.push(sc.start);
+        lower.push(sc.lower);
+        upper.push(sc.upper);
+        let log_scale = sc.log_scale;
         free.push(curves::FreeValue {
             target,
             log_scale,
