@@ -1812,3 +1812,33 @@ fn json_usage_errors_are_json_documents() {
         assert_eq!(doc["diagnostics"][0]["code"], "E0801", "{args:?}");
     }
 }
+
+/// Standard output closed before the start (`>&-`, issue 23): every write
+/// used to vanish with exit 0; now the command ends at once with exit 1 and
+/// a message. `> /dev/null` stays a success.
+#[test]
+fn a_standard_output_closed_before_the_start_is_exit_1() {
+    let bin = common::bin();
+    for command in [
+        "check models/protease_assay.mech",
+        "derive models/protease_assay.mech",
+    ] {
+        let out = Command::new("sh")
+            .arg("-c")
+            .arg(format!("exec \"$0\" {command} >&-"))
+            .arg(&bin)
+            .current_dir(root())
+            .output()
+            .expect("sh runs");
+        assert_eq!(out.status.code(), Some(1), "{command}");
+        assert!(String::from_utf8_lossy(&out.stderr).contains("cannot write to standard output"));
+        let out = Command::new("sh")
+            .arg("-c")
+            .arg(format!("exec \"$0\" {command} > /dev/null"))
+            .arg(&bin)
+            .current_dir(root())
+            .output()
+            .expect("sh runs");
+        assert_eq!(out.status.code(), Some(0), "{command} > /dev/null");
+    }
+}

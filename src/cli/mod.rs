@@ -96,6 +96,15 @@ pub enum Command {
 
 /// Parses arguments and runs one command. Usage errors exit with 2.
 pub fn main() -> ExitCode {
+    // A standard output closed before the start (`>&-`) would swallow every
+    // write without an error, and the next file opened would take its
+    // descriptor; so it ends the command at once, as a closed pipe does.
+    if standard_output_is_closed() {
+        common::write_stderr(format_args!(
+            "error: cannot write to standard output: it is closed\n"
+        ));
+        return ExitCode::from(common::EXIT_MODEL);
+    }
     let args = join_spaced_units(std::env::args_os().collect());
     let cli = match Cli::try_parse_from(args) {
         Ok(cli) => cli,
@@ -119,6 +128,34 @@ pub fn main() -> ExitCode {
         Command::Control(a) => control::run(&a),
         Command::Sample(a) => sample::run(&a),
     }
+}
+
+/// Rust's runtime reopens a closed standard descriptor on /dev/null,
+/// read-write, before `main`; a shell's `> /dev/null` opens it write-only.
+/// So standard output that is /dev/null opened read-write was closed.
+#[cfg(unix)]
+fn standard_output_is_closed() -> bool {
+    use std::os::unix::fs::MetadataExt;
+    // SAFETY: F_GETFL only queries the descriptor's status flags.
+    let flags = unsafe { libc::fcntl(1, libc::F_GETFL) };
+    if flags == -1 {
+        return true;
+    }
+    if flags & libc::O_ACCMODE != libc::O_RDWR {
+        return false;
+    }
+    let (Ok(out), Ok(null)) = (
+        std::fs::metadata("/dev/stdout"),
+        std::fs::metadata("/dev/null"),
+    ) else {
+        return false;
+    };
+    out.rdev() == null.rdev() && out.dev() == null.dev()
+}
+
+#[cfg(not(unix))]
+fn standard_output_is_closed() -> bool {
+    false
 }
 
 #[allow(dead_code)]
