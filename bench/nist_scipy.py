@@ -1,5 +1,5 @@
 """SciPy's least_squares (method "lm") on the NIST StRD problems of
-../shared/data/nist-strd from both of NIST's starts, to set beside
+tests/data/nist-strd from both of NIST's starts, to set beside
 ratewright's results (docs/fitting.md). Prints, per problem and start,
 whether the estimates agree with the certified values to 6 significant
 digits.
@@ -12,7 +12,7 @@ import numpy as np
 from scipy.optimize import least_squares
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-DATA = os.path.join(HERE, "..", "..", "shared", "data", "nist-strd")
+DATA = os.path.join(HERE, "..", "tests", "data", "nist-strd")
 MODELS = {
     "Misra1a": lambda b, x: b[0] * (1 - np.exp(-b[1] * x)),
     "Chwirut2": lambda b, x: np.exp(-b[0] * x) / (b[1] + b[2] * x),

@@ -14,7 +14,8 @@ struct Nist {
     file: &'static str,
 }
 
-/// The six NIST problems of ../shared/data/nist-strd, their models as
+/// The six NIST problems of tests/data/nist-strd (NIST StRD, public domain,
+/// copied from the project's shared data so CI has them), their models as
 /// NIST states them (README there).
 const NIST: [Nist; 6] = [
     Nist {
@@ -53,7 +54,7 @@ struct Certified {
 }
 
 fn nist_dir() -> PathBuf {
-    root().join("../shared/data/nist-strd")
+    root().join("tests/data/nist-strd")
 }
 
 /// Reads a NIST StRD file: starting values, certified values and standard
