@@ -1842,3 +1842,42 @@ fn a_standard_output_closed_before_the_start_is_exit_1() {
         assert_eq!(out.status.code(), Some(0), "{command} > /dev/null");
     }
 }
+
+/// Names equal under Unicode normalisation (issue 23): `Å` written as one
+/// code point (NFC) and as `A` with a combining ring (NFD) were two
+/// species with no word; now a located warning (W0108) at both, which
+/// `--deny-warnings` turns into exit 1 (Unicode Standard Annex #15).
+#[test]
+fn names_equal_under_normalisation_are_a_warning() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let text =
+        "species \u{c5} = 1 uM, A\u{30a}\nparam k = 1 /s\nstep s \u{c5} -> A\u{30a} with k\n";
+    let path = write_temp(dir.path(), "nfc.mech", text.as_bytes());
+    let p = path.to_str().expect("UTF-8");
+    let out = common::ratewright(&["check", "--format", "json", p]);
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let diag = json["diagnostics"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|d| d["code"] == "W0108")
+        .unwrap_or_else(|| panic!("no W0108: {json}"));
+    assert_eq!(diag["labels"].as_array().unwrap().len(), 2, "{diag}");
+    assert_eq!(
+        common::ratewright(&["check", "--deny-warnings", p])
+            .status
+            .code(),
+        Some(1)
+    );
+    // Plain ASCII and a name written the same way twice are no warning.
+    let same = write_temp(
+        dir.path(),
+        "same.mech",
+        "species \u{c5} = 1 uM, B\nparam k = 1 /s\nstep s \u{c5} -> B with k\n".as_bytes(),
+    );
+    assert!(
+        common::ratewright(&["check", "--deny-warnings", same.to_str().unwrap()])
+            .status
+            .success()
+    );
+}

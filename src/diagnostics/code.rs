@@ -89,4 +89,5 @@ codes! {
     ConsumedOnly => "W0105", "species only ever consumed, with no source";
     LawDimensionMismatch => "W0106", "rate law does not have the dimension of a rate";
     LawAsPropensity => "W0107", "rate law used as a propensity (an approximation)";
+    NamesEqualWhenNormalized => "W0108", "two names that differ only in Unicode normalisation";
 }

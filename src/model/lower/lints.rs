@@ -9,7 +9,52 @@ use crate::model::ir::*;
 use num_traits::Signed;
 
 impl Lowerer<'_> {
+    /// Names written with different Unicode code points that read the same
+    /// (`Å` as one code point and as `A` with a combining ring) are two
+    /// names to the compiler but one to a reader: a warning at both.
+    fn lint_normalisation(&mut self) {
+        use unicode_normalization::UnicodeNormalization;
+        let m = &self.model;
+        let mut names: Vec<(&str, crate::diagnostics::Span)> = Vec::new();
+        names.extend(m.species.iter().map(|s| (s.name.as_str(), s.span)));
+        names.extend(m.fixed.iter().map(|f| (f.name.as_str(), f.span)));
+        names.extend(m.params.iter().map(|p| (p.name.as_str(), p.span)));
+        names.extend(m.observables.iter().map(|o| (o.name.as_str(), o.span)));
+        names.extend(m.totals.iter().map(|t| (t.name.as_str(), t.span)));
+        names.extend(m.steps.iter().map(|s| (s.name.as_str(), s.span)));
+        let mut seen: std::collections::HashMap<String, (&str, crate::diagnostics::Span)> =
+            std::collections::HashMap::new();
+        let mut found = Vec::new();
+        for (name, span) in names {
+            if name.is_ascii() {
+                continue;
+            }
+            let normal: String = name.nfc().collect();
+            match seen.get(&normal) {
+                Some((other, other_span)) if *other != name => {
+                    found.push((name.to_string(), span, other.to_string(), *other_span));
+                }
+                Some(_) => {}
+                None => {
+                    seen.insert(normal, (name, span));
+                }
+            }
+        }
+        for (name, span, other, other_span) in found {
+            self.diags.push(
+                Diagnostic::warning(
+                    Code::NamesEqualWhenNormalized,
+                    format!("`{name}` and `{other}` look the same but are written with different Unicode code points, so they are two names"),
+                )
+                .with_label(span, "this one")
+                .with_label(other_span, "and this one")
+                .with_help("write both the same way (NFC: one code point per accented letter), or rename one"),
+            );
+        }
+    }
+
     pub(super) fn lint(&mut self) {
+        self.lint_normalisation();
         // Params used by totals' values? Totals carry numbers only; params
         // count as used when any expression mentions them.
         for (i, p) in self.model.params.iter().enumerate() {
