@@ -13,20 +13,10 @@ use super::run::model_with_overrides;
 use crate::control::{ControlAnalysis, control};
 use crate::sim::steady::Stability;
 use serde_json::{Map, Value, json};
-use std::path::PathBuf;
 use std::process::ExitCode;
 
-#[derive(clap::Args, Debug)]
-pub struct Args {
-    /// Mechanism file.
-    pub file: PathBuf,
-    /// Override a param, initial value, fixed species or total (`S=5mM`); repeatable.
-    #[arg(long = "set", value_name = "NAME=VALUE")]
-    pub set: Vec<String>,
-    /// Output format.
-    #[arg(long, value_enum, default_value_t = Format::Human)]
-    pub format: Format,
-}
+/// The same arguments as `steady`: the analysis is at its steady state.
+pub use super::steady::Args;
 
 pub fn run(args: &Args) -> ExitCode {
     let json = args.format == Format::Json;
