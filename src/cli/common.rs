@@ -140,9 +140,14 @@ pub fn parse_assignment(text: &str, model: &model::Model) -> Result<(String, f64
         .split_once('=')
         .ok_or_else(|| format!("`{text}` is not NAME=VALUE"))?;
     let name = name.trim();
+    if name == model::TEMPERATURE && model.lookup(name).is_none() {
+        return Ok((name.to_string(), model::lab_units::parse_temperature(value)?));
+    }
     let (v, dim) = model::units::parse_quantity(value, model.units)?;
     model.check_value_dimension(name, value, dim)?;
     Ok((name.to_string(), v))
+}
+
 }
 
 /// Parses a time such as `20 min` or `600` in the model's time unit.

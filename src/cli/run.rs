@@ -70,6 +70,9 @@ pub struct Args {
     /// Logarithmic value axis in the plot.
     #[arg(long)]
     pub log_values: bool,
+    /// Add each species' amount (concentration × volume) as a column `amount(NAME)`; needs a `volume`.
+    #[arg(long)]
+    pub amounts: bool,
 }
 
 /// Loads the model (diagnostics as JSON when `json`) and applies `--set`
@@ -258,12 +261,20 @@ pub fn run(args: &Args) -> ExitCode {
         },
         rtol: args.rtol,
         atol: args.atol,
+        // A grid the user fixed is kept exactly; otherwise each event's
+        // time appears just before and just after it.
+        event_rows: args.times.is_none(),
         ..Settings::default()
     };
-    let trajectory = match prepared.simulate(&settings, &times) {
+    if args.amounts && prepared.model.volume.is_none() {
+        return usage_error("--amounts: the model declares no `volume`, so amounts are not defined");
+    }
+    let mut trajectory = match prepared.simulate(&settings, &times) {
         Ok(t) => t,
         Err(e) => return sim_failure(&e),
     };
+    let mut columns = columns;
+    sim::add_volume_columns(&prepared.model, &mut columns, &mut trajectory, args.amounts);
     // Species stay finite (the solver fails otherwise), but an observable
     // such as A / B with B = 0 does not; CSV writes it as `inf` or `NaN`
     // and JSON as null, so say where it first happened.

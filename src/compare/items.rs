@@ -5,7 +5,7 @@ use super::pairing::all_syms;
 use super::sameness::{Context, Key, Side};
 use super::{Change, ChangeKind, Detail, ItemKind, Shown};
 use crate::algebra::print::{Syntax, plain_literal, print_expr};
-use crate::model::{Dim, Event, EventKind, Expr, Model, ParamDef, Rate, Sym, Term};
+use crate::model::{Action, Dim, Event, EventKind, Expr, Model, ParamDef, Rate, Sym, Term, Timing};
 
 /// Every change between the two models.
 pub fn changes(ctx: &Context) -> Vec<Change> {
@@ -536,66 +536,154 @@ fn event_kind_word(k: EventKind) -> &'static str {
 
 pub fn event_text(model: &Model, e: &Event) -> String {
     let conc = Some(Dim::CONC);
-    let name = &model.species[e.species].name;
-    let amount = quantity_text(model, e.amount, conc);
-    let time = quantity_text(model, e.time, Some(Dim::TIME));
-    match e.kind {
-        EventKind::Set => format!("set {name} = {amount} at {time}"),
-        k => format!("{} {amount} {name} at {time}", event_kind_word(k)),
+    let action = match &e.action {
+        Action::Species {
+            kind,
+            species,
+            amount,
+        } => {
+            let name = &model.species[*species].name;
+            let amount = quantity_text(model, *amount, conc);
+            match kind {
+                EventKind::Set => format!("set {name} = {amount}"),
+                k => format!("{} {amount} {name}", event_kind_word(*k)),
+            }
+        }
+        Action::Stock { volume, contents } => format!(
+            "add {} uL of {}",
+            number(volume * 1e6),
+            contents
+                .iter()
+                .map(|(sym, c)| format!("{} {}", quantity_text(model, *c, conc), model.name_of(*sym)))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+        Action::Withdraw { volume } => format!("remove {} uL", number(volume * 1e6)),
+    };
+    match &e.timing {
+        Timing::At(t) => format!("{action} at {}", quantity_text(model, *t, Some(Dim::TIME))),
+        Timing::When(trigger) => format!("when {}: {action}", trigger.text),
+    }
+}
+
+/// What pairs two events across versions: the same action on the same
+/// names, at a time or on a condition; and what may differ in a pair.
+struct EventView {
+    kind: &'static str,
+    targets: Vec<Key>,
+    /// The amount (concentration) or, for volume changes, the volume (L).
+    amount: f64,
+    amount_dim: Option<Dim>,
+    stock: Vec<f64>,
+    time: Option<f64>,
+    trigger: Option<String>,
+}
+
+fn event_view(ctx: &Context, side: Side, e: &Event) -> EventView {
+    let (kind, targets, amount, amount_dim, stock) = match &e.action {
+        Action::Species {
+            kind,
+            species,
+            amount,
+        } => (
+            event_kind_word(*kind),
+            vec![ctx.key(side, Sym::Species(*species))],
+            *amount,
+            Some(Dim::CONC),
+            vec![],
+        ),
+        Action::Stock { volume, contents } => (
+            "add stock",
+            contents.iter().map(|(s, _)| ctx.key(side, *s)).collect(),
+            *volume,
+            None,
+            contents.iter().map(|(_, c)| *c).collect(),
+        ),
+        Action::Withdraw { volume } => ("withdraw", vec![], *volume, None, vec![]),
+    };
+    EventView {
+        kind,
+        targets,
+        amount,
+        amount_dim,
+        stock,
+        time: e.time(),
+        trigger: match &e.timing {
+            Timing::When(t) => Some(t.text.split_whitespace().collect::<Vec<_>>().join(" ")),
+            Timing::At(_) => None,
+        },
     }
 }
 
 fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
     let (old, new) = (ctx.old, ctx.new);
-    let conc = Some(Dim::CONC);
     let time = Some(Dim::TIME);
-    let species = |side: Side, e: &Event| ctx.key(side, Sym::Species(e.species));
+    let old_views: Vec<EventView> = old.events.iter().map(|e| event_view(ctx, Side::Old, e)).collect();
+    let new_views: Vec<EventView> = new.events.iter().map(|e| event_view(ctx, Side::New, e)).collect();
+    let same_time = |a: &EventView, b: &EventView| match (a.time, b.time) {
+        (Some(x), Some(y)) => ctx.same_value(x, y, time),
+        (None, None) => true,
+        _ => false,
+    };
+    let same_amount = |a: &EventView, b: &EventView| {
+        ctx.same_value(a.amount, b.amount, a.amount_dim)
+            && a.stock.len() == b.stock.len()
+            && a.stock.iter().zip(&b.stock).all(|(x, y)| ctx.same_value(*x, *y, Some(Dim::CONC)))
+    };
     let mut old_left: Vec<usize> = (0..old.events.len()).collect();
     let mut new_left: Vec<usize> = (0..new.events.len()).collect();
     // Identical events first, then the same event at another amount, then at another time.
-    type Fits<'f> = &'f dyn Fn(&Event, &Event) -> bool;
+    type Fits<'f> = &'f dyn Fn(&EventView, &EventView) -> bool;
     let passes: [Fits; 3] = [
-        &|a, b| ctx.same_value(a.amount, b.amount, conc) && ctx.same_value(a.time, b.time, time),
-        &|a, b| ctx.same_value(a.time, b.time, time),
-        &|a, b| ctx.same_value(a.amount, b.amount, conc),
+        &|a, b| same_amount(a, b) && same_time(a, b),
+        &|a, b| same_time(a, b),
+        &|a, b| same_amount(a, b),
     ];
+    let amount_shown = |m: &Model, v: &EventView| match v.amount_dim {
+        Some(d) => quantity(m, v.amount, Some(d)),
+        None => Shown::Text(format!("{} uL", number(v.amount * 1e6))),
+    };
     let mut pairs: Vec<(usize, usize)> = Vec::new();
     for (pass, fits) in passes.iter().enumerate() {
         let mut i = 0;
         while i < old_left.len() {
-            let a = &old.events[old_left[i]];
+            let a = &old_views[old_left[i]];
             let found = new_left.iter().position(|&k| {
-                let b = &new.events[k];
-                a.kind == b.kind && species(Side::Old, a) == species(Side::New, b) && fits(a, b)
+                let b = &new_views[k];
+                a.kind == b.kind && a.targets == b.targets && a.trigger == b.trigger && fits(a, b)
             });
             match found {
                 Some(p) => {
-                    pairs.push((old_left[i], new_left[p]));
-                    let b = &new.events[new_left.remove(p)];
+                    let k = new_left.remove(p);
+                    let (ea, eb) = (&old.events[old_left[i]], &new.events[k]);
+                    let b = &new_views[k];
+                    pairs.push((old_left[i], k));
                     old_left.remove(i);
                     if pass > 0 {
                         let mut details = Vec::new();
-                        if !ctx.same_value(a.amount, b.amount, conc) {
+                        if !same_amount(a, b) {
                             details.push(Detail {
                                 aspect: "amount",
-                                old: quantity(old, a.amount, conc),
-                                new: quantity(new, b.amount, conc),
+                                old: amount_shown(old, a),
+                                new: amount_shown(new, b),
                             });
                         }
-                        if !ctx.same_value(a.time, b.time, time) {
+                        if let (Some(x), Some(y)) = (a.time, b.time)
+                            && !ctx.same_value(x, y, time)
+                        {
                             details.push(Detail {
                                 aspect: "time",
-                                old: quantity(old, a.time, time),
-                                new: quantity(new, b.time, time),
+                                old: quantity(old, x, time),
+                                new: quantity(new, y, time),
                             });
                         }
                         out.push(Change {
                             item: ItemKind::Event,
                             kind: ChangeKind::Changed,
-                            old_name: Some(event_text(old, a)),
-                            new_name: Some(event_text(new, b)),
-                            old_text: Some(event_text(old, a)),
-                            new_text: Some(event_text(new, b)),
+                            old_name: Some(event_text(old, ea)),
+                            new_name: Some(event_text(new, eb)),
+                            old_text: Some(event_text(old, ea)),
+                            new_text: Some(event_text(new, eb)),
                             details,
                         });
                     }
@@ -610,9 +698,14 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
     for (x, &(a1, b1)) in pairs.iter().enumerate() {
         for &(a2, b2) in &pairs[x + 1..] {
             let (e1, e2) = (&old.events[a1], &old.events[a2]);
-            let same_moment = e1.time == e2.time
-                && e1.species == e2.species
-                && ctx.same_value(new.events[b1].time, new.events[b2].time, time);
+            let (v1, v2) = (&old_views[a1], &old_views[a2]);
+            let overlap = v1.targets.iter().any(|t| v2.targets.contains(t))
+                || v1.amount_dim.is_none()
+                || v2.amount_dim.is_none();
+            let same_moment = v1.time.is_some()
+                && v1.time == v2.time
+                && overlap
+                && same_time(&new_views[b1], &new_views[b2]);
             if same_moment && b2 < b1 {
                 let order = |m: &Model, first: &Event, second: &Event| {
                     format!("{}, then {}", event_text(m, first), event_text(m, second))

@@ -56,6 +56,11 @@ codes! {
     BadEvent => "E0409", "invalid event";
     BadAssumption => "E0410", "invalid assumption";
     NegativeRateConstant => "E0411", "negative rate constant";
+    NeedsVolume => "E0412", "amount or volume change without a declared volume";
+    VolumeExhausted => "E0413", "withdrawal larger than the volume left";
+    MissingConversion => "E0414", "mass or activity unit without its conversion";
+    BadTemperature => "E0415", "invalid temperature or temperature law";
+    BadCondition => "E0416", "invalid condition of a triggered event";
 
     TotalNotConserved => "E0501", "total is not conserved";
     TotalInconsistent => "E0502", "total value inconsistent with initial values";
@@ -77,6 +82,7 @@ codes! {
     OutputRefused => "E0802", "output refused";
     WriteFailed => "E0803", "output could not be written";
     GitRead => "E0804", "file cannot be read from git";
+    TargetCannotExpress => "E0805", "the target cannot express part of the model";
 
     BadData => "E0901", "assay data cannot be used";
     BadFitRequest => "E0902", "invalid fit request";
@@ -90,4 +96,6 @@ codes! {
     LawDimensionMismatch => "W0106", "rate law does not have the dimension of a rate";
     LawAsPropensity => "W0107", "rate law used as a propensity (an approximation)";
     NamesEqualWhenNormalized => "W0108", "two names that differ only in Unicode normalisation";
+    EyringValueDiffers => "W0109", "value at the reference temperature differs from the Eyring equation's";
+    TemperatureIgnored => "W0110", "temperature law without an assay temperature";
 }

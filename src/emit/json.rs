@@ -8,7 +8,7 @@ use super::system::System;
 use super::{EmitOptions, EmittedFile, Target};
 use crate::algebra::print::{Syntax, print_expr};
 use crate::diagnostics::Diagnostic;
-use crate::model::{Coef, EventKind, Expr, ParamDef, Rate, Sym};
+use crate::model::{Action, Coef, EventKind, Expr, ParamDef, Rate, Sym, Timing};
 use num_traits::ToPrimitive;
 use serde_json::{Value, json};
 
@@ -139,12 +139,31 @@ fn document(sys: &System) -> Result<Value, Diagnostic> {
             "value_given": t.value_given,
         })).collect::<Vec<_>>(),
         "observables": m.observables.iter().map(|o| json!({ "name": o.name, "expression": text(&o.expr) })).collect::<Vec<_>>(),
-        "events": m.events.iter().map(|e| json!({
-            "time": e.time,
-            "kind": match e.kind { EventKind::Add => "add", EventKind::Remove => "remove", EventKind::Set => "set" },
-            "species": species_name(e.species),
-            "amount": e.amount,
-        })).collect::<Vec<_>>(),
+        "events": m.events.iter().map(|e| {
+            let mut entry = match &e.action {
+                Action::Species { kind, species, amount } => json!({
+                    "kind": match kind { EventKind::Add => "add", EventKind::Remove => "remove", EventKind::Set => "set" },
+                    "species": species_name(*species),
+                    "amount": amount,
+                }),
+                Action::Stock { volume, contents } => json!({
+                    "kind": "add_stock",
+                    "volume_litres": volume,
+                    "stock": contents.iter().map(|(s, c)| (m.name_of(*s).to_string(), json!(c))).collect::<serde_json::Map<_, _>>(),
+                }),
+                Action::Withdraw { volume } => json!({ "kind": "withdraw", "volume_litres": volume }),
+            };
+            match &e.timing {
+                Timing::At(t) => entry["time"] = json!(t),
+                Timing::When(trigger) => {
+                    entry["when"] = json!(trigger.text);
+                    entry["rising"] = json!(text(&trigger.rising));
+                }
+            }
+            entry
+        }).collect::<Vec<_>>(),
+        "volume_litres": m.volume,
+        "temperature_kelvin": m.temperature,
         "assumptions": {
             "steady": m.assumptions.steady.iter().map(|(i, _)| species_name(*i)).collect::<Vec<_>>(),
             "equilibrium": m.assumptions.equilibrium.iter().map(|(j, _)| m.steps[*j].name.clone()).collect::<Vec<_>>(),

@@ -15,6 +15,9 @@ use std::fmt::Write;
 pub struct Julia;
 
 impl Target for Julia {
+    fn runs_protocol(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         "julia"
     }

@@ -28,7 +28,7 @@ mod r;
 mod rust;
 mod sbml;
 
-use crate::diagnostics::Diagnostic;
+use crate::diagnostics::{Code, Diagnostic};
 use crate::model::Model;
 pub use system::System;
 
@@ -65,6 +65,16 @@ pub trait Target: Sync {
     fn supports_reduced(&self) -> bool {
         true
     }
+    /// Whether the emitted code runs the protocol (its events) itself.
+    fn runs_protocol(&self) -> bool {
+        false
+    }
+    /// Whether it also runs additions of a stock, withdrawals of volume and
+    /// triggered events (a target that runs the protocol without them
+    /// refuses such a model rather than drop part of the experiment).
+    fn runs_assay_protocol(&self) -> bool {
+        false
+    }
     fn emit(&self, system: &System, options: &EmitOptions) -> Result<Vec<EmittedFile>, Diagnostic>;
 }
 
@@ -93,6 +103,20 @@ pub fn emit(
     target: &dyn Target,
     options: &EmitOptions,
 ) -> Result<Vec<EmittedFile>, Diagnostic> {
+    if target.runs_protocol()
+        && !target.runs_assay_protocol()
+        && let Some(e) = model.events.iter().find(|e| e.is_second_round())
+    {
+        return Err(Diagnostic::error(
+            Code::TargetCannotExpress,
+            format!(
+                "the {} target runs timed species changes only; this event changes the volume or waits for a condition",
+                target.name()
+            ),
+        )
+        .with_label(e.span, "not expressible in this target")
+        .with_help("emit `--target sbml` (a compartment, its volume changes and triggers) or `--target json` for this protocol"));
+    }
     let system = if options.reduced {
         System::reduced(model)?
     } else {

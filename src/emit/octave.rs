@@ -16,6 +16,9 @@ use std::fmt::Write;
 pub struct Octave;
 
 impl Target for Octave {
+    fn runs_protocol(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         "octave"
     }

@@ -14,6 +14,9 @@ use std::fmt::Write;
 pub struct Python;
 
 impl Target for Python {
+    fn runs_protocol(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         "python"
     }

@@ -14,6 +14,9 @@ use std::fmt::Write;
 pub struct R;
 
 impl Target for R {
+    fn runs_protocol(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         "r"
     }

@@ -17,7 +17,7 @@ use super::system::System;
 use super::{EmitOptions, EmittedFile, Target};
 use crate::algebra::print::{Syntax, plain_literal, print_expr, xml_escape};
 use crate::diagnostics::Diagnostic;
-use crate::model::{Dim, EventKind, Expr, ParamDef, Rate, Sym, Units, coef_f64};
+use crate::model::{Action, Dim, EventKind, Expr, ParamDef, Rate, Sym, Timing, Units, coef_f64};
 use std::collections::BTreeSet;
 use std::fmt::Write;
 
@@ -38,6 +38,12 @@ const RESERVED: &[&str] = &[
 const COMPARTMENT: &str = "compartment";
 
 impl Target for Sbml {
+    fn runs_protocol(&self) -> bool {
+        true
+    }
+    fn runs_assay_protocol(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         "sbml"
     }
@@ -164,9 +170,18 @@ fn document(sys: &System, options: &EmitOptions) -> String {
     }
     o.push_str("    </listOfUnitDefinitions>\n");
 
+    // The mixture's volume when the file declares one; its size changes
+    // with additions and withdrawals.
+    let volume_changes = m
+        .events
+        .iter()
+        .any(|e| matches!(e.action, Action::Stock { .. } | Action::Withdraw { .. }));
+    let dilutes = m.events.iter().any(|e| matches!(e.action, Action::Stock { .. }));
     let _ = writeln!(
         o,
-        "    <listOfCompartments>\n      <compartment id=\"{COMPARTMENT}\" spatialDimensions=\"3\" size=\"1\" units=\"litre\" constant=\"true\"/>\n    </listOfCompartments>"
+        "    <listOfCompartments>\n      <compartment id=\"{COMPARTMENT}\" spatialDimensions=\"3\" size=\"{}\" units=\"litre\" constant=\"{}\"/>\n    </listOfCompartments>",
+        plain_literal(m.volume.unwrap_or(1.0)),
+        !volume_changes
     );
 
     o.push_str("    <listOfSpecies>\n");
@@ -182,10 +197,12 @@ fn document(sys: &System, options: &EmitOptions) -> String {
     for (i, f) in m.fixed.iter().enumerate() {
         let _ = writeln!(
             o,
-            "      <species id=\"{}\"{} compartment=\"{COMPARTMENT}\" initialConcentration=\"{}\" substanceUnits=\"substance\" hasOnlySubstanceUnits=\"false\" boundaryCondition=\"true\" constant=\"true\"/>",
+            "      <species id=\"{}\"{} compartment=\"{COMPARTMENT}\" initialConcentration=\"{}\" substanceUnits=\"substance\" hasOnlySubstanceUnits=\"false\" boundaryCondition=\"true\" constant=\"{}\"/>",
             id(Sym::Fixed(i)),
             name_attr(&f.name, f.description.as_deref()),
-            plain_literal(f.value)
+            plain_literal(f.value),
+            // A dilution changes a fixed species too.
+            !dilutes
         );
     }
     o.push_str("    </listOfSpecies>\n");
@@ -347,33 +364,37 @@ fn document(sys: &System, options: &EmitOptions) -> String {
     if !m.events.is_empty() {
         o.push_str("    <listOfEvents>\n");
         for (k, e) in m.events.iter().enumerate() {
-            let sp = id(Sym::Species(e.species));
-            let amount = plain_literal(e.amount);
-            let value = match e.kind {
-                EventKind::Add => {
-                    format!("<apply><plus/><ci> {sp} </ci><cn> {amount} </cn></apply>")
-                }
-                EventKind::Remove => format!(
-                    "<apply><max/><apply><minus/><ci> {sp} </ci><cn> {amount} </cn></apply><cn type=\"integer\"> 0 </cn></apply>"
+            let (name, assignments) = event_assignments(m, e, &id);
+            let (when, trigger, initial) = match &e.timing {
+                Timing::At(t) => (
+                    format!("at {}", plain_literal(*t)),
+                    format!(
+                        "<apply><geq/>{}<cn> {} </cn></apply>",
+                        print_expr(&Expr::Time, &id, Syntax::MathML),
+                        plain_literal(*t)
+                    ),
+                    // A time of 0 fires at the start.
+                    "false",
                 ),
-                EventKind::Set => format!("<cn> {amount} </cn>"),
-            };
-            let kind = match e.kind {
-                EventKind::Add => "add",
-                EventKind::Remove => "remove",
-                EventKind::Set => "set",
+                Timing::When(trigger) => (
+                    format!("when {}", trigger.text),
+                    format!(
+                        "<apply><gt/>{}<cn type=\"integer\"> 0 </cn></apply>",
+                        print_expr(&trigger.rising, &id, Syntax::MathML)
+                    ),
+                    // A condition already true at the start does not fire then.
+                    "true",
+                ),
             };
             let _ = writeln!(
                 o,
-                "      <event id=\"event_{k}\" name=\"{kind} {} at {}\" useValuesFromTriggerTime=\"false\">",
-                xml_escape(&m.species[e.species].name),
-                plain_literal(e.time)
+                "      <event id=\"event_{k}\" name=\"{} {}\" useValuesFromTriggerTime=\"false\">",
+                xml_escape(&name),
+                xml_escape(&when)
             );
             let _ = writeln!(
                 o,
-                "        <trigger initialValue=\"false\" persistent=\"true\">\n          <math xmlns=\"http://www.w3.org/1998/Math/MathML\"><apply><geq/>{}<cn> {} </cn></apply></math>\n        </trigger>",
-                print_expr(&Expr::Time, &id, Syntax::MathML),
-                plain_literal(e.time)
+                "        <trigger initialValue=\"{initial}\" persistent=\"true\">\n          <math xmlns=\"http://www.w3.org/1998/Math/MathML\">{trigger}</math>\n        </trigger>"
             );
             // Events at one time apply in file order, each to the state the
             // previous one left (values taken when it executes).
@@ -382,15 +403,85 @@ fn document(sys: &System, options: &EmitOptions) -> String {
                 "        <priority>\n          <math xmlns=\"http://www.w3.org/1998/Math/MathML\"><cn type=\"integer\"> {} </cn></math>\n        </priority>",
                 m.events.len() - k
             );
-            let _ = writeln!(
-                o,
-                "        <listOfEventAssignments>\n          <eventAssignment variable=\"{sp}\">\n            <math xmlns=\"http://www.w3.org/1998/Math/MathML\">{value}</math>\n          </eventAssignment>\n        </listOfEventAssignments>\n      </event>"
-            );
+            o.push_str("        <listOfEventAssignments>\n");
+            for (variable, value) in assignments {
+                let _ = writeln!(
+                    o,
+                    "          <eventAssignment variable=\"{variable}\">\n            <math xmlns=\"http://www.w3.org/1998/Math/MathML\">{value}</math>\n          </eventAssignment>"
+                );
+            }
+            o.push_str("        </listOfEventAssignments>\n      </event>\n");
         }
         o.push_str("    </listOfEvents>\n");
     }
     o.push_str("  </model>\n</sbml>\n");
     o
+}
+
+/// An event's name and its assignments (variable id, MathML value). All
+/// values are computed from the state before the event (SBML evaluates
+/// every assignment of an event before applying any), so a dilution
+/// writes each concentration as c·V/(V+ΔV) + c_stock·ΔV/(V+ΔV) and the
+/// compartment as V+ΔV, whatever a simulator does with amounts when a
+/// compartment changes size.
+fn event_assignments(
+    m: &crate::model::Model,
+    e: &crate::model::Event,
+    id: &dyn Fn(Sym) -> String,
+) -> (String, Vec<(String, String)>) {
+    let ci = |s: &str| format!("<ci> {s} </ci>");
+    match &e.action {
+        Action::Species {
+            kind,
+            species,
+            amount,
+        } => {
+            let sp = id(Sym::Species(*species));
+            let amount = plain_literal(*amount);
+            let value = match kind {
+                EventKind::Add => format!("<apply><plus/>{}<cn> {amount} </cn></apply>", ci(&sp)),
+                EventKind::Remove => format!(
+                    "<apply><max/><apply><minus/>{}<cn> {amount} </cn></apply><cn type=\"integer\"> 0 </cn></apply>",
+                    ci(&sp)
+                ),
+                EventKind::Set => format!("<cn> {amount} </cn>"),
+            };
+            let word = match kind {
+                EventKind::Add => "add",
+                EventKind::Remove => "remove",
+                EventKind::Set => "set",
+            };
+            (format!("{word} {}", m.species[*species].name), vec![(sp, value)])
+        }
+        Action::Stock { volume, contents } => {
+            let added = plain_literal(*volume);
+            let new_size = format!("<apply><plus/>{}<cn> {added} </cn></apply>", ci(COMPARTMENT));
+            let mut out = vec![(COMPARTMENT.to_string(), new_size.clone())];
+            let diluted = |sym: Sym| {
+                let stock = contents.iter().find(|(s, _)| *s == sym).map(|(_, c)| *c);
+                let kept = format!("<apply><times/>{}{}</apply>", ci(&id(sym)), ci(COMPARTMENT));
+                let amount = match stock {
+                    Some(c) => format!(
+                        "<apply><plus/>{kept}<apply><times/><cn> {} </cn><cn> {added} </cn></apply></apply>",
+                        plain_literal(c)
+                    ),
+                    None => kept,
+                };
+                (id(sym), format!("<apply><divide/>{amount}{new_size}</apply>"))
+            };
+            out.extend((0..m.species.len()).map(|i| diluted(Sym::Species(i))));
+            out.extend((0..m.fixed.len()).map(|i| diluted(Sym::Fixed(i))));
+            let names: Vec<&str> = contents.iter().map(|(s, _)| m.name_of(*s)).collect();
+            (format!("add {} L of stock ({})", added, names.join(", ")), out)
+        }
+        Action::Withdraw { volume } => (
+            format!("remove {} L", plain_literal(*volume)),
+            vec![(
+                COMPARTMENT.to_string(),
+                format!("<apply><minus/>{}<cn> {} </cn></apply>", ci(COMPARTMENT), plain_literal(*volume)),
+            )],
+        ),
+    }
 }
 
 fn name_attr(name: &str, description: Option<&str>) -> String {

@@ -14,7 +14,7 @@
 
 use crate::algebra::calculus::{derivative, is_zero, simplify};
 use crate::diagnostics::{Code, Diagnostic};
-use crate::model::{Coef, EventKind, Expr, Model, ParamDef, Sym, coef_f64};
+use crate::model::{Coef, Event, EventKind, Expr, Model, ParamDef, Sym, coef_f64};
 use std::collections::BTreeSet;
 
 /// Inlined expressions larger than this are refused (a model whose
@@ -189,14 +189,18 @@ impl System {
         }
         jac.sort_by_key(|e| (e.col, e.row));
 
+        // The first-round protocol (timed species changes); volume changes
+        // and triggers are read from the model by the targets that write
+        // them (`Target::writes_assay_protocol`).
         let events = model
             .events
             .iter()
-            .map(|e| EventRow {
-                time: e.time,
-                kind: e.kind,
-                species: e.species,
-                amount: e.amount,
+            .filter_map(Event::timed_species_change)
+            .map(|(time, kind, species, amount)| EventRow {
+                time,
+                kind,
+                species,
+                amount,
             })
             .collect();
 

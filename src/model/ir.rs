@@ -18,6 +18,9 @@ use crate::diagnostics::Span;
 use num_rational::Rational64;
 use num_traits::{One, ToPrimitive, Zero};
 
+/// The name `--set` and `scan` use for the assay temperature (kelvin).
+pub const TEMPERATURE: &str = "temperature";
+
 /// A stoichiometric coefficient (exact).
 pub type Coef = Rational64;
 
@@ -129,16 +132,105 @@ pub enum EventKind {
     Set,
 }
 
+/// When an event happens.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Timing {
+    /// At a time (default units). `every` lines are lowered to one event
+    /// per repetition.
+    At(f64),
+    /// Each time `rising` crosses zero from below (the condition becomes
+    /// true); never at t = 0 for a condition already true at the start.
+    When(Trigger),
+}
+
+/// A state-triggered event's condition, as `rising > 0`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Trigger {
+    /// `lhs - rhs` for `lhs > rhs`, `rhs - lhs` for `lhs < rhs`.
+    pub rising: Expr,
+    /// The condition as written (for messages and emitted comments).
+    pub text: String,
+}
+
+/// What an event does.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Action {
+    /// A first-round change of one species' concentration (no volume change).
+    Species {
+        kind: EventKind,
+        /// Index of a dynamic species.
+        species: usize,
+        /// Amount added or removed, or the value set (default units).
+        amount: f64,
+    },
+    /// `add V of STOCK`: every species and fixed species is diluted by
+    /// V_old/(V_old+V), then each stock component adds c·V/(V_old+V).
+    Stock {
+        /// Litres added.
+        volume: f64,
+        /// Stock components: `Sym::Species` or `Sym::Fixed`, with their
+        /// concentration in the stock (default units).
+        contents: Vec<(Sym, f64)>,
+    },
+    /// `remove V`: the volume falls, concentrations stay.
+    Withdraw {
+        /// Litres withdrawn.
+        volume: f64,
+    },
+}
+
 #[derive(Debug, Clone, PartialEq)]
 pub struct Event {
-    pub kind: EventKind,
-    /// Index of a dynamic species.
-    pub species: usize,
-    /// Amount added or removed, or the value set (default units).
-    pub amount: f64,
-    /// Time in default units.
-    pub time: f64,
+    pub timing: Timing,
+    pub action: Action,
     pub span: Span,
+}
+
+impl Event {
+    /// The time of a timed event.
+    pub fn time(&self) -> Option<f64> {
+        match &self.timing {
+            Timing::At(t) => Some(*t),
+            Timing::When(_) => None,
+        }
+    }
+    /// A timed first-round species change, as (time, kind, species, amount).
+    pub fn timed_species_change(&self) -> Option<(f64, EventKind, usize, f64)> {
+        match (&self.timing, &self.action) {
+            (
+                Timing::At(t),
+                Action::Species {
+                    kind,
+                    species,
+                    amount,
+                },
+            ) => Some((*t, *kind, *species, *amount)),
+            _ => None,
+        }
+    }
+    /// Species whose concentration the event can raise above zero.
+    pub fn species_raised(&self) -> Vec<usize> {
+        match &self.action {
+            Action::Species {
+                kind: EventKind::Add | EventKind::Set,
+                species,
+                amount,
+            } if *amount > 0.0 => vec![*species],
+            Action::Species { .. } | Action::Withdraw { .. } => vec![],
+            Action::Stock { contents, .. } => contents
+                .iter()
+                .filter_map(|(s, c)| match s {
+                    Sym::Species(i) if *c > 0.0 => Some(*i),
+                    _ => None,
+                })
+                .collect(),
+        }
+    }
+    /// Whether the event changes the volume or waits for a condition
+    /// (what the first-round consumers cannot express).
+    pub fn is_second_round(&self) -> bool {
+        self.timed_species_change().is_none()
+    }
 }
 
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -164,6 +256,15 @@ pub struct Model {
     pub observables: Vec<Observable>,
     pub events: Vec<Event>,
     pub assumptions: Assumptions,
+    /// The reaction mixture's starting volume in litres, if declared.
+    pub volume: Option<f64>,
+    /// The unit the volume was declared in, and its size in litres (for
+    /// output columns).
+    pub volume_unit: Option<(String, f64)>,
+    /// The assay temperature in kelvin, if declared (or set).
+    pub temperature: Option<f64>,
+    /// Params given at a reference temperature (index into `params`).
+    pub temperature_laws: Vec<(usize, super::lab_units::TemperatureDependence)>,
 }
 
 impl Model {
@@ -376,8 +477,19 @@ impl Model {
             if !value.is_finite() {
                 return Err(ValueError::NotFinite { name: name.clone() });
             }
+            if name == TEMPERATURE && m.lookup(name).is_none() {
+                if *value <= 0.0 {
+                    return Err(ValueError::NotFinite { name: name.clone() });
+                }
+                m.temperature = Some(*value);
+                continue;
+            }
             match m.lookup(name) {
-                Some(Sym::Param(i)) => m.params[i].definition = ParamDef::Value(*value),
+                Some(Sym::Param(i)) => {
+                    // A value set by hand replaces the temperature law.
+                    m.temperature_laws.retain(|(p, _)| *p != i);
+                    m.params[i].definition = ParamDef::Value(*value)
+                }
                 Some(Sym::Species(i)) => {
                     if *value < 0.0 {
                         return Err(ValueError::NegativeInitial { name: name.clone() });
@@ -474,6 +586,10 @@ impl Model {
 
     /// Re-evaluates every param in `param_order`.
     pub fn evaluate_params(&mut self) -> Result<(), ValueError> {
+        for (i, law) in &self.temperature_laws {
+            let kelvin = self.temperature.unwrap_or(law.reference);
+            self.params[*i].definition = ParamDef::Value(law.at(kelvin));
+        }
         for &i in &self.param_order.clone() {
             let v = match &self.params[i].definition {
                 ParamDef::Value(v) => *v,

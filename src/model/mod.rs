@@ -6,6 +6,7 @@
 
 pub mod expr;
 pub mod ir;
+pub mod lab_units;
 pub mod units;
 pub mod value_error;
 

@@ -3,7 +3,8 @@
 //! `model/`; later stages see plain numbers in default units.
 //!
 //! Scale factors are the SI definitions: 1 M = 1 mol/L, prefixes m = 1e-3,
-//! u (µ) = 1e-6, n = 1e-9, p = 1e-12; 1 min = 60 s, 1 h = 3600 s, 1 ms = 1e-3 s.
+//! u (µ) = 1e-6, n = 1e-9, p = 1e-12; 1 min = 60 s, 1 h = 3600 s, 1 d = 86 400 s, 1 ms = 1e-3 s
+//! (SI Brochure, 9th edition, table 8: non-SI units accepted for use with the SI).
 
 use crate::diagnostics::{Code, Diagnostic};
 use std::fmt;
@@ -23,6 +24,7 @@ pub enum TimeUnit {
     Ms,
     Min,
     H,
+    Day,
 }
 
 impl ConcUnit {
@@ -65,6 +67,7 @@ impl TimeUnit {
             TimeUnit::Ms => 1e-3,
             TimeUnit::Min => 60.0,
             TimeUnit::H => 3600.0,
+            TimeUnit::Day => 86_400.0,
         }
     }
     pub fn symbol(self) -> &'static str {
@@ -73,6 +76,7 @@ impl TimeUnit {
             TimeUnit::Ms => "ms",
             TimeUnit::Min => "min",
             TimeUnit::H => "h",
+            TimeUnit::Day => "d",
         }
     }
     pub fn parse(word: &str) -> Option<TimeUnit> {
@@ -81,6 +85,7 @@ impl TimeUnit {
             "ms" => TimeUnit::Ms,
             "min" => TimeUnit::Min,
             "h" => TimeUnit::H,
+            "d" => TimeUnit::Day,
             _ => return None,
         })
     }
@@ -302,6 +307,7 @@ impl TimeUnit {
             TimeUnit::Ms => (1, 1_000),
             TimeUnit::Min => (60, 1),
             TimeUnit::H => (3_600, 1),
+            TimeUnit::Day => (86_400, 1),
         }
     }
 }

@@ -209,14 +209,34 @@ impl Checker<'_> {
         }
         for (i, e) in m.events.iter().enumerate() {
             let item = format!("event #{i}");
-            if e.species >= m.species.len() {
-                self.broken(
-                    &item,
-                    format!("changes species #{}, which does not exist", e.species),
-                );
+            let sym_ok = |s: &Sym| match s {
+                Sym::Species(k) => *k < m.species.len(),
+                Sym::Fixed(k) => *k < m.fixed.len(),
+                _ => false,
+            };
+            let (targets_ok, amount) = match &e.action {
+                Action::Species {
+                    species, amount, ..
+                } => (*species < m.species.len(), *amount),
+                Action::Stock { volume, contents } => (
+                    contents.iter().all(|(s, c)| sym_ok(s) && c.is_finite() && *c >= 0.0)
+                        && m.volume.is_some(),
+                    *volume,
+                ),
+                Action::Withdraw { volume } => (m.volume.is_some(), *volume),
+            };
+            if !targets_ok {
+                self.broken(&item, "changes something that does not exist".to_string());
             }
-            if !e.time.is_finite() || e.time < 0.0 || !e.amount.is_finite() {
-                self.broken(&item, format!("is {} at {}", e.amount, e.time));
+            let time_ok = match &e.timing {
+                Timing::At(t) => t.is_finite() && *t >= 0.0,
+                Timing::When(trigger) => {
+                    self.expr_resolved(&item, &trigger.rising);
+                    true
+                }
+            };
+            if !time_ok || !amount.is_finite() {
+                self.broken(&item, format!("is {amount} at {:?}", e.time()));
             }
         }
         for &(k, _) in &m.assumptions.steady {

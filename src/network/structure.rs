@@ -9,7 +9,7 @@
 //! clamped species is a constant folded into the rate, so `E + S_fixed` is
 //! the complex `E`. That keeps the deficiency consistent with the rank of N.
 
-use crate::model::{Coef, EventKind, Model, Rate, Sym, Term};
+use crate::model::{Coef, Model, Rate, Sym, Term};
 use std::collections::HashMap;
 
 /// A complex: (species, coefficient) in the order first written; empty = the zero complex.
@@ -260,8 +260,10 @@ fn never_fire(model: &Model) -> Vec<usize> {
         present[n + i] = f.value > 0.0;
     }
     for e in &model.events {
-        if matches!(e.kind, EventKind::Add | EventKind::Set) && e.amount > 0.0 && e.species < n {
-            present[e.species] = true;
+        for i in e.species_raised() {
+            if i < n {
+                present[i] = true;
+            }
         }
     }
     // Directions: 2j forward (reactants -> products), 2j+1 backward.

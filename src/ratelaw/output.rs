@@ -669,15 +669,20 @@ pub fn mechanism(
     let kept = |i: usize| !is_form(i);
     let mut events = String::new();
     for e in &model.events {
-        if !kept(e.species) {
+        // The derived file keeps the protocol's species changes; volume
+        // changes and triggers are the assay's, kept in the original file.
+        let Some((time, kind, species, amount)) = e.timed_species_change() else {
+            continue;
+        };
+        if !kept(species) {
             continue;
         }
-        let n = &model.species[e.species].name;
+        let n = &model.species[species].name;
         let (a, t) = (
-            with_unit(e.amount, Some(Dim::CONC), model),
-            with_unit(e.time, Some(Dim::TIME), model),
+            with_unit(amount, Some(Dim::CONC), model),
+            with_unit(time, Some(Dim::TIME), model),
         );
-        events.push_str(&match e.kind {
+        events.push_str(&match kind {
             EventKind::Add => format!("add {a} {n} at {t}\n"),
             EventKind::Remove => format!("remove {a} {n} at {t}\n"),
             EventKind::Set => format!("set {n} = {a} at {t}\n"),

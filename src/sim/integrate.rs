@@ -6,10 +6,15 @@
 //! time equal to an event time reports the state *after* the event; an
 //! event at t = 0 changes the initial state. After an event every total's
 //! value is recomputed from the species (an addition changes the amount
-//! conserved), and the constants that depend on totals follow.
+//! conserved), and the constants that depend on totals follow. An addition
+//! of a stock dilutes every species and fixed species by V/(V+ΔV) and adds
+//! the stock's content; a withdrawal lowers the volume only. A `when`
+//! event fires where its condition becomes true (bisection on the
+//! solver's interpolant), once per crossing. With `event_rows`, each event
+//! time appears twice: the state just before, then just after.
 
 use super::{Method, Settings, SimError};
-use crate::model::{EventKind, Model, coef_f64};
+use crate::model::{Action, EventKind, Model, Sym, Timing, coef_f64};
 use crate::numeric::{CompiledSystem, constants_of};
 use diffsol::{
     FaerSparseMat, NalgebraLU, NalgebraMat, OdeBuilder, OdeSolverMethod, OdeSolverStopReason,
@@ -23,7 +28,19 @@ use std::cell::RefCell;
 pub struct Trajectory {
     pub times: Vec<f64>,
     pub rows: Vec<Vec<f64>>,
+    /// The mixture's volume (litres) at each row, when the model declares one.
+    pub volumes: Vec<f64>,
     pub steps: usize,
+}
+
+impl Trajectory {
+    fn push(&mut self, t: f64, row: &[f64], volume: Option<f64>) {
+        self.times.push(t);
+        self.rows.push(row.to_vec());
+        if let Some(v) = volume {
+            self.volumes.push(v);
+        }
+    }
 }
 
 /// Last Jacobian values, reused while the solver asks for J·v at the same
@@ -99,43 +116,158 @@ pub fn simulate_with(
     }
 }
 
-/// The segment plan: the state at the start, then events in time order.
+/// The segment plan: timed events in time order (file order at one time),
+/// and the state-triggered events.
 struct Plan {
     events: Vec<usize>,
+    triggers: Vec<usize>,
 }
 
 fn plan(model: &Model, end: f64) -> Plan {
     let mut events: Vec<usize> = (0..model.events.len())
-        .filter(|&i| model.events[i].time <= end)
+        .filter(|&i| model.events[i].time().is_some_and(|t| t <= end))
         .collect();
     // Stable: events at the same time keep file order.
-    events.sort_by(|&a, &b| model.events[a].time.total_cmp(&model.events[b].time));
-    Plan { events }
+    events.sort_by(|&a, &b| {
+        let time = |i: usize| model.events[i].time().unwrap_or(0.0);
+        time(a).total_cmp(&time(b))
+    });
+    let triggers = (0..model.events.len())
+        .filter(|&i| matches!(model.events[i].timing, Timing::When(_)))
+        .collect();
+    Plan { events, triggers }
 }
 
-/// Applies one event to full species values.
-fn apply_event(model: &Model, event: usize, species: &mut [f64]) {
-    let e = &model.events[event];
-    let v = &mut species[e.species];
-    match e.kind {
-        EventKind::Add => *v += e.amount,
-        // A withdrawal cannot take more than there is.
-        EventKind::Remove => *v = (*v - e.amount).max(0.0),
-        EventKind::Set => *v = e.amount,
+/// Triggered firings allowed in one run (a condition that flips at every
+/// step would otherwise never let the run end).
+const MAX_FIRINGS: usize = 100_000;
+
+/// What the protocol has done to the mixture so far: the species, the
+/// fixed species and totals as events left them (in `current`), and the
+/// volume.
+struct Mixture {
+    current: Model,
+    species: Vec<f64>,
+    volume: Option<f64>,
+}
+
+impl Mixture {
+    fn new(model: &Model) -> Mixture {
+        Mixture {
+            current: model.clone(),
+            species: model.initial_state(),
+            volume: model.volume,
+        }
+    }
+
+    /// Applies one event to the full species values (and the volume).
+    fn apply(&mut self, model: &Model, event: usize, t: f64) -> Result<(), SimError> {
+        match &model.events[event].action {
+            Action::Species {
+                kind,
+                species,
+                amount,
+            } => {
+                let v = &mut self.species[*species];
+                match kind {
+                    EventKind::Add => *v += amount,
+                    // A withdrawal cannot take more than there is.
+                    EventKind::Remove => *v = (*v - amount).max(0.0),
+                    EventKind::Set => *v = *amount,
+                }
+            }
+            Action::Stock { volume, contents } => {
+                let before = self.volume.unwrap_or(0.0);
+                let after = before + volume;
+                let kept = before / after;
+                self.species.iter_mut().for_each(|x| *x *= kept);
+                self.current.fixed.iter_mut().for_each(|f| f.value *= kept);
+                for (sym, c) in contents {
+                    let added = c * volume / after;
+                    match sym {
+                        Sym::Species(i) => self.species[*i] += added,
+                        Sym::Fixed(i) => self.current.fixed[*i].value += added,
+                        _ => {}
+                    }
+                }
+                self.volume = Some(after);
+            }
+            Action::Withdraw { volume } => {
+                let before = self.volume.unwrap_or(0.0);
+                if *volume >= before * (1.0 - 1e-12) {
+                    return Err(SimError::input(format!(
+                        "at t = {t}, a withdrawal of {} uL is more than the {} uL the mixture holds",
+                        volume * 1e6,
+                        before * 1e6
+                    )));
+                }
+                self.volume = Some(before - volume);
+            }
+        }
+        Ok(())
+    }
+
+    /// The constants for the system: params, fixed species as diluted,
+    /// and totals recomputed from the species (an addition changes the
+    /// amount conserved, and the constants that depend on totals follow).
+    fn constants(&mut self) -> Vec<f64> {
+        for t in &mut self.current.totals {
+            t.value = t
+                .terms
+                .iter()
+                .map(|(i, c)| coef_f64(*c) * self.species[*i])
+                .sum();
+        }
+        constants_of(&self.current)
+    }
+
+    /// The value of a trigger's rising function at full species values.
+    fn rising(&self, model: &Model, event: usize, species: &[f64], t: f64) -> f64 {
+        match &model.events[event].timing {
+            Timing::When(trigger) => self.current.eval_at(&trigger.rising, species, t),
+            Timing::At(_) => f64::NAN,
+        }
     }
 }
 
-/// Totals recomputed from species values, as constants for the system.
-fn constants_after(model: &Model, species: &[f64]) -> Vec<f64> {
-    let mut m = model.clone();
-    for t in &mut m.totals {
-        t.value = t
-            .terms
+/// How a stretch of integration ended.
+enum Stretch {
+    /// At the segment's end; the state there.
+    Reached(Vec<f64>),
+    /// A trigger fired first: its time, the state there, and which
+    /// triggers (indices into the plan's list) fired.
+    Triggered {
+        time: f64,
+        state: Vec<f64>,
+        fired: Vec<usize>,
+    },
+}
+
+/// The triggers a stretch watches.
+struct Watch<'a> {
+    model: &'a Model,
+    mixture: &'a Mixture,
+    triggers: &'a [usize],
+    /// Whether each trigger may fire (its condition was false since it last fired).
+    armed: &'a mut Vec<bool>,
+}
+
+impl Watch<'_> {
+    fn values(
+        &self,
+        system: &CompiledSystem,
+        workspace: &RefCell<crate::numeric::Workspace>,
+        y: &[f64],
+        t: f64,
+        row: &mut Vec<f64>,
+    ) -> Vec<f64> {
+        system.outputs(&mut workspace.borrow_mut(), y, t, row);
+        let species = &row[..system.species_count()];
+        self.triggers
             .iter()
-            .map(|(i, c)| coef_f64(*c) * species[*i])
-            .sum();
+            .map(|&e| self.mixture.rising(self.model, e, species, t))
+            .collect()
     }
-    constants_of(&m)
 }
 
 macro_rules! simulate_with {
@@ -149,17 +281,17 @@ macro_rules! simulate_with {
             let n = system.nstates;
             let end = times.last().copied().unwrap_or(0.0);
             let plan = plan(model, end);
-            let mut species: Vec<f64> = model.initial_state();
+            let mut mixture = Mixture::new(model);
             let mut next_event = 0;
             while next_event < plan.events.len()
-                && model.events[plan.events[next_event]].time <= 0.0
+                && model.events[plan.events[next_event]].time().unwrap_or(0.0) <= 0.0
             {
-                apply_event(model, plan.events[next_event], &mut species);
+                mixture.apply(model, plan.events[next_event], 0.0)?;
                 next_event += 1;
             }
-            let constants = constants_after(model, &species);
+            let constants = mixture.constants();
             let workspace = RefCell::new(system.workspace(&constants));
-            let start = RefCell::new(system.state_from_species(&species));
+            let start = RefCell::new(system.state_from_species(&mixture.species));
             let cache = RefCell::new(JacobianCache {
                 y_bits: Vec::new(),
                 t_bits: 0,
@@ -192,14 +324,25 @@ macro_rules! simulate_with {
             let mut out = Trajectory {
                 times: Vec::with_capacity(times.len()),
                 rows: Vec::with_capacity(times.len()),
+                volumes: Vec::new(),
                 steps: 0,
             };
             let mut next_out = 0;
             let mut row = Vec::new();
             let mut t_start = 0.0;
+            let mut armed: Vec<bool> = {
+                let mut row = Vec::new();
+                system.outputs(&mut workspace.borrow_mut(), &start.borrow(), 0.0, &mut row);
+                let species = &row[..system.species_count()];
+                plan.triggers
+                    .iter()
+                    .map(|&e| !(mixture.rising(model, e, species, 0.0) > 0.0))
+                    .collect()
+            };
+            let mut firings = 0usize;
             loop {
                 let seg_end = if next_event < plan.events.len() {
-                    model.events[plan.events[next_event]].time
+                    model.events[plan.events[next_event]].time().unwrap_or(end)
                 } else {
                     end
                 };
@@ -208,10 +351,10 @@ macro_rules! simulate_with {
                 while next_out < times.len() && times[next_out] <= t_start {
                     let s = start.borrow();
                     system.outputs(&mut workspace.borrow_mut(), &s, times[next_out], &mut row);
-                    out.times.push(times[next_out]);
-                    out.rows.push(row.clone());
+                    out.push(times[next_out], &row, mixture.volume);
                     next_out += 1;
                 }
+                let mut stretch = Stretch::Reached(start.borrow().clone());
                 if seg_end > t_start && n == 0 {
                     // Nothing is integrated (every species fixed, in no step,
                     // or dependent): the state is constant and the solver,
@@ -221,34 +364,34 @@ macro_rules! simulate_with {
                             || (last_segment && times[next_out] <= seg_end))
                     {
                         system.outputs(&mut workspace.borrow_mut(), &[], times[next_out], &mut row);
-                        out.times.push(times[next_out]);
-                        out.rows.push(row.clone());
+                        out.push(times[next_out], &row, mixture.volume);
                         next_out += 1;
                     }
-                    system.outputs(&mut workspace.borrow_mut(), &[], seg_end, &mut row);
-                    species.copy_from_slice(&row[..system.species_count()]);
+                    stretch = Stretch::Reached(Vec::new());
                 } else if seg_end > t_start {
                     problem.t0 = t_start;
                     cache.borrow_mut().valid = false;
-                    let last_state = match settings.method {
+                    let mut watch = Watch {
+                        model,
+                        mixture: &mixture,
+                        triggers: &plan.triggers,
+                        armed: &mut armed,
+                    };
+                    let mut sink = Sink {
+                        times,
+                        next_out: &mut next_out,
+                        out: &mut out,
+                        row: &mut row,
+                        volume: mixture.volume,
+                    };
+                    stretch = match settings.method {
                         Method::Bdf => {
                             let solver = problem.bdf::<$solver>().map_err(|e| {
                                 SimError::setup(format!(
                                     "the solver could not start at t = {t_start}: {e}"
                                 ))
                             })?;
-                            drive(
-                                solver,
-                                system,
-                                &workspace,
-                                settings,
-                                times,
-                                &mut next_out,
-                                seg_end,
-                                last_segment,
-                                &mut out,
-                                &mut row,
-                            )?
+                            drive(solver, system, &workspace, settings, seg_end, last_segment, &mut sink, &mut watch)?
                         }
                         Method::Esdirk => {
                             let solver = problem.esdirk34::<$solver>().map_err(|e| {
@@ -256,37 +399,63 @@ macro_rules! simulate_with {
                                     "the solver could not start at t = {t_start}: {e}"
                                 ))
                             })?;
-                            drive(
-                                solver,
-                                system,
-                                &workspace,
-                                settings,
-                                times,
-                                &mut next_out,
-                                seg_end,
-                                last_segment,
-                                &mut out,
-                                &mut row,
-                            )?
+                            drive(solver, system, &workspace, settings, seg_end, last_segment, &mut sink, &mut watch)?
                         }
                     };
-                    system.outputs(&mut workspace.borrow_mut(), &last_state, seg_end, &mut row);
-                    species.copy_from_slice(&row[..system.species_count()]);
                 }
-                if last_segment {
+                let (t_event, state, fired) = match stretch {
+                    Stretch::Reached(state) => (seg_end, state, Vec::new()),
+                    Stretch::Triggered { time, state, fired } => (time, state, fired),
+                };
+                system.outputs(&mut workspace.borrow_mut(), &state, t_event, &mut row);
+                mixture.species.copy_from_slice(&row[..system.species_count()]);
+                if fired.is_empty() && last_segment {
                     break;
                 }
-                // Apply every event at this time, then restart.
-                let t_event = seg_end;
-                while next_event < plan.events.len()
-                    && model.events[plan.events[next_event]].time <= t_event
-                {
-                    apply_event(model, plan.events[next_event], &mut species);
-                    next_event += 1;
+                if settings.event_rows {
+                    // The state just before the events.
+                    out.push(t_event, &row, mixture.volume);
                 }
-                let constants = constants_after(model, &species);
+                // Apply the fired triggers (file order), or every timed event
+                // at this time, then restart.
+                if fired.is_empty() {
+                    while next_event < plan.events.len()
+                        && model.events[plan.events[next_event]].time().unwrap_or(0.0) <= t_event
+                    {
+                        mixture.apply(model, plan.events[next_event], t_event)?;
+                        next_event += 1;
+                    }
+                } else {
+                    firings += fired.len();
+                    if firings > MAX_FIRINGS {
+                        return Err(SimError::failed(t_event, None, f64::NAN, &format!(
+                            "triggered events fired more than {MAX_FIRINGS} times; a condition may be flipping at every step"
+                        )));
+                    }
+                    for k in fired {
+                        mixture.apply(model, plan.triggers[k], t_event)?;
+                    }
+                }
+                let constants = mixture.constants();
                 system.set_constants(&mut workspace.borrow_mut(), &constants);
-                *start.borrow_mut() = system.state_from_species(&species);
+                *start.borrow_mut() = system.state_from_species(&mixture.species);
+                // A condition made false by the events may fire again later.
+                {
+                    let mut row = Vec::new();
+                    system.outputs(&mut workspace.borrow_mut(), &start.borrow(), t_event, &mut row);
+                    let species = &row[..system.species_count()];
+                    for (k, &e) in plan.triggers.iter().enumerate() {
+                        if !(mixture.rising(model, e, species, t_event) > 0.0) {
+                            armed[k] = true;
+                        }
+                    }
+                }
+                let grid_has_it = next_out < times.len() && times[next_out] == t_event;
+                if settings.event_rows && !grid_has_it {
+                    let s = start.borrow();
+                    system.outputs(&mut workspace.borrow_mut(), &s, t_event, &mut row);
+                    out.push(t_event, &row, mixture.volume);
+                }
                 t_start = t_event;
             }
             Ok(out)
@@ -301,21 +470,29 @@ simulate_with!(
     crate::numeric::static_lu::StaticPivotLu
 );
 
-/// Steps one solver to `seg_end`, recording outputs on the way; returns the
-/// state at `seg_end`.
+/// Where a stretch writes the requested outputs.
+struct Sink<'a> {
+    times: &'a [f64],
+    next_out: &'a mut usize,
+    out: &'a mut Trajectory,
+    row: &'a mut Vec<f64>,
+    volume: Option<f64>,
+}
+
+/// Steps one solver to `seg_end`, recording outputs on the way, and stops
+/// early where a trigger's condition becomes true (located by bisection on
+/// the solver's interpolant to a relative 1e-13 of the time).
 #[allow(clippy::too_many_arguments)]
 fn drive<'a, Eqn, S>(
     mut solver: S,
     system: &CompiledSystem,
     workspace: &RefCell<crate::numeric::Workspace>,
     settings: &Settings,
-    times: &[f64],
-    next_out: &mut usize,
     seg_end: f64,
     last_segment: bool,
-    out: &mut Trajectory,
-    row: &mut Vec<f64>,
-) -> Result<Vec<f64>, SimError>
+    sink: &mut Sink<'_>,
+    watch: &mut Watch<'_>,
+) -> Result<Stretch, SimError>
 where
     Eqn: diffsol::OdeEquationsImplicit<T = f64> + 'a,
     S: OdeSolverMethod<'a, Eqn>,
@@ -323,6 +500,8 @@ where
     solver
         .set_stop_time(seg_end)
         .map_err(|e| SimError::setup(format!("cannot stop at t = {seg_end}: {e}")))?;
+    let mut scratch = Vec::new();
+    let mut t_prev = solver.state().t;
     loop {
         let reason = match solver.step() {
             Ok(r) => r,
@@ -339,7 +518,7 @@ where
                 ));
             }
         };
-        out.steps += 1;
+        sink.out.steps += 1;
         let state = solver.state();
         let t_now = state.t;
         let size = state.y.norm(1);
@@ -354,23 +533,74 @@ where
                 "the solution blew up",
             ));
         }
-        while *next_out < times.len()
-            && times[*next_out] <= t_now
-            && (last_segment || times[*next_out] < seg_end)
+        let mut crossing: Option<(f64, Vec<usize>)> = None;
+        if !watch.triggers.is_empty() {
+            let y_now = state.y.clone_as_vec();
+            let g = watch.values(system, workspace, &y_now, t_now, &mut scratch);
+            let rising: Vec<usize> = (0..g.len()).filter(|&k| watch.armed[k] && g[k] > 0.0).collect();
+            if !rising.is_empty() {
+                // The earliest crossing among the rising conditions.
+                let mut best = (t_now, Vec::new());
+                for &k in &rising {
+                    let (mut lo, mut hi) = (t_prev, t_now);
+                    for _ in 0..200 {
+                        if hi - lo <= 1e-13 * hi.abs().max(f64::MIN_POSITIVE) {
+                            break;
+                        }
+                        let mid = 0.5 * (lo + hi);
+                        let y = solver
+                            .interpolate(mid)
+                            .map_err(|e| SimError::setup(format!("interpolation at t = {mid} failed: {e}")))?
+                            .clone_as_vec();
+                        if watch.values(system, workspace, &y, mid, &mut scratch)[k] > 0.0 {
+                            hi = mid;
+                        } else {
+                            lo = mid;
+                        }
+                    }
+                    if hi < best.0 {
+                        best = (hi, vec![k]);
+                    } else if hi == best.0 {
+                        best.1.push(k);
+                    }
+                }
+                for &k in &best.1 {
+                    watch.armed[k] = false;
+                }
+                crossing = Some(best);
+            }
+            for k in 0..g.len() {
+                if !(g[k] > 0.0) {
+                    watch.armed[k] = true;
+                }
+            }
+        }
+        let t_out_end = crossing.as_ref().map(|c| c.0).unwrap_or(t_now);
+        while *sink.next_out < sink.times.len()
+            && sink.times[*sink.next_out] <= t_out_end
+            && (last_segment || sink.times[*sink.next_out] < seg_end)
+            && (crossing.is_none() || sink.times[*sink.next_out] < t_out_end)
         {
-            let t = times[*next_out];
+            let t = sink.times[*sink.next_out];
             let y = solver
                 .interpolate(t)
                 .map_err(|e| SimError::setup(format!("interpolation at t = {t} failed: {e}")))?
                 .clone_as_vec();
-            system.outputs(&mut workspace.borrow_mut(), &y, t, row);
-            out.times.push(t);
-            out.rows.push(row.clone());
-            *next_out += 1;
+            system.outputs(&mut workspace.borrow_mut(), &y, t, sink.row);
+            sink.out.push(t, sink.row, sink.volume);
+            *sink.next_out += 1;
+        }
+        if let Some((time, fired)) = crossing {
+            let state = solver
+                .interpolate(time)
+                .map_err(|e| SimError::setup(format!("interpolation at t = {time} failed: {e}")))?
+                .clone_as_vec();
+            return Ok(Stretch::Triggered { time, state, fired });
         }
         if matches!(reason, OdeSolverStopReason::TstopReached) {
-            return Ok(solver.state().y.clone_as_vec());
+            return Ok(Stretch::Reached(solver.state().y.clone_as_vec()));
         }
+        t_prev = t_now;
     }
 }
 

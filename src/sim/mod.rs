@@ -37,6 +37,9 @@ pub struct Settings {
     pub atol: f64,
     /// Steps allowed per segment between events.
     pub max_steps: usize,
+    /// Whether each event's time gets a row just before and just after it
+    /// (a default output grid does; a grid the user fixed does not).
+    pub event_rows: bool,
 }
 
 impl Default for Settings {
@@ -46,6 +49,7 @@ impl Default for Settings {
             rtol: 1e-6,
             atol: 1e-10,
             max_steps: 500_000,
+            event_rows: false,
         }
     }
 }
@@ -248,6 +252,37 @@ pub fn column_names(model: &Model) -> Vec<String> {
         .collect()
 }
 
+/// Appends the mixture's volume (column `volume`, in the unit the file
+/// declared it in) and, with `amounts`, each species' amount (column
+/// `amount(NAME)`, in the concentration unit times that volume unit, e.g.
+/// uM × uL = pmol) to a trajectory of a model that declares a volume.
+pub fn add_volume_columns(
+    model: &Model,
+    columns: &mut Vec<String>,
+    trajectory: &mut Trajectory,
+    amounts: bool,
+) {
+    let Some((_, litres_per_unit)) = &model.volume_unit else {
+        return;
+    };
+    if trajectory.volumes.len() != trajectory.rows.len() {
+        return;
+    }
+    columns.push("volume".to_string());
+    if amounts {
+        columns.extend(model.species.iter().map(|s| format!("amount({})", s.name)));
+    }
+    for (row, litres) in trajectory.rows.iter_mut().zip(&trajectory.volumes) {
+        let volume = litres / litres_per_unit;
+        row.push(volume);
+        if amounts {
+            for i in 0..model.species.len() {
+                row.push(row[i] * volume);
+            }
+        }
+    }
+}
+
 /// The default end time: the last event plus five times the slowest time
 /// scale of the linearised system at the start (1/|Re λ| of the eigenvalue
 /// with the smallest non-zero real part, on the reduced system so that
@@ -255,7 +290,7 @@ pub fn column_names(model: &Model) -> Vec<String> {
 /// 5 × 10^k. Without any dynamics, or above 400 species, the slowest time
 /// scale is taken as 20 time units.
 pub fn default_until(model: &Model, system: &CompiledSystem) -> f64 {
-    let last_event = model.events.iter().map(|e| e.time).fold(0.0, f64::max);
+    let last_event = model.events.iter().filter_map(|e| e.time()).fold(0.0, f64::max);
     let tau = slowest_time_scale(model, system).unwrap_or(20.0);
     nice_ceiling(last_event + 5.0 * tau)
 }

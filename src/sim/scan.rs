@@ -35,8 +35,16 @@ pub fn parse_axis(text: &str, units: Units) -> Result<Axis, String> {
         .split_once("..")
         .ok_or_else(|| format!("`{range}` is not a range LO..HI"))?;
     let (lo_text, hi_text) = (lo.trim().to_string(), hi.trim().to_string());
-    let (lo, lo_dim) = crate::model::units::parse_quantity(lo, units)?;
-    let (hi, hi_dim) = crate::model::units::parse_quantity(hi, units)?;
+    // The assay temperature is read in C or K and varied in kelvin.
+    let ((lo, lo_dim), (hi, hi_dim)) = if name == crate::model::TEMPERATURE {
+        let kelvin = |t: &str| crate::model::lab_units::parse_temperature(t).map(|k| (k, None));
+        (kelvin(lo)?, kelvin(hi)?)
+    } else {
+        (
+            crate::model::units::parse_quantity(lo, units)?,
+            crate::model::units::parse_quantity(hi, units)?,
+        )
+    };
     let mut n = 21usize;
     let mut log = false;
     for p in parts {
@@ -116,6 +124,7 @@ pub fn check_axes(model: &Model, axes: &[Axis]) -> Result<(), String> {
                     model.check_value_dimension(&a.name, text, *dim)?;
                 }
             }
+            None if a.name == crate::model::TEMPERATURE => {}
             Some(Sym::Observable(_)) => {
                 return Err(format!(
                     "`{}` is an observable; vary a param, species, fixed species or total",

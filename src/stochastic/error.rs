@@ -38,6 +38,9 @@ pub enum StochasticError {
         state: Vec<(String, i64)>,
         span: Span,
     },
+    /// An addition of a stock, a withdrawal of volume or a triggered
+    /// event: molecule-count runs apply timed species changes only.
+    AssayEvent { span: Span },
 }
 
 impl StochasticError {
@@ -45,7 +48,8 @@ impl StochasticError {
         match self {
             StochasticError::FractionalCoefficient { .. }
             | StochasticError::TimeDependent { .. }
-            | StochasticError::BadConstant { .. } => Code::NotCountable,
+            | StochasticError::BadConstant { .. }
+            | StochasticError::AssayEvent { .. } => Code::NotCountable,
             StochasticError::CountOutOfRange { .. } => Code::CountOutOfRange,
             StochasticError::NegativeLaw { .. } => Code::NegativePropensity,
         }
@@ -71,6 +75,9 @@ impl StochasticError {
             StochasticError::BadConstant { span, .. } => {
                 d.with_label(*span, "this constant")
             }
+            StochasticError::AssayEvent { span } => d
+                .with_label(*span, "not a timed species change")
+                .with_help("run it with `ratewright run`, or write the protocol as `add`/`remove`/`set ... at TIME` of species"),
             StochasticError::NegativeLaw { span, .. } => d
                 .with_label(*span, "negative here")
                 .with_help("a propensity is a probability per time and cannot be negative: split the law into a forward and a reverse step"),
@@ -97,6 +104,10 @@ impl fmt::Display for StochasticError {
             StochasticError::CountOutOfRange { what, count, .. } => write!(
                 f,
                 "{what} is {count:e} molecules, outside the counts a run can hold (0 to 2^53)"
+            ),
+            StochasticError::AssayEvent { .. } => write!(
+                f,
+                "stochastic runs apply timed changes of species only; this event changes the volume or waits for a condition"
             ),
             StochasticError::BadConstant { step, value, .. } => write!(
                 f,

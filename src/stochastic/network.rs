@@ -236,23 +236,30 @@ pub fn prepare(
         }
     }
     let mut order: Vec<usize> = (0..model.events.len()).collect();
-    order.sort_by(|&a, &b| model.events[a].time.total_cmp(&model.events[b].time));
+    order.sort_by(|&a, &b| {
+        let time = |k: usize| model.events[k].time().unwrap_or(f64::INFINITY);
+        time(a).total_cmp(&time(b))
+    });
     let mut events = Vec::new();
     for k in order {
         let e = &model.events[k];
-        match count_of(e.amount, omega) {
+        let Some((time, kind, species, amount)) = e.timed_species_change() else {
+            errors.push(StochasticError::AssayEvent { span: e.span });
+            continue;
+        };
+        match count_of(amount, omega) {
             Some(count) => events.push(CountEvent {
-                time: e.time,
-                species: e.species,
-                kind: e.kind,
+                time,
+                species,
+                kind,
                 count,
             }),
             None => errors.push(StochasticError::CountOutOfRange {
                 what: format!(
                     "the amount of this event on `{}`",
-                    model.species[e.species].name
+                    model.species[species].name
                 ),
-                count: e.amount * omega,
+                count: amount * omega,
                 span: Some(e.span),
             }),
         }

@@ -68,13 +68,119 @@ impl AstExpr {
 pub struct SpeciesDecl {
     pub name: Ident,
     pub value: Option<Quantity>,
+    /// `mass 28.5 kDa`, `activity 40 U/mg`, after the value.
+    pub conversions: Vec<Conversion>,
     pub description: Option<String>,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ConversionKind {
+    /// A molar mass, to turn a mass concentration into a molar one.
+    Mass,
+    /// A specific activity (U/mg) or a turnover per active site (1/time),
+    /// to turn an activity concentration (U/mL) into one of active sites.
+    Activity,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Conversion {
+    pub kind: ConversionKind,
+    pub value: Quantity,
 }
 
 #[derive(Debug, Clone, PartialEq)]
 pub enum ParamValue {
     Quantity(Quantity),
     Expr(AstExpr),
+    /// `12 /s at 25 C energy 55 kJ/mol`: a value at a reference temperature.
+    AtTemperature {
+        value: Quantity,
+        reference: Quantity,
+        law: TemperatureLawAst,
+    },
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum TemperatureLawAst {
+    /// `energy Ea` (Arrhenius).
+    Energy(Quantity),
+    /// `enthalpy H [entropy S]` (Eyring).
+    Enthalpy(Quantity, Option<Quantity>),
+}
+
+/// A side of a trigger's comparison: a number with a unit, or an expression.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ConditionSide {
+    Quantity(Quantity),
+    Expr(AstExpr),
+}
+
+impl ConditionSide {
+    pub fn span(&self) -> Span {
+        match self {
+            ConditionSide::Quantity(q) => q.span,
+            ConditionSide::Expr(e) => e.span(),
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Comparison {
+    Greater,
+    GreaterEqual,
+    Less,
+    LessEqual,
+}
+
+impl Comparison {
+    pub fn symbol(self) -> &'static str {
+        match self {
+            Comparison::Greater => ">",
+            Comparison::GreaterEqual => ">=",
+            Comparison::Less => "<",
+            Comparison::LessEqual => "<=",
+        }
+    }
+}
+
+/// What an event line does.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ActionAst {
+    /// `add 1 uM S`, `remove 1 uM S`: one species' concentration.
+    Change {
+        kind: EventKindAst,
+        amount: Quantity,
+        target: Ident,
+    },
+    /// `add 10 uL of 1 mM S, 5 mM I`.
+    Stock {
+        volume: Quantity,
+        contents: Vec<(Quantity, Ident)>,
+    },
+    /// `remove 50 uL`.
+    Withdraw { volume: Quantity },
+    /// `set S = 2 uM`.
+    Set { target: Ident, value: Quantity },
+}
+
+/// When an event line acts.
+#[derive(Debug, Clone, PartialEq)]
+pub enum TimingAst {
+    /// `... at TIME`
+    At(Quantity),
+    /// `every PERIOD [from START] to END: ...`
+    Every {
+        period: Quantity,
+        from: Option<Quantity>,
+        to: Quantity,
+    },
+    /// `when LHS > RHS: ...`
+    When {
+        lhs: ConditionSide,
+        comparison: Comparison,
+        rhs: ConditionSide,
+        span: Span,
+    },
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -150,17 +256,15 @@ pub enum StatementKind {
     },
     AssumeSteady(Vec<Ident>),
     AssumeEquilibrium(Vec<Ident>),
+    /// `add`, `remove` and `set` lines, and `when` and `every` lines.
     Event {
-        kind: EventKindAst,
-        amount: Quantity,
-        target: Ident,
-        time: Quantity,
+        action: ActionAst,
+        timing: TimingAst,
     },
-    Set {
-        target: Ident,
-        value: Quantity,
-        time: Quantity,
-    },
+    /// `volume 200 uL`
+    Volume(Quantity),
+    /// `temperature 37 C`
+    Temperature(Quantity),
     Use {
         path: String,
         span: Span,
@@ -181,15 +285,35 @@ impl StatementKind {
             StatementKind::Observe { .. } => "observe",
             StatementKind::AssumeSteady(_) | StatementKind::AssumeEquilibrium(_) => "assume",
             StatementKind::Event {
+                timing: TimingAst::When { .. },
+                ..
+            } => "when",
+            StatementKind::Event {
+                timing: TimingAst::Every { .. },
+                ..
+            } => "every",
+            StatementKind::Event { action, .. } => action.keyword(),
+            StatementKind::Volume(_) => "volume",
+            StatementKind::Temperature(_) => "temperature",
+            StatementKind::Use { .. } => "use",
+        }
+    }
+}
+
+impl ActionAst {
+    pub fn keyword(&self) -> &'static str {
+        match self {
+            ActionAst::Change {
                 kind: EventKindAst::Add,
                 ..
-            } => "add",
-            StatementKind::Event {
+            }
+            | ActionAst::Stock { .. } => "add",
+            ActionAst::Change {
                 kind: EventKindAst::Remove,
                 ..
-            } => "remove",
-            StatementKind::Set { .. } => "set",
-            StatementKind::Use { .. } => "use",
+            }
+            | ActionAst::Withdraw { .. } => "remove",
+            ActionAst::Set { .. } => "set",
         }
     }
 }

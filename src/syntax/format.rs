@@ -182,10 +182,22 @@ fn decl_columns(kw: String, d: &SpeciesDecl) -> Vec<String> {
         d.name.name.clone(),
         d.value
             .as_ref()
-            .map(|q| format!("= {}", quantity(q)))
+            .map(|q| format!("= {}{}", quantity(q), conversions(&d.conversions)))
             .unwrap_or_default(),
         quoted(&d.description),
     ]
+}
+
+fn conversions(list: &[Conversion]) -> String {
+    list.iter()
+        .map(|c| {
+            let word = match c.kind {
+                ConversionKind::Mass => "mass",
+                ConversionKind::Activity => "activity",
+            };
+            format!(" {word} {}", quantity(&c.value))
+        })
+        .collect()
 }
 
 fn species_decl(d: &SpeciesDecl) -> String {
@@ -193,6 +205,7 @@ fn species_decl(d: &SpeciesDecl) -> String {
     if let Some(q) = &d.value {
         s.push_str(" = ");
         s.push_str(&quantity(q));
+        s.push_str(&conversions(&d.conversions));
     }
     if d.description.is_some() {
         s.push(' ');
@@ -236,6 +249,20 @@ fn cells(kind: &StatementKind) -> Vec<String> {
             let v = match value {
                 ParamValue::Quantity(q) => quantity(q),
                 ParamValue::Expr(e) => expr(e),
+                ParamValue::AtTemperature {
+                    value,
+                    reference,
+                    law,
+                } => {
+                    let law = match law {
+                        TemperatureLawAst::Energy(e) => format!("energy {}", quantity(e)),
+                        TemperatureLawAst::Enthalpy(h, None) => format!("enthalpy {}", quantity(h)),
+                        TemperatureLawAst::Enthalpy(h, Some(s)) => {
+                            format!("enthalpy {} entropy {}", quantity(h), quantity(s))
+                        }
+                    };
+                    format!("{} at {} {law}", quantity(value), quantity(reference))
+                }
             };
             vec![kw, name.name.clone(), format!("= {v}"), quoted(description)]
         }
@@ -291,26 +318,66 @@ fn cells(kind: &StatementKind) -> Vec<String> {
         }
         StatementKind::AssumeSteady(list) => vec![kw, format!("steady {}", names(list))],
         StatementKind::AssumeEquilibrium(list) => vec![kw, format!("equilibrium {}", names(list))],
-        StatementKind::Event {
-            amount,
-            target,
-            time,
-            ..
-        } => vec![
-            kw,
-            format!("{} {}", quantity(amount), target.name),
-            format!("at {}", quantity(time)),
-        ],
-        StatementKind::Set {
-            target,
-            value,
-            time,
-        } => vec![
-            kw,
-            format!("{} = {}", target.name, quantity(value)),
-            format!("at {}", quantity(time)),
-        ],
+        StatementKind::Event { action: a, timing } => match timing {
+            TimingAst::At(time) => vec![kw, action_body(a), format!("at {}", quantity(time))],
+            TimingAst::Every { period, from, to } => {
+                let from = from
+                    .as_ref()
+                    .map(|f| format!(" from {}", quantity(f)))
+                    .unwrap_or_default();
+                vec![
+                    kw,
+                    format!("{}{from} to {}:", quantity(period), quantity(to)),
+                    action(a),
+                ]
+            }
+            TimingAst::When {
+                lhs,
+                comparison,
+                rhs,
+                ..
+            } => vec![
+                kw,
+                format!(
+                    "{} {} {}:",
+                    condition_side(lhs),
+                    comparison.symbol(),
+                    condition_side(rhs)
+                ),
+                action(a),
+            ],
+        },
+        StatementKind::Volume(q) | StatementKind::Temperature(q) => vec![kw, quantity(q)],
         StatementKind::Use { path, .. } => vec![kw, format!("\"{path}\"")],
+    }
+}
+
+/// An event's action after its keyword (`1 uM S`, `10 uL of 1 mM S`).
+fn action_body(a: &ActionAst) -> String {
+    match a {
+        ActionAst::Change { amount, target, .. } => format!("{} {}", quantity(amount), target.name),
+        ActionAst::Stock { volume, contents } => format!(
+            "{} of {}",
+            quantity(volume),
+            contents
+                .iter()
+                .map(|(q, n)| format!("{} {}", quantity(q), n.name))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+        ActionAst::Withdraw { volume } => quantity(volume),
+        ActionAst::Set { target, value } => format!("{} = {}", target.name, quantity(value)),
+    }
+}
+
+fn action(a: &ActionAst) -> String {
+    format!("{} {}", a.keyword(), action_body(a))
+}
+
+fn condition_side(side: &ConditionSide) -> String {
+    match side {
+        ConditionSide::Quantity(q) => quantity(q),
+        ConditionSide::Expr(e) => expr(e),
     }
 }
 

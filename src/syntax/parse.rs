@@ -177,6 +177,25 @@ fn rule_word(rule: &Rule) -> String {
         kw_law => "`law`",
         kw_concentration => "`concentration`",
         kw_time => "`time`",
+        kw_volume => "`volume`",
+        kw_temperature => "`temperature`",
+        kw_mass => "`mass`",
+        kw_activity => "`activity`",
+        kw_energy => "`energy`",
+        kw_enthalpy => "`enthalpy`",
+        kw_entropy => "`entropy`",
+        kw_of => "`of`",
+        kw_when => "`when`",
+        kw_every => "`every`",
+        kw_from => "`from`",
+        kw_to => "`to`",
+        colon => "`:`",
+        comparison => "a comparison (`>`, `<`, `>=`, `<=`)",
+        conversion => "`mass` or `activity`",
+        temperature_law => "`at` and a reference temperature",
+        arrhenius | eyring => "`energy` or `enthalpy`",
+        volume_quantity | volume_unit => "a volume (e.g. `10 uL`)",
+        event_action => "`add`, `remove` or `set`",
         equals => "`=`",
         comma => "`,`",
         plus | add => "`+`",
@@ -279,7 +298,7 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
     };
     let first_word = text[line_start..].split_whitespace().next().unwrap_or("");
     let help = if start == line_start || text[line_start..start].trim().is_empty() {
-        const KEYWORDS: [&str; 13] = [
+        const KEYWORDS: [&str; 17] = [
             "mechanism",
             "units",
             "species",
@@ -293,6 +312,10 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
             "remove",
             "set",
             "use",
+            "volume",
+            "temperature",
+            "when",
+            "every",
         ];
         match crate::diagnostics::did_you_mean(first_word, KEYWORDS) {
             Some(k) => format!("did you mean `{k}`? Every line starts with a statement keyword"),
@@ -360,7 +383,9 @@ impl Builder {
                     q.number = p.as_str().to_string();
                     q.number_span = self.span(&p);
                 }
-                Rule::unit => q.unit = Some((p.as_str().to_string(), self.span(&p))),
+                Rule::unit | Rule::volume_unit => {
+                    q.unit = Some((p.as_str().to_string(), self.span(&p)))
+                }
                 _ => {}
             }
         }
@@ -408,18 +433,32 @@ impl Builder {
                 it.next();
                 let name = self.ident(it.next()?);
                 let value = Some(self.quantity(it.next()?));
+                let mut conversions = Vec::new();
+                let mut description = None;
+                for p in it {
+                    match p.as_rule() {
+                        Rule::conversion => conversions.push(self.conversion(p)?),
+                        Rule::string => description = Some(string_text(p)),
+                        _ => {}
+                    }
+                }
                 StatementKind::Fixed(SpeciesDecl {
                     name,
                     value,
-                    description: it.next().map(string_text),
+                    conversions,
+                    description,
                 })
             }
             Rule::param_stmt => {
                 it.next();
                 let name = self.ident(it.next()?);
-                let value_pair = it.next()?.into_inner().next()?;
-                let value = match value_pair.as_rule() {
-                    Rule::quantity => ParamValue::Quantity(self.quantity(value_pair)),
+                let mut value_parts = it.next()?.into_inner();
+                let value_pair = value_parts.next()?;
+                let value = match (value_pair.as_rule(), value_parts.next()) {
+                    (Rule::quantity | Rule::bare_number, Some(law)) => {
+                        self.temperature_law(self.quantity(value_pair), law)?
+                    }
+                    (Rule::quantity, None) => ParamValue::Quantity(self.quantity(value_pair)),
                     _ => ParamValue::Expr(self.expr(value_pair)),
                 };
                 StatementKind::Param {
@@ -526,21 +565,12 @@ impl Builder {
                 }
             }
             Rule::add_stmt | Rule::remove_stmt => {
-                let kind = if rule == Rule::add_stmt {
-                    EventKindAst::Add
-                } else {
-                    EventKindAst::Remove
-                };
                 it.next();
-                let mut amount_it = it.next()?.into_inner();
-                let amount = self.quantity(amount_it.next()?);
-                let target = self.ident(amount_it.next()?);
+                let action = self.action(it.next()?, rule == Rule::add_stmt)?;
                 let time = self.quantity(it.find(|p| p.as_rule() == Rule::quantity)?);
                 StatementKind::Event {
-                    kind,
-                    amount,
-                    target,
-                    time,
+                    action,
+                    timing: TimingAst::At(time),
                 }
             }
             Rule::set_stmt => {
@@ -548,11 +578,69 @@ impl Builder {
                 let target = self.ident(it.next()?);
                 let value = self.quantity(it.next()?);
                 let time = self.quantity(it.find(|p| p.as_rule() == Rule::quantity)?);
-                StatementKind::Set {
-                    target,
-                    value,
-                    time,
+                StatementKind::Event {
+                    action: ActionAst::Set { target, value },
+                    timing: TimingAst::At(time),
                 }
+            }
+            Rule::when_stmt => {
+                it.next();
+                let condition = it.next()?;
+                let condition_span = self.span(&condition);
+                let mut parts = condition.into_inner();
+                let lhs = self.condition_side(parts.next()?)?;
+                let comparison = match parts.next()?.as_str() {
+                    ">=" => Comparison::GreaterEqual,
+                    "<=" => Comparison::LessEqual,
+                    "<" => Comparison::Less,
+                    _ => Comparison::Greater,
+                };
+                let rhs = self.condition_side(parts.next()?)?;
+                let action = self.event_action(it.find(|p| p.as_rule() == Rule::event_action)?)?;
+                StatementKind::Event {
+                    action,
+                    timing: TimingAst::When {
+                        lhs,
+                        comparison,
+                        rhs,
+                        span: condition_span,
+                    },
+                }
+            }
+            Rule::every_stmt => {
+                it.next();
+                let period = self.quantity(it.next()?);
+                let mut from = None;
+                let mut to = None;
+                let mut action = None;
+                let mut after = Rule::kw_every;
+                for p in it {
+                    match p.as_rule() {
+                        Rule::kw_from | Rule::kw_to => after = p.as_rule(),
+                        Rule::quantity | Rule::bare_number if after == Rule::kw_from => {
+                            from = Some(self.quantity(p))
+                        }
+                        Rule::quantity | Rule::bare_number => to = Some(self.quantity(p)),
+                        Rule::event_action => action = Some(self.event_action(p)?),
+                        _ => {}
+                    }
+                }
+                StatementKind::Event {
+                    action: action?,
+                    timing: TimingAst::Every {
+                        period,
+                        from,
+                        to: to?,
+                    },
+                }
+            }
+            Rule::volume_stmt => {
+                it.next();
+                StatementKind::Volume(self.quantity(it.next()?))
+            }
+            Rule::temperature_stmt => {
+                it.next();
+                StatementKind::Temperature(self.quantity(it.next()?))
             }
             Rule::use_stmt => {
                 it.next();
@@ -630,6 +718,33 @@ impl Builder {
             | Rule::assume_steady
             | Rule::assume_equilibrium
             | Rule::event_amount
+            | Rule::kw_volume
+            | Rule::kw_temperature
+            | Rule::kw_mass
+            | Rule::kw_activity
+            | Rule::kw_energy
+            | Rule::kw_enthalpy
+            | Rule::kw_entropy
+            | Rule::kw_of
+            | Rule::kw_when
+            | Rule::kw_every
+            | Rule::kw_from
+            | Rule::kw_to
+            | Rule::colon
+            | Rule::comparison
+            | Rule::conversion
+            | Rule::temperature_law
+            | Rule::arrhenius
+            | Rule::eyring
+            | Rule::add_action
+            | Rule::remove_action
+            | Rule::stock_addition
+            | Rule::stock_item
+            | Rule::volume_quantity
+            | Rule::volume_unit
+            | Rule::condition
+            | Rule::condition_side
+            | Rule::event_action
             | Rule::expr
             | Rule::infix
             | Rule::add
@@ -653,17 +768,119 @@ impl Builder {
                 span: self.span(&pair),
             },
             value: None,
+            conversions: Vec::new(),
             description: None,
         };
         for p in pair.into_inner() {
             match p.as_rule() {
                 Rule::ident => decl.name = self.ident(p),
                 Rule::quantity => decl.value = Some(self.quantity(p)),
+                Rule::conversion => {
+                    if let Some(c) = self.conversion(p) {
+                        decl.conversions.push(c)
+                    }
+                }
                 Rule::string => decl.description = Some(string_text(p)),
                 _ => {}
             }
         }
         decl
+    }
+
+    fn conversion(&self, pair: Pair<Rule>) -> Option<Conversion> {
+        let mut inner = pair.into_inner();
+        let kind = match inner.next()?.as_rule() {
+            Rule::kw_mass => ConversionKind::Mass,
+            _ => ConversionKind::Activity,
+        };
+        Some(Conversion {
+            kind,
+            value: self.quantity(inner.next()?),
+        })
+    }
+
+    fn temperature_law(&self, value: Quantity, law: Pair<Rule>) -> Option<ParamValue> {
+        let mut inner = law.into_inner();
+        inner.next();
+        let reference = self.quantity(inner.next()?);
+        let form = inner.next()?;
+        let is_arrhenius = form.as_rule() == Rule::arrhenius;
+        let mut quantities = form
+            .into_inner()
+            .filter(|p| p.as_rule() == Rule::quantity)
+            .map(|p| self.quantity(p));
+        let first = quantities.next()?;
+        let law = if is_arrhenius {
+            TemperatureLawAst::Energy(first)
+        } else {
+            TemperatureLawAst::Enthalpy(first, quantities.next())
+        };
+        Some(ParamValue::AtTemperature {
+            value,
+            reference,
+            law,
+        })
+    }
+
+    fn condition_side(&self, pair: Pair<Rule>) -> Option<ConditionSide> {
+        let inner = pair.into_inner().next()?;
+        Some(match inner.as_rule() {
+            Rule::quantity => ConditionSide::Quantity(self.quantity(inner)),
+            _ => ConditionSide::Expr(self.expr(inner)),
+        })
+    }
+
+    /// An `add_action` (`adding`) or `remove_action` pair.
+    fn action(&self, pair: Pair<Rule>, adding: bool) -> Option<ActionAst> {
+        let inner = pair.into_inner().next()?;
+        let kind = if adding {
+            EventKindAst::Add
+        } else {
+            EventKindAst::Remove
+        };
+        Some(match inner.as_rule() {
+            Rule::stock_addition => {
+                let mut parts = inner.into_inner();
+                let volume = self.quantity(parts.next()?);
+                let contents = parts
+                    .filter(|p| p.as_rule() == Rule::stock_item)
+                    .filter_map(|item| {
+                        let mut q = item.into_inner();
+                        let amount = self.quantity(q.next()?);
+                        Some((amount, self.ident(q.next()?)))
+                    })
+                    .collect();
+                ActionAst::Stock { volume, contents }
+            }
+            Rule::volume_quantity => ActionAst::Withdraw {
+                volume: self.quantity(inner),
+            },
+            _ => {
+                let mut parts = inner.into_inner();
+                let amount = self.quantity(parts.next()?);
+                let target = self.ident(parts.next()?);
+                ActionAst::Change {
+                    kind,
+                    amount,
+                    target,
+                }
+            }
+        })
+    }
+
+    fn event_action(&self, pair: Pair<Rule>) -> Option<ActionAst> {
+        let mut parts = pair
+            .into_inner()
+            .filter(|p| p.as_rule() != Rule::equals);
+        let keyword = parts.next()?.as_rule();
+        match keyword {
+            Rule::kw_add | Rule::kw_remove => self.action(parts.next()?, keyword == Rule::kw_add),
+            _ => {
+                let target = self.ident(parts.next()?);
+                let value = self.quantity(parts.next()?);
+                Some(ActionAst::Set { target, value })
+            }
+        }
     }
 
     fn side(&self, pair: Pair<Rule>) -> Side {

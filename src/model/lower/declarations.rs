@@ -94,7 +94,7 @@ impl Lowerer<'_> {
                         }
                         let (initial, given) = match &d.value {
                             Some(q) => {
-                                let value = self.concentration(q, item.units, "an initial value");
+                                let value = self.initial_concentration(q, &d.conversions, item.units, "an initial value");
                                 if value.is_none() {
                                     self.initial_refused.insert(idx);
                                 }
@@ -131,7 +131,9 @@ impl Lowerer<'_> {
                     let value = d
                         .value
                         .as_ref()
-                        .and_then(|q| self.concentration(q, item.units, "a fixed concentration"))
+                        .and_then(|q| {
+                            self.initial_concentration(q, &d.conversions, item.units, "a fixed concentration")
+                        })
                         .unwrap_or(0.0);
                     if value < 0.0 {
                         self.negative_value(
@@ -208,7 +210,8 @@ impl Lowerer<'_> {
                 | StatementKind::AssumeSteady(_)
                 | StatementKind::AssumeEquilibrium(_)
                 | StatementKind::Event { .. }
-                | StatementKind::Set { .. }
+                | StatementKind::Volume(_)
+                | StatementKind::Temperature(_)
                 | StatementKind::Use { .. } => {}
             }
         }

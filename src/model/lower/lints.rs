@@ -107,7 +107,12 @@ impl Lowerer<'_> {
             }
         }
         for e in &self.model.events {
-            produced[e.species] = true;
+            for i in e.species_raised() {
+                produced[i] = true;
+            }
+            if let Action::Species { species, .. } = e.action {
+                produced[species] = true;
+            }
         }
         for (k, s) in self.model.species.iter().enumerate() {
             if !touched[k] {

@@ -10,6 +10,7 @@
 //! model being built and the diagnostics found so far. The invariants of
 //! the result are those of [`super::ir`].
 
+mod assay;
 mod assumptions;
 mod declarations;
 mod diagnostics;
@@ -29,7 +30,7 @@ use super::load::Loaded;
 use super::source::Sources;
 use super::units::Units;
 use crate::diagnostics::{Diagnostic, FileId, SourceMap, Span};
-use crate::syntax::{EventKindAst, ParamValue, StatementKind};
+use crate::syntax::{ParamValue, StatementKind};
 use declarations::Decl;
 use declarations::RESERVED;
 use diagnostics::*;
@@ -144,6 +145,7 @@ impl<'s> Lowerer<'s> {
 
 impl Lowerer<'_> {
     fn lower(&mut self, items: &[Item], main: FileId) {
+        self.lower_conditions(items);
         self.declare_all(items, main);
         self.resolve_params();
         // Steps and observables first: totals, events and assumptions
@@ -184,7 +186,8 @@ impl Lowerer<'_> {
                 | StatementKind::AssumeSteady(_)
                 | StatementKind::AssumeEquilibrium(_)
                 | StatementKind::Event { .. }
-                | StatementKind::Set { .. }
+                | StatementKind::Volume(_)
+                | StatementKind::Temperature(_)
                 | StatementKind::Use { .. } => {}
             }
         }
@@ -194,23 +197,7 @@ impl Lowerer<'_> {
                 StatementKind::Total { name, terms, value } => {
                     self.lower_total(item, name, terms, value)
                 }
-                StatementKind::Event {
-                    kind,
-                    amount,
-                    target,
-                    time,
-                } => {
-                    let kind = match kind {
-                        EventKindAst::Add => EventKind::Add,
-                        EventKindAst::Remove => EventKind::Remove,
-                    };
-                    self.lower_event(item, kind, target, amount, time)
-                }
-                StatementKind::Set {
-                    target,
-                    value,
-                    time,
-                } => self.lower_event(item, EventKind::Set, target, value, time),
+                StatementKind::Event { action, timing } => self.lower_event(item, action, timing),
                 StatementKind::AssumeSteady(names) => self.lower_steady(names),
                 StatementKind::AssumeEquilibrium(names) => self.lower_equilibrium(names),
                 StatementKind::Mechanism { .. }
@@ -220,9 +207,12 @@ impl Lowerer<'_> {
                 | StatementKind::Param { .. }
                 | StatementKind::Step { .. }
                 | StatementKind::Observe { .. }
+                | StatementKind::Volume(_)
+                | StatementKind::Temperature(_)
                 | StatementKind::Use { .. } => {}
             }
         }
+        self.check_timed_volumes();
         // With errors, the lints would mostly describe their consequences
         // (an unknown name leaves a step empty, a param unused): they wait
         // until the errors are fixed.

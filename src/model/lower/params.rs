@@ -26,6 +26,11 @@ impl Lowerer<'_> {
                         self.model.params[i].dim = dim;
                     }
                 }
+                ParamValue::AtTemperature {
+                    value,
+                    reference,
+                    law,
+                } => self.temperature_param(i, value, reference, law, *units),
                 ParamValue::Expr(e) => {
                     if let Some(word) = self.word_in_place_of_a_number(e) {
                         self.report_word_for_a_number(word);

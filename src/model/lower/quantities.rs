@@ -59,7 +59,7 @@ pub(super) fn file_units(tree: Option<&syntax::File>, diags: &mut Vec<Diagnostic
                             text,
                             *span,
                             "a time unit",
-                            &["s", "ms", "min", "h"],
+                            &["s", "ms", "min", "h", "d"],
                         )),
                     },
                 }
@@ -139,13 +139,13 @@ impl Lowerer<'_> {
                         .split(['/', '*', '^', '·'])
                         .next()
                         .unwrap_or(text);
-                    let all = ["M", "mM", "uM", "nM", "pM", "s", "ms", "min", "h"];
+                    let all = ["M", "mM", "uM", "nM", "pM", "s", "ms", "min", "h", "d"];
                     let hint = did_you_mean(word, all)
                         .map(|c| format!("did you mean `{c}`? "))
                         .unwrap_or_default();
                     let _ = file_units;
                     self.error(Diagnostic::error(Code::UnknownUnit, msg.to_string()).with_label(*span, "not a unit").with_help(format!(
-                        "{hint}units are products of concentration (M, mM, uM, nM, pM) and time (s, ms, min, h) powers, e.g. `/uM/s`"
+                        "{hint}units are products of concentration (M, mM, uM, nM, pM) and time (s, ms, min, h, d) powers, e.g. `/uM/s`"
                     )));
                     None
                 }
