@@ -148,8 +148,6 @@ pub fn parse_assignment(text: &str, model: &model::Model) -> Result<(String, f64
     Ok((name.to_string(), v))
 }
 
-}
-
 /// Parses a time such as `20 min` or `600` in the model's time unit.
 pub fn parse_time(text: &str, units: Units) -> Result<f64, String> {
     let (v, dim) = model::units::parse_quantity(text, units)?;

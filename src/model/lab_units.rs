@@ -226,6 +226,7 @@ pub fn parse_temperature(text: &str) -> Result<f64, String> {
             "`{text}`: give the temperature with its unit, `C` or `K` (e.g. `37 C`)"
         )),
     }
+}
 
 /// Physical constants, CODATA 2018 (exact in the 2019 SI).
 pub mod constants {
