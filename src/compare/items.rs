@@ -550,15 +550,16 @@ pub fn event_text(model: &Model, e: &Event) -> String {
             }
         }
         Action::Stock { volume, contents } => format!(
-            "add {} uL of {}",
-            number(volume * 1e6),
+            "add {} {} of {}",
+            number(*volume),
+            model.volume_symbol(),
             contents
                 .iter()
                 .map(|(sym, c)| format!("{} {}", quantity_text(model, *c, conc), model.name_of(*sym)))
                 .collect::<Vec<_>>()
                 .join(", ")
         ),
-        Action::Withdraw { volume } => format!("remove {} uL", number(volume * 1e6)),
+        Action::Withdraw { volume } => format!("remove {} {}", number(*volume), model.volume_symbol()),
     };
     match &e.timing {
         Timing::At(t) => format!("{action} at {}", quantity_text(model, *t, Some(Dim::TIME))),
@@ -641,7 +642,7 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
     ];
     let amount_shown = |m: &Model, v: &EventView| match v.amount_dim {
         Some(d) => quantity(m, v.amount, Some(d)),
-        None => Shown::Text(format!("{} uL", number(v.amount * 1e6))),
+        None => Shown::Text(format!("{} {}", number(v.amount), m.volume_symbol())),
     };
     let mut pairs: Vec<(usize, usize)> = Vec::new();
     for (pass, fits) in passes.iter().enumerate() {

@@ -148,10 +148,10 @@ fn document(sys: &System) -> Result<Value, Diagnostic> {
                 }),
                 Action::Stock { volume, contents } => json!({
                     "kind": "add_stock",
-                    "volume_litres": volume,
+                    "volume": volume,
                     "stock": contents.iter().map(|(s, c)| (m.name_of(*s).to_string(), json!(c))).collect::<serde_json::Map<_, _>>(),
                 }),
-                Action::Withdraw { volume } => json!({ "kind": "withdraw", "volume_litres": volume }),
+                Action::Withdraw { volume } => json!({ "kind": "withdraw", "volume": volume }),
             };
             match &e.timing {
                 Timing::At(t) => entry["time"] = json!(t),
@@ -162,7 +162,8 @@ fn document(sys: &System) -> Result<Value, Diagnostic> {
             }
             entry
         }).collect::<Vec<_>>(),
-        "volume_litres": m.volume,
+        "volume": m.volume,
+        "volume_unit": m.volume_unit.as_ref().map(|u| u.0.clone()),
         "temperature_kelvin": m.temperature,
         "assumptions": {
             "steady": m.assumptions.steady.iter().map(|(i, _)| species_name(*i)).collect::<Vec<_>>(),

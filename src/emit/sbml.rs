@@ -180,7 +180,7 @@ fn document(sys: &System, options: &EmitOptions) -> String {
     let _ = writeln!(
         o,
         "    <listOfCompartments>\n      <compartment id=\"{COMPARTMENT}\" spatialDimensions=\"3\" size=\"{}\" units=\"litre\" constant=\"{}\"/>\n    </listOfCompartments>",
-        plain_literal(m.volume.unwrap_or(1.0)),
+        plain_literal(m.volume_litres().unwrap_or(1.0)),
         !volume_changes
     );
 
@@ -454,7 +454,8 @@ fn event_assignments(
             (format!("{word} {}", m.species[*species].name), vec![(sp, value)])
         }
         Action::Stock { volume, contents } => {
-            let added = plain_literal(*volume);
+            let litres = volume * m.volume_unit.as_ref().map(|u| u.1).unwrap_or(1.0);
+            let added = plain_literal(litres);
             let new_size = format!("<apply><plus/>{}<cn> {added} </cn></apply>", ci(COMPARTMENT));
             let mut out = vec![(COMPARTMENT.to_string(), new_size.clone())];
             let diluted = |sym: Sym| {
@@ -474,13 +475,16 @@ fn event_assignments(
             let names: Vec<&str> = contents.iter().map(|(s, _)| m.name_of(*s)).collect();
             (format!("add {} L of stock ({})", added, names.join(", ")), out)
         }
-        Action::Withdraw { volume } => (
-            format!("remove {} L", plain_literal(*volume)),
-            vec![(
-                COMPARTMENT.to_string(),
-                format!("<apply><minus/>{}<cn> {} </cn></apply>", ci(COMPARTMENT), plain_literal(*volume)),
-            )],
-        ),
+        Action::Withdraw { volume } => {
+            let litres = plain_literal(volume * m.volume_unit.as_ref().map(|u| u.1).unwrap_or(1.0));
+            (
+                format!("remove {litres} L"),
+                vec![(
+                    COMPARTMENT.to_string(),
+                    format!("<apply><minus/>{}<cn> {litres} </cn></apply>", ci(COMPARTMENT)),
+                )],
+            )
+        }
     }
 }
 

@@ -166,7 +166,7 @@ pub enum Action {
     /// `add V of STOCK`: every species and fixed species is diluted by
     /// V_old/(V_old+V), then each stock component adds c·V/(V_old+V).
     Stock {
-        /// Litres added.
+        /// Volume added, in the model's volume unit.
         volume: f64,
         /// Stock components: `Sym::Species` or `Sym::Fixed`, with their
         /// concentration in the stock (default units).
@@ -174,7 +174,7 @@ pub enum Action {
     },
     /// `remove V`: the volume falls, concentrations stay.
     Withdraw {
-        /// Litres withdrawn.
+        /// Volume withdrawn, in the model's volume unit.
         volume: f64,
     },
 }
@@ -256,10 +256,11 @@ pub struct Model {
     pub observables: Vec<Observable>,
     pub events: Vec<Event>,
     pub assumptions: Assumptions,
-    /// The reaction mixture's starting volume in litres, if declared.
+    /// The reaction mixture's starting volume, if declared, in the unit it
+    /// was declared in (`volume_unit`); volume changes of events are in the
+    /// same unit (converted exactly), so `200 uL` plus `10 uL` is 210.
     pub volume: Option<f64>,
-    /// The unit the volume was declared in, and its size in litres (for
-    /// output columns).
+    /// The unit of `volume` as written, and its size in litres.
     pub volume_unit: Option<(String, f64)>,
     /// The assay temperature in kelvin, if declared (or set).
     pub temperature: Option<f64>,
@@ -268,6 +269,16 @@ pub struct Model {
 }
 
 impl Model {
+    /// The starting volume in litres.
+    pub fn volume_litres(&self) -> Option<f64> {
+        Some(self.volume? * self.volume_unit.as_ref()?.1)
+    }
+
+    /// The volume unit's symbol (`uL`), or `L` when none is declared.
+    pub fn volume_symbol(&self) -> &str {
+        self.volume_unit.as_ref().map(|u| u.0.as_str()).unwrap_or("L")
+    }
+
     /// Finds a named item of any kind.
     /// The dimension a value given for `name` must have: concentration for
     /// species, fixed species and totals; a param's own dimension when it

@@ -43,6 +43,10 @@ impl Factor {
             den: o.num,
         })
     }
+    /// This unit in units of `other` (exact).
+    pub fn ratio(self, other: Factor) -> Option<Factor> {
+        self.div(other)
+    }
     /// `value` in this unit, in the SI base (one multiplication and one
     /// division, so `1 mg/mL` is exactly `1 g/L`).
     pub fn apply(self, value: f64) -> f64 {

@@ -28,7 +28,8 @@ use std::cell::RefCell;
 pub struct Trajectory {
     pub times: Vec<f64>,
     pub rows: Vec<Vec<f64>>,
-    /// The mixture's volume (litres) at each row, when the model declares one.
+    /// The mixture's volume (in the model's volume unit) at each row, when
+    /// the model declares one.
     pub volumes: Vec<f64>,
     pub steps: usize,
 }
@@ -196,9 +197,8 @@ impl Mixture {
                 let before = self.volume.unwrap_or(0.0);
                 if *volume >= before * (1.0 - 1e-12) {
                     return Err(SimError::input(format!(
-                        "at t = {t}, a withdrawal of {} uL is more than the {} uL the mixture holds",
-                        volume * 1e6,
-                        before * 1e6
+                        "at t = {t}, a withdrawal of {volume} {unit} is more than the {before} {unit} the mixture holds",
+                        unit = model.volume_symbol()
                     )));
                 }
                 self.volume = Some(before - volume);

@@ -262,9 +262,9 @@ pub fn add_volume_columns(
     trajectory: &mut Trajectory,
     amounts: bool,
 ) {
-    let Some((_, litres_per_unit)) = &model.volume_unit else {
+    if model.volume_unit.is_none() {
         return;
-    };
+    }
     if trajectory.volumes.len() != trajectory.rows.len() {
         return;
     }
@@ -272,8 +272,8 @@ pub fn add_volume_columns(
     if amounts {
         columns.extend(model.species.iter().map(|s| format!("amount({})", s.name)));
     }
-    for (row, litres) in trajectory.rows.iter_mut().zip(&trajectory.volumes) {
-        let volume = litres / litres_per_unit;
+    for (row, volume) in trajectory.rows.iter_mut().zip(&trajectory.volumes) {
+        let volume = *volume;
         row.push(volume);
         if amounts {
             for i in 0..model.species.len() {

@@ -39,17 +39,30 @@ impl Lowerer<'_> {
             *seen = Some(item.span);
             match item.kind {
                 StatementKind::Volume(q) => {
-                    self.model.volume = self.volume(q);
-                    if let Some((text, _)) = &q.unit
+                    if let Some(litres) = self.volume(q)
+                        && let Some((text, _)) = &q.unit
                         && let Some((_, factor)) = lab_unit(text)
                     {
+                        self.model.volume = self.number(&q.number, q.number_span);
+                        debug_assert!(litres > 0.0);
                         self.model.volume_unit = Some((text.clone(), factor.apply(1.0)));
+                        self.volume_factor = Some(factor);
                     }
                 }
                 StatementKind::Temperature(q) => self.model.temperature = self.kelvin(q),
                 _ => {}
             }
         }
+    }
+
+    /// A volume change in the model's volume unit (the ratio of the two
+    /// units is exact: `0.01 mL` in a `uL` mixture is 10).
+    pub(super) fn volume_in_model_unit(&mut self, q: &Quantity) -> Option<f64> {
+        self.volume(q)?;
+        let number = self.number(&q.number, q.number_span)?;
+        let (_, factor) = lab_unit(q.unit.as_ref()?.0.as_str())?;
+        let model = self.volume_factor?;
+        Some(factor.ratio(model)?.apply(number))
     }
 
     /// A volume in litres, finite and positive.
@@ -142,11 +155,11 @@ impl Lowerer<'_> {
         let value = factor.apply(self.number(&q.number, q.number_span)?);
         let molar = match kind {
             LabKind::Amount => {
-                let Some(volume) = self.model.volume else {
+                let Some(litres) = self.model.volume_litres() else {
                     self.needs_volume(q.span, "an amount");
                     return None;
                 };
-                value / volume
+                value / litres
             }
             LabKind::MassConcentration => {
                 let grams_per_litre = value;

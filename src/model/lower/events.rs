@@ -12,7 +12,6 @@ use super::*;
 use crate::diagnostics::{Code, Diagnostic};
 use crate::model::expr::{BinOp, Expr};
 use crate::model::ir::*;
-use crate::model::lab_units::LabKind;
 use crate::syntax::{
     ActionAst, Comparison, ConditionSide, EventKindAst, Ident, Quantity, TimingAst,
 };
@@ -106,15 +105,7 @@ impl Lowerer<'_> {
             self.needs_volume(q.span, what);
             return None;
         }
-        let litres = self.lab_quantity(q, LabKind::Volume)?;
-        if litres <= 0.0 {
-            self.error(
-                Diagnostic::error(Code::BadEvent, "a volume added or withdrawn must be positive")
-                    .with_label(q.span, "not positive"),
-            );
-            return None;
-        }
-        Some(litres)
+        self.volume_in_model_unit(q)
     }
 
     fn species_change(
@@ -346,9 +337,10 @@ impl Lowerer<'_> {
                 Diagnostic::error(
                     Code::VolumeExhausted,
                     format!(
-                        "this withdraws {} uL, but the mixture holds only {} uL by then",
-                        fmt_num(wanted * 1e6),
-                        fmt_num(left * 1e6)
+                        "this withdraws {} {unit}, but the mixture holds only {} {unit} by then",
+                        fmt_num(wanted),
+                        fmt_num(left),
+                        unit = self.model.volume_symbol()
                     ),
                 )
                 .with_label(span, "more than is left")

@@ -117,6 +117,8 @@ struct Lowerer<'s> {
     /// name is compared with every declared one, so without a bound a file
     /// with thousands of unknown names took quadratic time (8,000: 49 s).
     suggestion_budget: usize,
+    /// The declared volume's unit, to convert volume changes into it.
+    volume_factor: Option<crate::model::lab_units::Factor>,
 }
 
 const SUGGESTION_COMPARISONS: usize = 2_000_000;
@@ -135,6 +137,7 @@ impl<'s> Lowerer<'s> {
             initial_refused: HashSet::new(),
             sources,
             suggestion_budget: SUGGESTION_COMPARISONS,
+            volume_factor: None,
         }
     }
 
