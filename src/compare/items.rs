@@ -14,6 +14,7 @@ pub fn changes(ctx: &Context) -> Vec<Change> {
     step_changes(ctx, &mut out);
     event_changes(ctx, &mut out);
     assumption_changes(ctx, &mut out);
+    condition_changes(ctx, &mut out);
     out
 }
 
@@ -847,6 +848,50 @@ fn assumption_changes(ctx: &Context, out: &mut Vec<Change>) {
             old_text: text(old),
             new_text: text(new),
             details,
+        });
+    }
+}
+
+/// The mixture's volume (compared in litres) and the assay temperature.
+fn condition_changes(ctx: &Context, out: &mut Vec<Change>) {
+    let (old, new) = (ctx.old, ctx.new);
+    let conditions: [(&str, Option<f64>, Option<f64>, &str, &str); 2] = [
+        ("volume", old.volume_litres(), new.volume_litres(), old.volume_symbol(), new.volume_symbol()),
+        ("temperature", old.temperature, new.temperature, "K", "K"),
+    ];
+    for (aspect, a, b, unit_a, unit_b) in conditions {
+        let same = match (a, b) {
+            (Some(x), Some(y)) => ctx.same_value(x, y, None),
+            (None, None) => true,
+            _ => false,
+        };
+        if same {
+            continue;
+        }
+        let shown = |m: &Model, v: Option<f64>, unit: &str| {
+            let v = v.map(|v| if aspect == "volume" { v / m.volume_unit.as_ref().map(|u| u.1).unwrap_or(1.0) } else { v });
+            match v {
+                Some(v) => format!("{aspect} {} {unit}", number(v)),
+                None => format!("no {aspect}"),
+            }
+        };
+        let (ta, tb) = (shown(old, a, unit_a), shown(new, b, unit_b));
+        out.push(Change {
+            item: ItemKind::Condition,
+            kind: match (a, b) {
+                (None, Some(_)) => ChangeKind::Added,
+                (Some(_), None) => ChangeKind::Removed,
+                _ => ChangeKind::Changed,
+            },
+            old_name: Some(aspect.to_string()),
+            new_name: Some(aspect.to_string()),
+            old_text: Some(ta.clone()),
+            new_text: Some(tb.clone()),
+            details: vec![Detail {
+                aspect,
+                old: Shown::Text(ta),
+                new: Shown::Text(tb),
+            }],
         });
     }
 }

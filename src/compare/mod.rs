@@ -48,6 +48,8 @@ pub enum ItemKind {
     Observable,
     Event,
     Assumption,
+    /// The assay's conditions: volume and temperature.
+    Condition,
 }
 
 impl ItemKind {
@@ -62,6 +64,7 @@ impl ItemKind {
             ItemKind::Observable => "observable",
             ItemKind::Event => "event",
             ItemKind::Assumption => "assumption",
+            ItemKind::Condition => "condition",
         }
     }
 }

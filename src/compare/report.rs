@@ -57,6 +57,7 @@ fn section_title(kind: ItemKind) -> &'static str {
         ItemKind::Observable => "observables",
         ItemKind::Event => "events",
         ItemKind::Assumption => "assumptions",
+        ItemKind::Condition => "assay conditions",
     }
 }
 
