@@ -568,6 +568,18 @@ pub fn event_text(model: &Model, e: &Event) -> String {
     }
 }
 
+/// A stock's contents as mechanism text (`1000 uM S, 5 uM I`).
+fn stock_text(model: &Model, e: &Event) -> String {
+    match &e.action {
+        Action::Stock { contents, .. } => contents
+            .iter()
+            .map(|(sym, c)| format!("{} {}", quantity_text(model, *c, Some(Dim::CONC)), model.name_of(*sym)))
+            .collect::<Vec<_>>()
+            .join(", "),
+        Action::Species { .. } | Action::Withdraw { .. } => String::new(),
+    }
+}
+
 /// What pairs two events across versions: the same action on the same
 /// names, at a time or on a condition; and what may differ in a pair.
 struct EventView {
@@ -663,11 +675,18 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
                     old_left.remove(i);
                     if pass > 0 {
                         let mut details = Vec::new();
-                        if !same_amount(a, b) {
+                        if !ctx.same_value(a.amount, b.amount, a.amount_dim) {
                             details.push(Detail {
                                 aspect: "amount",
                                 old: amount_shown(old, a),
                                 new: amount_shown(new, b),
+                            });
+                        }
+                        if !same_amount(a, b) && ctx.same_value(a.amount, b.amount, a.amount_dim) {
+                            details.push(Detail {
+                                aspect: "stock",
+                                old: Shown::Text(stock_text(old, ea)),
+                                new: Shown::Text(stock_text(new, eb)),
                             });
                         }
                         if let (Some(x), Some(y)) = (a.time, b.time)
