@@ -285,8 +285,9 @@ fn events_convert_and_totals_fix_start_values() {
         (m.species[1].initial - 0.05).abs() < 1e-15,
         "E follows from E_t"
     );
-    assert!((m.events[0].time - 1.5).abs() < 1e-15, "90 s = 1.5 min");
-    assert!((m.events[0].amount - 1000.0).abs() < 1e-9);
+    let (time, _, _, amount) = m.events[0].timed_species_change().expect("a timed addition");
+    assert!((time - 1.5).abs() < 1e-15, "90 s = 1.5 min");
+    assert!((amount - 1000.0).abs() < 1e-9);
     assert!(
         (m.params[0].value - 120.0).abs() < 1e-9,
         "2 /uM/s = 120 /uM/min"
@@ -413,8 +414,9 @@ fn a_bare_event_value_and_unit_words_as_params_are_valid() {
         "{}",
         rendered(&loaded)
     );
-    assert_eq!(model.events[0].amount, 2.0);
-    assert_eq!(model.events[0].time, 1.0);
+    let (time, _, _, amount) = model.events[0].timed_species_change().expect("a timed addition");
+    assert_eq!(amount, 2.0);
+    assert_eq!(time, 1.0);
     let words = load(
         "param uM = 2\nparam s = 3\nparam k2 = 2 uM/s\nparam tau = 77.27 s\nobserve o = uM*s*k2*tau\n",
     );

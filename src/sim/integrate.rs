@@ -820,10 +820,12 @@ pub(crate) mod tests {
             &[(&[(0, 1)], &[(1, 1)], 0, None)],
         );
         m.events.push(crate::model::Event {
-            kind: EventKind::Add,
-            species: 0,
-            amount: 1.0,
-            time: 1.0,
+            timing: Timing::At(1.0),
+            action: Action::Species {
+                kind: EventKind::Add,
+                species: 0,
+                amount: 1.0,
+            },
             span: Default::default(),
         });
         let p = Prepared::full(&m).unwrap();
