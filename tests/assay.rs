@@ -324,3 +324,38 @@ fn diff_reports_a_changed_stock_and_volume() {
     assert!(out.contains("stock: 1000 uM S → 2000 uM S"), "{out}");
     assert!(out.contains("volume 200 uL → volume 250 uL"), "{out}");
 }
+
+#[test]
+fn the_emitted_python_runs_the_assay_protocol_like_run() {
+    // The python target's own driver (SciPy BDF, solve_ivp event functions
+    // for `when`) against `run`: dilutions, a withdrawal, repeated and
+    // triggered events, each event time twice in both outputs.
+    ensure_python();
+    let dir = tempfile::tempdir().unwrap();
+    let model = write(
+        dir.path(),
+        "feed.mech",
+        "volume 200 uL\nspecies E = 0.1 mg/mL mass 28.5 kDa\nspecies S = 100 uM, P = 0, I = 0\nfixed B = 50 mM\nparam k_cat = 12 /s\nparam K_m = 20 uM\nparam K_i = 0.5 uM\nstep turnover S -> P law k_cat * E * S / (K_m * (1 + I / K_i) + S) * B / (B + 1 mM)\nparam unit_b = 1 mM\nwhen P > 5 uM: add 1 uM I\nevery 10 min from 0 s to 1 h: add 5 uL of 10 mM S\nremove 20 uL at 1500 s\n"
+            .replace("(B + 1 mM)", "(B + unit_b)")
+            .as_str(),
+    );
+    let script = dir.path().join("feed.py");
+    let o = ratewright(&["emit", model.to_str().unwrap(), "--target", "python", "-o", script.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let shared = ["--until", "3000", "--points", "7", "--rtol", "1e-10", "--atol", "1e-14"];
+    let py_csv = dir.path().join("py.csv");
+    let mut args: Vec<&str> = shared.to_vec();
+    args.extend(["-o", py_csv.to_str().unwrap()]);
+    let out = python(&script, &args);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let (h1, r1) = parse_csv(&std::fs::read_to_string(&py_csv).unwrap());
+    let (h2, r2) = run_csv(&model, &shared);
+    assert_eq!(h1, h2);
+    assert_eq!(r1.len(), r2.len(), "{r1:?}\n{r2:?}");
+    for (a, b) in r1.iter().zip(&r2) {
+        for k in 0..a.len() {
+            let scale = r2.iter().map(|r| r[k].abs()).fold(0.0, f64::max);
+            assert!((a[k] - b[k]).abs() <= 1e-6 * b[k].abs() + 1e-9 * scale, "{} at t = {}: python {} vs run {}", h1[k], a[0], a[k], b[k]);
+        }
+    }
+}

@@ -115,7 +115,7 @@ pub fn emit(
             ),
         )
         .with_label(e.span, "not expressible in this target")
-        .with_help("emit `--target sbml` (a compartment, its volume changes and triggers) or `--target json` for this protocol"));
+        .with_help("emit `--target sbml` (a compartment, its volume changes and triggers), `python` or `json` for this protocol"));
     }
     let system = if options.reduced {
         System::reduced(model)?

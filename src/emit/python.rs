@@ -8,13 +8,16 @@ use super::system::{ConstantKind, Needs, System};
 use super::{EmitOptions, EmittedFile, Target, banner};
 use crate::algebra::print::{Syntax, float_literal, plain_literal, print_expr};
 use crate::diagnostics::Diagnostic;
-use crate::model::{Coef, EventKind, Expr, Sym, coef_f64};
+use crate::model::{Action, Coef, EventKind, Expr, Sym, Timing, coef_f64};
 use std::fmt::Write;
 
 pub struct Python;
 
 impl Target for Python {
     fn runs_protocol(&self) -> bool {
+        true
+    }
+    fn runs_assay_protocol(&self) -> bool {
         true
     }
     fn name(&self) -> &'static str {
@@ -115,23 +118,60 @@ fn module(sys: &System, options: &EmitOptions) -> String {
         let v = state_start.get(&i).copied().unwrap_or(species.initial);
         let _ = writeln!(o, "    {}: {},", quoted(&species.name), float_literal(v));
     }
-    o.push_str(
-        "}\n\n# Timed events: (time, kind, species, amount), applied in order.\nEVENTS = [\n",
+    o.push_str("}\n\n# Timed events in file order: (time, kind, target, amount). kind is add,\n# remove or set (target a species, amount a concentration), stock (target\n# {name: stock concentration}, amount the volume added: everything is\n# diluted by V/(V+dV), then the stock adds c*dV/(V+dV)) or withdraw (amount\n# the volume taken; concentrations unchanged).\nEVENTS = [\n");
+    let action = |a: &Action| -> (String, String, String) {
+        match a {
+            Action::Species {
+                kind,
+                species,
+                amount,
+            } => (
+                quoted(match kind {
+                    EventKind::Add => "add",
+                    EventKind::Remove => "remove",
+                    EventKind::Set => "set",
+                }),
+                quoted(&m.species[*species].name),
+                float_literal(*amount),
+            ),
+            Action::Stock { volume, contents } => (
+                quoted("stock"),
+                format!(
+                    "{{{}}}",
+                    contents
+                        .iter()
+                        .map(|(s, c)| format!("{}: {}", quoted(m.name_of(*s)), float_literal(*c)))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+                float_literal(*volume),
+            ),
+            Action::Withdraw { volume } => {
+                (quoted("withdraw"), "None".to_string(), float_literal(*volume))
+            }
+        }
+    };
+    for e in &m.events {
+        if let Timing::At(t) = e.timing {
+            let (kind, target, amount) = action(&e.action);
+            let _ = writeln!(o, "    ({}, {kind}, {target}, {amount}),", float_literal(t));
+        }
+    }
+    o.push_str("]\n\n# The mixture's starting volume (None: not declared) and the fixed species\n# (parameters a dilution changes too).\n");
+    let _ = writeln!(
+        o,
+        "VOLUME = {}\nFIXED = [{}]",
+        m.volume.map(float_literal).unwrap_or_else(|| "None".into()),
+        m.fixed.iter().map(|f| quoted(&f.name)).collect::<Vec<_>>().join(", ")
     );
-    for e in &sys.events {
-        let kind = match e.kind {
-            EventKind::Add => "add",
-            EventKind::Remove => "remove",
-            EventKind::Set => "set",
-        };
-        let _ = writeln!(
-            o,
-            "    ({}, {}, {}, {}),",
-            float_literal(e.time),
-            quoted(kind),
-            quoted(&m.species[e.species].name),
-            float_literal(e.amount)
-        );
+    o.push_str("\n# Triggered events: (rising function of (t, x, p), kind, target, amount);\n# each fires when its function rises through zero (the condition becomes\n# true), never at t = 0 for a condition already true.\nTRIGGERS = [\n");
+    let mut k = 0;
+    for e in &m.events {
+        if let Timing::When(_) = e.timing {
+            let (kind, target, amount) = action(&e.action);
+            let _ = writeln!(o, "    (lambda t, x, p: rising_{k}(t, x, p), {kind}, {target}, {amount}),");
+            k += 1;
+        }
     }
     o.push_str("]\n\n# Conserved totals: name -> {species: coefficient}.\nTOTALS = {\n");
     for t in &m.totals {
@@ -285,6 +325,30 @@ fn module(sys: &System, options: &EmitOptions) -> String {
     let obs: Vec<String> = sys.observables.iter().map(ex).collect();
     let _ = writeln!(o, "    return np.array([{}], dtype=float)", obs.join(", "));
 
+    for (k, (rising, event)) in sys
+        .triggers
+        .iter()
+        .zip(m.events.iter().filter_map(|e| match &e.timing {
+            Timing::When(t) => Some(t),
+            Timing::At(_) => None,
+        }))
+        .enumerate()
+    {
+        let _ = writeln!(
+            o,
+            "\n\ndef rising_{k}(t, x, p):\n    \"\"\"`when {}`: positive once the condition holds.\"\"\"",
+            event.text.replace('\\', "/").replace('"', "'")
+        );
+        let needs = full_needs(std::iter::once(rising));
+        for i in 0..m.species.len() {
+            if needs.contains(&Sym::Species(i)) {
+                let _ = writeln!(o, "    {} = x[{i}]", name(Sym::Species(i)));
+            }
+        }
+        prelude(&mut o, sys, &names, &sys.needs_over_full(std::iter::once(rising)));
+        let _ = writeln!(o, "    return {}", ex(rising));
+    }
+
     if sys.reduced {
         o.push_str(REDUCE_STATE_REDUCED);
     } else {
@@ -402,11 +466,46 @@ def state_from_full(x, p):
 
 const SIMULATE: &str = r#"
 
+def apply_event(kind, target, amount, x, p, volume):
+    """One event on the full species vector x, the parameters p (fixed
+    species are diluted too) and the volume; returns all three."""
+    index = {name: i for i, name in enumerate(SPECIES)}
+    if kind == "add":
+        x[index[target]] += amount
+    elif kind == "remove":
+        x[index[target]] = max(x[index[target]] - amount, 0.0)
+    elif kind == "set":
+        x[index[target]] = amount
+    elif kind == "stock":
+        after = volume + amount
+        kept = volume / after
+        x = x * kept
+        for name in FIXED:
+            p[name] *= kept
+        for name, c in target.items():
+            if name in index:
+                x[index[name]] += c * amount / after
+            else:
+                p[name] += c * amount / after
+        volume = after
+    elif kind == "withdraw":
+        if amount >= volume:
+            raise RuntimeError(f"a withdrawal of {amount} is more than the volume {volume} left")
+        volume = volume - amount
+    return x, p, volume
+
+
 def simulate(times, p=None, rtol=1e-8, atol=1e-12):
-    """Integrates from t = 0 through EVENTS with SciPy's BDF method and the
-    analytic Jacobian. Returns an array with one row per output time: every
-    species (SPECIES order), then every observable. At an event's time the
-    row shows the state after the event."""
+    """Integrates from t = 0 through EVENTS and TRIGGERS with SciPy's BDF
+    method and the analytic Jacobian. Returns an array with one row per
+    output time: every species (SPECIES order), then every observable. At
+    an event's time the row shows the state after the event."""
+    return simulate_rows(times, p, rtol, atol, event_rows=False)[1]
+
+
+def simulate_rows(times, p=None, rtol=1e-8, atol=1e-12, event_rows=True):
+    """As simulate, returning (row times, rows, volumes); with event_rows,
+    each event's time has a row just before and just after it."""
     from scipy.integrate import solve_ivp
 
     p = dict(PARAMS if p is None else p)
@@ -419,50 +518,79 @@ def simulate(times, p=None, rtol=1e-8, atol=1e-12):
         def jacobian(t, y, p):
             return csc_matrix((jac_values(t, y, p), (JAC_ROWS, JAC_COLS)), shape=(len(STATE), len(STATE)))
 
-    rows = np.empty((len(times), len(SPECIES) + len(OBSERVABLES)))
+    out_t, rows, volumes = [], [], []
     y = y0(p)
-    t = 0.0
+    volume = VOLUME
     end = float(times.max()) if len(times) else 0.0
     pending = sorted((e for e in EVENTS if e[0] <= end), key=lambda e: e[0])
-    boundaries = sorted({e[0] for e in pending} | {end})
-    index = {name: i for i, name in enumerate(SPECIES)}
+    boundaries = sorted({e[0] for e in pending if e[0] > 0.0} | {end})
+    next_out = 0
 
-    def record(mask, states, p):
-        for k, state in zip(np.flatnonzero(mask), states):
-            x = full_state(state, p)
-            rows[k, : len(SPECIES)] = x
-            rows[k, len(SPECIES):] = observables(times[k], x, p)
+    def record(t, y, p):
+        x = full_state(y, p)
+        out_t.append(float(t))
+        rows.append(np.concatenate([x, observables(t, x, p)]))
+        volumes.append(volume)
 
+    def fire(events, y, p, volume):
+        x = full_state(y, p)
+        for _, kind, target, amount in events:
+            x, p, volume = apply_event(kind, target, amount, x, p, volume)
+        y, p = state_from_full(x, p)
+        return y, p, volume
+
+    y, p, volume = fire([e for e in pending if e[0] <= 0.0], y, p, volume)
+    t = 0.0
+    while next_out < len(times) and times[next_out] <= 0.0:
+        record(times[next_out], y, p)
+        next_out += 1
     for b in boundaries:
-        at_start = times == t
-        if b > t:
-            inside = (times >= t) & (times < b) if b < end else (times >= t) & (times <= b)
-            wanted = times[inside]
-            t_eval = wanted if len(wanted) and wanted[-1] == b else np.append(wanted, b)
-            sol = solve_ivp(rhs, (t, b), y, method="BDF", jac=jacobian, args=(p,),
-                            t_eval=t_eval, rtol=rtol, atol=atol)
+        while t < b:
+            functions = []
+            for rising, *_ in TRIGGERS:
+                # solve_ivp passes `args` (here p) to event functions too.
+                def g(s, state, p, rising=rising):
+                    return rising(s, full_state(state, p), p)
+                g.terminal = True
+                g.direction = 1
+                functions.append(g)
+            sol = solve_ivp(rhs, (t, b), y, method="BDF", jac=jacobian, args=(p,), dense_output=True,
+                            events=functions or None, rtol=rtol, atol=atol)
             if not sol.success:
                 raise RuntimeError(f"integration failed at t = {sol.t[-1]}: {sol.message}")
-            record(inside, sol.y[:, : len(wanted)].T, p)
-            y, t = sol.y[:, -1], b
-        elif at_start.any():
-            record(at_start, [y] * int(at_start.sum()), p)
+            hit = None
+            for k, found in enumerate(sol.t_events or []):
+                if len(found) and (hit is None or found[0] < hit[0]):
+                    hit = (float(found[0]), k)
+            stop = hit[0] if hit else b
+            # Outputs at the end time come after the events there, if any.
+            last = hit is None and b == end and not any(e[0] == b for e in pending)
+            while next_out < len(times) and (times[next_out] < stop or (last and times[next_out] <= stop)):
+                record(times[next_out], sol.sol(times[next_out]), p)
+                next_out += 1
+            y, t = sol.sol(stop), stop
+            if hit is None:
+                break
+            if event_rows:
+                record(t, y, p)
+            y, p, volume = fire([TRIGGERS[hit[1]]], y, p, volume)
+            if event_rows and not (next_out < len(times) and times[next_out] == t):
+                record(t, y, p)
+            # Step just past the root, so the same crossing is not found again.
+            past = min(b, t + 1e-9 * max(1.0, abs(t)))
+            y = solve_ivp(rhs, (t, past), y, method="BDF", jac=jacobian, args=(p,), rtol=rtol, atol=atol).y[:, -1]
+            t = past
         fired = [e for e in pending if e[0] == b]
         if fired:
-            x = full_state(y, p)
-            for _, kind, name, amount in fired:
-                i = index[name]
-                if kind == "add":
-                    x[i] += amount
-                elif kind == "remove":
-                    x[i] = max(x[i] - amount, 0.0)
-                else:
-                    x[i] = amount
-            y, p = state_from_full(x, p)
-            here = times == b
-            if here.any():
-                record(here, [y] * int(here.sum()), p)
-    return rows
+            if event_rows:
+                record(b, y, p)
+            y, p, volume = fire(fired, y, p, volume)
+            if event_rows and not (next_out < len(times) and times[next_out] == b):
+                record(b, y, p)
+        while next_out < len(times) and times[next_out] <= b:
+            record(times[next_out], y, p)
+            next_out += 1
+    return out_t, np.array(rows).reshape(len(rows), len(SPECIES) + len(OBSERVABLES)), volumes
 
 
 def main(argv=None):
@@ -500,12 +628,14 @@ def main(argv=None):
             if total in p and total not in set_totals:
                 p[total] = sum(c * INITIAL[s] for s, c in terms.items())
     times = np.linspace(0.0, args.until, args.points)
-    rows = simulate(times, p, rtol=args.rtol, atol=args.atol)
+    # As `ratewright run`: each event's time twice (before, then after).
+    row_times, rows, volumes = simulate_rows(times, p, rtol=args.rtol, atol=args.atol)
     out = open(args.output, "w", newline="") if args.output else sys.stdout
     writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(["t"] + SPECIES + OBSERVABLES)
-    for t, row in zip(times, rows):
-        writer.writerow([repr(float(t))] + [repr(float(v)) for v in row])
+    writer.writerow(["t"] + SPECIES + OBSERVABLES + (["volume"] if VOLUME is not None else []))
+    for t, row, volume in zip(row_times, rows, volumes):
+        extra = [repr(float(volume))] if VOLUME is not None else []
+        writer.writerow([repr(float(t))] + [repr(float(v)) for v in row] + extra)
     if args.output:
         out.close()
 

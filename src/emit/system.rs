@@ -89,6 +89,9 @@ pub struct System {
     /// Each observable, inlined (over species, constants and `t`).
     pub observables: Vec<Expr>,
     pub events: Vec<EventRow>,
+    /// The rising function of each `when` event (model event order),
+    /// observables inlined.
+    pub triggers: Vec<Expr>,
 }
 
 impl System {
@@ -123,6 +126,14 @@ impl System {
     ) -> Result<System, Diagnostic> {
         let observables = (0..model.observables.len())
             .map(|i| inline(&model, &Expr::Name(Sym::Observable(i)), 0))
+            .collect::<Result<Vec<_>, _>>()?;
+        let triggers = model
+            .events
+            .iter()
+            .filter_map(|e| match &e.timing {
+                crate::model::Timing::When(t) => Some(inline(&model, &t.rising, 0)),
+                crate::model::Timing::At(_) => None,
+            })
             .collect::<Result<Vec<_>, _>>()?;
         let rates: Vec<Expr> = (0..model.steps.len())
             .map(|j| {
@@ -218,6 +229,7 @@ impl System {
             jac,
             observables,
             events,
+            triggers,
         };
         system.collect_constants();
         Ok(system)
@@ -235,6 +247,7 @@ impl System {
         };
         self.rates.iter().for_each(&mut note);
         self.observables.iter().for_each(&mut note);
+        self.triggers.iter().for_each(&mut note);
         self.dependent.iter().for_each(|d| note(&d.formula));
         let mut constants = Vec::new();
         for (i, p) in m.params.iter().enumerate() {
