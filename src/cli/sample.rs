@@ -123,14 +123,13 @@ fn output_times(args: &Args, model: &Model) -> Result<Vec<f64>, String> {
 pub fn run(args: &Args) -> ExitCode {
     let json = args.format == Format::Json;
     let usage = |m: String| usage_error_as(json, m);
-    let Some(volume_text) = &args.volume else {
-        return usage(
-            "sample needs --volume V, the reaction volume with a unit (L, mL, uL, nL, pL or fL), to turn concentrations into molecule counts".into(),
-        );
-    };
-    let litres = match stochastic::parse_volume(volume_text) {
-        Ok(v) => v,
-        Err(e) => return usage(format!("--volume: {e}")),
+    // --volume, or else the file's `volume` (read once the model is loaded).
+    let given_litres = match &args.volume {
+        Some(text) => match stochastic::parse_volume(text) {
+            Ok(v) => Some(v),
+            Err(e) => return usage(format!("--volume: {e}")),
+        },
+        None => None,
     };
     if args.runs == 0 || args.runs > 10_000_000 {
         return usage("--runs: give between 1 and 10,000,000 runs".into());
@@ -174,6 +173,11 @@ pub fn run(args: &Args) -> ExitCode {
     let (model, sources) = match super::run::model_with_overrides(&args.file, &args.set, json) {
         Ok(m) => m,
         Err(code) => return code,
+    };
+    let Some(litres) = given_litres.or(model.volume_litres()) else {
+        return usage(
+            "sample needs the reaction volume to turn concentrations into molecule counts: declare `volume` in the file or give --volume V with a unit (L, mL, uL, nL, pL or fL)".into(),
+        );
     };
     let inputs: Vec<PathBuf> = sources.files().iter().map(|f| f.path.clone()).collect();
     for path in &out_paths {

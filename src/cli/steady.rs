@@ -45,6 +45,16 @@ pub fn run(args: &Args) -> ExitCode {
     };
     let m = &prepared.model;
     let nsp = m.species.len();
+    // A steady state does not run the protocol. Where a `when` event's
+    // condition holds at the state found, the protocol would have fired it
+    // on the way there, so the state is not the one the assay reaches.
+    if let Some(refusal) = triggered_on_the_way(m, &result.values[..nsp]) {
+        if json {
+            let d = Diagnostic::error(crate::diagnostics::Code::NoSteadyState, refusal);
+            return report_failure(&[d], &sources, json, EXIT_MODEL);
+        }
+        return super::common::run_error(format!("[E0702] {refusal}"));
+    }
     let stability = match result.stability {
         Stability::Stable => "stable",
         Stability::Unstable => "unstable",
@@ -129,4 +139,15 @@ pub fn run(args: &Args) -> ExitCode {
         }
     }
     ExitCode::SUCCESS
+}
+
+/// The refusal when a `when` event's condition holds at the steady state.
+pub(crate) fn triggered_on_the_way(model: &crate::model::Model, species: &[f64]) -> Option<String> {
+    model.events.iter().find_map(|e| match &e.timing {
+        crate::model::Timing::When(trigger) if model.eval_at(&trigger.rising, species, 0.0) > 0.0 => Some(format!(
+            "at the steady state `{}` holds, so the protocol's `when` event would have fired on the way there; a steady state does not run the protocol: follow it with `ratewright run`, or remove the event",
+            trigger.text
+        )),
+        _ => None,
+    })
 }
