@@ -15,6 +15,7 @@ pub mod model;
 pub mod network;
 pub mod numeric;
 pub mod ratelaw;
+pub mod sensitivity;
 pub mod sim;
 pub mod stochastic;
 pub mod syntax;

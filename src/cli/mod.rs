@@ -41,6 +41,7 @@ pub mod output;
 mod plot;
 mod run;
 mod sample;
+mod sensitivity;
 mod scan;
 mod steady;
 
@@ -88,6 +89,8 @@ pub enum Command {
     Diff(diff::Args),
     /// Estimate params from assay data; rank rival mechanisms.
     Fit(fit::Args),
+    /// Local sensitivities of the time course to params and initial values.
+    Sensitivity(sensitivity::Args),
     /// Metabolic control analysis at the steady state.
     Control(control::Args),
     /// Stochastic runs of molecule counts (exact or tau-leaping), ensembles with statistics.
@@ -125,6 +128,7 @@ pub fn main() -> ExitCode {
         Command::Scan(a) => scan::run(&a),
         Command::Diff(a) => diff::run(&a),
         Command::Fit(a) => fit::run(&a),
+        Command::Sensitivity(a) => sensitivity::run(&a),
         Command::Control(a) => control::run(&a),
         Command::Sample(a) => sample::run(&a),
     }
