@@ -93,6 +93,7 @@ fn describe(analysis: &Analysis, declaration: &Declaration) -> String {
                 .text
                 .get(lhs.span.start..rhs.span.end)
                 .unwrap_or("")
+                .trim()
                 .to_string();
             lines.push(format!("`{equation}`"));
             step_lines(&mut lines, lhs, rhs, *reversible, rate, units);

@@ -1,0 +1,616 @@
+//! `ratewright lsp` driven end to end by a real client library (pygls's
+//! language client, tests/python/lsp_client.py) over stdio, its answers
+//! checked against the command line on the same texts: diagnostics against
+//! `check --format json`, formatting against `fmt`, hover values and names
+//! against `emit -t json`. Also: the TextMate grammar of editors/vscode run
+//! by a real engine (vscode-textmate with vscode-oniguruma) over every
+//! model and fixture.
+
+mod common;
+
+use common::{bin, ratewright, root};
+use serde_json::Value;
+use std::collections::{BTreeMap, BTreeSet};
+use std::path::Path;
+use std::process::Command;
+
+const LIB: &str = "# Shared enzyme parts
+species E = 0.02 uM \"free enzyme\"
+param kcat = 150 /s \"turnover\"
+";
+
+const MAIN: &str = "mechanism demo \"a test mechanism\"
+units concentration uM, time s
+
+use \"lib.mech\"
+
+species S = 2 mM \"substrate\"
+species ES
+species P
+
+param k1 = 5 /uM/s \"binding\"
+param km1 = 60 /s
+
+step bind E + S <=> ES with k1, km1
+step cat ES -> E + P with kcat
+
+total E_t = E + ES
+observe A340 = 0.00622 * P
+";
+
+/// Runs the client session once per test binary; its record is shared.
+fn session() -> &'static (tempfile::TempDir, Value) {
+    static SESSION: std::sync::OnceLock<(tempfile::TempDir, Value)> = std::sync::OnceLock::new();
+    SESSION.get_or_init(|| {
+        common::ensure_python_module("pygls", "pygls>=2,<3");
+        let dir = tempfile::tempdir().expect("a temporary folder");
+        std::fs::write(dir.path().join("lib.mech"), LIB).unwrap();
+        std::fs::write(dir.path().join("main.mech"), MAIN).unwrap();
+        let out = Command::new("python3")
+            .arg(root().join("tests/python/lsp_client.py"))
+            .arg(bin())
+            .arg(dir.path())
+            .output()
+            .expect("python3 runs");
+        assert!(
+            out.status.success(),
+            "the client session failed:\n{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let record: Value = serde_json::from_slice(&out.stdout).expect("the client prints JSON");
+        (dir, record)
+    })
+}
+
+/// `ratewright ARGS` on a file `name` holding `text`, written beside
+/// lib.mech so its `use` line resolves as the document's does.
+fn on_text(dir: &Path, name: &str, text: &str, args: &[&str]) -> std::process::Output {
+    let path = dir.join(name);
+    std::fs::write(&path, text).unwrap();
+    let mut all: Vec<&str> = args.to_vec();
+    let shown = path.to_str().unwrap().to_string();
+    all.push(&shown);
+    ratewright(&all)
+}
+
+fn check_json(dir: &Path, name: &str, text: &str) -> Value {
+    let out = on_text(dir, name, text, &["check", "--format", "json"]);
+    serde_json::from_slice(&out.stdout).expect("check prints JSON")
+}
+
+fn emit_json(dir: &Path, text: &str) -> Value {
+    let out = on_text(dir, "emitted.mech", text, &["emit", "-t", "json"]);
+    assert!(
+        out.status.success(),
+        "emit failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("emit prints JSON")
+}
+
+/// The file a check label names, as the document's file names it.
+fn as_document_file(file: &str, checked: &str) -> String {
+    if file.ends_with(checked) {
+        "main.mech".to_string()
+    } else {
+        Path::new(file)
+            .file_name()
+            .unwrap()
+            .to_string_lossy()
+            .into_owned()
+    }
+}
+
+#[test]
+fn diagnostics_are_those_of_check_for_every_text_the_server_saw() {
+    let (dir, record) = session();
+    let snapshots = record["snapshots"].as_array().unwrap();
+    assert!(snapshots.len() >= 7, "{snapshots:?}");
+    let mut codes_seen = BTreeSet::new();
+    for (n, snapshot) in snapshots.iter().enumerate() {
+        let text = snapshot["text"].as_str().unwrap();
+        let checked = format!("snapshot{n}.mech");
+        let report = check_json(dir.path(), &checked, text);
+        let expected: Vec<&Value> = report["diagnostics"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|d| d["file"].as_str().is_some_and(|f| f.ends_with(&checked)))
+            .collect();
+        let got = snapshot["diagnostics"].as_array().unwrap();
+        let label = snapshot["label"].as_str().unwrap();
+        assert_eq!(got.len(), expected.len(), "{label}: {got:?} vs {expected:?}");
+        for (g, e) in got.iter().zip(&expected) {
+            codes_seen.insert(e["code"].as_str().unwrap().to_string());
+            assert_eq!(g["code"], e["code"], "{label}");
+            let severity = if e["severity"] == "error" { 1 } else { 2 };
+            assert_eq!(g["severity"], severity, "{label}");
+            let message = match e["help"].as_str() {
+                Some(help) => format!("{}\nhelp: {help}", e["message"].as_str().unwrap()),
+                None => e["message"].as_str().unwrap().to_string(),
+            };
+            assert_eq!(g["message"], message.as_str(), "{label}");
+            // The texts are ASCII: UTF-16 columns are character columns.
+            assert_eq!(g["range"]["start"]["line"], e["line"].as_u64().unwrap() - 1);
+            assert_eq!(
+                g["range"]["start"]["character"],
+                e["column"].as_u64().unwrap() - 1
+            );
+            let related = g["relatedInformation"].as_array().unwrap();
+            let labels = e["labels"].as_array().unwrap();
+            assert_eq!(related.len(), labels.len(), "{label}");
+            for (r, l) in related.iter().zip(labels) {
+                assert_eq!(r["message"], l["message"]);
+                let uri = r["location"]["uri"].as_str().unwrap();
+                let file = as_document_file(l["file"].as_str().unwrap(), &checked);
+                assert!(uri.ends_with(&format!("/{file}")), "{uri} vs {file}");
+                let range = &r["location"]["range"];
+                assert_eq!(range["start"]["line"], l["line"].as_u64().unwrap() - 1);
+                assert_eq!(range["start"]["character"], l["column"].as_u64().unwrap() - 1);
+                assert_eq!(range["end"]["line"], l["end_line"].as_u64().unwrap() - 1);
+                assert_eq!(
+                    range["end"]["character"],
+                    l["end_column"].as_u64().unwrap() - 1
+                );
+            }
+        }
+        // What the code actions were for is gone after them, as check sees it.
+        let codes: Vec<&str> = expected.iter().filter_map(|d| d["code"].as_str()).collect();
+        match label {
+            "typo fixed by its code action" | "unknown species declared by its code action" => {
+                assert!(!codes.contains(&"E0201"), "{label}: {codes:?}")
+            }
+            "reverse constant added by its code action" => {
+                assert!(!codes.contains(&"E0401"), "{label}: {codes:?}")
+            }
+            _ => {}
+        }
+    }
+    // The session went through the mistakes it was meant to.
+    for code in ["E0201", "E0401"] {
+        assert!(codes_seen.contains(code), "{codes_seen:?}");
+    }
+    assert_eq!(record["capabilities"]["textDocumentSync"]["change"], 2);
+}
+
+#[test]
+fn half_typed_text_never_breaks_a_request() {
+    let (_, record) = session();
+    let states = record["half_typed"].as_array().unwrap();
+    assert!(states.len() > 10);
+    for state in states {
+        assert!(state["error"].is_null(), "{state}");
+        assert!(state["tokens"].as_u64().unwrap() > 0);
+        // Hover on a species keeps working while another line is broken.
+        assert!(
+            state["hover"]
+                .as_str()
+                .is_some_and(|h| h.contains("`S`")),
+            "{state}"
+        );
+    }
+    // Once the step names `kcat`, go-to lands in lib.mech on its declaration.
+    let last = &states.last().unwrap()["definition"];
+    assert!(last["uri"].as_str().unwrap().ends_with("/lib.mech"));
+    let line = LIB.lines().position(|l| l.starts_with("param kcat")).unwrap();
+    assert_eq!(last["range"]["start"]["line"], line);
+}
+
+fn number_after<'a>(text: &'a str, marker: &str) -> (f64, &'a str) {
+    let at = text
+        .find(marker)
+        .unwrap_or_else(|| panic!("{marker:?} in {text}"));
+    let rest = &text[at + marker.len()..];
+    let line = rest.lines().next().unwrap();
+    let (number, unit) = line.split_once(' ').unwrap_or((line, ""));
+    (number.parse().unwrap(), unit.trim())
+}
+
+fn dimension_words(d: &Value) -> String {
+    let mut parts = Vec::new();
+    for (key, word) in [("concentration", "concentration"), ("time", "time")] {
+        match d[key].as_i64().unwrap() {
+            0 => {}
+            1 => parts.push(word.to_string()),
+            p => parts.push(format!("{word}^{p}")),
+        }
+    }
+    parts.join(" · ")
+}
+
+#[test]
+fn hover_values_are_those_of_the_compiled_model() {
+    let (dir, record) = session();
+    let text = record["hover_text"].as_str().unwrap();
+    let model = emit_json(dir.path(), text);
+    let hover = &record["hover"];
+    let find = |list: &str, name: &str| -> Value {
+        model[list]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|x| x["name"] == name)
+            .unwrap_or_else(|| panic!("{name} in {list}"))
+            .clone()
+    };
+    let conc = model["units"]["concentration"].as_str().unwrap();
+    // A species: its value as written and in the model's units.
+    let s = hover["S"].as_str().unwrap();
+    assert!(s.starts_with("**species** `S`"), "{s}");
+    assert!(s.contains("as written: `2 mM`"), "{s}");
+    let (value, unit) = number_after(s, "in model units: ");
+    assert_eq!(value, find("species", "S")["initial"].as_f64().unwrap());
+    assert_eq!(unit, conc);
+    // A param: value, unit and dimension.
+    let k1 = hover["k1"].as_str().unwrap();
+    let param = find("params", "k1");
+    let (value, unit) = number_after(k1, "in model units: ");
+    assert_eq!(value, param["value"].as_f64().unwrap());
+    assert_eq!(unit, param["unit"].as_str().unwrap());
+    assert!(
+        k1.contains(&format!("dimension: {}", dimension_words(&param["dimension"]))),
+        "{k1}"
+    );
+    // A step: its rate law, order and the dimensions its constants have.
+    let bind = hover["bind"].as_str().unwrap();
+    let step = find("steps", "bind");
+    assert!(
+        bind.contains(&format!(
+            "rate law (mass action): `{}`",
+            step["rate"].as_str().unwrap()
+        )),
+        "{bind} vs {step}"
+    );
+    let order = |side: &str| -> i64 {
+        step[side]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|t| t["coefficient"].as_i64().unwrap())
+            .sum()
+    };
+    assert!(
+        bind.contains(&format!(
+            "order: {} forward, {} reverse",
+            order("reactants"),
+            order("products")
+        )),
+        "{bind}"
+    );
+    let unit_of = |constant: &str| find("params", constant)["unit"].as_str().unwrap().to_string();
+    assert!(
+        bind.contains(&format!(
+            "forward constant needs {}; reverse constant needs {}",
+            unit_of(step["forward_constant"].as_str().unwrap()),
+            unit_of(step["reverse_constant"].as_str().unwrap())
+        )),
+        "{bind}"
+    );
+    // A total: its sum and its value.
+    let total = find("totals", "E_t");
+    let e_t = hover["E_t"].as_str().unwrap();
+    let sum: Vec<&str> = total["coefficients"]
+        .as_object()
+        .unwrap()
+        .keys()
+        .map(String::as_str)
+        .collect();
+    assert!(e_t.contains(&format!("sum: `{}`", sum.join(" + "))), "{e_t}");
+    let (value, _) = number_after(e_t, "value: ");
+    assert!((value - total["value"].as_f64().unwrap()).abs() < 1e-12, "{e_t}");
+    // Names from the used file say where they come from.
+    for (name, prefix) in [("E", "species E"), ("kcat", "param kcat")] {
+        let h = hover[name].as_str().unwrap();
+        let line = LIB.lines().position(|l| l.starts_with(prefix)).unwrap() + 1;
+        assert!(h.contains(&format!("from `lib.mech`, line {line}")), "{h}");
+    }
+    assert!(hover["A340"].as_str().unwrap().starts_with("**observable**"));
+}
+
+/// Every (line, column) where `name` stands as a word outside strings and
+/// comments.
+fn word_positions(text: &str, name: &str) -> BTreeSet<(usize, usize)> {
+    let mut out = BTreeSet::new();
+    for (l, line) in text.lines().enumerate() {
+        let code = line.split('#').next().unwrap();
+        let mut in_string = false;
+        let chars: Vec<char> = code.chars().collect();
+        let word = |c: char| c.is_alphanumeric() || c == '_';
+        let mut i = 0;
+        while i < chars.len() {
+            if chars[i] == '"' {
+                in_string = !in_string;
+            } else if !in_string
+                && (i == 0 || !word(chars[i - 1]))
+                && chars[i..].starts_with(&name.chars().collect::<Vec<_>>())
+                && chars.get(i + name.chars().count()).is_none_or(|c| !word(*c))
+            {
+                out.insert((l, i));
+            }
+            i += 1;
+        }
+    }
+    out
+}
+
+fn located(locations: &Value, file: &str) -> BTreeSet<(usize, usize)> {
+    locations
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|l| l["uri"].as_str().is_some_and(|u| u.ends_with(file)))
+        .map(|l| {
+            (
+                l["range"]["start"]["line"].as_u64().unwrap() as usize,
+                l["range"]["start"]["character"].as_u64().unwrap() as usize,
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn definition_references_and_rename_reach_the_used_file() {
+    let (dir, record) = session();
+    let text = record["hover_text"].as_str().unwrap();
+    let definition = &record["definition_E"];
+    assert!(definition["uri"].as_str().unwrap().ends_with("/lib.mech"));
+    let lib_e = word_positions(LIB, "E");
+    assert_eq!(
+        BTreeSet::from([(
+            definition["range"]["start"]["line"].as_u64().unwrap() as usize,
+            definition["range"]["start"]["character"].as_u64().unwrap() as usize
+        )]),
+        lib_e
+    );
+    let references = &record["references_E"];
+    assert_eq!(located(references, "/lib.mech"), lib_e);
+    assert_eq!(located(references, "/main.mech"), word_positions(text, "E"));
+
+    // Rename: every `kcat` of both files, each edit naming its version.
+    let changes = record["rename"]["documentChanges"].as_array().unwrap();
+    let mut renamed: BTreeMap<String, String> = BTreeMap::new();
+    for change in changes {
+        let uri = change["textDocument"]["uri"].as_str().unwrap();
+        let (file, original) = if uri.ends_with("/lib.mech") {
+            ("lib.mech", LIB)
+        } else {
+            ("main.mech", text)
+        };
+        let version = change["textDocument"]["version"].as_i64().unwrap();
+        let expected_version = if file == "lib.mech" {
+            1
+        } else {
+            record["snapshots"].as_array().unwrap().last().unwrap()["version"]
+                .as_i64()
+                .unwrap()
+        };
+        assert_eq!(version, expected_version, "{file}");
+        let edits = change["edits"].as_array().unwrap();
+        let at: BTreeSet<(usize, usize)> = edits
+            .iter()
+            .map(|e| {
+                (
+                    e["range"]["start"]["line"].as_u64().unwrap() as usize,
+                    e["range"]["start"]["character"].as_u64().unwrap() as usize,
+                )
+            })
+            .collect();
+        assert_eq!(at, word_positions(original, "kcat"), "{file}");
+        let mut lines: Vec<String> = original.lines().map(str::to_string).collect();
+        for (line, column) in at.iter().rev() {
+            let l = &mut lines[*line];
+            l.replace_range(*column..*column + 4, "k_cat");
+        }
+        renamed.insert(file.to_string(), lines.join("\n") + "\n");
+    }
+    // The renamed pair checks as the original did.
+    let renamed_dir = tempfile::tempdir().unwrap();
+    std::fs::write(renamed_dir.path().join("lib.mech"), &renamed["lib.mech"]).unwrap();
+    let after = check_json(renamed_dir.path(), "main.mech", &renamed["main.mech"]);
+    let before = check_json(dir.path(), "before_rename.mech", text);
+    assert_eq!(after["errors"], before["errors"]);
+    assert_eq!(after["warnings"], before["warnings"]);
+    assert_eq!(record["prepare_rename"]["placeholder"], "kcat");
+    assert_eq!(record["rename_to_taken"]["code"], -32803);
+}
+
+#[test]
+fn completion_offers_names_units_and_keywords_of_the_language() {
+    let (dir, record) = session();
+    let text = record["hover_text"].as_str().unwrap();
+    let model = emit_json(dir.path(), text);
+    let mut declared: BTreeMap<String, &str> = BTreeMap::new();
+    for (list, kind) in [
+        ("species", "species"),
+        ("fixed", "fixed species"),
+        ("params", "param"),
+        ("steps", "step"),
+        ("totals", "total"),
+        ("observables", "observable"),
+    ] {
+        for item in model[list].as_array().unwrap() {
+            declared.insert(item["name"].as_str().unwrap().to_string(), kind);
+        }
+    }
+    let offered: BTreeMap<String, &str> = record["completion_names"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|i| {
+            (
+                i["label"].as_str().unwrap().to_string(),
+                i["detail"].as_str().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(offered, declared);
+    // Every unit offered is one the compiler accepts after a number.
+    let units: Vec<String> = record["completion_units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|i| i["label"].as_str().unwrap().to_string())
+        .collect();
+    assert!(units.len() >= 9);
+    let probe: String = units
+        .iter()
+        .enumerate()
+        .map(|(n, u)| format!("param unit_probe{n} = 1 {u}\n"))
+        .collect();
+    let report = check_json(dir.path(), "units_probe.mech", &probe);
+    assert_eq!(report["errors"], 0, "{report}");
+    // Every keyword offered starts a statement in the grammar.
+    let grammar = std::fs::read_to_string(root().join("grammar/mechanism.pest")).unwrap();
+    for item in record["completion_keywords"].as_array().unwrap() {
+        let word = item["label"].as_str().unwrap();
+        assert!(
+            grammar.contains(&format!("kw_{word} ")),
+            "{word} is not a keyword of the grammar"
+        );
+        assert_eq!(item["kind"], 14);
+    }
+}
+
+#[test]
+fn symbols_and_semantic_tokens_name_every_declaration_by_kind() {
+    let (dir, record) = session();
+    let text = record["tokens_text"].as_str().unwrap();
+    let model = emit_json(dir.path(), text);
+    let local: BTreeSet<String> = ["species", "params", "steps", "totals", "observables"]
+        .iter()
+        .flat_map(|l| model[*l].as_array().unwrap().iter())
+        .map(|i| i["name"].as_str().unwrap().to_string())
+        // The outline is the document's; lib.mech's names are not in it.
+        .filter(|n| word_positions(LIB, n).is_empty())
+        .collect();
+    let symbols = record["symbols"].as_array().unwrap();
+    let children: BTreeSet<String> = symbols
+        .iter()
+        .filter(|g| g["name"] != "mechanism")
+        .flat_map(|g| g["children"].as_array().unwrap().iter())
+        .map(|c| c["name"].as_str().unwrap().to_string())
+        .collect();
+    assert_eq!(children, local);
+
+    // Tokens: in order, one line each, never overlapping; each name
+    // coloured by its kind in the compiled model.
+    let legend: Vec<String> = record["capabilities"]["semanticTokensProvider"]["legend"]["tokenTypes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| t.as_str().unwrap().to_string())
+        .collect();
+    let data: Vec<u64> = record["tokens"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_u64().unwrap())
+        .collect();
+    let lines: Vec<&str> = text.lines().collect();
+    let (mut line, mut column) = (0usize, 0usize);
+    let mut previous_end = (0usize, 0usize);
+    let mut kinds: BTreeMap<String, BTreeSet<String>> = BTreeMap::new();
+    for token in data.chunks(5) {
+        if token[0] > 0 {
+            line += token[0] as usize;
+            column = token[1] as usize;
+        } else {
+            column += token[1] as usize;
+        }
+        assert!((line, column) >= previous_end, "overlap at {line}:{column}");
+        let end = column + token[2] as usize;
+        assert!(end <= lines[line].len());
+        previous_end = (line, end);
+        kinds
+            .entry(lines[line][column..end].to_string())
+            .or_default()
+            .insert(legend[token[3] as usize].clone());
+    }
+    for (list, kind) in [
+        ("species", "variable"),
+        ("params", "parameter"),
+        ("steps", "function"),
+        ("totals", "property"),
+    ] {
+        for item in model[list].as_array().unwrap() {
+            let name = item["name"].as_str().unwrap();
+            assert_eq!(
+                kinds.get(name),
+                Some(&BTreeSet::from([kind.to_string()])),
+                "{name}"
+            );
+        }
+    }
+    assert!(kinds["species"].contains("keyword"));
+    assert!(kinds["/uM/s"].contains("type"));
+}
+
+#[test]
+fn requests_are_answered_against_the_version_they_name() {
+    let (_, record) = session();
+    // A kept earlier version: answered from its text (the hovered position
+    // holds `km1` there, another name now).
+    let old = record["snapshots"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|s| s["version"] == record["old_version"])
+        .unwrap();
+    let old_text = old["text"].as_str().unwrap();
+    let hover = &record["old_version_hover"];
+    assert!(
+        hover["contents"]["value"]
+            .as_str()
+            .unwrap()
+            .starts_with("**param** `km1`")
+    );
+    let line = hover["range"]["start"]["line"].as_u64().unwrap() as usize;
+    assert!(old_text.lines().nth(line).unwrap().starts_with("param km1"));
+    let now = record["hover_text"].as_str().unwrap();
+    assert!(!now.lines().nth(line).unwrap().starts_with("param km1"));
+    // A version no longer held: ContentModified.
+    assert_eq!(record["gone_version"]["code"], -32801);
+    // A change naming an older version was refused, not applied.
+    assert!(
+        record["after_stale_change_hover"]
+            .as_str()
+            .unwrap()
+            .starts_with("**species** `S`")
+    );
+    assert!(
+        record["log"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|m| m.as_str().unwrap().contains("refused"))
+    );
+    assert_eq!(record["exit_code"], 0);
+}
+
+#[test]
+fn formatting_is_the_layout_of_fmt_for_the_whole_and_a_range() {
+    let (dir, record) = session();
+    let before = record["format_before"].as_str().unwrap();
+    let path = dir.path().join("formatted.mech");
+    std::fs::write(&path, before).unwrap();
+    let out = ratewright(&["fmt", path.to_str().unwrap()]);
+    assert!(out.status.success());
+    let by_fmt = std::fs::read_to_string(&path).unwrap();
+    assert_eq!(record["format_whole"].as_str().unwrap(), by_fmt);
+    assert_ne!(before, by_fmt);
+    // A range: its line as fmt lays it out, every other line untouched.
+    let ranged = record["format_range"].as_str().unwrap();
+    let line = record["format_range_line"].as_u64().unwrap() as usize;
+    let fmt_line = by_fmt
+        .lines()
+        .find(|l| l.starts_with("param k1 "))
+        .unwrap();
+    for (n, (r, b)) in ranged.lines().zip(before.lines()).enumerate() {
+        if n == line {
+            assert_eq!(r, fmt_line);
+            assert_ne!(r, b);
+        } else {
+            assert_eq!(r, b, "line {n}");
+        }
+    }
+}
