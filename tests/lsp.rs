@@ -614,3 +614,111 @@ fn formatting_is_the_layout_of_fmt_for_the_whole_and_a_range() {
         }
     }
 }
+
+/// Every `.mech` file under `dir`, sorted.
+fn mech_files(dir: &Path, out: &mut Vec<std::path::PathBuf>) {
+    let mut entries: Vec<_> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .collect();
+    entries.sort();
+    for path in entries {
+        if path.is_dir() {
+            mech_files(&path, out);
+        } else if path.extension().is_some_and(|x| x == "mech") {
+            out.push(path);
+        }
+    }
+}
+
+/// The scopes of each file's lines, from the TextMate engine VS Code uses.
+fn tokenised(files: &[std::path::PathBuf]) -> Value {
+    let modules = root().join("target/npm-textmate");
+    common::ensure_npm_packages(&modules, &["vscode-textmate", "vscode-oniguruma"]);
+    let out = Command::new("node")
+        .arg(root().join("tests/node/tokenise.js"))
+        .arg(root().join("editors/vscode/syntaxes/mech.tmLanguage.json"))
+        .args(files)
+        .env("NODE_PATH", modules.join("node_modules"))
+        .output()
+        .expect("node runs");
+    assert!(
+        out.status.success(),
+        "tokenising failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("the tokeniser prints JSON")
+}
+
+#[test]
+fn the_textmate_grammar_gives_every_character_of_every_model_a_scope() {
+    let mut files = Vec::new();
+    mech_files(&root().join("models"), &mut files);
+    mech_files(&root().join("tests/fixtures"), &mut files);
+    assert!(files.len() >= 15, "{files:?}");
+    let tokens = tokenised(&files);
+    for file in &files {
+        let text = std::fs::read_to_string(file).unwrap();
+        let lines: Vec<&str> = text.split('\n').collect();
+        let per_line = tokens[file.to_str().unwrap()].as_array().unwrap();
+        assert_eq!(per_line.len(), lines.len(), "{}", file.display());
+        for (n, (line, line_tokens)) in lines.iter().zip(per_line).enumerate() {
+            let chars: Vec<char> = line.chars().collect();
+            let mut scoped = vec![false; chars.len()];
+            for t in line_tokens.as_array().unwrap() {
+                // A token with only the file's scope is text the grammar
+                // did not recognise.
+                if t["scopes"].as_array().unwrap().len() < 2 {
+                    continue;
+                }
+                // The engine counts UTF-16 units; the files' non-ASCII
+                // characters are all in the basic plane.
+                let (start, end) = (t["start"].as_u64().unwrap(), t["end"].as_u64().unwrap());
+                for s in scoped.iter_mut().take(end as usize).skip(start as usize) {
+                    *s = true;
+                }
+            }
+            for (c, ok) in chars.iter().zip(&scoped) {
+                assert!(
+                    ok | c.is_whitespace(),
+                    "{}:{}: `{c}` has no scope in `{line}`",
+                    file.display(),
+                    n + 1
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn scopes_of_one_model_as_a_snapshot() {
+    let file = root().join("models/kinase_cycle.mech");
+    let tokens = tokenised(std::slice::from_ref(&file));
+    let text = std::fs::read_to_string(&file).unwrap();
+    let mut shown = String::new();
+    for (n, (line, line_tokens)) in text
+        .split('\n')
+        .zip(tokens[file.to_str().unwrap()].as_array().unwrap())
+        .enumerate()
+    {
+        for t in line_tokens.as_array().unwrap() {
+            let (start, end) = (
+                t["start"].as_u64().unwrap() as usize,
+                t["end"].as_u64().unwrap() as usize,
+            );
+            let piece: String = line.chars().skip(start).take(end - start).collect();
+            if piece.trim().is_empty() {
+                continue;
+            }
+            let scopes: Vec<&str> = t["scopes"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .skip(1)
+                .map(|s| s.as_str().unwrap())
+                .collect();
+            shown.push_str(&format!("{}:{start} {piece:?} {}\n", n + 1, scopes.join(" ")));
+        }
+    }
+    insta::assert_snapshot!("kinase_cycle_scopes", shown);
+}
