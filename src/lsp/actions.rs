@@ -155,7 +155,7 @@ fn reverse_constant(
         })
         .sum();
     let unit = if order.fract() == 0.0 {
-        Dim::mass_action_constant(order as i32).display_in(analysis.units)
+        Dim::mass_action_constant(order as i32).display_in(analysis.units())
     } else {
         String::new()
     };

@@ -120,38 +120,74 @@ impl ParsedFile {
     }
 }
 
-/// A document analysed: the files of its model (the document first) and
-/// the compiler's load of it.
+/// A document analysed: the compiler's load of it and, parsed when a
+/// request first needs them, the files of its model (the document first).
+/// Diagnostics need only the load, so publishing them after a change
+/// never waits for the editor features' parse.
 pub struct Analysis {
-    pub files: Vec<ParsedFile>,
     pub loaded: Loaded,
-    pub units: Units,
+    path: PathBuf,
+    /// The open buffers when the load ran, so the later parse reads the
+    /// same texts.
+    buffers: HashMap<PathBuf, String>,
+    parsed: std::cell::OnceCell<(Vec<ParsedFile>, Units)>,
 }
 
 impl Analysis {
     /// Loads the document at `path` with the open buffers over the disk.
     pub fn new(path: &Path, buffers: &HashMap<PathBuf, String>) -> Analysis {
-        let sources = OpenBuffers { buffers };
-        let loaded = crate::model::load_with(&sources, path);
-        let files = parse_closure(&sources, path);
-        let units = files
-            .first()
-            .map(|f| units_of(&f.tree))
-            .unwrap_or_default();
+        let loaded = crate::model::load_with(&OpenBuffers { buffers }, path);
         Analysis {
-            files,
             loaded,
-            units,
+            path: path.to_path_buf(),
+            buffers: buffers.clone(),
+            parsed: std::cell::OnceCell::new(),
         }
     }
 
+    fn parsed(&self) -> &(Vec<ParsedFile>, Units) {
+        self.parsed.get_or_init(|| {
+            let files = parse_closure(
+                &OpenBuffers {
+                    buffers: &self.buffers,
+                },
+                &self.path,
+            );
+            let units = files
+                .first()
+                .map(|f| units_of(&f.tree))
+                .unwrap_or_default();
+            (files, units)
+        })
+    }
+
+    /// The document's file and every file it `use`s, parsed tolerantly.
+    pub fn files(&self) -> &[ParsedFile] {
+        &self.parsed().0
+    }
+
+    /// The model's units, as the document's `units` line gives them.
+    pub fn units(&self) -> Units {
+        self.parsed().1
+    }
+
+    /// Whether the model reads the file at `path` (as the load read it, or
+    /// as a `use` line of the parsed files names it).
+    pub fn reads(&self, path: &Path) -> bool {
+        self.loaded.sources.files().iter().any(|f| f.path == path)
+            || self
+                .parsed
+                .get()
+                .is_some_and(|(files, _)| files.iter().any(|f| f.path == path))
+    }
+
     pub fn main(&self) -> Option<&ParsedFile> {
-        self.files.first()
+        self.files().first()
     }
 
     /// The declaration of `name` anywhere in the model.
     pub fn declaration(&self, name: &str) -> Option<&Declaration> {
-        self.files
+        self.files()
             .iter()
             .flat_map(|f| &f.declarations)
             .find(|d| d.name == name && d.kind != Kind::Mechanism)
@@ -160,7 +196,7 @@ impl Analysis {
     /// The name under a byte offset of file `file`: a declaration or a
     /// reference.
     pub fn name_at(&self, file: usize, offset: usize) -> Option<(&str, Span)> {
-        let f = self.files.get(file)?;
+        let f = self.files().get(file)?;
         let inside = |s: &Span| s.start <= offset && offset <= s.end;
         f.declarations
             .iter()
@@ -176,7 +212,7 @@ impl Analysis {
         if let Some(d) = self.declaration(name) {
             out.push(d.span);
         }
-        for f in &self.files {
+        for f in self.files() {
             out.extend(
                 f.references
                     .iter()

@@ -89,7 +89,7 @@ pub fn items(analysis: &Analysis, before: &str) -> Vec<CompletionItem> {
         Context::Name => {
             let mut seen = std::collections::HashSet::new();
             analysis
-                .files
+                .files()
                 .iter()
                 .flat_map(|f| &f.declarations)
                 .filter(|d| d.kind != Kind::Mechanism && seen.insert(d.name.clone()))

@@ -48,7 +48,7 @@ pub fn path_to_uri(path: &Path) -> Option<Uri> {
 
 /// The protocol range of a span of file `span.file` of `analysis`.
 pub fn range_of(analysis: &Analysis, span: Span) -> Option<Range> {
-    let file = analysis.files.get(span.file.0 as usize)?;
+    let file = analysis.files().get(span.file.0 as usize)?;
     Some(file.lines.range(&file.text, span.start, span.end))
 }
 
@@ -58,7 +58,7 @@ pub fn location_of(
     span: Span,
     uri_of: &dyn Fn(&Path) -> Option<Uri>,
 ) -> Option<Location> {
-    let file = analysis.files.get(span.file.0 as usize)?;
+    let file = analysis.files().get(span.file.0 as usize)?;
     Some(Location::new(
         uri_of(&file.path)?,
         file.lines.range(&file.text, span.start, span.end),

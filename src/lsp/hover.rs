@@ -21,7 +21,7 @@ pub fn hover_text(analysis: &Analysis, offset: usize) -> Option<(String, crate::
     };
     let mut out = describe(analysis, declaration);
     if declaration.span.file.0 != 0
-        && let Some(file) = analysis.files.get(declaration.span.file.0 as usize)
+        && let Some(file) = analysis.files().get(declaration.span.file.0 as usize)
     {
         let line = file.lines.position(&file.text, declaration.span.start).line + 1;
         out.push_str(&format!(
@@ -45,12 +45,12 @@ fn shown_path(analysis: &Analysis, path: &std::path::Path) -> String {
 }
 
 fn describe(analysis: &Analysis, declaration: &Declaration) -> String {
-    let file = &analysis.files[declaration.span.file.0 as usize];
+    let file = &analysis.files()[declaration.span.file.0 as usize];
     let statements = file.statements();
     let Some(statement) = statements.get(declaration.statement) else {
         return format!("**{}** `{}`", declaration.kind.word(), declaration.name);
     };
-    let units = analysis.units;
+    let units = analysis.units();
     let model = analysis.loaded.model.as_ref();
     let head = format!("**{}** `{}`", declaration.kind.word(), declaration.name);
     let mut lines = vec![head];

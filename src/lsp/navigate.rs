@@ -17,7 +17,7 @@ pub struct PlacedSpan {
 }
 
 pub fn placed(analysis: &Analysis, span: Span) -> Option<PlacedSpan> {
-    let file = analysis.files.get(span.file.0 as usize)?;
+    let file = analysis.files().get(span.file.0 as usize)?;
     Some(PlacedSpan {
         path: file.path.clone(),
         start: span.start,
@@ -36,7 +36,7 @@ pub fn target(analysis: &Analysis, offset: usize) -> Option<(String, Span, Optio
     let (name, at) = analysis.name_at(0, offset)?;
     let declared_in = analysis
         .declaration(name)
-        .and_then(|d| analysis.files.get(d.span.file.0 as usize))
+        .and_then(|d| analysis.files().get(d.span.file.0 as usize))
         .map(|f| f.path.clone());
     Some((name.to_string(), at, declared_in))
 }
@@ -51,7 +51,7 @@ pub fn occurrences_in(
 ) -> Vec<PlacedSpan> {
     let declaring = analysis
         .declaration(name)
-        .and_then(|d| analysis.files.get(d.span.file.0 as usize))
+        .and_then(|d| analysis.files().get(d.span.file.0 as usize))
         .map(|f| f.path.clone());
     if &declaring != declared_in {
         return Vec::new();

@@ -176,7 +176,7 @@ pub fn tokens(analysis: &Analysis) -> Vec<SemanticToken> {
         return Vec::new();
     };
     let kinds: HashMap<&str, Kind> = analysis
-        .files
+        .files()
         .iter()
         .flat_map(|f| &f.declarations)
         .map(|d| (d.name.as_str(), d.kind))

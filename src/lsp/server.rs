@@ -310,7 +310,7 @@ impl Server {
             self.dirty.insert(path.to_path_buf());
         }
         for (doc, analysis) in &self.analyses {
-            if analysis.files.iter().any(|f| f.path == path) {
+            if analysis.reads(path) {
                 self.dirty.insert(doc.clone());
             }
         }
