@@ -16,7 +16,9 @@
 use super::document::LineIndex;
 use crate::diagnostics::{Diagnostic, FileId, Span};
 use crate::model::Loaded;
-use crate::model::source::{Disk, FileIdentity, ReadError, SourceText, Sources, from_text};
+use crate::model::source::{
+    Disk, FileIdentity, ReadError, SourceText, Sources, from_text, normalize,
+};
 use crate::model::units::{ConcUnit, TimeUnit, Units};
 use crate::syntax::{self, AstExpr, ParamValue, RateAst, StatementKind, UnitKey};
 use std::collections::{HashMap, HashSet};
@@ -174,7 +176,11 @@ impl Analysis {
     /// Whether the model reads the file at `path` (as the load read it, or
     /// as a `use` line of the parsed files names it).
     pub fn reads(&self, path: &Path) -> bool {
-        self.loaded.sources.files().iter().any(|f| f.path == path)
+        self.loaded
+            .sources
+            .files()
+            .iter()
+            .any(|f| f.path == path || normalize(&f.path).is_some_and(|p| p == path))
             || self
                 .parsed
                 .get()
@@ -266,7 +272,8 @@ fn parse_closure(sources: &dyn Sources, main: &Path) -> Vec<ParsedFile> {
             if let StatementKind::Use { path: relative, .. } = &statement.kind
                 && let Ok(next) = sources.resolve(&path, relative)
             {
-                pending.push(next);
+                // Named as the editor names it (`a/../b.mech` is `b.mech`).
+                pending.push(normalize(&next).unwrap_or(next));
             }
         }
         files.push(file);

@@ -34,7 +34,9 @@ pub fn uri_to_path(uri: &Uri) -> Option<PathBuf> {
 /// The `file:` URI of an absolute path, with every byte outside the
 /// unreserved set and `/` percent-encoded.
 pub fn path_to_uri(path: &Path) -> Option<Uri> {
-    let text = path.to_str()?;
+    // `use "../x.mech"` joins to `a/../x.mech`: the URI names `x.mech`.
+    let normalized = crate::model::source::normalize(path).unwrap_or_else(|| path.to_path_buf());
+    let text = normalized.to_str()?;
     let mut out = String::from("file://");
     for b in text.bytes() {
         if b.is_ascii_alphanumeric() || b"/-._~".contains(&b) {

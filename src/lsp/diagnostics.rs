@@ -50,7 +50,8 @@ fn locate(
     let index = lines
         .entry(file)
         .or_insert_with(|| LineIndex::new(&source.text));
-    Some((source.path.clone(), index.range(&source.text, start, end)))
+    let path = crate::model::source::normalize(&source.path).unwrap_or_else(|| source.path.clone());
+    Some((path, index.range(&source.text, start, end)))
 }
 
 fn convert(
@@ -71,7 +72,7 @@ fn convert(
                 label.span.end,
             )?;
             Some(DiagnosticRelatedInformation {
-                location: Location::new(path_to_uri(&absolute(&path))?, range),
+                location: Location::new(path_to_uri(&path)?, range),
                 message: label.message.clone(),
             })
         })
@@ -98,15 +99,5 @@ fn convert(
             "message": d.message,
             "help": d.help,
         })),
-    }
-}
-
-fn absolute(path: &Path) -> PathBuf {
-    if path.is_absolute() {
-        path.to_path_buf()
-    } else {
-        std::env::current_dir()
-            .map(|d| d.join(path))
-            .unwrap_or_else(|_| path.to_path_buf())
     }
 }

@@ -20,7 +20,9 @@
 //!   `check`, converted only in position (bytes → UTF-16 line and column);
 //! - nothing here panics on any text; a handler that would is caught, its
 //!   request answered with an error, and the server goes on;
-//! - nothing is written to standard output but protocol messages.
+//! - nothing is written to standard output but protocol messages: with
+//!   `cli`, this is the one stage that talks to the outside, and it does so
+//!   only through the connection it is given at the start.
 
 mod actions;
 mod analysis;
