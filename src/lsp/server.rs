@@ -6,7 +6,7 @@ use super::analysis::Analysis;
 use super::convert::{path_to_uri, uri_to_path};
 use super::document::Document;
 use super::{diagnostics, outline};
-use crossbeam_channel::{Receiver, Sender, TryRecvError};
+use crossbeam_channel::{Receiver, RecvTimeoutError, Sender};
 use lsp_server::{Connection, ErrorCode, Message, Notification, Request, RequestId, Response};
 use lsp_types::notification::{
     Cancel, DidChangeTextDocument, DidCloseTextDocument, DidOpenTextDocument, Notification as _,
@@ -22,6 +22,9 @@ use lsp_types::{
 };
 use std::collections::{BTreeMap, BTreeSet, HashMap, VecDeque};
 use std::path::{Path, PathBuf};
+
+/// How long a change waits for the next one before it is analysed.
+const BURST_WAIT: std::time::Duration = std::time::Duration::from_millis(2);
 
 /// Runs the server on standard input and output until the client's
 /// `exit`. Returns whether the exit followed a `shutdown` (the protocol's
@@ -143,13 +146,21 @@ impl Server {
         if let Some(m) = self.queue.pop_front() {
             return Some(m);
         }
-        match self.receiver.try_recv() {
+        // The reader thread hands over one message at a time, so the next
+        // change of a burst may be a moment from being handed over: a short
+        // wait before analysing lets a burst be analysed once, at its end.
+        let wait = if self.dirty.is_empty() {
+            std::time::Duration::ZERO
+        } else {
+            BURST_WAIT
+        };
+        match self.receiver.recv_timeout(wait) {
             Ok(m) => Some(m),
-            Err(TryRecvError::Empty) => {
+            Err(RecvTimeoutError::Timeout) => {
                 self.refresh();
                 self.receiver.recv().ok()
             }
-            Err(TryRecvError::Disconnected) => None,
+            Err(RecvTimeoutError::Disconnected) => None,
         }
     }
 
