@@ -119,7 +119,11 @@ fn diagnostics_are_those_of_check_for_every_text_the_server_saw() {
             .collect();
         let got = snapshot["diagnostics"].as_array().unwrap();
         let label = snapshot["label"].as_str().unwrap();
-        assert_eq!(got.len(), expected.len(), "{label}: {got:?} vs {expected:?}");
+        assert_eq!(
+            got.len(),
+            expected.len(),
+            "{label}: {got:?} vs {expected:?}"
+        );
         for (g, e) in got.iter().zip(&expected) {
             codes_seen.insert(e["code"].as_str().unwrap().to_string());
             assert_eq!(g["code"], e["code"], "{label}");
@@ -146,7 +150,10 @@ fn diagnostics_are_those_of_check_for_every_text_the_server_saw() {
                 assert!(uri.ends_with(&format!("/{file}")), "{uri} vs {file}");
                 let range = &r["location"]["range"];
                 assert_eq!(range["start"]["line"], l["line"].as_u64().unwrap() - 1);
-                assert_eq!(range["start"]["character"], l["column"].as_u64().unwrap() - 1);
+                assert_eq!(
+                    range["start"]["character"],
+                    l["column"].as_u64().unwrap() - 1
+                );
                 assert_eq!(range["end"]["line"], l["end_line"].as_u64().unwrap() - 1);
                 assert_eq!(
                     range["end"]["character"],
@@ -183,16 +190,17 @@ fn half_typed_text_never_breaks_a_request() {
         assert!(state["tokens"].as_u64().unwrap() > 0);
         // Hover on a species keeps working while another line is broken.
         assert!(
-            state["hover"]
-                .as_str()
-                .is_some_and(|h| h.contains("`S`")),
+            state["hover"].as_str().is_some_and(|h| h.contains("`S`")),
             "{state}"
         );
     }
     // Once the step names `kcat`, go-to lands in lib.mech on its declaration.
     let last = &states.last().unwrap()["definition"];
     assert!(last["uri"].as_str().unwrap().ends_with("/lib.mech"));
-    let line = LIB.lines().position(|l| l.starts_with("param kcat")).unwrap();
+    let line = LIB
+        .lines()
+        .position(|l| l.starts_with("param kcat"))
+        .unwrap();
     assert_eq!(last["range"]["start"]["line"], line);
 }
 
@@ -248,7 +256,10 @@ fn hover_values_are_those_of_the_compiled_model() {
     assert_eq!(value, param["value"].as_f64().unwrap());
     assert_eq!(unit, param["unit"].as_str().unwrap());
     assert!(
-        k1.contains(&format!("dimension: {}", dimension_words(&param["dimension"]))),
+        k1.contains(&format!(
+            "dimension: {}",
+            dimension_words(&param["dimension"])
+        )),
         "{k1}"
     );
     // A step: its rate law, order and the dimensions its constants have.
@@ -277,7 +288,12 @@ fn hover_values_are_those_of_the_compiled_model() {
         )),
         "{bind}"
     );
-    let unit_of = |constant: &str| find("params", constant)["unit"].as_str().unwrap().to_string();
+    let unit_of = |constant: &str| {
+        find("params", constant)["unit"]
+            .as_str()
+            .unwrap()
+            .to_string()
+    };
     assert!(
         bind.contains(&format!(
             "forward constant needs {}; reverse constant needs {}",
@@ -295,16 +311,27 @@ fn hover_values_are_those_of_the_compiled_model() {
         .keys()
         .map(String::as_str)
         .collect();
-    assert!(e_t.contains(&format!("sum: `{}`", sum.join(" + "))), "{e_t}");
+    assert!(
+        e_t.contains(&format!("sum: `{}`", sum.join(" + "))),
+        "{e_t}"
+    );
     let (value, _) = number_after(e_t, "value: ");
-    assert!((value - total["value"].as_f64().unwrap()).abs() < 1e-12, "{e_t}");
+    assert!(
+        (value - total["value"].as_f64().unwrap()).abs() < 1e-12,
+        "{e_t}"
+    );
     // Names from the used file say where they come from.
     for (name, prefix) in [("E", "species E"), ("kcat", "param kcat")] {
         let h = hover[name].as_str().unwrap();
         let line = LIB.lines().position(|l| l.starts_with(prefix)).unwrap() + 1;
         assert!(h.contains(&format!("from `lib.mech`, line {line}")), "{h}");
     }
-    assert!(hover["A340"].as_str().unwrap().starts_with("**observable**"));
+    assert!(
+        hover["A340"]
+            .as_str()
+            .unwrap()
+            .starts_with("**observable**")
+    );
 }
 
 /// Every (line, column) where `name` stands as a word outside strings and
@@ -323,7 +350,9 @@ fn word_positions(text: &str, name: &str) -> BTreeSet<(usize, usize)> {
             } else if !in_string
                 && (i == 0 || !word(chars[i - 1]))
                 && chars[i..].starts_with(&name.chars().collect::<Vec<_>>())
-                && chars.get(i + name.chars().count()).is_none_or(|c| !word(*c))
+                && chars
+                    .get(i + name.chars().count())
+                    .is_none_or(|c| !word(*c))
             {
                 out.insert((l, i));
             }
@@ -494,12 +523,13 @@ fn symbols_and_semantic_tokens_name_every_declaration_by_kind() {
 
     // Tokens: in order, one line each, never overlapping; each name
     // coloured by its kind in the compiled model.
-    let legend: Vec<String> = record["capabilities"]["semanticTokensProvider"]["legend"]["tokenTypes"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|t| t.as_str().unwrap().to_string())
-        .collect();
+    let legend: Vec<String> =
+        record["capabilities"]["semanticTokensProvider"]["legend"]["tokenTypes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|t| t.as_str().unwrap().to_string())
+            .collect();
     let data: Vec<u64> = record["tokens"]
         .as_array()
         .unwrap()
@@ -601,10 +631,7 @@ fn formatting_is_the_layout_of_fmt_for_the_whole_and_a_range() {
     // A range: its line as fmt lays it out, every other line untouched.
     let ranged = record["format_range"].as_str().unwrap();
     let line = record["format_range_line"].as_u64().unwrap() as usize;
-    let fmt_line = by_fmt
-        .lines()
-        .find(|l| l.starts_with("param k1 "))
-        .unwrap();
+    let fmt_line = by_fmt.lines().find(|l| l.starts_with("param k1 ")).unwrap();
     for (n, (r, b)) in ranged.lines().zip(before.lines()).enumerate() {
         if n == line {
             assert_eq!(r, fmt_line);
@@ -717,7 +744,11 @@ fn scopes_of_one_model_as_a_snapshot() {
                 .skip(1)
                 .map(|s| s.as_str().unwrap())
                 .collect();
-            shown.push_str(&format!("{}:{start} {piece:?} {}\n", n + 1, scopes.join(" ")));
+            shown.push_str(&format!(
+                "{}:{start} {piece:?} {}\n",
+                n + 1,
+                scopes.join(" ")
+            ));
         }
     }
     insta::assert_snapshot!("kinase_cycle_scopes", shown);

@@ -134,7 +134,9 @@ fn reverse_constant(
     };
     let forward = constants.first()?;
     let forward_text = file.text.get(forward.span().start..forward.span().end)?;
-    let plain = forward_text.chars().all(|c| c.is_alphanumeric() || c == '_');
+    let plain = forward_text
+        .chars()
+        .all(|c| c.is_alphanumeric() || c == '_');
     let stem = if plain {
         format!("{forward_text}_rev")
     } else {

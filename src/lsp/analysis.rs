@@ -155,10 +155,7 @@ impl Analysis {
                 },
                 &self.path,
             );
-            let units = files
-                .first()
-                .map(|f| units_of(&f.tree))
-                .unwrap_or_default();
+            let units = files.first().map(|f| units_of(&f.tree)).unwrap_or_default();
             (files, units)
         })
     }

@@ -8,8 +8,19 @@ use lsp_types::{CompletionItem, CompletionItemKind};
 
 /// The words that start a statement.
 pub const KEYWORDS: [&str; 13] = [
-    "mechanism", "units", "species", "fixed", "param", "step", "total", "observe", "assume",
-    "add", "remove", "set", "use",
+    "mechanism",
+    "units",
+    "species",
+    "fixed",
+    "param",
+    "step",
+    "total",
+    "observe",
+    "assume",
+    "add",
+    "remove",
+    "set",
+    "use",
 ];
 
 /// Unit words a number may take: concentrations, times, and the usual
@@ -43,9 +54,8 @@ fn context(before: &str) -> Context {
     let previous = before[..word_start].split_whitespace().next_back();
     let after_number = previous.is_some_and(|p| p.parse::<f64>().is_ok());
     // A number in a step's sides is a coefficient: a species follows.
-    let in_step_sides = trimmed.starts_with("step ")
-        && !trimmed.contains(" with ")
-        && !trimmed.contains(" law ");
+    let in_step_sides =
+        trimmed.starts_with("step ") && !trimmed.contains(" with ") && !trimmed.contains(" law ");
     if after_number && !in_step_sides {
         Context::Unit
     } else {

@@ -56,7 +56,10 @@ impl LineIndex {
     /// The protocol position of a byte offset.
     pub fn position(&self, text: &str, offset: usize) -> Position {
         let offset = floor_boundary(text, offset);
-        let line = self.starts.partition_point(|&s| s <= offset).saturating_sub(1);
+        let line = self
+            .starts
+            .partition_point(|&s| s <= offset)
+            .saturating_sub(1);
         let start = self.starts[line];
         let character: usize = text[start..offset].chars().map(char::len_utf16).sum();
         Position::new(line as u32, character as u32)

@@ -32,10 +32,7 @@ pub fn whole(text: &str, lines: &LineIndex) -> Result<Vec<TextEdit>, &'static st
     if out == text[bom..] {
         return Ok(Vec::new());
     }
-    Ok(vec![TextEdit::new(
-        lines.range(text, bom, text.len()),
-        out,
-    )])
+    Ok(vec![TextEdit::new(lines.range(text, bom, text.len()), out)])
 }
 
 fn key(line: &str) -> String {
@@ -61,7 +58,8 @@ pub fn range(text: &str, lines: &LineIndex, range: Range) -> Result<Vec<TextEdit
     let first = range.start.line as usize;
     let last = range.end.line as usize;
     let in_range = |l: usize| l >= first && l <= last;
-    let line_range = |l: usize| Range::new(Position::new(l as u32, 0), Position::new(l as u32 + 1, 0));
+    let line_range =
+        |l: usize| Range::new(Position::new(l as u32, 0), Position::new(l as u32 + 1, 0));
     let mut edits = Vec::new();
     let (mut i, mut j) = (0usize, 0usize);
     while i < original.len() || j < target.len() {

@@ -4,14 +4,17 @@
 //! constants need; for a total its sum and value; for a name from a
 //! `use`d file, the file it comes from.
 
-use super::analysis::{Analysis, Declaration, Kind};
+use super::analysis::{Analysis, Declaration};
 use crate::model::units::{Dim, Units, parse_quantity};
 use crate::model::{Model, Sym};
 use crate::syntax::format::{expr, quantity};
 use crate::syntax::{ParamValue, Quantity, RateAst, Side, SpeciesDecl, StatementKind, StepTerm};
 
 /// The hover text (Markdown) for the name at `offset` of the document.
-pub fn hover_text(analysis: &Analysis, offset: usize) -> Option<(String, crate::diagnostics::Span)> {
+pub fn hover_text(
+    analysis: &Analysis,
+    offset: usize,
+) -> Option<(String, crate::diagnostics::Span)> {
     let (name, at) = analysis.name_at(0, offset)?;
     let Some(declaration) = analysis.declaration(name) else {
         return Some((
@@ -133,7 +136,6 @@ fn describe(analysis: &Analysis, declaration: &Declaration) -> String {
         | StatementKind::Set { .. }
         | StatementKind::Use { .. } => {}
     }
-    debug_assert!(declaration.kind != Kind::Mechanism || lines.len() >= 1);
     lines.join("\n\n")
 }
 
@@ -164,7 +166,10 @@ fn species_lines(
     }
     lines.push(format!(
         "dimension: {}",
-        dimension_words(Dim::CONC).replace("concentration", &format!("concentration ({})", units.concentration.symbol()))
+        dimension_words(Dim::CONC).replace(
+            "concentration",
+            &format!("concentration ({})", units.concentration.symbol())
+        )
     ));
     description_line(lines, &s.description);
 }
@@ -215,7 +220,10 @@ fn step_lines(
                 order_line.push_str(&format!(", {} reverse", number(reverse_order)));
             }
             lines.push(order_line);
-            let mut needs = format!("forward constant needs {}", constant_dim(forward_order, units));
+            let mut needs = format!(
+                "forward constant needs {}",
+                constant_dim(forward_order, units)
+            );
             if reversible {
                 needs.push_str(&format!(
                     "; reverse constant needs {}",
@@ -226,10 +234,7 @@ fn step_lines(
         }
         RateAst::Law(e) => {
             lines.push(format!("rate law: `{}`", expr(e)));
-            lines.push(format!(
-                "a rate: needs {}",
-                Dim::RATE.display_in(units)
-            ));
+            lines.push(format!("a rate: needs {}", Dim::RATE.display_in(units)));
         }
     }
 }

@@ -66,11 +66,11 @@ pub fn occurrences_in(
 /// Why a new name cannot be used, or `None` when it can.
 pub fn refuse_new_name(analysis: &Analysis, new_name: &str) -> Option<String> {
     let mut chars = new_name.chars();
-    let starts_well = chars
-        .next()
-        .is_some_and(|c| c == '_' || unicode_start(c));
+    let starts_well = chars.next().is_some_and(|c| c == '_' || unicode_start(c));
     if !starts_well || !new_name.chars().skip(1).all(unicode_continue) {
-        return Some(format!("`{new_name}` is not a name: a name is a letter or `_` followed by letters, digits or `_`"));
+        return Some(format!(
+            "`{new_name}` is not a name: a name is a letter or `_` followed by letters, digits or `_`"
+        ));
     }
     if matches!(new_name, "t" | "pi" | "with" | "law") {
         return Some(format!("`{new_name}` is reserved"));

@@ -222,7 +222,9 @@ pub fn tokens(analysis: &Analysis) -> Vec<SemanticToken> {
                 .map_or(text.len(), |(e, _)| i + e);
             let unit_end = rest
                 .char_indices()
-                .find(|(_, c)| !(c.is_alphanumeric() || matches!(c, '_' | '/' | '*' | '^' | '-' | '·')))
+                .find(|(_, c)| {
+                    !(c.is_alphanumeric() || matches!(c, '_' | '/' | '*' | '^' | '-' | '·'))
+                })
                 .map_or(text.len(), |(e, _)| i + e);
             let word = &text[i..word_end];
             if let Some(kind) = kinds.get(word).filter(|_| c != '/') {
@@ -238,7 +240,9 @@ pub fn tokens(analysis: &Analysis) -> Vec<SemanticToken> {
             } else if WORDS.contains(&word) {
                 found.push((i, word_end, Token::Keyword, 0));
                 i = word_end;
-            } else if Func::from_name(word).is_some() && text[word_end..].trim_start().starts_with('(') {
+            } else if Func::from_name(word).is_some()
+                && text[word_end..].trim_start().starts_with('(')
+            {
                 found.push((i, word_end, Token::Function, 0));
                 i = word_end;
             } else {
@@ -288,7 +292,10 @@ fn number_length(text: &str) -> usize {
 }
 
 /// Relative encoding of the protocol, in UTF-16 units.
-fn encode(file: &super::analysis::ParsedFile, found: &[(usize, usize, Token, u32)]) -> Vec<SemanticToken> {
+fn encode(
+    file: &super::analysis::ParsedFile,
+    found: &[(usize, usize, Token, u32)],
+) -> Vec<SemanticToken> {
     let mut out = Vec::with_capacity(found.len());
     let (mut line, mut character) = (0u32, 0u32);
     for &(start, end, token, modifiers) in found {

@@ -146,8 +146,8 @@ pub fn handle(server: &Server, request: &Request) -> Result<Value, Failure> {
             let p: ReferenceParams = parse(request)?;
             let at = offset(analysis, p.text_document_position.position);
             let found = everywhere(server, &view, at);
-            let declaration = navigate::definition(analysis, at)
-                .and_then(|s| navigate::placed(analysis, s));
+            let declaration =
+                navigate::definition(analysis, at).and_then(|s| navigate::placed(analysis, s));
             let locations: Vec<Location> = found
                 .into_iter()
                 .filter(|s| {
@@ -178,7 +178,10 @@ pub fn handle(server: &Server, request: &Request) -> Result<Value, Failure> {
             let p: RenameParams = parse(request)?;
             let at = offset(analysis, p.text_document_position.position);
             let Some((name, _, _)) = navigate::target(analysis, at) else {
-                return Err((ErrorCode::RequestFailed, "no name here to rename".to_string()));
+                return Err((
+                    ErrorCode::RequestFailed,
+                    "no name here to rename".to_string(),
+                ));
             };
             if analysis.declaration(&name).is_none() {
                 return Err((
@@ -209,7 +212,9 @@ pub fn handle(server: &Server, request: &Request) -> Result<Value, Failure> {
                     line.get(..at.min(line.len())).unwrap_or("").to_string()
                 })
                 .unwrap_or_default();
-            json(CompletionResponse::Array(completion::items(analysis, &before)))
+            json(CompletionResponse::Array(completion::items(
+                analysis, &before,
+            )))
         }
         "textDocument/formatting" => {
             let _: DocumentFormattingParams = parse(request)?;
@@ -320,7 +325,9 @@ fn code_actions(server: &Server, view: &View, p: &CodeActionParams) -> Result<Va
             let edits: Vec<TextEdit> = fix
                 .edits
                 .iter()
-                .map(|(s, e, text)| TextEdit::new(file.lines.range(&file.text, *s, *e), text.clone()))
+                .map(|(s, e, text)| {
+                    TextEdit::new(file.lines.range(&file.text, *s, *e), text.clone())
+                })
                 .collect();
             let mut by_file = BTreeMap::new();
             by_file.insert(view.path.clone(), edits);

@@ -241,8 +241,7 @@ impl Server {
                     }
                 }
                 DidChangeTextDocument::METHOD => {
-                    if let Ok(p) = serde_json::from_value::<DidChangeTextDocumentParams>(n.params)
-                    {
+                    if let Ok(p) = serde_json::from_value::<DidChangeTextDocumentParams>(n.params) {
                         self.did_change(p);
                     }
                 }
@@ -257,7 +256,9 @@ impl Server {
             }
         }));
         if outcome.is_err() {
-            self.log("internal error while handling a notification; the document may be out of date");
+            self.log(
+                "internal error while handling a notification; the document may be out of date",
+            );
         }
     }
 
@@ -375,7 +376,10 @@ impl Server {
             diagnostics,
             version,
         };
-        self.send(Notification::new(PublishDiagnostics::METHOD.to_string(), params));
+        self.send(Notification::new(
+            PublishDiagnostics::METHOD.to_string(),
+            params,
+        ));
     }
 
     /// The URI of a file: the client's own for an open buffer.

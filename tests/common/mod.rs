@@ -271,9 +271,13 @@ pub fn ensure_npm_packages(folder: &Path, packages: &[&str]) {
     static NODE_READY: OnceLock<Result<(), String>> = OnceLock::new();
     ensure_tool(&NODE_READY, "npm", &["--version"], &["nodejs", "npm"]);
     let installed = || {
-        packages
-            .iter()
-            .all(|p| folder.join("node_modules").join(p).join("package.json").exists())
+        packages.iter().all(|p| {
+            folder
+                .join("node_modules")
+                .join(p)
+                .join("package.json")
+                .exists()
+        })
     };
     if installed() {
         return;
