@@ -204,6 +204,19 @@ fn half_typed_text_never_breaks_a_request() {
     assert_eq!(last["range"]["start"]["line"], line);
 }
 
+#[test]
+fn mangled_models_get_an_answer_to_every_request() {
+    let (_, record) = session();
+    let mangled = &record["mangled"];
+    assert!(mangled["files"].as_u64().unwrap() >= 15, "{mangled}");
+    // Ten mangled texts per file, eleven requests each.
+    assert_eq!(
+        mangled["answered"].as_u64().unwrap(),
+        mangled["files"].as_u64().unwrap() * 10 * 11
+    );
+    assert_eq!(mangled["internal_errors"], serde_json::json!([]));
+}
+
 fn number_after<'a>(text: &'a str, marker: &str) -> (f64, &'a str) {
     let at = text
         .find(marker)

@@ -171,6 +171,100 @@ class Session:
         await self.change([(e.range, e.new_text) for e in sorted(edit.edits, key=lambda e: (e.range.start.line, e.range.start.character), reverse=True)])
 
 
+REQUESTS = [
+    "textDocument/hover",
+    "textDocument/definition",
+    "textDocument/references",
+    "textDocument/completion",
+    "textDocument/documentSymbol",
+    "textDocument/semanticTokens/full",
+    "textDocument/formatting",
+    "textDocument/rangeFormatting",
+    "textDocument/codeAction",
+    "textDocument/prepareRename",
+    "textDocument/rename",
+]
+
+STRAYS = ["(", ")", "<=>", "->", '"', "#", "µ", "𝄞", "\r", "\t", "=", ",", "^-", "1e", "/", "law", "with",
+          ' use "missing.mech"\n', "(((", "species", "\u00a0", "∅"]
+
+
+async def mangled_models(c):
+    import random
+
+    rng = random.Random(20)
+    root = Path(__file__).resolve().parent.parent.parent
+    files = sorted(root.glob("models/*.mech")) + sorted(root.glob("tests/fixtures/**/*.mech"))
+    answered, internal = 0, []
+    for n, path in enumerate(files):
+        text = path.read_text()
+        uri = (Path(tempfile_dir()) / f"mangled_{n}.mech").as_uri()
+        c.text_document_did_open(
+            types.DidOpenTextDocumentParams(
+                text_document=types.TextDocumentItem(uri=uri, language_id="mech", version=1, text=text)
+            )
+        )
+        for version in range(2, 12):
+            a = rng.randrange(len(text) + 1)
+            b = rng.randrange(a, len(text) + 1)
+            t = [
+                lambda: text[:a],
+                lambda: text[:a] + text[b:],
+                lambda: text[:a] + rng.choice(STRAYS) + text[a:],
+                lambda: "".join(ch for ch in text if rng.random() > 0.05),
+            ][rng.randrange(4)]()
+            c.text_document_did_change(
+                types.DidChangeTextDocumentParams(
+                    text_document=types.VersionedTextDocumentIdentifier(uri=uri, version=version),
+                    content_changes=[types.TextDocumentContentChangeWholeDocument(text=t)],
+                )
+            )
+            lines = t.split("\n")
+            for method in REQUESTS:
+                position = {"line": rng.randrange(len(lines) + 1), "character": rng.randrange(40)}
+                doc = {"uri": uri}
+                params = {"textDocument": doc, "position": position}
+                if method == "textDocument/references":
+                    params["context"] = {"includeDeclaration": True}
+                elif method == "textDocument/rename":
+                    params["newName"] = "renamed_name"
+                elif method in ("textDocument/documentSymbol", "textDocument/semanticTokens/full"):
+                    params = {"textDocument": doc}
+                elif method == "textDocument/formatting":
+                    params = {"textDocument": doc, "options": {"tabSize": 2, "insertSpaces": True}}
+                elif method == "textDocument/rangeFormatting":
+                    end = {"line": position["line"] + 2, "character": 0}
+                    params = {"textDocument": doc, "range": {"start": position, "end": end},
+                              "options": {"tabSize": 2, "insertSpaces": True}}
+                elif method == "textDocument/codeAction":
+                    everything = {"start": {"line": 0, "character": 0}, "end": {"line": len(lines), "character": 0}}
+                    params = {"textDocument": doc, "range": everything, "context": {"diagnostics": []}}
+                try:
+                    await raw_request(c.protocol, method, params)
+                    answered += 1
+                except JsonRpcException as e:
+                    # Refusals (a text that does not parse cannot be
+                    # formatted, nothing to rename) are answers too.
+                    answered += 1
+                    if e.code == -32603:
+                        internal.append({"file": path.name, "method": method, "message": str(e), "text": t})
+        c.text_document_did_close(types.DidCloseTextDocumentParams(text_document=types.TextDocumentIdentifier(uri=uri)))
+    return {"files": len(files), "answered": answered, "internal_errors": internal}
+
+
+_TEMP = None
+
+
+def tempfile_dir():
+    """A folder for the mangled documents' names (nothing is written)."""
+    global _TEMP
+    if _TEMP is None:
+        import tempfile
+
+        _TEMP = tempfile.mkdtemp()
+    return _TEMP
+
+
 async def run(binary, folder):
     s = Session(binary, folder)
     c = s.client
@@ -369,6 +463,11 @@ async def run(binary, folder):
     )
     s.record["format_range_line"] = k1
     s.record["format_range"] = apply_edits(s.text, edits or [])
+
+    # Every model and fixture, mangled (cut short, a span deleted, a stray
+    # token inserted, characters dropped), with every request at random
+    # places: each must be answered, none with an internal error.
+    s.record["mangled"] = await mangled_models(c)
 
     await c.shutdown_async(None)
     c.exit(None)
