@@ -766,3 +766,61 @@ fn scopes_of_one_model_as_a_snapshot() {
     }
     insta::assert_snapshot!("kinase_cycle_scopes", shown);
 }
+
+/// `ratewright lsp` with `input` on standard input: (exit code, stderr).
+fn lsp_with_input(input: &[u8]) -> (Option<i32>, String) {
+    use std::io::Write;
+    let mut child = Command::new(bin())
+        .arg("lsp")
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("the binary starts");
+    child.stdin.take().unwrap().write_all(input).unwrap();
+    let out = child.wait_with_output().unwrap();
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+fn framed(messages: &[Value]) -> Vec<u8> {
+    let mut out = Vec::new();
+    for m in messages {
+        let body = m.to_string();
+        out.extend(format!("Content-Length: {}\r\n\r\n{body}", body.len()).into_bytes());
+    }
+    out
+}
+
+#[test]
+fn a_broken_or_ended_connection_is_a_clear_error_and_exit_status_1() {
+    let (code, stderr) = lsp_with_input(b"");
+    assert_eq!(code, Some(1));
+    assert!(
+        stderr.contains("the input ended before the client's `initialize`"),
+        "{stderr}"
+    );
+    let (code, stderr) = lsp_with_input(b"not a header\r\n\r\n");
+    assert_eq!(code, Some(1));
+    assert!(
+        stderr.contains("not Language Server Protocol messages"),
+        "{stderr}"
+    );
+    // The protocol's exit status: 0 after shutdown, 1 for an exit without.
+    let initialize = serde_json::json!({"jsonrpc": "2.0", "id": 1, "method": "initialize",
+        "params": {"processId": null, "rootUri": null, "capabilities": {}}});
+    let initialized = serde_json::json!({"jsonrpc": "2.0", "method": "initialized", "params": {}});
+    let shutdown = serde_json::json!({"jsonrpc": "2.0", "id": 2, "method": "shutdown"});
+    let exit = serde_json::json!({"jsonrpc": "2.0", "method": "exit"});
+    let (code, _) = lsp_with_input(&framed(&[
+        initialize.clone(),
+        initialized.clone(),
+        shutdown,
+        exit.clone(),
+    ]));
+    assert_eq!(code, Some(0));
+    let (code, _) = lsp_with_input(&framed(&[initialize, initialized, exit]));
+    assert_eq!(code, Some(1));
+}

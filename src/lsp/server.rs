@@ -31,10 +31,26 @@ const BURST_WAIT: std::time::Duration = std::time::Duration::from_millis(2);
 /// exit status 0) or the reason the connection failed.
 pub fn run() -> Result<bool, String> {
     let (connection, io_threads) = Connection::stdio();
-    let orderly = serve(&connection)?;
-    drop(connection);
-    io_threads.join().map_err(|e| e.to_string())?;
-    Ok(orderly)
+    match serve(&connection) {
+        Ok(orderly) => {
+            drop(connection);
+            io_threads.join().map_err(|e| e.to_string())?;
+            Ok(orderly)
+        }
+        // The reader stopped: the input ended or was not the protocol; its
+        // own error says which.
+        Err(e) if e.channel_is_disconnected() => {
+            drop(connection);
+            match io_threads.join() {
+                Ok(()) => Err("the input ended before the client's `initialize`".to_string()),
+                Err(io) => Err(format!(
+                    "the input is not Language Server Protocol messages: {io}"
+                )),
+            }
+        }
+        // The reader may still be waiting on standard input: not joined.
+        Err(e) => Err(e.to_string()),
+    }
 }
 
 /// What the server tells the client it can do.
@@ -78,15 +94,13 @@ fn capabilities() -> ServerCapabilities {
     }
 }
 
-fn serve(connection: &Connection) -> Result<bool, String> {
-    let (id, _params) = connection.initialize_start().map_err(|e| e.to_string())?;
+fn serve(connection: &Connection) -> Result<bool, lsp_server::ProtocolError> {
+    let (id, _params) = connection.initialize_start()?;
     let result = serde_json::json!({
         "capabilities": capabilities(),
         "serverInfo": { "name": "ratewright", "version": env!("CARGO_PKG_VERSION") },
     });
-    connection
-        .initialize_finish(id, result)
-        .map_err(|e| e.to_string())?;
+    connection.initialize_finish(id, result)?;
     let mut server = Server::new(connection.sender.clone(), connection.receiver.clone());
     Ok(server.main_loop())
 }
