@@ -38,6 +38,14 @@ total E_t = E + ES
 observe A340 = 0.00622 * P
 ";
 
+/// A model that is never opened, sharing lib.mech: references and rename
+/// must reach it too.
+const OTHER: &str = "# Another mechanism on the same parts
+use \"lib.mech\"
+species F
+step slow E -> F with kcat
+";
+
 /// Runs the client session once per test binary; its record is shared.
 fn session() -> &'static (tempfile::TempDir, Value) {
     static SESSION: std::sync::OnceLock<(tempfile::TempDir, Value)> = std::sync::OnceLock::new();
@@ -46,6 +54,7 @@ fn session() -> &'static (tempfile::TempDir, Value) {
         let dir = tempfile::tempdir().expect("a temporary folder");
         std::fs::write(dir.path().join("lib.mech"), LIB).unwrap();
         std::fs::write(dir.path().join("main.mech"), MAIN).unwrap();
+        std::fs::write(dir.path().join("other.mech"), OTHER).unwrap();
         let out = Command::new("python3")
             .arg(root().join("tests/python/lsp_client.py"))
             .arg(bin())
@@ -407,6 +416,10 @@ fn definition_references_and_rename_reach_the_used_file() {
     let references = &record["references_E"];
     assert_eq!(located(references, "/lib.mech"), lib_e);
     assert_eq!(located(references, "/main.mech"), word_positions(text, "E"));
+    assert_eq!(
+        located(references, "/other.mech"),
+        word_positions(OTHER, "E")
+    );
 
     // Rename: every `kcat` of both files, each edit naming its version.
     let changes = record["rename"]["documentChanges"].as_array().unwrap();
@@ -415,16 +428,17 @@ fn definition_references_and_rename_reach_the_used_file() {
         let uri = change["textDocument"]["uri"].as_str().unwrap();
         let (file, original) = if uri.ends_with("/lib.mech") {
             ("lib.mech", LIB)
+        } else if uri.ends_with("/other.mech") {
+            ("other.mech", OTHER)
         } else {
             ("main.mech", text)
         };
-        let version = change["textDocument"]["version"].as_i64().unwrap();
-        let expected_version = if file == "lib.mech" {
-            1
-        } else {
-            record["snapshots"].as_array().unwrap().last().unwrap()["version"]
-                .as_i64()
-                .unwrap()
+        // The open documents' versions; none for a file only on disk.
+        let version = change["textDocument"]["version"].as_i64();
+        let expected_version = match file {
+            "lib.mech" => Some(1),
+            "other.mech" => None,
+            _ => record["snapshots"].as_array().unwrap().last().unwrap()["version"].as_i64(),
         };
         assert_eq!(version, expected_version, "{file}");
         let edits = change["edits"].as_array().unwrap();
@@ -445,13 +459,19 @@ fn definition_references_and_rename_reach_the_used_file() {
         }
         renamed.insert(file.to_string(), lines.join("\n") + "\n");
     }
-    // The renamed pair checks as the original did.
+    assert_eq!(
+        renamed.keys().collect::<Vec<_>>(),
+        ["lib.mech", "main.mech", "other.mech"]
+    );
+    // The renamed files check as the originals did.
     let renamed_dir = tempfile::tempdir().unwrap();
     std::fs::write(renamed_dir.path().join("lib.mech"), &renamed["lib.mech"]).unwrap();
-    let after = check_json(renamed_dir.path(), "main.mech", &renamed["main.mech"]);
-    let before = check_json(dir.path(), "before_rename.mech", text);
-    assert_eq!(after["errors"], before["errors"]);
-    assert_eq!(after["warnings"], before["warnings"]);
+    for (file, original) in [("main.mech", text), ("other.mech", OTHER)] {
+        let after = check_json(renamed_dir.path(), file, &renamed[file]);
+        let before = check_json(dir.path(), &format!("before_rename_{file}"), original);
+        assert_eq!(after["errors"], before["errors"], "{file}");
+        assert_eq!(after["warnings"], before["warnings"], "{file}");
+    }
     assert_eq!(record["prepare_rename"]["placeholder"], "kcat");
     assert_eq!(record["rename_to_taken"]["code"], -32803);
 }

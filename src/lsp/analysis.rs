@@ -147,6 +147,21 @@ impl Analysis {
         }
     }
 
+    /// The editor features' view of a file that is not open, without the
+    /// load (its diagnostics are not shown): for references and rename.
+    pub fn parsed_only(path: &Path, buffers: &HashMap<PathBuf, String>) -> Analysis {
+        Analysis {
+            loaded: Loaded {
+                sources: crate::diagnostics::SourceMap::new(),
+                model: None,
+                diagnostics: Vec::new(),
+            },
+            path: path.to_path_buf(),
+            buffers: buffers.clone(),
+            parsed: std::cell::OnceCell::new(),
+        }
+    }
+
     fn parsed(&self) -> &(Vec<ParsedFile>, Units) {
         self.parsed.get_or_init(|| {
             let files = parse_closure(

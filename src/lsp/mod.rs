@@ -36,5 +36,6 @@ mod navigate;
 mod outline;
 mod requests;
 mod server;
+mod workspace;
 
 pub use server::run;

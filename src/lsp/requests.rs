@@ -277,6 +277,19 @@ fn everywhere(server: &Server, view: &View, at: usize) -> Vec<navigate::PlacedSp
             }
         }
     }
+    // Files of the workspace that are not open may use the declaring file.
+    let buffers = server.buffers();
+    for path in super::workspace::mechanism_files(&server.roots) {
+        if server.documents.contains_key(&path) || seen.iter().any(|(p, _)| *p == path) {
+            continue;
+        }
+        let closed = Analysis::parsed_only(&path, &buffers);
+        for s in navigate::occurrences_in(&closed, &name, &declared_in) {
+            if seen.insert((s.path.clone(), s.start)) {
+                out.push(s);
+            }
+        }
+    }
     out
 }
 

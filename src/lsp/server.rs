@@ -9,16 +9,16 @@ use super::{diagnostics, outline};
 use crossbeam_channel::{Receiver, RecvTimeoutError, Sender};
 use lsp_server::{Connection, ErrorCode, Message, Notification, Request, RequestId, Response};
 use lsp_types::notification::{
-    Cancel, DidChangeTextDocument, DidCloseTextDocument, DidOpenTextDocument, Notification as _,
-    PublishDiagnostics,
+    Cancel, DidChangeTextDocument, DidChangeWatchedFiles, DidCloseTextDocument,
+    DidOpenTextDocument, DidSaveTextDocument, Notification as _, PublishDiagnostics,
 };
 use lsp_types::{
     CodeActionKind, CodeActionOptions, CodeActionProviderCapability, CompletionOptions,
-    DidChangeTextDocumentParams, DidCloseTextDocumentParams, DidOpenTextDocumentParams,
-    HoverProviderCapability, OneOf, PositionEncodingKind, PublishDiagnosticsParams, RenameOptions,
-    SemanticTokensFullOptions, SemanticTokensOptions, SemanticTokensServerCapabilities,
-    ServerCapabilities, TextDocumentSyncCapability, TextDocumentSyncKind, TextDocumentSyncOptions,
-    Uri, WorkDoneProgressOptions,
+    DidChangeTextDocumentParams, DidChangeWatchedFilesParams, DidCloseTextDocumentParams,
+    DidOpenTextDocumentParams, HoverProviderCapability, OneOf, PositionEncodingKind,
+    PublishDiagnosticsParams, RenameOptions, SemanticTokensFullOptions, SemanticTokensOptions,
+    SemanticTokensServerCapabilities, ServerCapabilities, TextDocumentSyncCapability,
+    TextDocumentSyncKind, TextDocumentSyncOptions, Uri, WorkDoneProgressOptions,
 };
 use std::collections::{BTreeMap, BTreeSet, HashMap, VecDeque};
 use std::path::{Path, PathBuf};
@@ -95,13 +95,14 @@ fn capabilities() -> ServerCapabilities {
 }
 
 fn serve(connection: &Connection) -> Result<bool, lsp_server::ProtocolError> {
-    let (id, _params) = connection.initialize_start()?;
+    let (id, params) = connection.initialize_start()?;
     let result = serde_json::json!({
         "capabilities": capabilities(),
         "serverInfo": { "name": "ratewright", "version": env!("CARGO_PKG_VERSION") },
     });
     connection.initialize_finish(id, result)?;
     let mut server = Server::new(connection.sender.clone(), connection.receiver.clone());
+    server.roots = super::workspace::roots(&params);
     Ok(server.main_loop())
 }
 
@@ -123,6 +124,8 @@ pub struct Server {
     /// Per open document, the files it last published diagnostics for.
     published: HashMap<PathBuf, BTreeSet<PathBuf>>,
     shutdown: bool,
+    /// The workspace folders the client named.
+    pub roots: Vec<PathBuf>,
 }
 
 impl Server {
@@ -136,6 +139,7 @@ impl Server {
             dirty: BTreeSet::new(),
             published: HashMap::new(),
             shutdown: false,
+            roots: Vec::new(),
         }
     }
 
@@ -264,8 +268,31 @@ impl Server {
                         self.did_close(p);
                     }
                 }
-                // Cancels of requests already answered, saves (the text is
-                // the buffer's already) and the rest need nothing.
+                // A file saved or changed on disk: the documents that read
+                // it are loaded again (an open buffer is read from the
+                // editor, so only files that are not open matter here).
+                DidSaveTextDocument::METHOD => {
+                    if let Some(path) = n
+                        .params
+                        .pointer("/textDocument/uri")
+                        .and_then(|u| u.as_str())
+                        .and_then(|u| u.parse::<Uri>().ok())
+                        .and_then(|u| uri_to_path(&u))
+                    {
+                        self.mark(&path);
+                    }
+                }
+                DidChangeWatchedFiles::METHOD => {
+                    if let Ok(p) = serde_json::from_value::<DidChangeWatchedFilesParams>(n.params) {
+                        for change in p.changes {
+                            if let Some(path) = uri_to_path(&change.uri) {
+                                self.mark(&path);
+                            }
+                        }
+                    }
+                }
+                // Cancels of requests already answered and the rest need
+                // nothing.
                 _ => {}
             }
         }));
