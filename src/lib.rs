@@ -2,7 +2,7 @@
 //!
 //! Stages, each a module with one job (see docs/architecture.md):
 //! `syntax` → `model` → {`network`, `algebra` → `ratelaw`, `numeric` → `sim`, `stochastic`,
-//! `emit`, `compare`} → `cli`. `diagnostics` is shared by all.
+//! `emit`, `compare`} → `cli`; `lsp` answers an editor from `syntax` and `model`. `diagnostics` is shared by all.
 
 pub mod algebra;
 pub mod cli;
@@ -11,6 +11,7 @@ pub mod control;
 pub mod diagnostics;
 pub mod emit;
 pub mod fit;
+pub mod lsp;
 pub mod model;
 pub mod network;
 pub mod numeric;

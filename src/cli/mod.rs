@@ -37,6 +37,7 @@ mod diff;
 mod emit;
 mod fit;
 mod fmt;
+mod lsp;
 pub mod output;
 mod plot;
 mod run;
@@ -95,6 +96,8 @@ pub enum Command {
     Control(control::Args),
     /// Stochastic runs of molecule counts (exact or tau-leaping), ensembles with statistics.
     Sample(sample::Args),
+    /// Language server for editors, on standard input and output.
+    Lsp(lsp::Args),
 }
 
 /// Parses arguments and runs one command. Usage errors exit with 2.
@@ -131,6 +134,7 @@ pub fn main() -> ExitCode {
         Command::Sensitivity(a) => sensitivity::run(&a),
         Command::Control(a) => control::run(&a),
         Command::Sample(a) => sample::run(&a),
+        Command::Lsp(a) => lsp::run(&a),
     }
 }
 

@@ -226,3 +226,85 @@ fn ensure_tool(
         panic!("{e}");
     }
 }
+
+/// Makes sure `python3` can import `module`, installing `package` with pip
+/// (under the install lock) if not. Panics with pip's output if that fails:
+/// a check that needs the library fails, it is not skipped.
+pub fn ensure_python_module(module: &str, package: &str) {
+    let probe = || {
+        Command::new("python3")
+            .args(["-c", &format!("import {module}")])
+            .output()
+            .map(|o| o.status.success())
+            .unwrap_or(false)
+    };
+    if probe() {
+        return;
+    }
+    let result = serialised(|| {
+        if probe() {
+            return Ok(());
+        }
+        let out = Command::new("python3")
+            .args(["-m", "pip", "install", "--quiet", package])
+            .output()
+            .map_err(|e| format!("cannot run pip: {e}"))?;
+        if out.status.success() && probe() {
+            Ok(())
+        } else {
+            Err(format!(
+                "installing {package} failed:\n{}\n{}",
+                String::from_utf8_lossy(&out.stdout),
+                String::from_utf8_lossy(&out.stderr)
+            ))
+        }
+    });
+    if let Err(e) = result {
+        panic!("{e}");
+    }
+}
+
+/// Makes sure `node` and `npm` run (Debian's nodejs and npm, installed with
+/// apt-get if missing) and that the npm `packages` are installed in
+/// `folder` (with `npm install`, under the install lock). Panics if not.
+pub fn ensure_npm_packages(folder: &Path, packages: &[&str]) {
+    static NODE_READY: OnceLock<Result<(), String>> = OnceLock::new();
+    ensure_tool(&NODE_READY, "npm", &["--version"], &["nodejs", "npm"]);
+    let installed = || {
+        packages.iter().all(|p| {
+            folder
+                .join("node_modules")
+                .join(p)
+                .join("package.json")
+                .exists()
+        })
+    };
+    if installed() {
+        return;
+    }
+    let result = serialised(|| {
+        if installed() {
+            return Ok(());
+        }
+        let _ = std::fs::create_dir_all(folder);
+        let out = Command::new("npm")
+            .args(["install", "--no-audit", "--no-fund", "--silent", "--prefix"])
+            .arg(folder)
+            .args(packages)
+            .output()
+            .map_err(|e| format!("cannot run npm: {e}"))?;
+        if out.status.success() && installed() {
+            Ok(())
+        } else {
+            Err(format!(
+                "npm install {} failed:\n{}\n{}",
+                packages.join(" "),
+                String::from_utf8_lossy(&out.stdout),
+                String::from_utf8_lossy(&out.stderr)
+            ))
+        }
+    });
+    if let Err(e) = result {
+        panic!("{e}");
+    }
+}
