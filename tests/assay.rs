@@ -30,7 +30,12 @@ fn run_csv(model: &Path, extra: &[&str]) -> (Vec<String>, Vec<Vec<f64>>) {
 
 fn parse_csv(text: &str) -> (Vec<String>, Vec<Vec<f64>>) {
     let mut lines = text.lines().filter(|l| !l.starts_with('#'));
-    let header: Vec<String> = lines.next().unwrap().split(',').map(str::to_string).collect();
+    let header: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
     let rows = lines
         .map(|l| l.split(',').map(|c| c.parse::<f64>().unwrap()).collect())
         .collect();
@@ -38,14 +43,18 @@ fn parse_csv(text: &str) -> (Vec<String>, Vec<Vec<f64>>) {
 }
 
 fn column(header: &[String], name: &str) -> usize {
-    header.iter().position(|h| h == name).unwrap_or_else(|| panic!("no column {name} in {header:?}"))
+    header
+        .iter()
+        .position(|h| h == name)
+        .unwrap_or_else(|| panic!("no column {name} in {header:?}"))
 }
 
 fn close(a: f64, b: f64, rel: f64) -> bool {
     (a - b).abs() <= rel * b.abs().max(1e-300)
 }
 
-const DILUTION: &str = "mechanism dilution \"An inert dye diluted by additions of buffer and substrate\"
+const DILUTION: &str =
+    "mechanism dilution \"An inert dye diluted by additions of buffer and substrate\"
 volume 200 uL
 species D = 10 uM
 species S = 0
@@ -64,14 +73,28 @@ fn dilution_by_additions_follows_the_closed_form_and_conserves_amounts() {
     // a withdrawal leaves concentrations unchanged.
     let dir = tempfile::tempdir().unwrap();
     let model = write(dir.path(), "dilution.mech", DILUTION);
-    let (h, rows) = run_csv(&model, &["--until", "1200 s", "--points", "13", "--amounts"]);
-    let (t, d, vol, amount) = (column(&h, "t"), column(&h, "D"), column(&h, "volume"), column(&h, "amount(D)"));
+    let (h, rows) = run_csv(
+        &model,
+        &["--until", "1200 s", "--points", "13", "--amounts"],
+    );
+    let (t, d, vol, amount) = (
+        column(&h, "t"),
+        column(&h, "D"),
+        column(&h, "volume"),
+        column(&h, "amount(D)"),
+    );
     let at = |time: f64, which: usize| -> Vec<f64> {
-        rows.iter().filter(|r| r[t] == time).map(|r| r[which]).collect()
+        rows.iter()
+            .filter(|r| r[t] == time)
+            .map(|r| r[which])
+            .collect()
     };
     // Each event's time appears twice: before, then after.
     assert_eq!(at(600.0, d), vec![10.0, 10.0 * 200.0 / 210.0]);
-    assert_eq!(at(900.0, d), vec![10.0 * 200.0 / 210.0, 10.0 * 200.0 / 260.0]);
+    assert_eq!(
+        at(900.0, d),
+        vec![10.0 * 200.0 / 210.0, 10.0 * 200.0 / 260.0]
+    );
     assert_eq!(at(1000.0, vol), vec![260.0, 210.0]);
     // The dye's amount (uM × uL = pmol) is 2000 pmol until the withdrawal
     // takes 50/260 of the mixture.
@@ -81,7 +104,12 @@ fn dilution_by_additions_follows_the_closed_form_and_conserves_amounts() {
         } else {
             2000.0
         };
-        assert!(close(r[amount], expected, 1e-12), "t = {}: {} vs {expected}", r[t], r[amount]);
+        assert!(
+            close(r[amount], expected, 1e-12),
+            "t = {}: {} vs {expected}",
+            r[t],
+            r[amount]
+        );
     }
     // S: 1 mM × 10/210 at 600 s, then first-order decay and the dilution
     // by 210/260 at 900 s (closed form of A → P with dilution).
@@ -89,7 +117,10 @@ fn dilution_by_additions_follows_the_closed_form_and_conserves_amounts() {
     let s_600 = 1000.0 * 10.0 / 210.0;
     let s_900_before = s_600 * (-0.001f64 * 300.0).exp();
     let s_at_900 = at(900.0, s);
-    assert!(close(s_at_900[0], s_900_before, 1e-5), "{s_at_900:?} vs {s_900_before}");
+    assert!(
+        close(s_at_900[0], s_900_before, 1e-5),
+        "{s_at_900:?} vs {s_900_before}"
+    );
     assert!(close(s_at_900[1], s_900_before * 210.0 / 260.0, 1e-5));
 }
 
@@ -117,19 +148,42 @@ remove 20 uL at 300 s
 ",
     );
     let xml = dir.path().join("assay.xml");
-    let o = ratewright(&["emit", model.to_str().unwrap(), "--target", "sbml", "-o", xml.to_str().unwrap()]);
+    let o = ratewright(&[
+        "emit",
+        model.to_str().unwrap(),
+        "--target",
+        "sbml",
+        "-o",
+        xml.to_str().unwrap(),
+    ]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let times = "1,30,100,250,400,700";
-    let (h, rows) = run_csv(&model, &["--times", times, "--rtol", "1e-10", "--atol", "1e-14"]);
-    let reference = python(&root().join("tests/python/sbml_assay_simulate.py"), &[xml.to_str().unwrap(), times]);
-    assert!(reference.status.success(), "{}", String::from_utf8_lossy(&reference.stderr));
+    let (h, rows) = run_csv(
+        &model,
+        &["--times", times, "--rtol", "1e-10", "--atol", "1e-14"],
+    );
+    let reference = python(
+        &root().join("tests/python/sbml_assay_simulate.py"),
+        &[xml.to_str().unwrap(), times],
+    );
+    assert!(
+        reference.status.success(),
+        "{}",
+        String::from_utf8_lossy(&reference.stderr)
+    );
     let text = String::from_utf8(reference.stdout).unwrap();
     let (rh, rrows) = parse_csv(&text);
     assert_eq!(rows.len(), rrows.len());
     for name in ["E", "S", "P", "I"] {
         let (a, b) = (column(&h, name), column(&rh, name));
         for (r, q) in rows.iter().zip(&rrows) {
-            assert!((r[a] - q[b]).abs() <= 1e-6 * q[b].abs() + 1e-9, "{name} at t = {}: {} vs {}", r[0], r[a], q[b]);
+            assert!(
+                (r[a] - q[b]).abs() <= 1e-6 * q[b].abs() + 1e-9,
+                "{name} at t = {}: {} vs {}",
+                r[0],
+                r[a],
+                q[b]
+            );
         }
     }
     // The compartment (litres) against the volume column (uL).
@@ -137,7 +191,10 @@ remove 20 uL at 300 s
     for (r, q) in rows.iter().zip(&rrows) {
         assert!(close(r[v] * 1e-6, q[c], 1e-12));
     }
-    assert!(text.contains("# fired,"), "the trigger fired in the reference");
+    assert!(
+        text.contains("# fired,"),
+        "the trigger fired in the reference"
+    );
 }
 
 #[test]
@@ -152,12 +209,25 @@ fn a_trigger_fires_at_the_closed_form_crossing() {
         "crossing.mech",
         "species A = 20 uM, P = 0, M = 0\nstep decay A -> P with k\nparam k = 0.1 /s\nstep keep M -> M with k0\nparam k0 = 0 /s\nwhen P > 5 uM: add 1 uM M\n",
     );
-    let (h, rows) = run_csv(&model, &["--until", "40 s", "--points", "5", "--rtol", "1e-10", "--atol", "1e-14"]);
+    let (h, rows) = run_csv(
+        &model,
+        &[
+            "--until", "40 s", "--points", "5", "--rtol", "1e-10", "--atol", "1e-14",
+        ],
+    );
     let (t, m) = (column(&h, "t"), column(&h, "M"));
     let star = -(1.0f64 - 5.0 / 20.0).ln() / 0.1;
-    let jump: Vec<&Vec<f64>> = rows.windows(2).filter(|w| w[0][t] == w[1][t] && w[0][m] != w[1][m]).map(|w| &w[1]).collect();
+    let jump: Vec<&Vec<f64>> = rows
+        .windows(2)
+        .filter(|w| w[0][t] == w[1][t] && w[0][m] != w[1][m])
+        .map(|w| &w[1])
+        .collect();
     assert_eq!(jump.len(), 1, "one firing: {rows:?}");
-    assert!(close(jump[0][t], star, 1e-8), "fired at {} vs {star}", jump[0][t]);
+    assert!(
+        close(jump[0][t], star, 1e-8),
+        "fired at {} vs {star}",
+        jump[0][t]
+    );
     assert_eq!(rows.last().unwrap()[m], 1.0);
 }
 
@@ -165,8 +235,15 @@ fn a_trigger_fires_at_the_closed_form_crossing() {
 fn a_repeated_event_equals_the_same_events_written_one_by_one() {
     let dir = tempfile::tempdir().unwrap();
     let head = "volume 100 uL\nspecies S = 0, P = 0\nstep use S -> P with k\nparam k = 0.01 /s\n";
-    let every = write(dir.path(), "every.mech", &format!("{head}every 10 min from 5 min to 35 min: add 5 uL of 2 mM S\n"));
-    let listed: String = [5, 15, 25, 35].iter().map(|m| format!("add 5 uL of 2 mM S at {m} min\n")).collect();
+    let every = write(
+        dir.path(),
+        "every.mech",
+        &format!("{head}every 10 min from 5 min to 35 min: add 5 uL of 2 mM S\n"),
+    );
+    let listed: String = [5, 15, 25, 35]
+        .iter()
+        .map(|m| format!("add 5 uL of 2 mM S at {m} min\n"))
+        .collect();
     let one_by_one = write(dir.path(), "listed.mech", &format!("{head}{listed}"));
     let a = run_csv(&every, &["--until", "1 h", "--points", "61"]);
     let b = run_csv(&one_by_one, &["--until", "1 h", "--points", "61"]);
@@ -192,11 +269,26 @@ fn totals_follow_additions_in_full_and_reduced_runs() {
     let (e, es) = (column(h, "E"), column(h, "ES"));
     for (a, b) in rows.iter().zip(&reduced.1) {
         for k in 0..a.len() {
-            assert!((a[k] - b[k]).abs() <= 1e-5 * a[k].abs().max(1e-3), "column {} at t = {}: {} vs {}", h[k], a[0], a[k], b[k]);
+            assert!(
+                (a[k] - b[k]).abs() <= 1e-5 * a[k].abs().max(1e-3),
+                "column {} at t = {}: {} vs {}",
+                h[k],
+                a[0],
+                a[k],
+                b[k]
+            );
         }
         let total = a[e] + a[es];
-        let expected = if a[0] > 30.0 || (a[0] == 30.0 && a[column(h, "volume")] > 200.0) { 200.0 / 220.0 } else { 1.0 };
-        assert!(close(total, expected, 1e-6), "E + ES = {total} at t = {}", a[0]);
+        let expected = if a[0] > 30.0 || (a[0] == 30.0 && a[column(h, "volume")] > 200.0) {
+            200.0 / 220.0
+        } else {
+            1.0
+        };
+        assert!(
+            close(total, expected, 1e-6),
+            "E + ES = {total} at t = {}",
+            a[0]
+        );
     }
 }
 
@@ -222,7 +314,11 @@ fn lab_units_convert_by_their_definitions() {
     assert!(close(r[column(&h, "D")], 10.0, 1e-12));
     assert!(close(r[column(&h, "F")], 0.012, 1e-14));
     // Days: 1 d = 86 400 s (SI Brochure, table 8).
-    let day = write(dir.path(), "day.mech", "species A = 1 uM\nstep d1 A -> 0 with k\nparam k = 1 /d\n");
+    let day = write(
+        dir.path(),
+        "day.mech",
+        "species A = 1 uM\nstep d1 A -> 0 with k\nparam k = 1 /d\n",
+    );
     let (h, rows) = run_csv(&day, &["--times", "0,86400"]);
     assert!(close(rows[1][column(&h, "A")], (-1.0f64).exp(), 1e-5));
 }
@@ -236,7 +332,8 @@ fn arrhenius_and_eyring_values_match_hand_calculations() {
     let (kb, h) = (1.380649e-23, 6.62607015e-34);
     let arrhenius = 12.0 * (-55_000.0 / r * (1.0 / 310.15 - 1.0 / 298.15f64)).exp();
     let eyring = kb * 310.15 / h * (-20.0f64 / r).exp() * (-80_000.0 / (r * 310.15f64)).exp();
-    let eyring_ratio = 3.0 * (310.15 / 298.15) * (-50_000.0 / r * (1.0 / 310.15 - 1.0 / 298.15f64)).exp();
+    let eyring_ratio =
+        3.0 * (310.15 / 298.15) * (-50_000.0 / r * (1.0 / 310.15 - 1.0 / 298.15f64)).exp();
     let dir = tempfile::tempdir().unwrap();
     let ey25 = kb * 298.15 / h * (-20.0f64 / r).exp() * (-80_000.0 / (r * 298.15f64)).exp();
     let text = format!(
@@ -247,13 +344,40 @@ fn arrhenius_and_eyring_values_match_hand_calculations() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let json: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     let value = |name: &str| -> f64 {
-        json["params"].as_array().unwrap().iter().find(|p| p["name"] == name).unwrap()["value"].as_f64().unwrap()
+        json["params"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|p| p["name"] == name)
+            .unwrap()["value"]
+            .as_f64()
+            .unwrap()
     };
-    assert!(close(value("ka"), arrhenius, 1e-9), "{} vs {arrhenius}", value("ka"));
-    assert!(close(value("ke"), eyring, 1e-9), "{} vs {eyring}", value("ke"));
+    assert!(
+        close(value("ka"), arrhenius, 1e-9),
+        "{} vs {arrhenius}",
+        value("ka")
+    );
+    assert!(
+        close(value("ke"), eyring, 1e-9),
+        "{} vs {eyring}",
+        value("ke")
+    );
     assert!(close(value("kr"), eyring_ratio, 1e-9));
     // `--set temperature=25 C` gives back the reference values.
-    let (hh, rows) = run_csv(&model, &["--set", "temperature=25 C", "--times", "0,1", "--rtol", "1e-10", "--atol", "1e-14"]);
+    let (hh, rows) = run_csv(
+        &model,
+        &[
+            "--set",
+            "temperature=25 C",
+            "--times",
+            "0,1",
+            "--rtol",
+            "1e-10",
+            "--atol",
+            "1e-14",
+        ],
+    );
     assert!(close(rows[1][column(&hh, "A")], (-12.0f64).exp(), 1e-5));
     assert!(close(rows[1][column(&hh, "C")], (-3.0f64).exp(), 1e-5));
 }
@@ -263,30 +387,64 @@ fn new_statements_have_located_errors_with_codes() {
     let dir = tempfile::tempdir().unwrap();
     let cases = [
         ("species S = 2 nmol\n", "E0412", "2 nmol"),
-        ("volume 100 uL\nremove 150 uL at 5 s\n", "E0413", "remove 150 uL at 5 s"),
+        (
+            "volume 100 uL\nremove 150 uL at 5 s\n",
+            "E0413",
+            "remove 150 uL at 5 s",
+        ),
         ("species E = 0.1 mg/mL\n", "E0414", "0.1 mg/mL"),
         ("temperature 37\n", "E0415", "37"),
-        ("species S = 1\nparam k = 1\nwhen k > 2: add 1 S\n", "E0416", "k > 2"),
+        (
+            "species S = 1\nparam k = 1\nwhen k > 2: add 1 S\n",
+            "E0416",
+            "k > 2",
+        ),
         ("species S = 1 uM\nwhen S > 2 s: add 1 uM S\n", "E0416", "S"),
-        ("species S = 1\nadd 10 uL of 1 mM S at 1 s\n", "E0412", "10 uL"),
+        (
+            "species S = 1\nadd 10 uL of 1 mM S at 1 s\n",
+            "E0412",
+            "10 uL",
+        ),
         ("species S = 1\nevery 0 s to 1 h: add 1 S\n", "E0409", "0 s"),
-        ("volume 100 uL\nspecies S = 1\nadd 10 uL of 1 mM Q at 1 s\n", "E0201", "Q"),
-        ("species S = 1\nparam k = 1 /s at 25 C energy 55 kg\n", "E0301", "kg"),
+        (
+            "volume 100 uL\nspecies S = 1\nadd 10 uL of 1 mM Q at 1 s\n",
+            "E0201",
+            "Q",
+        ),
+        (
+            "species S = 1\nparam k = 1 /s at 25 C energy 55 kg\n",
+            "E0301",
+            "kg",
+        ),
     ];
     for (text, code, label) in cases {
         let model = write(dir.path(), "bad.mech", text);
         let o = ratewright(&["check", model.to_str().unwrap(), "--format", "json"]);
         assert!(!o.status.success(), "{text} passed");
-        let json: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap_or_else(|_| panic!("{}", String::from_utf8_lossy(&o.stdout)));
+        let json: serde_json::Value = serde_json::from_slice(&o.stdout)
+            .unwrap_or_else(|_| panic!("{}", String::from_utf8_lossy(&o.stdout)));
         let diags = json["diagnostics"].as_array().unwrap();
-        let d = diags.iter().find(|d| d["code"] == code).unwrap_or_else(|| panic!("{text}: no {code} in {json}"));
-        let labelled: Vec<String> = d["labels"].as_array().unwrap().iter().map(|l| {
-            let at = |key: &str| l[key].as_u64().unwrap() as usize;
-            let line: Vec<char> = text.lines().nth(at("line") - 1).unwrap().chars().collect();
-            assert_eq!(at("line"), at("end_line"));
-            line[at("column") - 1..at("end_column") - 1].iter().collect()
-        }).collect();
-        assert!(labelled.iter().any(|l| l == label), "{text}: {code} labels {labelled:?}, wanted `{label}`");
+        let d = diags
+            .iter()
+            .find(|d| d["code"] == code)
+            .unwrap_or_else(|| panic!("{text}: no {code} in {json}"));
+        let labelled: Vec<String> = d["labels"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|l| {
+                let at = |key: &str| l[key].as_u64().unwrap() as usize;
+                let line: Vec<char> = text.lines().nth(at("line") - 1).unwrap().chars().collect();
+                assert_eq!(at("line"), at("end_line"));
+                line[at("column") - 1..at("end_column") - 1]
+                    .iter()
+                    .collect()
+            })
+            .collect();
+        assert!(
+            labelled.iter().any(|l| l == label),
+            "{text}: {code} labels {labelled:?}, wanted `{label}`"
+        );
     }
 }
 
@@ -305,19 +463,40 @@ fn the_new_statements_format_canonically_and_round_trip() {
         "when P > 5 uM: add 1 uM S",
         "every 10 min from 0 s to 1 h: add 5 uL of 10 mM S, 1 uM P",
     ] {
-        assert!(formatted.lines().any(|l| l.split_whitespace().collect::<Vec<_>>().join(" ") == line), "{line} not in\n{formatted}");
+        assert!(
+            formatted
+                .lines()
+                .any(|l| l.split_whitespace().collect::<Vec<_>>().join(" ") == line),
+            "{line} not in\n{formatted}"
+        );
     }
     let again = ratewright(&["fmt", "--check", model.to_str().unwrap()]);
-    assert!(again.status.success(), "fmt is idempotent: {}", String::from_utf8_lossy(&again.stderr));
+    assert!(
+        again.status.success(),
+        "fmt is idempotent: {}",
+        String::from_utf8_lossy(&again.stderr)
+    );
     let check = ratewright(&["check", model.to_str().unwrap()]);
-    assert!(check.status.success(), "{}", String::from_utf8_lossy(&check.stderr));
+    assert!(
+        check.status.success(),
+        "{}",
+        String::from_utf8_lossy(&check.stderr)
+    );
 }
 
 #[test]
 fn diff_reports_a_changed_stock_and_volume() {
     let dir = tempfile::tempdir().unwrap();
-    let a = write(dir.path(), "a.mech", "volume 200 uL\nspecies S = 1 uM\nstep u S -> 0 with k\nparam k = 1 /s\nadd 10 uL of 1 mM S at 5 s\n");
-    let b = write(dir.path(), "b.mech", "volume 250 uL\nspecies S = 1 uM\nstep u S -> 0 with k\nparam k = 1 /s\nadd 10 uL of 2 mM S at 5 s\n");
+    let a = write(
+        dir.path(),
+        "a.mech",
+        "volume 200 uL\nspecies S = 1 uM\nstep u S -> 0 with k\nparam k = 1 /s\nadd 10 uL of 1 mM S at 5 s\n",
+    );
+    let b = write(
+        dir.path(),
+        "b.mech",
+        "volume 250 uL\nspecies S = 1 uM\nstep u S -> 0 with k\nparam k = 1 /s\nadd 10 uL of 2 mM S at 5 s\n",
+    );
     let o = ratewright(&["diff", a.to_str().unwrap(), b.to_str().unwrap()]);
     let out = String::from_utf8_lossy(&o.stdout);
     assert!(out.contains("volume"), "{out}");
@@ -340,14 +519,27 @@ fn the_emitted_python_runs_the_assay_protocol_like_run() {
             .as_str(),
     );
     let script = dir.path().join("feed.py");
-    let o = ratewright(&["emit", model.to_str().unwrap(), "--target", "python", "-o", script.to_str().unwrap()]);
+    let o = ratewright(&[
+        "emit",
+        model.to_str().unwrap(),
+        "--target",
+        "python",
+        "-o",
+        script.to_str().unwrap(),
+    ]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let shared = ["--until", "3000", "--points", "7", "--rtol", "1e-10", "--atol", "1e-14"];
+    let shared = [
+        "--until", "3000", "--points", "7", "--rtol", "1e-10", "--atol", "1e-14",
+    ];
     let py_csv = dir.path().join("py.csv");
     let mut args: Vec<&str> = shared.to_vec();
     args.extend(["-o", py_csv.to_str().unwrap()]);
     let out = python(&script, &args);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let (h1, r1) = parse_csv(&std::fs::read_to_string(&py_csv).unwrap());
     let (h2, r2) = run_csv(&model, &shared);
     assert_eq!(h1, h2);
@@ -355,7 +547,14 @@ fn the_emitted_python_runs_the_assay_protocol_like_run() {
     for (a, b) in r1.iter().zip(&r2) {
         for k in 0..a.len() {
             let scale = r2.iter().map(|r| r[k].abs()).fold(0.0, f64::max);
-            assert!((a[k] - b[k]).abs() <= 1e-6 * b[k].abs() + 1e-9 * scale, "{} at t = {}: python {} vs run {}", h1[k], a[0], a[k], b[k]);
+            assert!(
+                (a[k] - b[k]).abs() <= 1e-6 * b[k].abs() + 1e-9 * scale,
+                "{} at t = {}: python {} vs run {}",
+                h1[k],
+                a[0],
+                a[k],
+                b[k]
+            );
         }
     }
 }

@@ -1392,13 +1392,25 @@ fn emitted_sbml_integrated_by_libsbml_and_scipy_follows_run_through_events() {
         let file = dir.path().join("model.xml");
         emit(&path, "sbml", false, &file);
         let model = load(&path);
-        let end = model.events.iter().filter_map(|e| e.time()).fold(0.0, f64::max) * 1.5 + 1.0;
+        let end = model
+            .events
+            .iter()
+            .filter_map(|e| e.time())
+            .fold(0.0, f64::max)
+            * 1.5
+            + 1.0;
         let times: Vec<String> = (0..=12)
             .map(|k| format!("{}", end * k as f64 / 12.0))
             .collect();
         let mut times = times;
         // The events' own times too, where the row holds the state after them.
-        times.extend(model.events.iter().filter_map(|e| e.time()).map(|t| format!("{t}")));
+        times.extend(
+            model
+                .events
+                .iter()
+                .filter_map(|e| e.time())
+                .map(|t| format!("{t}")),
+        );
         let mut sorted: Vec<f64> = times.iter().map(|t| t.parse().unwrap()).collect();
         sorted.sort_by(f64::total_cmp);
         sorted.dedup();

@@ -285,7 +285,9 @@ fn events_convert_and_totals_fix_start_values() {
         (m.species[1].initial - 0.05).abs() < 1e-15,
         "E follows from E_t"
     );
-    let (time, _, _, amount) = m.events[0].timed_species_change().expect("a timed addition");
+    let (time, _, _, amount) = m.events[0]
+        .timed_species_change()
+        .expect("a timed addition");
     assert!((time - 1.5).abs() < 1e-15, "90 s = 1.5 min");
     assert!((amount - 1000.0).abs() < 1e-9);
     assert!(
@@ -414,7 +416,9 @@ fn a_bare_event_value_and_unit_words_as_params_are_valid() {
         "{}",
         rendered(&loaded)
     );
-    let (time, _, _, amount) = model.events[0].timed_species_change().expect("a timed addition");
+    let (time, _, _, amount) = model.events[0]
+        .timed_species_change()
+        .expect("a timed addition");
     assert_eq!(amount, 2.0);
     assert_eq!(time, 1.0);
     let words = load(

@@ -413,7 +413,10 @@ fn check_against_scipy_radau(dir: &Path, path: &Path) {
     // the reference reports the state after, so the rows before are dropped.
     let mut after_events: Vec<Vec<f64>> = Vec::new();
     for row in rows.drain(..) {
-        if after_events.last().is_some_and(|last: &Vec<f64>| last[0] == row[0]) {
+        if after_events
+            .last()
+            .is_some_and(|last: &Vec<f64>| last[0] == row[0])
+        {
             after_events.pop();
         }
         after_events.push(row);

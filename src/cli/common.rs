@@ -141,7 +141,10 @@ pub fn parse_assignment(text: &str, model: &model::Model) -> Result<(String, f64
         .ok_or_else(|| format!("`{text}` is not NAME=VALUE"))?;
     let name = name.trim();
     if name == model::TEMPERATURE && model.lookup(name).is_none() {
-        return Ok((name.to_string(), model::lab_units::parse_temperature(value)?));
+        return Ok((
+            name.to_string(),
+            model::lab_units::parse_temperature(value)?,
+        ));
     }
     let (v, dim) = model::units::parse_quantity(value, model.units)?;
     model.check_value_dimension(name, value, dim)?;

@@ -42,8 +42,8 @@ pub mod output;
 mod plot;
 mod run;
 mod sample;
-mod sensitivity;
 mod scan;
+mod sensitivity;
 mod steady;
 
 use clap::{Parser, Subcommand, ValueEnum};

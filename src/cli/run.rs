@@ -267,7 +267,9 @@ pub fn run(args: &Args) -> ExitCode {
         ..Settings::default()
     };
     if args.amounts && prepared.model.volume.is_none() {
-        return usage_error("--amounts: the model declares no `volume`, so amounts are not defined");
+        return usage_error(
+            "--amounts: the model declares no `volume`, so amounts are not defined",
+        );
     }
     let mut trajectory = match prepared.simulate(&settings, &times) {
         Ok(t) => t,

@@ -10,7 +10,7 @@
 use super::Format;
 use super::common::{self, EXIT_MODEL, report_failure, usage_error_as, write_stdout};
 use super::run::{model_with_overrides, sim_failure};
-use crate::sensitivity::{Parameter, SensitivityError, Sensitivities, sensitivities};
+use crate::sensitivity::{Parameter, Sensitivities, SensitivityError, sensitivities};
 use crate::sim::{self, Settings};
 use serde_json::{Map, Value, json};
 use std::path::{Path, PathBuf};
@@ -24,7 +24,12 @@ pub struct Args {
     #[arg(long, value_name = "TIME", conflicts_with = "times")]
     pub until: Option<String>,
     /// Number of evenly spaced output times from 0 to the end time.
-    #[arg(long, value_name = "N", default_value_t = 101, conflicts_with = "times")]
+    #[arg(
+        long,
+        value_name = "N",
+        default_value_t = 101,
+        conflicts_with = "times"
+    )]
     pub points: usize,
     /// Output at exactly these times (comma-separated, units allowed).
     #[arg(long, value_name = "T1,T2,..")]
@@ -70,20 +75,38 @@ fn names(list: &Option<String>) -> Option<Vec<String>> {
 pub fn run(args: &Args) -> ExitCode {
     let json = args.format == Format::Json;
     let usage = |m: String| usage_error_as(json, m);
-    if args.rtol.is_nan() || args.rtol <= 0.0 || args.rtol >= 1.0 || !args.atol.is_finite() || args.atol <= 0.0 {
-        return usage("--rtol must lie in (0, 1) and --atol must be a positive finite number".into());
+    if args.rtol.is_nan()
+        || args.rtol <= 0.0
+        || args.rtol >= 1.0
+        || !args.atol.is_finite()
+        || args.atol <= 0.0
+    {
+        return usage(
+            "--rtol must lie in (0, 1) and --atol must be a positive finite number".into(),
+        );
     }
     if let Some(path) = &args.output
-        && !path.extension().and_then(|e| e.to_str()).is_some_and(|e| e.eq_ignore_ascii_case("csv"))
+        && !path
+            .extension()
+            .and_then(|e| e.to_str())
+            .is_some_and(|e| e.eq_ignore_ascii_case("csv"))
     {
-        return usage(format!("-o {}: the output must end in .csv", path.display()));
+        return usage(format!(
+            "-o {}: the output must end in .csv",
+            path.display()
+        ));
     }
     if let Some(path) = &args.plot
         && let Err(e) = super::plot::check_figure_path(path)
     {
         return usage(e);
     }
-    let out_paths: Vec<&Path> = args.output.iter().chain(&args.plot).map(PathBuf::as_path).collect();
+    let out_paths: Vec<&Path> = args
+        .output
+        .iter()
+        .chain(&args.plot)
+        .map(PathBuf::as_path)
+        .collect();
     let sinks = match super::output::sinks_for(&out_paths, &[]) {
         Ok(s) => s,
         Err(e) => return usage(e),
@@ -190,17 +213,30 @@ pub fn run(args: &Args) -> ExitCode {
     if args.plot.is_some() {
         let prefix = if args.normalized { "∂ln " } else { "∂" };
         let spec = super::plot::LinePlot {
-            title: model.description.clone().or(model.name.clone()).unwrap_or_else(|| "sensitivities".into()),
+            title: model
+                .description
+                .clone()
+                .or(model.name.clone())
+                .unwrap_or_else(|| "sensitivities".into()),
             x_label: format!("time ({})", model.units.time.symbol()),
-            y_label: if args.normalized { "normalised sensitivity ∂ln y/∂ln p".into() } else { "sensitivity ∂y/∂p (model units)".into() },
+            y_label: if args.normalized {
+                "normalised sensitivity ∂ln y/∂ln p".into()
+            } else {
+                "sensitivity ∂y/∂p (model units)".into()
+            },
             x: result.times.clone(),
             series: chosen
                 .iter()
                 .flat_map(|&o| (0..result.parameters.len()).map(move |k| (o, k)))
                 .map(|(o, k)| {
                     (
-                        format!("{prefix}{}/{prefix}{}", result.outputs[o], result.parameters[k]),
-                        (0..result.times.len()).map(|t| value(o, k, t).unwrap_or(0.0)).collect(),
+                        format!(
+                            "{prefix}{}/{prefix}{}",
+                            result.outputs[o], result.parameters[k]
+                        ),
+                        (0..result.times.len())
+                            .map(|t| value(o, k, t).unwrap_or(0.0))
+                            .collect(),
                     )
                 })
                 .collect(),
@@ -215,7 +251,11 @@ pub fn run(args: &Args) -> ExitCode {
         return common::run_error(format!("[E0803] {e}"));
     }
     let report = if json {
-        format!("{}\n", serde_json::to_string_pretty(&document(&result, &chosen, args.normalized, &value)).unwrap_or_default())
+        format!(
+            "{}\n",
+            serde_json::to_string_pretty(&document(&result, &chosen, args.normalized, &value))
+                .unwrap_or_default()
+        )
     } else if args.output.is_some() {
         // The table went to the file; people get the ranking.
         human_ranking(&result)
@@ -235,7 +275,11 @@ fn cell(v: Option<f64>) -> String {
     }
 }
 
-fn csv_text(r: &Sensitivities, chosen: &[usize], value: &dyn Fn(usize, usize, usize) -> Option<f64>) -> String {
+fn csv_text(
+    r: &Sensitivities,
+    chosen: &[usize],
+    value: &dyn Fn(usize, usize, usize) -> Option<f64>,
+) -> String {
     let mut header = vec!["t".to_string()];
     for &o in chosen {
         for p in &r.parameters {
@@ -257,13 +301,23 @@ fn csv_text(r: &Sensitivities, chosen: &[usize], value: &dyn Fn(usize, usize, us
     out
 }
 
-fn document(r: &Sensitivities, chosen: &[usize], normalized: bool, value: &dyn Fn(usize, usize, usize) -> Option<f64>) -> Value {
+fn document(
+    r: &Sensitivities,
+    chosen: &[usize],
+    normalized: bool,
+    value: &dyn Fn(usize, usize, usize) -> Option<f64>,
+) -> Value {
     let mut sens = Map::new();
     for &o in chosen {
         let mut per = Map::new();
         for (k, p) in r.parameters.iter().enumerate() {
             let list: Vec<Value> = (0..r.times.len())
-                .map(|t| value(o, k, t).filter(|v| v.is_finite()).map(|v| json!(v)).unwrap_or(Value::Null))
+                .map(|t| {
+                    value(o, k, t)
+                        .filter(|v| v.is_finite())
+                        .map(|v| json!(v))
+                        .unwrap_or(Value::Null)
+                })
                 .collect();
             per.insert(p.clone(), Value::Array(list));
         }
@@ -278,18 +332,38 @@ fn document(r: &Sensitivities, chosen: &[usize], normalized: bool, value: &dyn F
 }
 
 fn human_ranking(r: &Sensitivities) -> String {
-    let mut out = String::from("parameters by overall influence (root mean square of ∂ln y/∂ln p over outputs and times):\n");
+    let mut out = String::from(
+        "parameters by overall influence (root mean square of ∂ln y/∂ln p over outputs and times):\n",
+    );
     for (p, v) in r.ranking() {
         out.push_str(&format!("  {p:<16} {v:.4}\n"));
     }
     out
 }
 
-fn human(r: &Sensitivities, chosen: &[usize], normalized: bool, value: &dyn Fn(usize, usize, usize) -> Option<f64>) -> String {
+fn human(
+    r: &Sensitivities,
+    chosen: &[usize],
+    normalized: bool,
+    value: &dyn Fn(usize, usize, usize) -> Option<f64>,
+) -> String {
     let last = r.times.len().saturating_sub(1);
-    let kind = if normalized { "normalised ∂ln y/∂ln p" } else { "∂y/∂p" };
-    let mut out = format!("sensitivities ({kind}) at t = {}:\n", r.times.get(last).copied().unwrap_or(0.0));
-    let width = r.parameters.iter().map(|p| p.len()).max().unwrap_or(4).max(12);
+    let kind = if normalized {
+        "normalised ∂ln y/∂ln p"
+    } else {
+        "∂y/∂p"
+    };
+    let mut out = format!(
+        "sensitivities ({kind}) at t = {}:\n",
+        r.times.get(last).copied().unwrap_or(0.0)
+    );
+    let width = r
+        .parameters
+        .iter()
+        .map(|p| p.len())
+        .max()
+        .unwrap_or(4)
+        .max(12);
     out.push_str(&format!("  {:<14}", "output"));
     for p in &r.parameters {
         out.push_str(&format!(" {p:>width$}"));
@@ -298,7 +372,9 @@ fn human(r: &Sensitivities, chosen: &[usize], normalized: bool, value: &dyn Fn(u
     for &o in chosen {
         out.push_str(&format!("  {:<14}", r.outputs[o]));
         for k in 0..r.parameters.len() {
-            let text = value(o, k, last).map(|v| format!("{v:.6e}")).unwrap_or_else(|| "undefined".into());
+            let text = value(o, k, last)
+                .map(|v| format!("{v:.6e}"))
+                .unwrap_or_else(|| "undefined".into());
             out.push_str(&format!(" {text:>width$}"));
         }
         out.push('\n');

@@ -556,11 +556,17 @@ pub fn event_text(model: &Model, e: &Event) -> String {
             model.volume_symbol(),
             contents
                 .iter()
-                .map(|(sym, c)| format!("{} {}", quantity_text(model, *c, conc), model.name_of(*sym)))
+                .map(|(sym, c)| format!(
+                    "{} {}",
+                    quantity_text(model, *c, conc),
+                    model.name_of(*sym)
+                ))
                 .collect::<Vec<_>>()
                 .join(", ")
         ),
-        Action::Withdraw { volume } => format!("remove {} {}", number(*volume), model.volume_symbol()),
+        Action::Withdraw { volume } => {
+            format!("remove {} {}", number(*volume), model.volume_symbol())
+        }
     };
     match &e.timing {
         Timing::At(t) => format!("{action} at {}", quantity_text(model, *t, Some(Dim::TIME))),
@@ -573,7 +579,13 @@ fn stock_text(model: &Model, e: &Event) -> String {
     match &e.action {
         Action::Stock { contents, .. } => contents
             .iter()
-            .map(|(sym, c)| format!("{} {}", quantity_text(model, *c, Some(Dim::CONC)), model.name_of(*sym)))
+            .map(|(sym, c)| {
+                format!(
+                    "{} {}",
+                    quantity_text(model, *c, Some(Dim::CONC)),
+                    model.name_of(*sym)
+                )
+            })
             .collect::<Vec<_>>()
             .join(", "),
         Action::Species { .. } | Action::Withdraw { .. } => String::new(),
@@ -632,8 +644,16 @@ fn event_view(ctx: &Context, side: Side, e: &Event) -> EventView {
 fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
     let (old, new) = (ctx.old, ctx.new);
     let time = Some(Dim::TIME);
-    let old_views: Vec<EventView> = old.events.iter().map(|e| event_view(ctx, Side::Old, e)).collect();
-    let new_views: Vec<EventView> = new.events.iter().map(|e| event_view(ctx, Side::New, e)).collect();
+    let old_views: Vec<EventView> = old
+        .events
+        .iter()
+        .map(|e| event_view(ctx, Side::Old, e))
+        .collect();
+    let new_views: Vec<EventView> = new
+        .events
+        .iter()
+        .map(|e| event_view(ctx, Side::New, e))
+        .collect();
     let same_time = |a: &EventView, b: &EventView| match (a.time, b.time) {
         (Some(x), Some(y)) => ctx.same_value(x, y, time),
         (None, None) => true,
@@ -642,7 +662,10 @@ fn event_changes(ctx: &Context, out: &mut Vec<Change>) {
     let same_amount = |a: &EventView, b: &EventView| {
         ctx.same_value(a.amount, b.amount, a.amount_dim)
             && a.stock.len() == b.stock.len()
-            && a.stock.iter().zip(&b.stock).all(|(x, y)| ctx.same_value(*x, *y, Some(Dim::CONC)))
+            && a.stock
+                .iter()
+                .zip(&b.stock)
+                .all(|(x, y)| ctx.same_value(*x, *y, Some(Dim::CONC)))
     };
     let mut old_left: Vec<usize> = (0..old.events.len()).collect();
     let mut new_left: Vec<usize> = (0..new.events.len()).collect();
@@ -875,7 +898,13 @@ fn assumption_changes(ctx: &Context, out: &mut Vec<Change>) {
 fn condition_changes(ctx: &Context, out: &mut Vec<Change>) {
     let (old, new) = (ctx.old, ctx.new);
     let conditions: [(&str, Option<f64>, Option<f64>, &str, &str); 2] = [
-        ("volume", old.volume_litres(), new.volume_litres(), old.volume_symbol(), new.volume_symbol()),
+        (
+            "volume",
+            old.volume_litres(),
+            new.volume_litres(),
+            old.volume_symbol(),
+            new.volume_symbol(),
+        ),
         ("temperature", old.temperature, new.temperature, "K", "K"),
     ];
     for (aspect, a, b, unit_a, unit_b) in conditions {
@@ -888,7 +917,13 @@ fn condition_changes(ctx: &Context, out: &mut Vec<Change>) {
             continue;
         }
         let shown = |m: &Model, v: Option<f64>, unit: &str| {
-            let v = v.map(|v| if aspect == "volume" { v / m.volume_unit.as_ref().map(|u| u.1).unwrap_or(1.0) } else { v });
+            let v = v.map(|v| {
+                if aspect == "volume" {
+                    v / m.volume_unit.as_ref().map(|u| u.1).unwrap_or(1.0)
+                } else {
+                    v
+                }
+            });
             match v {
                 Some(v) => format!("{aspect} {} {unit}", number(v)),
                 None => format!("no {aspect}"),

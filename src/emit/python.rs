@@ -146,9 +146,11 @@ fn module(sys: &System, options: &EmitOptions) -> String {
                 ),
                 float_literal(*volume),
             ),
-            Action::Withdraw { volume } => {
-                (quoted("withdraw"), "None".to_string(), float_literal(*volume))
-            }
+            Action::Withdraw { volume } => (
+                quoted("withdraw"),
+                "None".to_string(),
+                float_literal(*volume),
+            ),
         }
     };
     for e in &m.events {
@@ -162,14 +164,21 @@ fn module(sys: &System, options: &EmitOptions) -> String {
         o,
         "VOLUME = {}\nFIXED = [{}]",
         m.volume.map(float_literal).unwrap_or_else(|| "None".into()),
-        m.fixed.iter().map(|f| quoted(&f.name)).collect::<Vec<_>>().join(", ")
+        m.fixed
+            .iter()
+            .map(|f| quoted(&f.name))
+            .collect::<Vec<_>>()
+            .join(", ")
     );
     o.push_str("\n# Triggered events: (rising function of (t, x, p), kind, target, amount);\n# each fires when its function rises through zero (the condition becomes\n# true), never at t = 0 for a condition already true.\nTRIGGERS = [\n");
     let mut k = 0;
     for e in &m.events {
         if let Timing::When(_) = e.timing {
             let (kind, target, amount) = action(&e.action);
-            let _ = writeln!(o, "    (lambda t, x, p: rising_{k}(t, x, p), {kind}, {target}, {amount}),");
+            let _ = writeln!(
+                o,
+                "    (lambda t, x, p: rising_{k}(t, x, p), {kind}, {target}, {amount}),"
+            );
             k += 1;
         }
     }
@@ -345,7 +354,12 @@ fn module(sys: &System, options: &EmitOptions) -> String {
                 let _ = writeln!(o, "    {} = x[{i}]", name(Sym::Species(i)));
             }
         }
-        prelude(&mut o, sys, &names, &sys.needs_over_full(std::iter::once(rising)));
+        prelude(
+            &mut o,
+            sys,
+            &names,
+            &sys.needs_over_full(std::iter::once(rising)),
+        );
         let _ = writeln!(o, "    return {}", ex(rising));
     }
 

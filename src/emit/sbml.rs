@@ -176,7 +176,10 @@ fn document(sys: &System, options: &EmitOptions) -> String {
         .events
         .iter()
         .any(|e| matches!(e.action, Action::Stock { .. } | Action::Withdraw { .. }));
-    let dilutes = m.events.iter().any(|e| matches!(e.action, Action::Stock { .. }));
+    let dilutes = m
+        .events
+        .iter()
+        .any(|e| matches!(e.action, Action::Stock { .. }));
     let _ = writeln!(
         o,
         "    <listOfCompartments>\n      <compartment id=\"{COMPARTMENT}\" spatialDimensions=\"3\" size=\"{}\" units=\"litre\" constant=\"{}\"/>\n    </listOfCompartments>",
@@ -451,12 +454,18 @@ fn event_assignments(
                 EventKind::Remove => "remove",
                 EventKind::Set => "set",
             };
-            (format!("{word} {}", m.species[*species].name), vec![(sp, value)])
+            (
+                format!("{word} {}", m.species[*species].name),
+                vec![(sp, value)],
+            )
         }
         Action::Stock { volume, contents } => {
             let litres = volume * m.volume_unit.as_ref().map(|u| u.1).unwrap_or(1.0);
             let added = plain_literal(litres);
-            let new_size = format!("<apply><plus/>{}<cn> {added} </cn></apply>", ci(COMPARTMENT));
+            let new_size = format!(
+                "<apply><plus/>{}<cn> {added} </cn></apply>",
+                ci(COMPARTMENT)
+            );
             let mut out = vec![(COMPARTMENT.to_string(), new_size.clone())];
             let diluted = |sym: Sym| {
                 let stock = contents.iter().find(|(s, _)| *s == sym).map(|(_, c)| *c);
@@ -468,12 +477,18 @@ fn event_assignments(
                     ),
                     None => kept,
                 };
-                (id(sym), format!("<apply><divide/>{amount}{new_size}</apply>"))
+                (
+                    id(sym),
+                    format!("<apply><divide/>{amount}{new_size}</apply>"),
+                )
             };
             out.extend((0..m.species.len()).map(|i| diluted(Sym::Species(i))));
             out.extend((0..m.fixed.len()).map(|i| diluted(Sym::Fixed(i))));
             let names: Vec<&str> = contents.iter().map(|(s, _)| m.name_of(*s)).collect();
-            (format!("add {} L of stock ({})", added, names.join(", ")), out)
+            (
+                format!("add {} L of stock ({})", added, names.join(", ")),
+                out,
+            )
         }
         Action::Withdraw { volume } => {
             let litres = plain_literal(volume * m.volume_unit.as_ref().map(|u| u.1).unwrap_or(1.0));
@@ -481,7 +496,10 @@ fn event_assignments(
                 format!("remove {litres} L"),
                 vec![(
                     COMPARTMENT.to_string(),
-                    format!("<apply><minus/>{}<cn> {litres} </cn></apply>", ci(COMPARTMENT)),
+                    format!(
+                        "<apply><minus/>{}<cn> {litres} </cn></apply>",
+                        ci(COMPARTMENT)
+                    ),
                 )],
             )
         }

@@ -383,7 +383,7 @@ fn index(file: &mut ParsedFile) {
             StatementKind::Param { name, value, .. } => {
                 declare(name, Kind::Param);
                 match value {
-                    ParamValue::Quantity(_) => {}
+                    ParamValue::Quantity(_) | ParamValue::AtTemperature { .. } => {}
                     ParamValue::Expr(e) => names_in(e, &mut refer),
                 }
             }
@@ -422,9 +422,26 @@ fn index(file: &mut ParsedFile) {
                     refer(ident);
                 }
             }
-            StatementKind::Event { target, .. } | StatementKind::Set { target, .. } => {
-                refer(target)
+            StatementKind::Event { action, timing } => {
+                match action {
+                    syntax::ActionAst::Change { target, .. }
+                    | syntax::ActionAst::Set { target, .. } => refer(target),
+                    syntax::ActionAst::Stock { contents, .. } => {
+                        for (_, name) in contents {
+                            refer(name);
+                        }
+                    }
+                    syntax::ActionAst::Withdraw { .. } => {}
+                }
+                if let syntax::TimingAst::When { lhs, rhs, .. } = timing {
+                    for side in [lhs, rhs] {
+                        if let syntax::ConditionSide::Expr(e) = side {
+                            names_in(e, &mut refer);
+                        }
+                    }
+                }
             }
+            StatementKind::Volume(_) | StatementKind::Temperature(_) => {}
         }
     }
     file.declarations = declarations;

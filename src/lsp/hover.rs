@@ -69,6 +69,13 @@ fn describe(analysis: &Analysis, declaration: &Declaration) -> String {
         } => {
             match value {
                 ParamValue::Quantity(q) => quantity_lines(&mut lines, q, units),
+                ParamValue::AtTemperature { value: q, .. } => {
+                    quantity_lines(&mut lines, q, units);
+                    lines.push(
+                        "given at a reference temperature; the model value is at the assay's"
+                            .into(),
+                    );
+                }
                 ParamValue::Expr(e) => lines.push(format!("value: `{}`", expr(e))),
             }
             if let Some(Sym::Param(i)) = model.and_then(|m| m.lookup(&declaration.name)) {
@@ -133,7 +140,8 @@ fn describe(analysis: &Analysis, declaration: &Declaration) -> String {
         | StatementKind::AssumeSteady(_)
         | StatementKind::AssumeEquilibrium(_)
         | StatementKind::Event { .. }
-        | StatementKind::Set { .. }
+        | StatementKind::Volume(_)
+        | StatementKind::Temperature(_)
         | StatementKind::Use { .. } => {}
     }
     lines.join("\n\n")

@@ -276,7 +276,10 @@ impl Model {
 
     /// The volume unit's symbol (`uL`), or `L` when none is declared.
     pub fn volume_symbol(&self) -> &str {
-        self.volume_unit.as_ref().map(|u| u.0.as_str()).unwrap_or("L")
+        self.volume_unit
+            .as_ref()
+            .map(|u| u.0.as_str())
+            .unwrap_or("L")
     }
 
     /// Finds a named item of any kind.

@@ -253,10 +253,7 @@ pub enum TemperatureLaw {
     /// Eyring–Polanyi equation (Eyring 1935) relative to the reference; with
     /// an entropy given, the absolute form
     /// k(T) = (k_B·T/h) · exp(ΔS‡/R) · exp(−ΔH‡/(R·T)).
-    Eyring {
-        enthalpy: f64,
-        entropy: Option<f64>,
-    },
+    Eyring { enthalpy: f64, entropy: Option<f64> },
 }
 
 /// A param whose value is given at a reference temperature.
@@ -307,20 +304,47 @@ mod tests {
     fn factors_follow_the_si_definitions() {
         // SI Brochure, 9th edition (2019): 1 L = 1e-3 m³ and the decimal
         // prefixes; 1 mg/mL = 1 g/L exactly; dalton as g/mol.
-        assert_eq!(lab_unit("uL"), Some((LabKind::Volume, Factor::new(1, 1_000_000))));
+        assert_eq!(
+            lab_unit("uL"),
+            Some((LabKind::Volume, Factor::new(1, 1_000_000)))
+        );
         assert_eq!(lab_unit("µL"), lab_unit("uL"));
-        assert_eq!(lab_unit("fL").unwrap().1, Factor::new(1, 1_000_000_000_000_000));
-        assert_eq!(lab_unit("mg/mL"), Some((LabKind::MassConcentration, Factor::ONE)));
+        assert_eq!(
+            lab_unit("fL").unwrap().1,
+            Factor::new(1, 1_000_000_000_000_000)
+        );
+        assert_eq!(
+            lab_unit("mg/mL"),
+            Some((LabKind::MassConcentration, Factor::ONE))
+        );
         assert_eq!(lab_unit("ug/mL").unwrap().1, Factor::new(1, 1_000));
-        assert_eq!(lab_unit("kDa"), Some((LabKind::MolarMass, Factor::new(1_000, 1))));
+        assert_eq!(
+            lab_unit("kDa"),
+            Some((LabKind::MolarMass, Factor::new(1_000, 1)))
+        );
         assert_eq!(lab_unit("kg/mol"), lab_unit("kDa"));
-        assert_eq!(lab_unit("nmol"), Some((LabKind::Amount, Factor::new(1, 1_000_000_000))));
+        assert_eq!(
+            lab_unit("nmol"),
+            Some((LabKind::Amount, Factor::new(1, 1_000_000_000)))
+        );
         // IUBMB (1961): 1 U = 1 µmol/min; U/mL is 1000 U/L.
-        assert_eq!(lab_unit("U/mL"), Some((LabKind::ActivityConcentration, Factor::new(1_000, 1))));
-        assert_eq!(lab_unit("U/mg"), Some((LabKind::SpecificActivity, Factor::new(1_000, 1))));
+        assert_eq!(
+            lab_unit("U/mL"),
+            Some((LabKind::ActivityConcentration, Factor::new(1_000, 1)))
+        );
+        assert_eq!(
+            lab_unit("U/mg"),
+            Some((LabKind::SpecificActivity, Factor::new(1_000, 1)))
+        );
         // Thermochemical calorie: 4.184 J exactly (ISO 80000-5).
-        assert_eq!(lab_unit("kcal/mol"), Some((LabKind::MolarEnergy, Factor::new(4_184, 1))));
-        assert_eq!(lab_unit("J/mol/K"), Some((LabKind::MolarEntropy, Factor::ONE)));
+        assert_eq!(
+            lab_unit("kcal/mol"),
+            Some((LabKind::MolarEnergy, Factor::new(4_184, 1)))
+        );
+        assert_eq!(
+            lab_unit("J/mol/K"),
+            Some((LabKind::MolarEntropy, Factor::ONE))
+        );
         assert_eq!(lab_unit("uM"), None);
         assert_eq!(lab_unit("Mg/mL"), None);
         assert_eq!(kelvin(25.0, "C"), Some(298.15));

@@ -219,7 +219,9 @@ impl Checker<'_> {
                     species, amount, ..
                 } => (*species < m.species.len(), *amount),
                 Action::Stock { volume, contents } => (
-                    contents.iter().all(|(s, c)| sym_ok(s) && c.is_finite() && *c >= 0.0)
+                    contents
+                        .iter()
+                        .all(|(s, c)| sym_ok(s) && c.is_finite() && *c >= 0.0)
                         && m.volume.is_some(),
                     *volume,
                 ),

@@ -115,7 +115,9 @@ impl Sensitivities {
     /// noise of the solver's absolute tolerance.
     pub fn normalized(&self, output: usize, parameter: usize, time: usize) -> Option<f64> {
         let y = self.trajectory[output][time];
-        let scale = self.trajectory[output].iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let scale = self.trajectory[output]
+            .iter()
+            .fold(0.0f64, |m, v| m.max(v.abs()));
         if y == 0.0 || y.abs() <= 1e-9 * scale || !y.is_finite() {
             return None;
         }
@@ -188,7 +190,11 @@ fn sum(terms: Vec<Expr>) -> Expr {
 /// sensitivity species `n + k·n + i` for parameter `k`; observable `o` has
 /// derived observables `m + k·m + o`.
 pub fn augmented(model: &Model, parameters: &[Parameter]) -> Result<Model, Diagnostic> {
-    if let Some(e) = model.events.iter().find(|e| matches!(e.timing, Timing::When(_))) {
+    if let Some(e) = model
+        .events
+        .iter()
+        .find(|e| matches!(e.timing, Timing::When(_)))
+    {
         return Err(Diagnostic::error(
             Code::BadNumericInput,
             "sensitivities through state-triggered events are not computed (the event time moves with the parameters)",
@@ -197,7 +203,11 @@ pub fn augmented(model: &Model, parameters: &[Parameter]) -> Result<Model, Diagn
         .with_help("remove the `when` line, or write the protocol with timed events"));
     }
     let n = model.species.len();
-    let rhs: Vec<Expr> = model.rhs_exprs().iter().map(|f| expanded(model, f, 0)).collect();
+    let rhs: Vec<Expr> = model
+        .rhs_exprs()
+        .iter()
+        .map(|f| expanded(model, f, 0))
+        .collect();
     // J[i][j] = ∂f_i/∂y_j, non-zero entries only.
     let jac: Vec<Vec<(usize, Expr)>> = rhs
         .iter()
@@ -223,8 +233,16 @@ pub fn augmented(model: &Model, parameters: &[Parameter]) -> Result<Model, Diagn
     for (k, p) in parameters.iter().enumerate() {
         for i in 0..n {
             aug.species.push(Species {
-                name: format!("\u{2202}{}/\u{2202}{}", model.species[i].name, p.label(model)),
-                initial: if *p == Parameter::Initial(i) { 1.0 } else { 0.0 },
+                name: format!(
+                    "\u{2202}{}/\u{2202}{}",
+                    model.species[i].name,
+                    p.label(model)
+                ),
+                initial: if *p == Parameter::Initial(i) {
+                    1.0
+                } else {
+                    0.0
+                },
                 initial_given: true,
                 description: None,
                 span: model.species[i].span,
@@ -275,7 +293,11 @@ pub fn augmented(model: &Model, parameters: &[Parameter]) -> Result<Model, Diagn
                 terms.push(simplify(&derivative(&expr, *s)));
             }
             aug.observables.push(Observable {
-                name: format!("\u{2202}{}/\u{2202}{}", model.observables[o].name, p.label(model)),
+                name: format!(
+                    "\u{2202}{}/\u{2202}{}",
+                    model.observables[o].name,
+                    p.label(model)
+                ),
                 expr: simplify(&sum(terms)),
                 span: model.observables[o].span,
             });
@@ -344,7 +366,12 @@ pub fn sensitivities(
     let values = (0..outputs.len())
         .map(|o| {
             (0..m)
-                .map(|k| tr.rows.iter().map(|r| r[column_of_sensitivity(o, k)]).collect())
+                .map(|k| {
+                    tr.rows
+                        .iter()
+                        .map(|r| r[column_of_sensitivity(o, k)])
+                        .collect()
+                })
                 .collect()
         })
         .collect();

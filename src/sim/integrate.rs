@@ -537,7 +537,9 @@ where
         if !watch.triggers.is_empty() {
             let y_now = state.y.clone_as_vec();
             let g = watch.values(system, workspace, &y_now, t_now, &mut scratch);
-            let rising: Vec<usize> = (0..g.len()).filter(|&k| watch.armed[k] && g[k] > 0.0).collect();
+            let rising: Vec<usize> = (0..g.len())
+                .filter(|&k| watch.armed[k] && g[k] > 0.0)
+                .collect();
             if !rising.is_empty() {
                 // The earliest crossing among the rising conditions.
                 let mut best = (t_now, Vec::new());
@@ -550,7 +552,9 @@ where
                         let mid = 0.5 * (lo + hi);
                         let y = solver
                             .interpolate(mid)
-                            .map_err(|e| SimError::setup(format!("interpolation at t = {mid} failed: {e}")))?
+                            .map_err(|e| {
+                                SimError::setup(format!("interpolation at t = {mid} failed: {e}"))
+                            })?
                             .clone_as_vec();
                         if watch.values(system, workspace, &y, mid, &mut scratch)[k] > 0.0 {
                             hi = mid;

@@ -290,7 +290,11 @@ pub fn add_volume_columns(
 /// 5 × 10^k. Without any dynamics, or above 400 species, the slowest time
 /// scale is taken as 20 time units.
 pub fn default_until(model: &Model, system: &CompiledSystem) -> f64 {
-    let last_event = model.events.iter().filter_map(|e| e.time()).fold(0.0, f64::max);
+    let last_event = model
+        .events
+        .iter()
+        .filter_map(|e| e.time())
+        .fold(0.0, f64::max);
     let tau = slowest_time_scale(model, system).unwrap_or(20.0);
     nice_ceiling(last_event + 5.0 * tau)
 }

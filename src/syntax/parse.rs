@@ -872,9 +872,7 @@ impl Builder {
     }
 
     fn event_action(&self, pair: Pair<Rule>) -> Option<ActionAst> {
-        let mut parts = pair
-            .into_inner()
-            .filter(|p| p.as_rule() != Rule::equals);
+        let mut parts = pair.into_inner().filter(|p| p.as_rule() != Rule::equals);
         let keyword = parts.next()?.as_rule();
         match keyword {
             Rule::kw_add | Rule::kw_remove => self.action(parts.next()?, keyword == Rule::kw_add),

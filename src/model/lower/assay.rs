@@ -9,9 +9,7 @@
 
 use super::*;
 use crate::diagnostics::{Code, Diagnostic};
-use crate::model::lab_units::{
-    self, LabKind, TemperatureDependence, TemperatureLaw, lab_unit,
-};
+use crate::model::lab_units::{self, LabKind, TemperatureDependence, TemperatureLaw, lab_unit};
 use crate::model::units::{ConcUnit, Dim, UnitExpr, parse_unit};
 use crate::syntax::{Conversion, ConversionKind, Quantity, TemperatureLawAst};
 
@@ -84,9 +82,12 @@ impl Lowerer<'_> {
         let value = self.number(&q.number, q.number_span)?;
         let Some((text, span)) = &q.unit else {
             self.error(
-                Diagnostic::error(Code::UnknownUnit, format!("`{}` needs a unit: {}", q.number, kind.example()))
-                    .with_label(q.span, "no unit")
-                    .with_help("these quantities are always written with their unit"),
+                Diagnostic::error(
+                    Code::UnknownUnit,
+                    format!("`{}` needs a unit: {}", q.number, kind.example()),
+                )
+                .with_label(q.span, "no unit")
+                .with_help("these quantities are always written with their unit"),
             );
             return None;
         };
@@ -94,9 +95,12 @@ impl Lowerer<'_> {
             Some((k, factor)) if k == kind => Some(factor.apply(value)),
             _ => {
                 self.error(
-                    Diagnostic::error(Code::UnknownUnit, format!("`{text}` is not {}", kind.example()))
-                        .with_label(*span, "wrong unit")
-                        .with_help(format!("write {}", kind.example())),
+                    Diagnostic::error(
+                        Code::UnknownUnit,
+                        format!("`{text}` is not {}", kind.example()),
+                    )
+                    .with_label(*span, "wrong unit")
+                    .with_help(format!("write {}", kind.example())),
                 );
                 None
             }
@@ -114,17 +118,23 @@ impl Lowerer<'_> {
             Some(k) if k > 0.0 => Some(k),
             Some(_) => {
                 self.error(
-                    Diagnostic::error(Code::BadTemperature, "a temperature must lie above absolute zero")
-                        .with_label(q.span, "at or below 0 K")
-                        .with_help("write it in C (°C) or K, e.g. `37 C`"),
+                    Diagnostic::error(
+                        Code::BadTemperature,
+                        "a temperature must lie above absolute zero",
+                    )
+                    .with_label(q.span, "at or below 0 K")
+                    .with_help("write it in C (°C) or K, e.g. `37 C`"),
                 );
                 None
             }
             None => {
                 self.error(
-                    Diagnostic::error(Code::BadTemperature, format!("`{}` is not a temperature", source_text(q)))
-                        .with_label(q.span, "needs C or K")
-                        .with_help("write a temperature with its unit: `37 C` or `310.15 K`"),
+                    Diagnostic::error(
+                        Code::BadTemperature,
+                        format!("`{}` is not a temperature", source_text(q)),
+                    )
+                    .with_label(q.span, "needs C or K")
+                    .with_help("write a temperature with its unit: `37 C` or `310.15 K`"),
                 );
                 None
             }
@@ -180,7 +190,9 @@ impl Lowerer<'_> {
                 let specific = activity.value.unit.as_ref().and_then(|(t, _)| lab_unit(t));
                 match specific {
                     Some((LabKind::SpecificActivity, f)) => {
-                        let units_per_gram = f.apply(self.number(&activity.value.number, activity.value.number_span)?);
+                        let units_per_gram = f.apply(
+                            self.number(&activity.value.number, activity.value.number_span)?,
+                        );
                         if units_per_gram <= 0.0 {
                             return self.not_positive(&activity.value, "a specific activity");
                         }
@@ -214,9 +226,15 @@ impl Lowerer<'_> {
     fn molar_mass(&mut self, value: &Quantity, mass: Option<&Conversion>) -> Option<f64> {
         let Some(mass) = mass else {
             self.error(
-                Diagnostic::error(Code::MissingConversion, format!("`{}` needs the molar mass to become a concentration", source_text(value)))
-                    .with_label(value.span, "mass, not moles")
-                    .with_help("add `mass 28.5 kDa` (or g/mol) after the value"),
+                Diagnostic::error(
+                    Code::MissingConversion,
+                    format!(
+                        "`{}` needs the molar mass to become a concentration",
+                        source_text(value)
+                    ),
+                )
+                .with_label(value.span, "mass, not moles")
+                .with_help("add `mass 28.5 kDa` (or g/mol) after the value"),
             );
             return None;
         };
@@ -232,7 +250,13 @@ impl Lowerer<'_> {
         match parsed {
             Some(u) if u.dim() == Dim::new(0, -1) => {
                 let value = self.number(&q.number, q.number_span)?;
-                let per_second = u.convert(value, Units { time: crate::model::TimeUnit::S, ..self.model.units });
+                let per_second = u.convert(
+                    value,
+                    Units {
+                        time: crate::model::TimeUnit::S,
+                        ..self.model.units
+                    },
+                );
                 if per_second <= 0.0 {
                     return self.not_positive(q, "a turnover");
                 }
@@ -259,9 +283,12 @@ impl Lowerer<'_> {
 
     pub(super) fn needs_volume(&mut self, span: Span, what: &str) {
         self.error(
-            Diagnostic::error(Code::NeedsVolume, format!("{what} needs the mixture's volume, and the file declares none"))
-                .with_label(span, "needs a volume")
-                .with_help("declare the starting volume, e.g. `volume 200 uL`"),
+            Diagnostic::error(
+                Code::NeedsVolume,
+                format!("{what} needs the mixture's volume, and the file declares none"),
+            )
+            .with_label(span, "needs a volume")
+            .with_help("declare the starting volume, e.g. `volume 200 uL`"),
         );
     }
 

@@ -94,7 +94,12 @@ impl Lowerer<'_> {
                         }
                         let (initial, given) = match &d.value {
                             Some(q) => {
-                                let value = self.initial_concentration(q, &d.conversions, item.units, "an initial value");
+                                let value = self.initial_concentration(
+                                    q,
+                                    &d.conversions,
+                                    item.units,
+                                    "an initial value",
+                                );
                                 if value.is_none() {
                                     self.initial_refused.insert(idx);
                                 }
@@ -132,7 +137,12 @@ impl Lowerer<'_> {
                         .value
                         .as_ref()
                         .and_then(|q| {
-                            self.initial_concentration(q, &d.conversions, item.units, "a fixed concentration")
+                            self.initial_concentration(
+                                q,
+                                &d.conversions,
+                                item.units,
+                                "a fixed concentration",
+                            )
                         })
                         .unwrap_or(0.0);
                     if value < 0.0 {

@@ -24,8 +24,14 @@ impl Lowerer<'_> {
     pub(super) fn lower_event(&mut self, item: &Item, action: &ActionAst, timing: &TimingAst) {
         let action = self.lower_action(item, action);
         let times: Vec<Timing> = match timing {
-            TimingAst::At(q) => self.event_time(q, item.units).map(Timing::At).into_iter().collect(),
-            TimingAst::Every { period, from, to } => self.repetitions(item, period, from.as_ref(), to),
+            TimingAst::At(q) => self
+                .event_time(q, item.units)
+                .map(Timing::At)
+                .into_iter()
+                .collect(),
+            TimingAst::Every { period, from, to } => {
+                self.repetitions(item, period, from.as_ref(), to)
+            }
             TimingAst::When {
                 lhs,
                 comparison,
@@ -193,9 +199,12 @@ impl Lowerer<'_> {
         };
         if p <= 0.0 {
             self.error(
-                Diagnostic::error(Code::BadEvent, "the period of a repeated event must be positive")
-                    .with_label(period.span, "not positive")
-                    .with_help("write e.g. `every 10 min from 0 s to 2 h: ...`"),
+                Diagnostic::error(
+                    Code::BadEvent,
+                    "the period of a repeated event must be positive",
+                )
+                .with_label(period.span, "not positive")
+                .with_help("write e.g. `every 10 min from 0 s to 2 h: ...`"),
             );
             return Vec::new();
         }
@@ -210,9 +219,12 @@ impl Lowerer<'_> {
         let count = ((end - start) / p * (1.0 + 1e-9)).floor();
         if !count.is_finite() || count >= MAX_REPETITIONS as f64 {
             self.error(
-                Diagnostic::error(Code::BadEvent, format!("this repeated event happens more than {MAX_REPETITIONS} times"))
-                    .with_label(item.span, "too many repetitions")
-                    .with_help("lengthen the period or shorten the time span"),
+                Diagnostic::error(
+                    Code::BadEvent,
+                    format!("this repeated event happens more than {MAX_REPETITIONS} times"),
+                )
+                .with_label(item.span, "too many repetitions")
+                .with_help("lengthen the period or shorten the time span"),
             );
             return Vec::new();
         }
@@ -232,24 +244,26 @@ impl Lowerer<'_> {
         span: Span,
     ) -> Option<Trigger> {
         let allowed = |_: Sym| true;
-        let side = |this: &mut Self, s: &ConditionSide| -> Option<(Expr, Option<crate::model::Dim>)> {
-            match s {
-                ConditionSide::Expr(e) => {
-                    let e = this.resolve(e, &allowed, "a condition")?;
-                    let dim = this.infer_dim(&e);
-                    Some((e, dim))
+        let side =
+            |this: &mut Self, s: &ConditionSide| -> Option<(Expr, Option<crate::model::Dim>)> {
+                match s {
+                    ConditionSide::Expr(e) => {
+                        let e = this.resolve(e, &allowed, "a condition")?;
+                        let dim = this.infer_dim(&e);
+                        Some((e, dim))
+                    }
+                    ConditionSide::Quantity(q) => {
+                        let (v, dim) = this.quantity(q, item.units)?;
+                        Some((Expr::Number(v), dim))
+                    }
                 }
-                ConditionSide::Quantity(q) => {
-                    let (v, dim) = this.quantity(q, item.units)?;
-                    Some((Expr::Number(v), dim))
-                }
-            }
-        };
+            };
         let (l, ldim) = side(self, lhs)?;
         let (r, rdim) = side(self, rhs)?;
         // A number without a unit takes the other side's dimension, in the
         // file's default units (as a unitless value does everywhere).
-        let unitless = |s: &ConditionSide| matches!(s, ConditionSide::Quantity(q) if q.unit.is_none());
+        let unitless =
+            |s: &ConditionSide| matches!(s, ConditionSide::Quantity(q) if q.unit.is_none());
         let l = match (unitless(lhs), l, rdim) {
             (true, Expr::Number(v), Some(d)) => Expr::Number(self.in_model_units(v, d, item.units)),
             (_, e, _) => e,
