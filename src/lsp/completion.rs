@@ -7,21 +7,7 @@ use super::analysis::{Analysis, Kind};
 use lsp_types::{CompletionItem, CompletionItemKind};
 
 /// The words that start a statement.
-pub const KEYWORDS: [&str; 13] = [
-    "mechanism",
-    "units",
-    "species",
-    "fixed",
-    "param",
-    "step",
-    "total",
-    "observe",
-    "assume",
-    "add",
-    "remove",
-    "set",
-    "use",
-];
+pub use crate::syntax::parse::STATEMENT_KEYWORDS as KEYWORDS;
 
 /// Unit words a number may take: concentrations, times, and the usual
 /// rate-constant forms.

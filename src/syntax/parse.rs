@@ -301,30 +301,11 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
     };
     let first_word = text[line_start..].split_whitespace().next().unwrap_or("");
     let help = if start == line_start || text[line_start..start].trim().is_empty() {
-        const KEYWORDS: [&str; 17] = [
-            "mechanism",
-            "units",
-            "species",
-            "fixed",
-            "param",
-            "step",
-            "total",
-            "observe",
-            "assume",
-            "add",
-            "remove",
-            "set",
-            "use",
-            "volume",
-            "temperature",
-            "when",
-            "every",
-        ];
-        match crate::diagnostics::did_you_mean(first_word, KEYWORDS) {
+        match crate::diagnostics::did_you_mean(first_word, STATEMENT_KEYWORDS) {
             Some(k) => format!("did you mean `{k}`? Every line starts with a statement keyword"),
             None => format!(
                 "a line starts with one of: {}; `#` starts a comment",
-                KEYWORDS.join(", ")
+                STATEMENT_KEYWORDS.join(", ")
             ),
         }
     } else if after_empty_side {
@@ -336,6 +317,28 @@ fn syntax_error(e: pest::error::Error<Rule>, file: FileId, text: &str) -> Diagno
         .with_label(Span::new(file, start, end), "here")
         .with_help(help)
 }
+
+/// The words that start a statement (the help of a syntax error lists
+/// them; an editor completes them at a line start).
+pub const STATEMENT_KEYWORDS: [&str; 17] = [
+    "mechanism",
+    "units",
+    "species",
+    "fixed",
+    "param",
+    "step",
+    "total",
+    "observe",
+    "assume",
+    "add",
+    "remove",
+    "set",
+    "use",
+    "volume",
+    "temperature",
+    "when",
+    "every",
+];
 
 fn pratt() -> &'static PrattParser<Rule> {
     static P: OnceLock<PrattParser<Rule>> = OnceLock::new();
