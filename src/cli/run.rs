@@ -21,6 +21,15 @@ pub enum MethodArg {
     Esdirk,
 }
 
+impl From<MethodArg> for Method {
+    fn from(m: MethodArg) -> Method {
+        match m {
+            MethodArg::Bdf => Method::Bdf,
+            MethodArg::Esdirk => Method::Esdirk,
+        }
+    }
+}
+
 #[derive(clap::Args, Debug)]
 pub struct Args {
     /// Mechanism file.
@@ -255,10 +264,7 @@ pub fn run(args: &Args) -> ExitCode {
         }
     };
     let settings = Settings {
-        method: match args.method {
-            MethodArg::Bdf => Method::Bdf,
-            MethodArg::Esdirk => Method::Esdirk,
-        },
+        method: args.method.into(),
         rtol: args.rtol,
         atol: args.atol,
         // A grid the user fixed is kept exactly; otherwise each event's

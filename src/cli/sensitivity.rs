@@ -46,6 +46,12 @@ pub struct Args {
     /// Override a param, initial value, fixed species or total (`S=5mM`); repeatable.
     #[arg(long = "set", value_name = "NAME=VALUE")]
     pub set: Vec<String>,
+    /// Integrate only the independent species (dependent ones follow their totals; totals can then be parameters).
+    #[arg(long)]
+    pub reduced: bool,
+    /// Integration method.
+    #[arg(long, value_enum, default_value_t = super::run::MethodArg::Bdf)]
+    pub method: super::run::MethodArg,
     /// Relative tolerance (of the states and the sensitivities).
     #[arg(long, default_value_t = 1e-8)]
     pub rtol: f64,
@@ -187,9 +193,11 @@ pub fn run(args: &Args) -> ExitCode {
     let settings = Settings {
         rtol: args.rtol,
         atol: args.atol,
+        method: args.method.into(),
+        event_rows: args.times.is_none(),
         ..Settings::default()
     };
-    let result = match sensitivities(&model, &parameters, &settings, &times) {
+    let result = match sensitivities(&model, &parameters, &settings, &times, args.reduced) {
         Ok(r) => r,
         Err(SensitivityError::Model(d)) => return report_failure(&[d], &sources, json, EXIT_MODEL),
         Err(SensitivityError::Run(e)) => return sim_failure(&e),

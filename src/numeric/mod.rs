@@ -9,10 +9,12 @@
 //! evaluation time; evaluation never allocates; the Jacobian is the exact
 //! derivative of the right-hand side (symbolic, from `algebra::calculus`).
 
+pub mod derivatives;
 pub mod program;
 pub mod static_lu;
 pub mod system;
 
+pub use derivatives::{CompiledDerivatives, DerivativeWorkspace};
 pub use system::{CompileError, CompiledSystem, StateLayout, Workspace, constants_of};
 
 /// Above this many state variables the solver uses a sparse Jacobian and

@@ -84,7 +84,7 @@ pub fn constants_of(model: &Model) -> Vec<f64> {
     c
 }
 
-fn constant_slot(model: &Model, sym: Sym) -> Option<u32> {
+pub(crate) fn constant_slot(model: &Model, sym: Sym) -> Option<u32> {
     let (np, nf) = (model.params.len(), model.fixed.len());
     match sym {
         Sym::Param(i) => Some(i as u32),
@@ -96,7 +96,7 @@ fn constant_slot(model: &Model, sym: Sym) -> Option<u32> {
 
 /// Replaces observables by their expressions and dependent species by their
 /// formulas, so the result mentions only state species and constants.
-fn expand(
+pub(super) fn expand(
     model: &Model,
     dependent: &BTreeMap<usize, Expr>,
     e: &Expr,
@@ -126,6 +126,41 @@ fn expand(
     }
 }
 
+/// The state slot of each model species (None: dependent or not integrated).
+pub(super) fn slots_of(
+    model: &Model,
+    layout: &StateLayout,
+) -> Result<Vec<Option<u32>>, CompileError> {
+    let mut slot_of = vec![None; model.species.len()];
+    for (slot, &sp) in layout.state_species.iter().enumerate() {
+        if sp >= model.species.len() {
+            return Err(CompileError(format!(
+                "state slot {slot} names species {sp}, which does not exist"
+            )));
+        }
+        slot_of[sp] = Some(slot as u32);
+    }
+    Ok(slot_of)
+}
+
+/// What a name becomes in a compiled program: a state slot, a constant
+/// slot, or (for anything not integrated) a number inlined.
+pub(super) fn leaf_of(model: &Model, slot_of: &[Option<u32>], s: Sym) -> Leaf {
+    match s {
+        Sym::Species(i) => match slot_of.get(i).copied().flatten() {
+            Some(slot) => Leaf::State(slot),
+            // Expansion has replaced dependents; anything left is not integrated.
+            None => Leaf::Inline(Expr::Number(
+                model.species.get(i).map(|s| s.initial).unwrap_or(f64::NAN),
+            )),
+        },
+        other => match constant_slot(model, other) {
+            Some(k) => Leaf::Constant(k),
+            None => Leaf::Inline(Expr::Number(f64::NAN)),
+        },
+    }
+}
+
 impl CompiledSystem {
     /// Compiles the whole model (every species is a state).
     pub fn full(model: &Model) -> Result<CompiledSystem, CompileError> {
@@ -135,31 +170,9 @@ impl CompiledSystem {
     /// Compiles a model with the given state layout.
     pub fn compile(model: &Model, layout: &StateLayout) -> Result<CompiledSystem, CompileError> {
         let nstates = layout.state_species.len();
-        let mut slot_of = vec![None; model.species.len()];
-        for (slot, &sp) in layout.state_species.iter().enumerate() {
-            if sp >= model.species.len() {
-                return Err(CompileError(format!(
-                    "state slot {slot} names species {sp}, which does not exist"
-                )));
-            }
-            slot_of[sp] = Some(slot as u32);
-        }
+        let slot_of = slots_of(model, layout)?;
         let dependent: BTreeMap<usize, Expr> = layout.dependent.iter().cloned().collect();
-        let resolve = |s: Sym| -> Leaf {
-            match s {
-                Sym::Species(i) => match slot_of.get(i).copied().flatten() {
-                    Some(slot) => Leaf::State(slot),
-                    // Expansion has replaced dependents; anything left is not integrated.
-                    None => Leaf::Inline(Expr::Number(
-                        model.species.get(i).map(|s| s.initial).unwrap_or(f64::NAN),
-                    )),
-                },
-                other => match constant_slot(model, other) {
-                    Some(k) => Leaf::Constant(k),
-                    None => Leaf::Inline(Expr::Number(f64::NAN)),
-                },
-            }
-        };
+        let resolve = |s: Sym| leaf_of(model, &slot_of, s);
 
         // Fluxes with dependents and observables expanded.
         let mut fluxes = Vec::with_capacity(model.steps.len());

@@ -35,7 +35,7 @@ pub struct Trajectory {
 }
 
 impl Trajectory {
-    fn push(&mut self, t: f64, row: &[f64], volume: Option<f64>) {
+    pub(super) fn push(&mut self, t: f64, row: &[f64], volume: Option<f64>) {
         self.times.push(t);
         self.rows.push(row.to_vec());
         if let Some(v) = volume {
@@ -46,20 +46,20 @@ impl Trajectory {
 
 /// Last Jacobian values, reused while the solver asks for J·v at the same
 /// point (building a Jacobian takes one J·v per column or colour).
-struct JacobianCache {
-    y_bits: Vec<u64>,
-    t_bits: u64,
-    valid: bool,
-    values: Vec<f64>,
+pub(super) struct JacobianCache {
+    pub(super) y_bits: Vec<u64>,
+    pub(super) t_bits: u64,
+    pub(super) valid: bool,
+    pub(super) values: Vec<f64>,
 }
 
 impl JacobianCache {
-    fn matches(&self, y: &[f64], t: f64) -> bool {
+    pub(super) fn matches(&self, y: &[f64], t: f64) -> bool {
         self.valid
             && self.t_bits == t.to_bits()
             && self.y_bits.iter().zip(y).all(|(a, b)| *a == b.to_bits())
     }
-    fn store(&mut self, y: &[f64], t: f64) {
+    pub(super) fn store(&mut self, y: &[f64], t: f64) {
         self.y_bits.clear();
         self.y_bits.extend(y.iter().map(|v| v.to_bits()));
         self.t_bits = t.to_bits();
@@ -68,7 +68,7 @@ impl JacobianCache {
 }
 
 /// A value above this (in default units) counts as a blow-up.
-const BLOW_UP: f64 = 1e100;
+pub(super) const BLOW_UP: f64 = 1e100;
 
 /// Integrates `model` compiled as `system` from t = 0 and reports the state
 /// at `times` (sorted, non-negative). `model` supplies constants, totals and
@@ -119,12 +119,12 @@ pub fn simulate_with(
 
 /// The segment plan: timed events in time order (file order at one time),
 /// and the state-triggered events.
-struct Plan {
-    events: Vec<usize>,
-    triggers: Vec<usize>,
+pub(super) struct Plan {
+    pub(super) events: Vec<usize>,
+    pub(super) triggers: Vec<usize>,
 }
 
-fn plan(model: &Model, end: f64) -> Plan {
+pub(super) fn plan(model: &Model, end: f64) -> Plan {
     let mut events: Vec<usize> = (0..model.events.len())
         .filter(|&i| model.events[i].time().is_some_and(|t| t <= end))
         .collect();
@@ -141,19 +141,19 @@ fn plan(model: &Model, end: f64) -> Plan {
 
 /// Triggered firings allowed in one run (a condition that flips at every
 /// step would otherwise never let the run end).
-const MAX_FIRINGS: usize = 100_000;
+pub(super) const MAX_FIRINGS: usize = 100_000;
 
 /// What the protocol has done to the mixture so far: the species, the
 /// fixed species and totals as events left them (in `current`), and the
 /// volume.
-struct Mixture {
-    current: Model,
-    species: Vec<f64>,
-    volume: Option<f64>,
+pub(super) struct Mixture {
+    pub(super) current: Model,
+    pub(super) species: Vec<f64>,
+    pub(super) volume: Option<f64>,
 }
 
 impl Mixture {
-    fn new(model: &Model) -> Mixture {
+    pub(super) fn new(model: &Model) -> Mixture {
         Mixture {
             current: model.clone(),
             species: model.initial_state(),
@@ -162,7 +162,7 @@ impl Mixture {
     }
 
     /// Applies one event to the full species values (and the volume).
-    fn apply(&mut self, model: &Model, event: usize, t: f64) -> Result<(), SimError> {
+    pub(super) fn apply(&mut self, model: &Model, event: usize, t: f64) -> Result<(), SimError> {
         match &model.events[event].action {
             Action::Species {
                 kind,
@@ -210,7 +210,7 @@ impl Mixture {
     /// The constants for the system: params, fixed species as diluted,
     /// and totals recomputed from the species (an addition changes the
     /// amount conserved, and the constants that depend on totals follow).
-    fn constants(&mut self) -> Vec<f64> {
+    pub(super) fn constants(&mut self) -> Vec<f64> {
         for t in &mut self.current.totals {
             t.value = t
                 .terms
@@ -222,7 +222,7 @@ impl Mixture {
     }
 
     /// The value of a trigger's rising function at full species values.
-    fn rising(&self, model: &Model, event: usize, species: &[f64], t: f64) -> f64 {
+    pub(super) fn rising(&self, model: &Model, event: usize, species: &[f64], t: f64) -> f64 {
         match &model.events[event].timing {
             Timing::When(trigger) => self.current.eval_at(&trigger.rising, species, t),
             Timing::At(_) => f64::NAN,
@@ -231,7 +231,7 @@ impl Mixture {
 }
 
 /// How a stretch of integration ended.
-enum Stretch {
+pub(super) enum Stretch {
     /// At the segment's end; the state there.
     Reached(Vec<f64>),
     /// A trigger fired first: its time, the state there, and which
@@ -244,12 +244,12 @@ enum Stretch {
 }
 
 /// The triggers a stretch watches.
-struct Watch<'a> {
-    model: &'a Model,
-    mixture: &'a Mixture,
-    triggers: &'a [usize],
+pub(super) struct Watch<'a> {
+    pub(super) model: &'a Model,
+    pub(super) mixture: &'a Mixture,
+    pub(super) triggers: &'a [usize],
     /// Whether each trigger may fire (its condition was false since it last fired).
-    armed: &'a mut Vec<bool>,
+    pub(super) armed: &'a mut Vec<bool>,
 }
 
 impl Watch<'_> {
@@ -383,6 +383,7 @@ macro_rules! simulate_with {
                         out: &mut out,
                         row: &mut row,
                         volume: mixture.volume,
+                        sensitivities: None,
                     };
                     stretch = match settings.method {
                         Method::Bdf => {
@@ -471,19 +472,28 @@ simulate_with!(
 );
 
 /// Where a stretch writes the requested outputs.
-struct Sink<'a> {
-    times: &'a [f64],
-    next_out: &'a mut usize,
-    out: &'a mut Trajectory,
-    row: &'a mut Vec<f64>,
-    volume: Option<f64>,
+pub(super) struct Sink<'a> {
+    pub(super) times: &'a [f64],
+    pub(super) next_out: &'a mut usize,
+    pub(super) out: &'a mut Trajectory,
+    pub(super) row: &'a mut Vec<f64>,
+    pub(super) volume: Option<f64>,
+    /// With forward sensitivities: the state and the state's sensitivities
+    /// (column per parameter) at each output, and at the stretch's end.
+    pub(super) sensitivities: Option<&'a mut SensitivitySink>,
+}
+
+#[derive(Default)]
+pub(super) struct SensitivitySink {
+    pub(super) at_outputs: Vec<(Vec<f64>, Vec<f64>)>,
+    pub(super) at_end: Vec<f64>,
 }
 
 /// Steps one solver to `seg_end`, recording outputs on the way, and stops
 /// early where a trigger's condition becomes true (located by bisection on
 /// the solver's interpolant to a relative 1e-13 of the time).
 #[allow(clippy::too_many_arguments)]
-fn drive<'a, Eqn, S>(
+pub(super) fn drive<'a, Eqn, S>(
     mut solver: S,
     system: &CompiledSystem,
     workspace: &RefCell<crate::numeric::Workspace>,
@@ -592,6 +602,10 @@ where
                 .clone_as_vec();
             system.outputs(&mut workspace.borrow_mut(), &y, t, sink.row);
             sink.out.push(t, sink.row, sink.volume);
+            if let Some(sens) = sink.sensitivities.as_deref_mut() {
+                sens.at_outputs
+                    .push((y, interpolated_sensitivities(&solver, t)?));
+            }
             *sink.next_out += 1;
         }
         if let Some((time, fired)) = crossing {
@@ -599,19 +613,42 @@ where
                 .interpolate(time)
                 .map_err(|e| SimError::setup(format!("interpolation at t = {time} failed: {e}")))?
                 .clone_as_vec();
+            if let Some(sens) = sink.sensitivities.as_deref_mut() {
+                sens.at_end = interpolated_sensitivities(&solver, time)?;
+            }
             return Ok(Stretch::Triggered { time, state, fired });
         }
         if matches!(reason, OdeSolverStopReason::TstopReached) {
+            if let Some(sens) = sink.sensitivities.as_deref_mut() {
+                sens.at_end = solver.state().s.clone_as_vec();
+            }
             return Ok(Stretch::Reached(solver.state().y.clone_as_vec()));
         }
         t_prev = t_now;
     }
 }
 
+/// The state's sensitivities at `t` from the solver's interpolant, one
+/// column of the state's length per parameter.
+fn interpolated_sensitivities<'a, Eqn, S>(solver: &S, t: f64) -> Result<Vec<f64>, SimError>
+where
+    Eqn: diffsol::OdeEquationsImplicit<T = f64> + 'a,
+    S: OdeSolverMethod<'a, Eqn>,
+{
+    solver
+        .interpolate_sens(t)
+        .map(|s| s.clone_as_vec())
+        .map_err(|e| {
+            SimError::setup(format!(
+                "interpolation of the sensitivities at t = {t} failed: {e}"
+            ))
+        })
+}
+
 /// Names the time and the species that went bad: a non-finite or huge
 /// value first, else the species whose rate is largest against its
 /// tolerance (the one forcing the step size down).
-fn diagnose_failure(
+pub(super) fn diagnose_failure(
     system: &CompiledSystem,
     workspace: &RefCell<crate::numeric::Workspace>,
     settings: &Settings,

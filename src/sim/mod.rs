@@ -9,6 +9,7 @@
 //! time and the species that went bad, never a partial result; nothing here
 //! prints.
 
+pub mod forward;
 pub mod integrate;
 pub mod scan;
 pub mod steady;
@@ -196,6 +197,8 @@ impl From<CompileError> for SimError {
 pub struct Prepared {
     pub model: Model,
     pub system: CompiledSystem,
+    /// Which species are integrated and how the others follow.
+    pub layout: StateLayout,
     /// Whether the state is the reduced one (independent species only).
     pub reduced: bool,
 }
@@ -206,6 +209,7 @@ impl Prepared {
         Ok(Prepared {
             model: model.clone(),
             system: CompiledSystem::full(model)?,
+            layout: StateLayout::full(model),
             reduced: false,
         })
     }
@@ -232,6 +236,7 @@ impl Prepared {
         Ok(Prepared {
             model: reduced.model,
             system,
+            layout,
             reduced: true,
         })
     }
