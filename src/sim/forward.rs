@@ -238,8 +238,8 @@ impl Condition {
         }
         for (c, d) in &self.by_column {
             let g = current.eval_at(d, species, t);
-            for k in 0..m {
-                numerator[k] += g * tracking.dc[c * m + k];
+            for (k, v) in numerator.iter_mut().enumerate() {
+                *v += g * tracking.dc[c * m + k];
             }
         }
         if speed == 0.0 || !speed.is_finite() {
