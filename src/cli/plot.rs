@@ -73,6 +73,18 @@ pub struct BarPlot {
     pub series: Vec<(String, Vec<f64>)>,
 }
 
+/// A followed steady-state branch: stable stretches solid, unstable
+/// dashed, special points (folds, Hopf points) marked and named.
+pub struct BranchPlot {
+    pub title: String,
+    pub x_label: String,
+    pub y_label: String,
+    /// (x, y, stable) in branch order.
+    pub points: Vec<(f64, f64, bool)>,
+    /// (x, y, name).
+    pub marks: Vec<(f64, f64, String)>,
+}
+
 /// Colour-blind-safe line colours (Okabe & Ito, "Color Universal Design", 2002).
 const PALETTE: [RGBColor; 8] = [
     RGBColor(0, 114, 178),
@@ -203,6 +215,107 @@ pub fn draw_bars(staged: &mut Staged, sink: &Sink, spec: &BarPlot) -> Result<(),
             spec,
         ),
     })
+}
+
+/// Stages a branch plot (.svg or .png by the sink's name).
+pub fn draw_branch(staged: &mut Staged, sink: &Sink, spec: &BranchPlot) -> Result<(), String> {
+    stage_figure(staged, sink, |tmp, kind| match kind {
+        Kind::Svg => branch_on(SVGBackend::new(tmp, (960, 640)).into_drawing_area(), spec),
+        Kind::Png => branch_on(
+            BitMapBackend::new(tmp, (1440, 960)).into_drawing_area(),
+            spec,
+        ),
+    })
+}
+
+fn branch_on<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    spec: &BranchPlot,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    root.fill(&WHITE).map_err(err)?;
+    let finite: Vec<(f64, f64, bool)> = spec
+        .points
+        .iter()
+        .copied()
+        .filter(|(x, y, _)| x.is_finite() && y.is_finite())
+        .collect();
+    let (x0, x1) =
+        range_of(finite.iter().map(|p| p.0), false).ok_or("nothing to plot on the x axis")?;
+    let (y0, y1) = range_of(finite.iter().map(|p| p.1), false).ok_or("nothing to plot")?;
+    let mut chart = ChartBuilder::on(&root)
+        .caption(&spec.title, ("sans-serif", 26))
+        .margin(18)
+        .x_label_area_size(56)
+        .y_label_area_size(90)
+        .build_cartesian_2d(x0..x1, y0..y1)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .x_desc(spec.x_label.as_str())
+        .y_desc(spec.y_label.as_str())
+        .x_label_formatter(&tick)
+        .y_label_formatter(&tick)
+        .label_style(("sans-serif", 16))
+        .axis_desc_style(("sans-serif", 19))
+        .light_line_style(RGBColor(235, 235, 235))
+        .draw()
+        .map_err(err)?;
+    let color = PALETTE[0];
+    // Consecutive points of one stability form a stretch; stretches share
+    // their end points so the curve has no gaps.
+    let mut start = 0;
+    let (mut stable_labelled, mut unstable_labelled) = (false, false);
+    while start + 1 < finite.len() {
+        let stable = finite[start + 1].2 && finite[start].2;
+        let mut end = start + 1;
+        while end + 1 < finite.len() && (finite[end].2 && finite[end + 1].2) == stable {
+            end += 1;
+        }
+        let stretch: Vec<(f64, f64)> = finite[start..=end].iter().map(|p| (p.0, p.1)).collect();
+        if stable {
+            let series = chart
+                .draw_series(LineSeries::new(stretch, color.stroke_width(3)))
+                .map_err(err)?;
+            if !stable_labelled {
+                series.label("stable").legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 24, y)], color.stroke_width(3))
+                });
+                stable_labelled = true;
+            }
+        } else {
+            let series = chart
+                .draw_series(DashedLineSeries::new(stretch, 10, 6, color.stroke_width(2)))
+                .map_err(err)?;
+            if !unstable_labelled {
+                series.label("unstable").legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 10, y)], color.stroke_width(2))
+                });
+                unstable_labelled = true;
+            }
+        }
+        start = end;
+    }
+    let mark = PALETTE[1];
+    chart
+        .draw_series(spec.marks.iter().map(|(x, y, name)| {
+            EmptyElement::at((*x, *y))
+                + Cross::new((0, 0), 7, mark.stroke_width(3))
+                + Text::new(name.clone(), (8, -18), ("sans-serif", 16))
+        }))
+        .map_err(err)?;
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .label_font(("sans-serif", 16))
+        .background_style(WHITE.mix(0.85))
+        .border_style(RGBColor(120, 120, 120))
+        .draw()
+        .map_err(err)?;
+    root.present().map_err(err)?;
+    Ok(())
 }
 
 fn bands_on<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, spec: &BandPlot) -> Result<(), String>

@@ -34,6 +34,9 @@ pub struct Args {
     /// Measure at the steady state.
     #[arg(long)]
     pub steady: bool,
+    /// Follow the steady-state branch from the first value of --vary, each point from the last (pseudo-arclength continuation around folds), reporting folds and Hopf points; with --steady and one --vary.
+    #[arg(long, requires = "steady")]
+    pub follow: bool,
     /// Override a param, initial value, fixed species or total for every point; repeatable.
     #[arg(long = "set", value_name = "NAME=VALUE")]
     pub set: Vec<String>,
@@ -259,6 +262,16 @@ pub fn run(args: &Args) -> ExitCode {
         atol: args.atol,
         ..Settings::default()
     };
+    if args.follow {
+        if axes.len() != 1 {
+            return usage_error(
+                "--follow: vary exactly one name (the branch is followed along it)",
+            );
+        }
+        return follow(
+            args, &model, &axes[0], column, settings, table_sink, plot_sink,
+        );
+    }
     let total: usize = axes.iter().map(|a| a.values.len()).product();
     let bar = if std::io::stderr().is_terminal() {
         let b = indicatif::ProgressBar::new(total as u64);
@@ -397,6 +410,144 @@ pub fn run(args: &Args) -> ExitCode {
             failures.len(),
             result.values.len()
         );
+    }
+    ExitCode::SUCCESS
+}
+
+/// `scan --steady --follow`: the branch as CSV (`NAME,MEASURE,stability,point`,
+/// one row per branch point in order, a located fold or Hopf point as a row
+/// of its own with `point` naming it), special points on stderr, and a
+/// bifurcation diagram.
+fn follow(
+    args: &Args,
+    model: &crate::model::Model,
+    axis: &Axis,
+    column: usize,
+    settings: Settings,
+    table_sink: Option<&super::output::Sink>,
+    plot_sink: Option<&super::output::Sink>,
+) -> ExitCode {
+    use crate::sim::continuation::{Follow, follow_branch};
+    use crate::sim::steady::Stability;
+    let request = Follow {
+        model,
+        name: &axis.name,
+        from: axis.values[0],
+        to: *axis.values.last().unwrap_or(&axis.values[0]),
+        points: axis.values.len(),
+        settings,
+    };
+    if model
+        .lookup(&axis.name)
+        .is_some_and(|s| matches!(s, crate::model::Sym::Species(_)))
+    {
+        return usage_error(format!(
+            "--follow: `{}` is a species' initial value, which a steady state does not depend on except through a total; follow a param, fixed species or total",
+            axis.name
+        ));
+    }
+    let branch = match follow_branch(&request) {
+        Ok(b) => b,
+        Err(e) => return super::run::sim_failure(&e),
+    };
+    let stability = |s: Stability| match s {
+        Stability::Stable => "stable",
+        Stability::Unstable => "unstable",
+        Stability::Marginal => "marginal",
+    };
+    let mut csv = format!(
+        "{},{},stability,point\n",
+        csv_field(&axis.name),
+        csv_field(args.measure.trim())
+    );
+    // Special points sit between the branch points they were found between.
+    let mut rows: Vec<(f64, f64, &str, &str)> = Vec::new();
+    let mut specials = branch.special.iter().peekable();
+    for (i, p) in branch.points.iter().enumerate() {
+        rows.push((p.parameter, p.values[column], stability(p.stability), ""));
+        while let Some(sp) = specials.next_if(|sp| sp.after == i) {
+            rows.push((
+                sp.point.parameter,
+                sp.point.values[column],
+                stability(sp.point.stability),
+                sp.kind.name(),
+            ));
+        }
+    }
+    for (x, y, st, point) in &rows {
+        csv.push_str(&format!("{x:?},{y:?},{st},{point}\n"));
+    }
+    let mut staged = super::output::Staged::new();
+    if let Some(sink) = table_sink
+        && let Err(e) = staged.bytes(sink, csv.as_bytes())
+    {
+        return run_error(format!("[E0803] {e}"));
+    }
+    if let Some(plot) = plot_sink {
+        let spec = super::plot::BranchPlot {
+            title: format!("{} along {}", args.measure.trim(), axis.name),
+            x_label: axis_label(model, &axis.name),
+            y_label: args.measure.trim().to_string(),
+            points: branch
+                .points
+                .iter()
+                .map(|p| {
+                    (
+                        p.parameter,
+                        p.values[column],
+                        p.stability == Stability::Stable,
+                    )
+                })
+                .collect(),
+            marks: branch
+                .special
+                .iter()
+                .map(|sp| {
+                    (
+                        sp.point.parameter,
+                        sp.point.values[column],
+                        sp.kind.name().to_string(),
+                    )
+                })
+                .collect(),
+        };
+        if let Err(e) = super::plot::draw_branch(&mut staged, plot, &spec) {
+            return run_error(format!("[E0803] {e}"));
+        }
+    }
+    if let Err(e) = staged.commit() {
+        return run_error(format!("[E0803] {e}"));
+    }
+    if args.output.is_none()
+        && let Err(failed) = super::common::write_stdout(&csv)
+    {
+        return failed;
+    }
+    for sp in &branch.special {
+        let what = match sp.kind {
+            crate::sim::continuation::SpecialKind::Fold => "fold (saddle-node)".to_string(),
+            crate::sim::continuation::SpecialKind::Hopf => match sp.frequency {
+                Some(w) => format!("Hopf point (angular frequency {w:.6e})"),
+                None => "Hopf point".to_string(),
+            },
+        };
+        stderr_line!(
+            "{what} at {} = {:.10e}: {} = {:.10e}",
+            axis.name,
+            sp.point.parameter,
+            args.measure.trim(),
+            sp.point.values[column]
+        );
+    }
+    if let Some(path) = &args.output {
+        stderr_line!(
+            "wrote {} branch points to {}",
+            branch.points.len(),
+            path.display()
+        );
+    }
+    if let Some(reason) = &branch.stopped {
+        stderr_line!("warning: {reason}");
     }
     ExitCode::SUCCESS
 }

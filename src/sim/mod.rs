@@ -9,6 +9,7 @@
 //! time and the species that went bad, never a partial result; nothing here
 //! prints.
 
+pub mod continuation;
 pub mod forward;
 pub mod integrate;
 pub mod scan;
