@@ -104,6 +104,9 @@ struct Continuation<'a> {
     n: usize,
 }
 
+/// F, F_x and F_λ at a point.
+type Linearised = (Vec<f64>, DMatrix<f64>, Vec<f64>);
+
 /// A point on the branch with its tangent.
 #[derive(Clone)]
 struct Onbranch {
@@ -251,8 +254,8 @@ impl Continuation<'_> {
         let n = self.n;
         let mut predicted: Vec<f64> = start.x.clone();
         predicted.push(start.lambda);
-        for i in 0..=n {
-            predicted[i] += h * start.tangent[i];
+        for (p, t) in predicted.iter_mut().zip(&start.tangent) {
+            *p += h * t;
         }
         let (x, lambda, iterations) = self.correct(&predicted, &start.tangent)?;
         let tangent = self.tangent(&x, lambda, &start.tangent).ok()?;
