@@ -125,11 +125,7 @@ impl Continuation<'_> {
     }
 
     /// F, F_x (dense) and F_λ at (x, λ).
-    fn evaluate(
-        &self,
-        x: &[f64],
-        lambda: f64,
-    ) -> Result<(Vec<f64>, DMatrix<f64>, Vec<f64>), SimError> {
+    fn evaluate(&self, x: &[f64], lambda: f64) -> Result<Linearised, SimError> {
         let n = self.n;
         let constants = self.constants_at(lambda)?;
         let mut w = self.system.workspace(&constants);
@@ -251,7 +247,6 @@ impl Continuation<'_> {
     /// From `start`, the corrected point a step `h` along its tangent, with
     /// its own tangent.
     fn advance(&self, start: &Onbranch, h: f64) -> Option<(Onbranch, usize)> {
-        let n = self.n;
         let mut predicted: Vec<f64> = start.x.clone();
         predicted.push(start.lambda);
         for (p, t) in predicted.iter_mut().zip(&start.tangent) {
