@@ -35,7 +35,7 @@ pub struct Args {
     #[arg(long)]
     pub steady: bool,
     /// Follow the steady-state branch from the first value of --vary, each point from the last (pseudo-arclength continuation around folds), reporting folds and Hopf points; with --steady and one --vary.
-    #[arg(long, requires = "steady")]
+    #[arg(long)]
     pub follow: bool,
     /// Override a param, initial value, fixed species or total for every point; repeatable.
     #[arg(long = "set", value_name = "NAME=VALUE")]
@@ -263,6 +263,9 @@ pub fn run(args: &Args) -> ExitCode {
         ..Settings::default()
     };
     if args.follow {
+        if !args.steady {
+            return usage_error("--follow follows steady states: give --steady, not --at");
+        }
         if axes.len() != 1 {
             return usage_error(
                 "--follow: vary exactly one name (the branch is followed along it)",
