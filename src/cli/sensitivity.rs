@@ -37,7 +37,7 @@ pub struct Args {
     /// Outputs: species or observables (comma-separated; default: all).
     #[arg(long, value_name = "NAME,..")]
     pub of: Option<String>,
-    /// Parameters: params, fixed species, initial values `NAME(0)` (comma-separated; default: every param with a value).
+    /// Parameters: params, fixed species, initial values `NAME(0)`, totals (with --reduced) (comma-separated; default: every param with a value).
     #[arg(long, value_name = "NAME,..")]
     pub to: Option<String>,
     /// Normalised sensitivities ∂ln y/∂ln p instead of ∂y/∂p.
