@@ -7,9 +7,11 @@
 //! within the series) and one compiled system serves every series and
 //! every trial point.
 //!
-//! The Jacobian is by central differences of simulations at tight
-//! tolerances (relative 1e-10), on the fitted scale; forward sensitivities
-//! (the sensitivity issue) are to replace it.
+//! The Jacobian comes from forward sensitivities (one compiled
+//! [`SensitivityModel`] over the free values' targets, one run per series
+//! giving the trajectory and its gradients together); where a free value is
+//! something a sensitivity is not taken to (a total, a derived param), by
+//! central differences of simulations at tight tolerances (relative 1e-10).
 //!
 //! Invariants: conditions are constant within a series; times within a
 //! series do not go backwards; measured columns are species or
@@ -19,9 +21,41 @@ use super::data::Table;
 use super::lm::Residuals;
 use super::rates::Weight;
 use crate::diagnostics::{Code, Diagnostic, did_you_mean};
+use crate::model::ParamDef;
 use crate::model::{Dim, Model, Sym};
 use crate::numeric::CompiledSystem;
+use crate::sensitivity::{Parameter, SensitivityModel};
 use crate::sim::{Settings, simulate};
+
+/// One sensitivity model over the distinct targets of the free values
+/// (params with a value, fixed species, initial values).
+fn sensitivity_model(model: &Model, free: &[FreeValue]) -> Option<(SensitivityModel, Vec<usize>)> {
+    let mut targets: Vec<&str> = Vec::new();
+    let mut index = Vec::with_capacity(free.len());
+    for f in free {
+        let k = match targets.iter().position(|t| *t == f.target) {
+            Some(k) => k,
+            None => {
+                targets.push(&f.target);
+                targets.len() - 1
+            }
+        };
+        index.push(k);
+    }
+    let parameters = targets
+        .iter()
+        .map(|t| match model.lookup(t)? {
+            Sym::Param(i) if matches!(model.params[i].definition, ParamDef::Value(_)) => {
+                Some(Parameter::Constant(Sym::Param(i)))
+            }
+            s @ Sym::Fixed(_) => Some(Parameter::Constant(s)),
+            Sym::Species(i) => Some(Parameter::Initial(i)),
+            _ => None,
+        })
+        .collect::<Option<Vec<Parameter>>>()?;
+    let compiled = SensitivityModel::new(model, &parameters, false).ok()?;
+    Some((compiled, index))
+}
 
 /// What a free name sets.
 #[derive(Clone, Debug)]
@@ -48,6 +82,11 @@ pub struct Series {
 pub struct CurveProblem<'a> {
     pub model: &'a Model,
     pub system: CompiledSystem,
+    /// Sensitivities to the free values' distinct targets, and the target
+    /// of each free value; None where some target has none.
+    /// (Built at the first evaluation: the free values are set after
+    /// construction.)
+    sensitivity: std::sync::OnceLock<Option<(SensitivityModel, Vec<usize>)>>,
     pub free: Vec<FreeValue>,
     pub series: Vec<Series>,
     pub settings: Settings,
@@ -65,6 +104,7 @@ impl<'a> CurveProblem<'a> {
         Ok(CurveProblem {
             model,
             system,
+            sensitivity: std::sync::OnceLock::new(),
             free,
             series: Vec::new(),
             settings: Settings {
@@ -318,11 +358,79 @@ impl<'a> CurveProblem<'a> {
     }
 }
 
+impl CurveProblem<'_> {
+    /// Residuals and their Jacobian from one sensitivity run per series:
+    /// ∂r/∂x_j = w·∂y/∂(target of j)·(value_j on a log scale, else 1), and
+    /// zero for a free value that is for another series.
+    fn evaluate_by_sensitivities(
+        &self,
+        compiled: &SensitivityModel,
+        index: &[usize],
+        x: &[f64],
+        r: &mut [f64],
+        jacobian: &mut [f64],
+    ) -> Result<(), String> {
+        let values = self.values(x);
+        let p = x.len();
+        let mut row = 0;
+        for s in &self.series {
+            let base = self
+                .model
+                .with_overrides(&s.conditions)
+                .map_err(|e| e.to_string())?;
+            let mut targets: Vec<f64> = compiled
+                .parameters()
+                .iter()
+                .map(|q| q.value(&base))
+                .collect();
+            let applies: Vec<bool> = self
+                .free
+                .iter()
+                .map(|f| f.series.as_ref().is_none_or(|key| *key == s.name))
+                .collect();
+            for j in 0..p {
+                if applies[j] {
+                    targets[index[j]] = values[j];
+                }
+            }
+            let run = compiled
+                .at_with(&targets, &s.conditions, &self.settings, &s.times)
+                .map_err(|e| match e {
+                    crate::sensitivity::SensitivityError::Model(d) => d.message,
+                    crate::sensitivity::SensitivityError::Run(e) => e.to_string(),
+                })?;
+            for &(ti, output, observed, w, _) in &s.measurements {
+                r[row] = w * (run.trajectory[output][ti] - observed);
+                for j in 0..p {
+                    let chain = if self.free[j].log_scale {
+                        values[j]
+                    } else {
+                        1.0
+                    };
+                    jacobian[row * p + j] = if applies[j] {
+                        w * run.values[output][index[j]][ti] * chain
+                    } else {
+                        0.0
+                    };
+                }
+                row += 1;
+            }
+        }
+        Ok(())
+    }
+}
+
 impl Residuals for CurveProblem<'_> {
     fn residual_count(&self) -> usize {
         self.count
     }
     fn evaluate(&self, x: &[f64], r: &mut [f64], jacobian: &mut [f64]) -> Result<(), String> {
+        if let Some((compiled, index)) = self
+            .sensitivity
+            .get_or_init(|| sensitivity_model(self.model, &self.free))
+        {
+            return self.evaluate_by_sensitivities(compiled, index, x, r, jacobian);
+        }
         self.weighted_residuals(x, r)?;
         let p = x.len();
         let (mut plus, mut minus) = (vec![0.0; r.len()], vec![0.0; r.len()]);

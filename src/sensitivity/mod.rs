@@ -14,7 +14,7 @@
 
 use crate::diagnostics::{Code, Diagnostic};
 use crate::model::{Model, ParamDef, Sym};
-use crate::sim::forward::{Wrt, simulate_sensitivities};
+use crate::sim::forward::{SensitivityRunner, Wrt};
 use crate::sim::{Prepared, Settings, SimError};
 
 /// What a sensitivity is taken with respect to.
@@ -158,8 +158,9 @@ impl From<SimError> for SensitivityError {
 }
 
 /// Sensitivities of every species and observable of `model` to
-/// `parameters` at `times`, on the full system or the reduced one (where
-/// dependent species follow their totals, and a total can be a parameter).
+/// `parameters` at `times` at the file's values, on the full system or the
+/// reduced one (where dependent species follow their totals, and a total
+/// can be a parameter).
 pub fn sensitivities(
     model: &Model,
     parameters: &[Parameter],
@@ -167,59 +168,133 @@ pub fn sensitivities(
     times: &[f64],
     reduced: bool,
 ) -> Result<Sensitivities, SensitivityError> {
-    let prepared = if reduced {
-        Prepared::reduced(model).map_err(SensitivityError::Model)?
-    } else {
-        if let Some(Parameter::Total(j)) =
-            parameters.iter().find(|p| matches!(p, Parameter::Total(_)))
-        {
-            return Err(SensitivityError::Model(
-                Diagnostic::error(
-                    Code::BadNumericInput,
-                    format!(
-                        "a sensitivity to the total `{}` needs the reduced system, where the total is a constant",
-                        model.totals[*j].name
-                    ),
-                )
-                .with_label(model.totals[*j].span, "this total")
-                .with_help("add --reduced, or take the sensitivity to an initial value `NAME(0)`"),
-            ));
-        }
-        Prepared::full(model)?
-    };
-    let wrt: Vec<Wrt> = parameters
-        .iter()
-        .map(|p| match p {
-            Parameter::Constant(s) => Wrt::Constant(*s),
-            Parameter::Total(j) => Wrt::Constant(Sym::Total(*j)),
-            Parameter::Initial(i) => Wrt::Initial(*i),
+    let compiled = SensitivityModel::new(model, parameters, reduced)?;
+    let values: Vec<f64> = parameters.iter().map(|p| p.value(model)).collect();
+    compiled.at(&values, settings, times)
+}
+
+/// A model compiled once for sensitivities to a fixed list of parameters,
+/// evaluated at any values of them: the library call a fit of progress
+/// curves makes at every trial point (trajectory and gradients together).
+#[derive(Debug, Clone)]
+pub struct SensitivityModel {
+    prepared: Prepared,
+    runner: SensitivityRunner,
+    parameters: Vec<Parameter>,
+    /// The name each parameter is set by (`--set` style).
+    targets: Vec<String>,
+    labels: Vec<String>,
+}
+
+impl SensitivityModel {
+    pub fn new(
+        model: &Model,
+        parameters: &[Parameter],
+        reduced: bool,
+    ) -> Result<SensitivityModel, SensitivityError> {
+        let prepared = if reduced {
+            Prepared::reduced(model).map_err(SensitivityError::Model)?
+        } else {
+            if let Some(Parameter::Total(j)) =
+                parameters.iter().find(|p| matches!(p, Parameter::Total(_)))
+            {
+                return Err(SensitivityError::Model(
+                    Diagnostic::error(
+                        Code::BadNumericInput,
+                        format!(
+                            "a sensitivity to the total `{}` needs the reduced system, where the total is a constant",
+                            model.totals[*j].name
+                        ),
+                    )
+                    .with_label(model.totals[*j].span, "this total")
+                    .with_help("add --reduced, or take the sensitivity to an initial value `NAME(0)`"),
+                ));
+            }
+            Prepared::full(model)?
+        };
+        let wrt: Vec<Wrt> = parameters
+            .iter()
+            .map(|p| match p {
+                Parameter::Constant(s) => Wrt::Constant(*s),
+                Parameter::Total(j) => Wrt::Constant(Sym::Total(*j)),
+                Parameter::Initial(i) => Wrt::Initial(*i),
+            })
+            .collect();
+        let runner = SensitivityRunner::new(&prepared, &wrt)?;
+        let targets = parameters
+            .iter()
+            .map(|p| match p {
+                Parameter::Constant(s) => model.name_of(*s).to_string(),
+                Parameter::Total(j) => model.totals[*j].name.clone(),
+                Parameter::Initial(i) => model.species[*i].name.clone(),
+            })
+            .collect();
+        Ok(SensitivityModel {
+            labels: parameters.iter().map(|p| p.label(model)).collect(),
+            prepared,
+            runner,
+            parameters: parameters.to_vec(),
+            targets,
         })
-        .collect();
-    let run = simulate_sensitivities(&prepared, &wrt, settings, times)?;
-    let m = parameters.len();
-    let outputs: Vec<String> = model
-        .species
-        .iter()
-        .map(|s| s.name.clone())
-        .chain(model.observables.iter().map(|o| o.name.clone()))
-        .collect();
-    let tr = &run.trajectory;
-    let trajectory = (0..outputs.len())
-        .map(|o| tr.rows.iter().map(|r| r[o]).collect())
-        .collect();
-    let values = (0..outputs.len())
-        .map(|o| {
-            (0..m)
-                .map(|k| run.sensitivities.iter().map(|s| s[o * m + k]).collect())
-                .collect()
+    }
+
+    pub fn parameters(&self) -> &[Parameter] {
+        &self.parameters
+    }
+
+    /// The time course and its sensitivities with the parameters at
+    /// `values` (one per parameter, in the model's units).
+    pub fn at(
+        &self,
+        values: &[f64],
+        settings: &Settings,
+        times: &[f64],
+    ) -> Result<Sensitivities, SensitivityError> {
+        self.at_with(values, &[], settings, times)
+    }
+
+    /// As [`Self::at`], with further names set first (the conditions of one
+    /// series of a fit).
+    pub fn at_with(
+        &self,
+        values: &[f64],
+        conditions: &[(String, f64)],
+        settings: &Settings,
+        times: &[f64],
+    ) -> Result<Sensitivities, SensitivityError> {
+        let mut overrides = conditions.to_vec();
+        overrides.extend(self.targets.iter().cloned().zip(values.iter().copied()));
+        let model = self
+            .prepared
+            .model
+            .with_overrides(&overrides)
+            .map_err(|e| SensitivityError::Run(SimError::input(e)))?;
+        let run = self.runner.run(&model, settings, times)?;
+        let m = self.parameters.len();
+        let outputs: Vec<String> = model
+            .species
+            .iter()
+            .map(|s| s.name.clone())
+            .chain(model.observables.iter().map(|o| o.name.clone()))
+            .collect();
+        let tr = &run.trajectory;
+        let trajectory = (0..outputs.len())
+            .map(|o| tr.rows.iter().map(|r| r[o]).collect())
+            .collect();
+        let sens = (0..outputs.len())
+            .map(|o| {
+                (0..m)
+                    .map(|k| run.sensitivities.iter().map(|s| s[o * m + k]).collect())
+                    .collect()
+            })
+            .collect();
+        Ok(Sensitivities {
+            times: tr.times.clone(),
+            outputs,
+            parameters: self.labels.clone(),
+            trajectory,
+            values: sens,
+            parameter_values: values.to_vec(),
         })
-        .collect();
-    Ok(Sensitivities {
-        times: tr.times.clone(),
-        outputs,
-        parameters: parameters.iter().map(|p| p.label(model)).collect(),
-        trajectory,
-        values,
-        parameter_values: parameters.iter().map(|p| p.value(model)).collect(),
-    })
+    }
 }

@@ -254,6 +254,54 @@ impl Condition {
     }
 }
 
+/// A model compiled for forward sensitivities to a fixed list of
+/// parameters: the system and the partials are compiled once, and
+/// [`Self::run`] takes the model with any values changed (the same
+/// structure), so a fit or a scan reuses one compilation across calls.
+#[derive(Debug, Clone)]
+pub struct SensitivityRunner {
+    system: crate::numeric::CompiledSystem,
+    derivatives: CompiledDerivatives,
+    wrt: Vec<Wrt>,
+}
+
+impl SensitivityRunner {
+    pub fn new(prepared: &Prepared, wrt: &[Wrt]) -> Result<SensitivityRunner, SimError> {
+        let columns = tracked_columns(&prepared.model, wrt);
+        let derivatives =
+            CompiledDerivatives::compile(&prepared.model, &prepared.layout, &columns)?;
+        Ok(SensitivityRunner {
+            system: prepared.system.clone(),
+            derivatives,
+            wrt: wrt.to_vec(),
+        })
+    }
+
+    /// The time course of `model` (the prepared model, values possibly
+    /// changed) at `times`, with the sensitivities to the runner's parameters.
+    pub fn run(
+        &self,
+        model: &Model,
+        settings: &Settings,
+        times: &[f64],
+    ) -> Result<SensitivityTrajectory, SimError> {
+        if times.iter().any(|t| !t.is_finite() || *t < 0.0) {
+            return Err(SimError::input(
+                "output times must be finite and not negative",
+            ));
+        }
+        if times.windows(2).any(|w| w[1] < w[0]) {
+            return Err(SimError::input("output times must be in increasing order"));
+        }
+        let result = if self.system.nstates > SPARSE_THRESHOLD {
+            forward_sparse(model, self, settings, times)
+        } else {
+            forward_dense(model, self, settings, times)
+        };
+        result.map_err(|e| e.named(model))
+    }
+}
+
 /// The time course of `prepared` at `times` with the sensitivities of every
 /// species and observable to `wrt`.
 pub fn simulate_sensitivities(
@@ -262,20 +310,7 @@ pub fn simulate_sensitivities(
     settings: &Settings,
     times: &[f64],
 ) -> Result<SensitivityTrajectory, SimError> {
-    if times.iter().any(|t| !t.is_finite() || *t < 0.0) {
-        return Err(SimError::input(
-            "output times must be finite and not negative",
-        ));
-    }
-    if times.windows(2).any(|w| w[1] < w[0]) {
-        return Err(SimError::input("output times must be in increasing order"));
-    }
-    let result = if prepared.system.nstates > SPARSE_THRESHOLD {
-        forward_sparse(prepared, wrt, settings, times)
-    } else {
-        forward_dense(prepared, wrt, settings, times)
-    };
-    result.map_err(|e| e.named(&prepared.model))
+    SensitivityRunner::new(prepared, wrt)?.run(&prepared.model, settings, times)
 }
 
 /// The constants differentiated against: the chosen ones, then every total.
@@ -299,20 +334,20 @@ fn tracked_columns(model: &Model, wrt: &[Wrt]) -> Vec<Sym> {
 macro_rules! forward_with {
     ($name:ident, $matrix:ty, $solver:ty) => {
         fn $name(
-            prepared: &Prepared,
-            wrt: &[Wrt],
+            model: &Model,
+            runner: &SensitivityRunner,
             settings: &Settings,
             times: &[f64],
         ) -> Result<SensitivityTrajectory, SimError> {
-            let model = &prepared.model;
-            let system = &prepared.system;
+            let system = &runner.system;
+            let wrt = &runner.wrt[..];
             let (n, m) = (system.nstates, wrt.len());
             let nspecies = system.species_count();
-            let columns = tracked_columns(model, wrt);
-            let derivatives = CompiledDerivatives::compile(model, &prepared.layout, &columns)?;
+            let derivatives = &runner.derivatives;
+            let columns = derivatives.columns.clone();
             let mut tracking = Tracking {
                 model,
-                derivatives: &derivatives,
+                derivatives,
                 dc: vec![0.0; columns.len() * m],
                 m,
                 nstates: n,
