@@ -9,7 +9,10 @@
 #      partners among nearby species) against SciPy BDF with a sparse
 #      analytic Jacobian;
 #  (c) the compiled model against a hand-written Rust RHS and Jacobian
-#      handed to diffsol.
+#      handed to diffsol;
+#  (d) forward sensitivities to ten rate constants on (b)'s networks against
+#      a plain run, and SciPy BDF on the augmented system; the kinase cycle's
+#      control analysis in process.
 # Usage: bench/run_sim_bench.sh [REPS]   (from the repository root)
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -53,7 +56,13 @@ subprocess.run([binary, 'run', f'{out}/network.mech', '--times', '10', '-o', f'{
 print(f"process_tool_network_seconds {time.perf_counter() - t0:.6e}")
 PY
   python3 bench/sim_network_scipy.py "$DIR"
+  echo "# sensitivities to kf0..kf9 on the same network, against a plain run (and SciPy's augmented system)"
+  $BENCH network-sensitivity "$DIR" 5
+  python3 bench/sensitivity_scipy.py "$DIR"
 done
+
+echo "# control analysis of models/kinase_cycle.mech in process"
+$BENCH control 500
 
 echo "# dense against sparse LU by size (sets numeric::SPARSE_THRESHOLD)"
 $BENCH threshold 5

@@ -12,6 +12,14 @@
 //!   sim_bench threshold N           dense against sparse LU by size.
 //!   sim_bench network-run DIR N     solves DIR/network.mech N times and a
 //!                                   tight reference once.
+//!   sim_bench control N             control analysis of models/kinase_cycle.mech
+//!                                   (steady state, elasticities, control and
+//!                                   response coefficients), N repetitions.
+//!   sim_bench network-sensitivity DIR N
+//!                                   the same run plain and with forward
+//!                                   sensitivities to kf0..kf9, side by side,
+//!                                   N times each; writes the sensitivities of
+//!                                   X0..X9 at t = 10 for the SciPy script.
 //!
 //! Each line of output is `key value` so the shell script can collect it.
 
@@ -332,6 +340,80 @@ fn network_run(dir: &Path, reps: usize) {
     std::fs::write(dir.join("reference.txt"), text.join("\n")).expect("writes the reference");
 }
 
+/// In-process time of the whole control analysis of the kinase cycle.
+fn control(reps: usize) {
+    let model = load_path(Path::new("models/kinase_cycle.mech"))
+        .model
+        .expect("models/kinase_cycle.mech loads");
+    let mut times = Vec::new();
+    let mut residual = 0.0f64;
+    for _ in 0..reps {
+        let start = Instant::now();
+        let analysis = ratewright::control::control(&model).expect("a steady state");
+        times.push(start.elapsed().as_secs_f64());
+        residual = analysis
+            .residuals
+            .iter()
+            .fold(0.0f64, |a, r| a.max(r.abs()));
+    }
+    println!("control_kinase_cycle_seconds {:.6e}", median(times));
+    println!("control_theorem_residual {residual:.3e}");
+}
+
+/// A plain run against one with sensitivities to ten rate constants, on
+/// the generated network (one compilation each, reused).
+fn network_sensitivity(dir: &Path, reps: usize) {
+    use ratewright::sim::forward::{SensitivityRunner, Wrt};
+    let model = load_path(&dir.join("network.mech")).model.expect("loads");
+    let prepared = Prepared::full(&model).expect("compiles");
+    let wrt: Vec<Wrt> = (0..10)
+        .map(|k| {
+            Wrt::Constant(
+                model
+                    .lookup(&format!("kf{k}"))
+                    .expect("the generator names kf0..kf9"),
+            )
+        })
+        .collect();
+    let start = Instant::now();
+    let runner = SensitivityRunner::new(&prepared, &wrt).expect("compiles the partials");
+    println!(
+        "sensitivity_compile_seconds {:.6e}",
+        start.elapsed().as_secs_f64()
+    );
+    let settings = Settings {
+        rtol: 1e-6,
+        atol: 1e-10,
+        ..Settings::default()
+    };
+    let (mut plain, mut with) = (Vec::new(), Vec::new());
+    let mut last = None;
+    for _ in 0..reps {
+        let start = Instant::now();
+        prepared.simulate(&settings, &[10.0]).expect("solves");
+        plain.push(start.elapsed().as_secs_f64());
+        let start = Instant::now();
+        last = Some(
+            runner
+                .run(&prepared.model, &settings, &[10.0])
+                .expect("solves with sensitivities"),
+        );
+        with.push(start.elapsed().as_secs_f64());
+    }
+    let (plain, with) = (median(plain), median(with));
+    println!("plain_run_seconds {plain:.6e}");
+    println!("sensitivity_run_seconds {with:.6e}");
+    println!("sensitivity_over_plain {:.3}", with / plain);
+    let last = last.expect("at least one repetition");
+    // d(X_i)/d(kf_k) for i, k < 10, row-major, for the SciPy comparison.
+    let m = wrt.len();
+    let text: Vec<String> = (0..10)
+        .flat_map(|i| (0..m).map(move |k| (i, k)))
+        .map(|(i, k)| format!("{:?}", last.sensitivities[0][i * m + k]))
+        .collect();
+    std::fs::write(dir.join("sensitivities.txt"), text.join("\n")).expect("writes");
+}
+
 /// Dense against sparse linear algebra on generated networks of growing size
 /// (same generator, scaled: 3 steps per species), to place the threshold.
 fn threshold(reps: usize) {
@@ -390,8 +472,17 @@ fn main() {
             ),
             args.get(3).and_then(|s| s.parse().ok()).unwrap_or(5),
         ),
+        Some("control") => control(args.get(2).and_then(|s| s.parse().ok()).unwrap_or(200)),
+        Some("network-sensitivity") => network_sensitivity(
+            Path::new(
+                args.get(2)
+                    .map(String::as_str)
+                    .unwrap_or("target/sim-bench"),
+            ),
+            args.get(3).and_then(|s| s.parse().ok()).unwrap_or(5),
+        ),
         _ => eprintln!(
-            "usage: sim_bench robertson N | network DIR | network-local DIR | network-run DIR N | threshold N"
+            "usage: sim_bench robertson N | network DIR | network-local DIR | network-run DIR N | network-sensitivity DIR N | control N | threshold N"
         ),
     }
 }

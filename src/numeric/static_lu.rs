@@ -84,6 +84,8 @@ struct Factors {
     tail_scratch: RefCell<faer::dyn_stack::MemBuffer>,
     work: Vec<f64>,
     solve_work: RefCell<Vec<f64>>,
+    /// The columns of a batched right-hand side, contiguous.
+    batch_work: RefCell<Vec<f64>>,
 }
 
 impl Factors {
@@ -228,6 +230,7 @@ impl Factors {
             tail_scratch: RefCell::new(tail_scratch),
             work: vec![0.0; n],
             solve_work: RefCell::new(vec![0.0; n]),
+            batch_work: RefCell::new(Vec::new()),
             a,
         }
     }
@@ -310,15 +313,62 @@ impl Factors {
 
     /// Solves `A x = b` (or `Aᵀ x = b`) in place.
     fn solve(&self, b: &mut [f64], transpose: bool) {
-        let mut y = self.solve_work.borrow_mut();
-        let y = y.as_mut_slice();
-        for k in 0..self.n {
-            y[k] = b[self.perm[k]];
+        self.solve_columns(b, 1, transpose);
+    }
+
+    /// Solves every column of `data` (a batched right-hand side: the
+    /// forward sensitivities bring one column per parameter).
+    fn solve_batch(&self, data: &mut faer::Mat<f64>, transpose: bool) {
+        let (rows, columns) = (data.nrows(), data.ncols());
+        if columns == 1 {
+            self.solve(data.col_as_slice_mut(0), transpose);
+            return;
         }
+        let mut gathered = self.batch_work.borrow_mut();
+        gathered.clear();
+        for c in 0..columns {
+            gathered.extend_from_slice(data.col_as_slice_mut(c));
+        }
+        self.solve_columns(&mut gathered, columns, transpose);
+        for c in 0..columns {
+            data.col_as_slice_mut(c)
+                .copy_from_slice(&gathered[c * rows..(c + 1) * rows]);
+        }
+    }
+
+    /// Solves for `columns` right-hand sides at once (`b` column-major,
+    /// `n × columns`): the sparse parts column by column, the dense
+    /// trailing block for all columns in one blocked solve (the forward
+    /// sensitivities bring one column per parameter).
+    fn solve_columns(&self, b: &mut [f64], columns: usize, transpose: bool) {
+        let n = self.n;
+        let mut work = self.solve_work.borrow_mut();
+        if work.len() < n * columns {
+            work.resize(n * columns, 0.0);
+        }
+        let work = &mut work[..n * columns];
+        for c in 0..columns {
+            let (y, bc) = (&mut work[c * n..(c + 1) * n], &b[c * n..(c + 1) * n]);
+            for k in 0..n {
+                y[k] = bc[self.perm[k]];
+            }
+            self.before_tail(y, transpose);
+        }
+        self.solve_tail(work, columns, transpose);
+        for c in 0..columns {
+            let (y, bc) = (&mut work[c * n..(c + 1) * n], &mut b[c * n..(c + 1) * n]);
+            self.after_tail(y, transpose);
+            for k in 0..n {
+                bc[self.perm[k]] = y[k];
+            }
+        }
+    }
+
+    /// The sparse eliminations before the trailing block: P A Pᵀ = L U, so
+    /// forward with L; for the transpose (L U)ᵀ = Uᵀ Lᵀ, forward with Uᵀ.
+    fn before_tail(&self, y: &mut [f64], transpose: bool) {
         let split = self.split;
         if !transpose {
-            // P A Pᵀ = L U: forward with L, backward with U; the trailing
-            // block's own L and U in between.
             for j in 0..split {
                 let yj = y[j];
                 if yj != 0.0 {
@@ -326,7 +376,25 @@ impl Factors {
                     scatter_sub(y, &self.l_row[range.clone()], &self.l_val[range], yj);
                 }
             }
-            self.solve_tail(&mut y[split..], false);
+        } else {
+            for k in 0..split {
+                let diag = self.u_ptr[k + 1] - 1;
+                let range = self.u_ptr[k]..diag;
+                let s = y[k] - gather_dot(y, &self.u_row[range.clone()], &self.u_val[range]);
+                y[k] = s / self.u_val[diag];
+            }
+            for k in split..self.n {
+                let range = self.u_ptr[k]..self.u_ptr[k + 1];
+                y[k] -= gather_dot(y, &self.u_row[range.clone()], &self.u_val[range]);
+            }
+        }
+    }
+
+    /// The sparse eliminations after the trailing block: backward with U;
+    /// for the transpose, backward with Lᵀ.
+    fn after_tail(&self, y: &mut [f64], transpose: bool) {
+        let split = self.split;
+        if !transpose {
             for k in (split..self.n).rev() {
                 let yk = y[k];
                 if yk != 0.0 {
@@ -344,39 +412,35 @@ impl Factors {
                 }
             }
         } else {
-            // (L U)ᵀ = Uᵀ Lᵀ: forward with Uᵀ, backward with Lᵀ.
-            for k in 0..split {
-                let diag = self.u_ptr[k + 1] - 1;
-                let range = self.u_ptr[k]..diag;
-                let s = y[k] - gather_dot(y, &self.u_row[range.clone()], &self.u_val[range]);
-                y[k] = s / self.u_val[diag];
-            }
-            for k in split..self.n {
-                let range = self.u_ptr[k]..self.u_ptr[k + 1];
-                y[k] -= gather_dot(y, &self.u_row[range.clone()], &self.u_val[range]);
-            }
-            self.solve_tail(&mut y[split..], true);
             for j in (0..split).rev() {
                 let range = self.l_ptr[j]..self.l_ptr[j + 1];
                 y[j] -= gather_dot(y, &self.l_row[range.clone()], &self.l_val[range]);
             }
         }
-        for k in 0..self.n {
-            b[self.perm[k]] = y[k];
-        }
     }
 
-    /// Solves with the dense trailing block's LU (or its transpose).
-    fn solve_tail(&self, y: &mut [f64], transpose: bool) {
+    /// Solves with the dense trailing block's LU (or its transpose), rows
+    /// `split..n` of each of the `columns` columns of `work`.
+    fn solve_tail(&self, work: &mut [f64], columns: usize, transpose: bool) {
         use faer::linalg::lu::partial_pivoting::solve;
-        let rows = y.len();
+        let (n, split) = (self.n, self.split);
+        let rows = n - split;
         if rows == 0 {
             return;
         }
         let permutation =
             faer::perm::PermRef::new_checked(&self.tail_perm, &self.tail_perm_inv, rows);
-        let rhs = faer::MatMut::from_column_major_slice_mut(y, rows, 1);
+        let rhs = faer::MatMut::from_column_major_slice_with_stride_mut(
+            &mut work[split..],
+            rows,
+            columns,
+            n,
+        );
         let mut scratch = self.tail_scratch.borrow_mut();
+        let needed = solve::solve_in_place_scratch::<usize, f64>(rows, columns, faer::Par::Seq);
+        if scratch.len() < needed.unaligned_bytes_required() {
+            *scratch = faer::dyn_stack::MemBuffer::new(needed);
+        }
         let stack = faer::dyn_stack::MemStack::new(&mut scratch);
         let lu = self.tail.as_ref();
         let solve_with = if transpose {
@@ -495,8 +559,9 @@ impl LaLinearSolver<FaerSparseMat<f64>> for StaticPivotLu {
         let Some(state) = self.state.as_ref() else {
             return self.fallback.solve_in_place(x);
         };
-        let data: &mut faer::Mat<f64> = diffsol::Vector::inner_mut(x);
-        state.solve(data.col_as_slice_mut(0), false);
+        // A batched right-hand side (the forward sensitivities, one column
+        // per parameter) is solved column by column with the same factors.
+        state.solve_batch(diffsol::Vector::inner_mut(x), false);
         Ok(())
     }
 
@@ -507,8 +572,9 @@ impl LaLinearSolver<FaerSparseMat<f64>> for StaticPivotLu {
         let Some(state) = self.state.as_ref() else {
             return self.fallback.solve_transpose_in_place(x);
         };
-        let data: &mut faer::Mat<f64> = diffsol::Vector::inner_mut(x);
-        state.solve(data.col_as_slice_mut(0), true);
+        // A batched right-hand side (the forward sensitivities, one column
+        // per parameter) is solved column by column with the same factors.
+        state.solve_batch(diffsol::Vector::inner_mut(x), true);
         Ok(())
     }
 

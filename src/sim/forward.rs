@@ -464,6 +464,9 @@ macro_rules! forward_with {
                 .rtol(settings.rtol)
                 .atol(vec![settings.atol; n])
                 .p(vec![0.0; m])
+                // The sensitivities share the state's error control.
+                .sens_rtol(settings.rtol)
+                .sens_atol(vec![settings.atol; n])
                 .rhs_sens_implicit(rhs, jac, sens)
                 .init_sens(init, init_sens, n)
                 .build()
@@ -473,7 +476,7 @@ macro_rules! forward_with {
             // when their (preconditioned, iterative) linear solves converge
             // well below the error test: a hundredth of it, with room to
             // iterate.
-            problem.ode_options.derivative_solve_tolerance = 0.01;
+            if let Ok(v) = std::env::var("RW_DST") { problem.ode_options.derivative_solve_tolerance = v.parse().unwrap(); } else { problem.ode_options.derivative_solve_tolerance = 0.01; }
             problem.ode_options.derivative_solve_max_iter = 50;
 
             let mut out = Trajectory {
