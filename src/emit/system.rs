@@ -14,7 +14,7 @@
 
 use crate::algebra::calculus::{derivative, is_zero, simplify};
 use crate::diagnostics::{Code, Diagnostic};
-use crate::model::{Coef, Event, EventKind, Expr, Model, ParamDef, Sym, coef_f64};
+use crate::model::{Coef, Event, EventKind, Expr, Model, ParamDef, Sym, Timing, Trigger, coef_f64};
 use std::collections::BTreeSet;
 
 /// Inlined expressions larger than this are refused (a model whose
@@ -417,6 +417,48 @@ impl System {
     pub fn used_steps(&self) -> Vec<usize> {
         let set: BTreeSet<usize> = self.rhs_terms.iter().flatten().map(|(j, _)| *j).collect();
         set.into_iter().collect()
+    }
+
+    /// The species a function over the full species vector reads for
+    /// `exprs` (model order).
+    pub fn species_read<'a>(&self, exprs: impl IntoIterator<Item = &'a Expr>) -> Vec<usize> {
+        let mut set = BTreeSet::new();
+        for e in exprs {
+            e.visit_names(&mut |s| {
+                if let Sym::Species(i) = s {
+                    set.insert(i);
+                }
+            });
+        }
+        set.into_iter().collect()
+    }
+
+    /// The timed events in the order the protocol applies them: by time,
+    /// file order at one time (as `run` orders them).
+    pub fn timed_events(&self) -> Vec<(f64, &Event)> {
+        let mut v: Vec<(f64, &Event)> = self
+            .model
+            .events
+            .iter()
+            .filter_map(|e| e.time().map(|t| (t, e)))
+            .collect();
+        v.sort_by(|a, b| a.0.total_cmp(&b.0));
+        v
+    }
+
+    /// The `when` events (file order) with their condition and their
+    /// rising function (observables inlined).
+    pub fn when_events(&self) -> Vec<(&Event, &Trigger, &Expr)> {
+        self.model
+            .events
+            .iter()
+            .filter_map(|e| match &e.timing {
+                Timing::When(t) => Some((e, t)),
+                Timing::At(_) => None,
+            })
+            .zip(&self.triggers)
+            .map(|((e, t), rising)| (e, t, rising))
+            .collect()
     }
 
     /// Species that are dependent (reduced system).
