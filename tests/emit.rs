@@ -1156,7 +1156,9 @@ fn json_jacobian_reads_back_and_matches_central_differences() {
 #[test]
 fn snapshots_of_every_target() {
     let dir = temp();
-    for name in ["protease_assay", "kinase_cycle"] {
+    // fed_dehydrogenase: the assay protocol in every target (the only check
+    // of the Julia driver, Julia not being installable here).
+    for name in ["protease_assay", "kinase_cycle", "fed_dehydrogenase"] {
         let path = root().join("models").join(format!("{name}.mech"));
         for target in ::ratewright::emit::TARGETS {
             for reduced in [false, true] {

@@ -167,6 +167,15 @@ fn source(sys: &System, options: &EmitOptions) -> String {
     o
 }
 
+/// The items of a multi-line `list(...)`, one a line; nothing when empty.
+fn list_body(items: &[String]) -> String {
+    if items.is_empty() {
+        String::new()
+    } else {
+        format!("\n{}\n", items.join(",\n"))
+    }
+}
+
 /// An R value for an event's action: a list naming its kind and operands.
 fn action(m: &crate::model::Model, a: &Action) -> String {
     match a {
@@ -234,7 +243,7 @@ fn protocol(o: &mut String, sys: &System, names: &Names) {
         );
         over_full(o, &format!("rising_{}", k + 1), &[rising], ex(rising));
     }
-    o.push_str("\n# Timed events in the order they apply (by time, file order at one time).\n# add, remove, set: a species' concentration; stock: everything is diluted\n# by V/(V+dV), then the stock adds c*dV/(V+dV); withdraw: the volume falls,\n# concentrations stay.\nevents <- list(\n");
+    o.push_str("\n# Timed events in the order they apply (by time, file order at one time).\n# add, remove, set: a species' concentration; stock: everything is diluted\n# by V/(V+dV), then the stock adds c*dV/(V+dV); withdraw: the volume falls,\n# concentrations stay.\nevents <- list(");
     let timed: Vec<String> = sys
         .timed_events()
         .into_iter()
@@ -246,8 +255,8 @@ fn protocol(o: &mut String, sys: &System, names: &Names) {
             )
         })
         .collect();
-    o.push_str(&timed.join(",\n"));
-    o.push_str("\n)\n# Triggered events: each fires when its rising function crosses zero upwards\n# (never at t = 0 for a condition already true).\ntriggers <- list(\n");
+    o.push_str(&list_body(&timed));
+    o.push_str(")\n# Triggered events: each fires when its rising function crosses zero upwards\n# (never at t = 0 for a condition already true).\ntriggers <- list(");
     let when: Vec<String> = sys
         .when_events()
         .into_iter()
@@ -260,11 +269,11 @@ fn protocol(o: &mut String, sys: &System, names: &Names) {
             )
         })
         .collect();
-    o.push_str(&when.join(",\n"));
+    o.push_str(&list_body(&when));
     let strings = |v: Vec<String>| v.iter().map(|s| quoted(s)).collect::<Vec<_>>().join(", ");
     let _ = writeln!(
         o,
-        "\n)\n# The starting volume ({}; NULL: not declared), the fixed species (a\n# dilution changes them too) and the species of each state slot.\nvolume0 <- {}\nfixed_names <- c({})\nstate_species <- c({})",
+        ")\n# The starting volume ({}; NULL: not declared), the fixed species (a\n# dilution changes them too) and the species of each state slot.\nvolume0 <- {}\nfixed_names <- c({})\nstate_species <- c({})",
         m.volume_symbol(),
         m.volume.map(float_literal).unwrap_or_else(|| "NULL".into()),
         strings(m.fixed.iter().map(|f| f.name.clone()).collect()),
