@@ -829,7 +829,12 @@ fn emitted_sbml_validates_with_libsbml_and_reads_back() {
         );
         assert_eq!(report["events"], model.events.len());
         let full = reference.full(y);
-        let want = model.eval_at(&model.step_rate(0), &full, 0.0);
+        // A kinetic law is in substance per time: the rate times the
+        // compartment's size, here the declared volume in litres (SBML Level 3
+        // Version 2 core specification, section 4.11 on reactions; the section
+        // number from memory).
+        let want =
+            model.eval_at(&model.step_rate(0), &full, 0.0) * model.volume_litres().unwrap_or(1.0);
         let got = report["law"].as_f64().expect("a kinetic law value");
         assert!(
             close(got, want, 1e-12, 0.0),
