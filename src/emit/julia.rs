@@ -12,7 +12,7 @@ use super::system::{Needs, System};
 use super::{EmitOptions, EmittedFile, Target, banner};
 use crate::algebra::print::{Syntax, float_literal, print_expr};
 use crate::diagnostics::Diagnostic;
-use crate::model::{Action, EventKind, Expr, Sym, coef_f64};
+use crate::model::{Action, EventKind, Expr, Sym};
 use std::fmt::Write;
 
 pub struct Julia;
@@ -231,30 +231,26 @@ fn action(sys: &System, names: &Names, a: &Action) -> String {
 fn protocol(o: &mut String, sys: &System, names: &Names) {
     let m = &sys.model;
     let ex = |e: &Expr| print_expr(e, &|s| names.get(s), Syntax::Julia);
-    let over_full = |o: &mut String, head: &str, exprs: &[&Expr], body: String| {
-        let _ = writeln!(o, "function {head}(t, x, p)");
-        for i in sys.species_read(exprs.iter().copied()) {
+    for f in sys.functions_over_full() {
+        let body = match &f.condition {
+            Some(c) => {
+                let _ = writeln!(o, "\n# `when {c}`: positive once the condition holds.");
+                ex(f.exprs[0])
+            }
+            None => {
+                o.push_str(
+                    "\n# Every observable (OBSERVABLES order) from the full species vector x.\n",
+                );
+                let values: Vec<String> = f.exprs.iter().map(|e| ex(e)).collect();
+                format!("Float64[{}]", values.join(", "))
+            }
+        };
+        let _ = writeln!(o, "function {}(t, x, p)", f.name);
+        for i in f.species(sys) {
             let _ = writeln!(o, "    {} = x[{}]", names.get(Sym::Species(i)), i + 1);
         }
-        prelude(o, sys, names, &sys.needs_over_full(exprs.iter().copied()));
+        prelude(o, sys, names, &f.needs(sys));
         let _ = writeln!(o, "    return {body}\nend");
-    };
-    let observables: Vec<&Expr> = sys.observables.iter().collect();
-    let values: Vec<String> = observables.iter().map(|e| ex(e)).collect();
-    o.push_str("\n# Every observable (OBSERVABLES order) from the full species vector x.\n");
-    over_full(
-        o,
-        "observables",
-        &observables,
-        format!("Float64[{}]", values.join(", ")),
-    );
-    for (k, (_, trigger, rising)) in sys.when_events().into_iter().enumerate() {
-        let _ = writeln!(
-            o,
-            "\n# `when {}`: positive once the condition holds.",
-            trigger.text.replace('\n', " ")
-        );
-        over_full(o, &format!("rising_{}", k + 1), &[rising], ex(rising));
     }
     o.push_str("\n# Triggered events: each fires when its rising function crosses zero upwards\n# (never at t = 0 for a condition already true).\nconst TRIGGERS = [\n");
     for (k, (e, _, _)) in sys.when_events().into_iter().enumerate() {
@@ -291,25 +287,20 @@ fn protocol(o: &mut String, sys: &System, names: &Names) {
     );
     o.push_str("# Totals in PARAMS, recomputed after each event: (field, species, coefficients).\nconst TOTALS = Tuple{Symbol,Vector{Int},Vector{Float64}}[");
     let totals: Vec<String> = sys
-        .constants
-        .iter()
-        .filter_map(|c| match c.sym {
-            Sym::Total(i) => Some(i),
-            Sym::Param(_) | Sym::Fixed(_) | Sym::Species(_) | Sym::Observable(_) => None,
-        })
-        .map(|i| {
-            let t = &m.totals[i];
+        .totals_after_events()
+        .into_iter()
+        .map(|(i, species, coefficients)| {
             format!(
                 "(Symbol({}), [{}], [{}])",
                 jq(&names.get(Sym::Total(i))),
-                t.terms
+                species
                     .iter()
-                    .map(|(s, _)| (s + 1).to_string())
+                    .map(|s| (s + 1).to_string())
                     .collect::<Vec<_>>()
                     .join(", "),
-                t.terms
+                coefficients
                     .iter()
-                    .map(|(_, c)| float_literal(coef_f64(*c)))
+                    .map(|c| float_literal(*c))
                     .collect::<Vec<_>>()
                     .join(", ")
             )

@@ -13,7 +13,7 @@ use super::system::{Needs, System};
 use super::{EmitOptions, EmittedFile, Target, banner};
 use crate::algebra::print::{Syntax, float_literal, plain_literal, print_expr};
 use crate::diagnostics::Diagnostic;
-use crate::model::{Action, EventKind, Expr, Sym, coef_f64};
+use crate::model::{Action, EventKind, Expr, Sym};
 use std::fmt::Write;
 
 pub struct Octave;
@@ -279,25 +279,20 @@ fn protocol_data(o: &mut String, sys: &System, names: &Names) {
     );
     o.push_str("  % Totals in p, recomputed after each event: {field, species indices, coefficients}.\n  model.totals = {");
     let totals: Vec<String> = sys
-        .constants
-        .iter()
-        .filter_map(|c| match c.sym {
-            Sym::Total(i) => Some(i),
-            Sym::Param(_) | Sym::Fixed(_) | Sym::Species(_) | Sym::Observable(_) => None,
-        })
-        .map(|i| {
-            let t = &m.totals[i];
+        .totals_after_events()
+        .into_iter()
+        .map(|(i, species, coefficients)| {
             format!(
                 "{{{}, [{}], [{}]}}",
                 sq(&names.get(Sym::Total(i))),
-                t.terms
+                species
                     .iter()
-                    .map(|(s, _)| (s + 1).to_string())
+                    .map(|s| (s + 1).to_string())
                     .collect::<Vec<_>>()
                     .join(" "),
-                t.terms
+                coefficients
                     .iter()
-                    .map(|(_, c)| plain_literal(coef_f64(*c)))
+                    .map(|c| plain_literal(*c))
                     .collect::<Vec<_>>()
                     .join(" ")
             )
@@ -319,29 +314,23 @@ fn protocol_data(o: &mut String, sys: &System, names: &Names) {
 /// trigger's rising function.
 fn protocol_functions(o: &mut String, sys: &System, names: &Names) {
     let ex = |e: &Expr| print_expr(e, &|s| names.get(s), Syntax::Octave);
-    let over_full = |o: &mut String, head: &str, exprs: &[&Expr], body: String| {
-        let _ = writeln!(o, "\nfunction z = {head}(t, x, p)");
-        for i in sys.species_read(exprs.iter().copied()) {
+    for f in sys.functions_over_full() {
+        let body = match &f.condition {
+            Some(c) => {
+                let _ = write!(o, "\n% `when {c}`: positive once the condition holds.");
+                ex(f.exprs[0])
+            }
+            None => {
+                let values: Vec<String> = f.exprs.iter().map(|e| ex(e)).collect();
+                format!("[{}]", values.join("; "))
+            }
+        };
+        let _ = writeln!(o, "\nfunction z = {}(t, x, p)", f.name);
+        for i in f.species(sys) {
             let _ = writeln!(o, "  {} = x({});", names.get(Sym::Species(i)), i + 1);
         }
-        prelude(o, sys, names, &sys.needs_over_full(exprs.iter().copied()));
+        prelude(o, sys, names, &f.needs(sys));
         let _ = writeln!(o, "  z = {body};\nend");
-    };
-    let observables: Vec<&Expr> = sys.observables.iter().collect();
-    let values: Vec<String> = observables.iter().map(|e| ex(e)).collect();
-    over_full(
-        o,
-        "observables",
-        &observables,
-        format!("[{}]", values.join("; ")),
-    );
-    for (k, (_, trigger, rising)) in sys.when_events().into_iter().enumerate() {
-        let _ = write!(
-            o,
-            "\n% `when {}`: positive once the condition holds.",
-            trigger.text.replace('\n', " ")
-        );
-        over_full(o, &format!("rising_{}", k + 1), &[rising], ex(rising));
     }
 }
 

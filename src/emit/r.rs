@@ -213,35 +213,31 @@ fn action(m: &crate::model::Model, a: &Action) -> String {
 fn protocol(o: &mut String, sys: &System, names: &Names) {
     let m = &sys.model;
     let ex = |e: &Expr| print_expr(e, &|s| names.get(s), Syntax::R);
-    let over_full = |o: &mut String, head: &str, exprs: &[&Expr], body: String| {
-        let _ = writeln!(o, "\n{head} <- function(t, x, parms) {{");
-        for i in sys.species_read(exprs.iter().copied()) {
+    for f in sys.functions_over_full() {
+        let body = match &f.condition {
+            Some(c) => {
+                let _ = write!(o, "\n# `when {c}`: positive once the condition holds.");
+                ex(f.exprs[0])
+            }
+            None => {
+                o.push_str(
+                    "\n# Every observable from the full species vector x (species_names order).",
+                );
+                let values: Vec<String> = f
+                    .exprs
+                    .iter()
+                    .zip(&m.observables)
+                    .map(|(e, ob)| format!("{} = {}", quoted(&ob.name), ex(e)))
+                    .collect();
+                format!("c({})", values.join(", "))
+            }
+        };
+        let _ = writeln!(o, "\n{} <- function(t, x, parms) {{", f.name);
+        for i in f.species(sys) {
             let _ = writeln!(o, "  {} <- x[[{}]]", names.get(Sym::Species(i)), i + 1);
         }
-        prelude(o, sys, names, &sys.needs_over_full(exprs.iter().copied()));
+        prelude(o, sys, names, &f.needs(sys));
         let _ = writeln!(o, "  {body}\n}}");
-    };
-    let observables: Vec<&Expr> = sys.observables.iter().collect();
-    let values: Vec<String> = sys
-        .observables
-        .iter()
-        .zip(&m.observables)
-        .map(|(e, ob)| format!("{} = {}", quoted(&ob.name), ex(e)))
-        .collect();
-    o.push_str("\n# Every observable from the full species vector x (species_names order).");
-    over_full(
-        o,
-        "observables",
-        &observables,
-        format!("c({})", values.join(", ")),
-    );
-    for (k, (_, trigger, rising)) in sys.when_events().into_iter().enumerate() {
-        let _ = write!(
-            o,
-            "\n# `when {}`: positive once the condition holds.",
-            trigger.text.replace('\n', " ")
-        );
-        over_full(o, &format!("rising_{}", k + 1), &[rising], ex(rising));
     }
     o.push_str("\n# Timed events in the order they apply (by time, file order at one time).\n# add, remove, set: a species' concentration; stock: everything is diluted\n# by V/(V+dV), then the stock adds c*dV/(V+dV); withdraw: the volume falls,\n# concentrations stay.\nevents <- list(");
     let timed: Vec<String> = sys

@@ -461,9 +461,69 @@ impl System {
             .collect()
     }
 
+    /// The functions of the protocol over the full species vector, each
+    /// target printing them in its syntax: `observables` (every observable,
+    /// model order), then `rising_1`, `rising_2`, … (each `when` event's
+    /// rising function, file order, with its condition as written).
+    pub fn functions_over_full(&self) -> Vec<FullFunction<'_>> {
+        let mut v = vec![FullFunction {
+            name: "observables".into(),
+            condition: None,
+            exprs: self.observables.iter().collect(),
+        }];
+        for (k, (_, trigger, rising)) in self.when_events().into_iter().enumerate() {
+            v.push(FullFunction {
+                name: format!("rising_{}", k + 1),
+                condition: Some(trigger.text.replace('\n', " ")),
+                exprs: vec![rising],
+            });
+        }
+        v
+    }
+
+    /// The totals in the parameter vector, which an event recomputes from
+    /// their species: (total, its species, their coefficients).
+    pub fn totals_after_events(&self) -> Vec<(usize, Vec<usize>, Vec<f64>)> {
+        self.constants
+            .iter()
+            .filter_map(|c| match c.sym {
+                Sym::Total(i) => Some(i),
+                Sym::Param(_) | Sym::Fixed(_) | Sym::Species(_) | Sym::Observable(_) => None,
+            })
+            .map(|i| {
+                let terms = &self.model.totals[i].terms;
+                (
+                    i,
+                    terms.iter().map(|(s, _)| *s).collect(),
+                    terms.iter().map(|(_, c)| coef_f64(*c)).collect(),
+                )
+            })
+            .collect()
+    }
+
     /// Species that are dependent (reduced system).
     pub fn dependent_of(&self, species: usize) -> Option<&Dependent> {
         self.dependent.iter().find(|d| d.species == species)
+    }
+}
+
+/// A function of the emitted protocol over the full species vector.
+pub struct FullFunction<'a> {
+    /// `observables` or `rising_K`, the same in every target.
+    pub name: String,
+    /// The `when` condition as written, for a rising function.
+    pub condition: Option<String>,
+    pub exprs: Vec<&'a Expr>,
+}
+
+impl FullFunction<'_> {
+    /// The species the function reads from the full vector.
+    pub fn species(&self, sys: &System) -> Vec<usize> {
+        sys.species_read(self.exprs.iter().copied())
+    }
+    /// What it must define before its body (constants and derived params).
+    pub fn needs(&self, sys: &System) -> Needs {
+        sys.needs_over_full(self.exprs.iter().copied())
     }
 }
 
