@@ -279,11 +279,7 @@ fn protocol(o: &mut String, sys: &System, names: &Names) {
                 .map(|i| names.get(Sym::Fixed(i)))
                 .collect()
         ),
-        sys.state
-            .iter()
-            .map(|i| (i + 1).to_string())
-            .collect::<Vec<_>>()
-            .join(", ")
+        super::one_based(&sys.state, ", ")
     );
     o.push_str("# Totals in PARAMS, recomputed after each event: (field, species, coefficients).\nconst TOTALS = Tuple{Symbol,Vector{Int},Vector{Float64}}[");
     let totals: Vec<String> = sys
@@ -293,11 +289,7 @@ fn protocol(o: &mut String, sys: &System, names: &Names) {
             format!(
                 "(Symbol({}), [{}], [{}])",
                 jq(&names.get(Sym::Total(i))),
-                species
-                    .iter()
-                    .map(|s| (s + 1).to_string())
-                    .collect::<Vec<_>>()
-                    .join(", "),
+                super::one_based(&species, ", "),
                 coefficients
                     .iter()
                     .map(|c| float_literal(*c))

@@ -271,11 +271,7 @@ fn protocol_data(o: &mut String, sys: &System, names: &Names) {
             .map(|(i, _)| sq(&names.get(Sym::Fixed(i))))
             .collect::<Vec<_>>()
             .join(", "),
-        sys.state
-            .iter()
-            .map(|i| (i + 1).to_string())
-            .collect::<Vec<_>>()
-            .join(" ")
+        super::one_based(&sys.state, " ")
     );
     o.push_str("  % Totals in p, recomputed after each event: {field, species indices, coefficients}.\n  model.totals = {");
     let totals: Vec<String> = sys
@@ -285,11 +281,7 @@ fn protocol_data(o: &mut String, sys: &System, names: &Names) {
             format!(
                 "{{{}, [{}], [{}]}}",
                 sq(&names.get(Sym::Total(i))),
-                species
-                    .iter()
-                    .map(|s| (s + 1).to_string())
-                    .collect::<Vec<_>>()
-                    .join(" "),
+                super::one_based(&species, " "),
                 coefficients
                     .iter()
                     .map(|c| plain_literal(*c))
