@@ -543,14 +543,20 @@ fn the_emitted_python_runs_the_assay_protocol_like_run() {
     let (h1, r1) = parse_csv(&std::fs::read_to_string(&py_csv).unwrap());
     let (h2, r2) = run_csv(&model, &shared);
     assert_eq!(h1, h2);
-    assert_eq!(r1.len(), r2.len(), "{r1:?}\n{r2:?}");
-    for (a, b) in r1.iter().zip(&r2) {
+    rows_agree("python", &h1, &r1, &r2);
+}
+
+/// Every value of `got` within 1e-6 relative of `run`'s (plus 1e-9 of its
+/// column's largest value, for values near zero).
+fn rows_agree(what: &str, header: &[String], got: &[Vec<f64>], run: &[Vec<f64>]) {
+    assert_eq!(got.len(), run.len(), "{what}: {got:?}\n{run:?}");
+    for (a, b) in got.iter().zip(run) {
         for k in 0..a.len() {
-            let scale = r2.iter().map(|r| r[k].abs()).fold(0.0, f64::max);
+            let scale = run.iter().map(|r| r[k].abs()).fold(0.0, f64::max);
             assert!(
                 (a[k] - b[k]).abs() <= 1e-6 * b[k].abs() + 1e-9 * scale,
-                "{} at t = {}: python {} vs run {}",
-                h1[k],
+                "{what}: {} at t = {}: {} vs run {}",
+                header[k],
                 a[0],
                 a[k],
                 b[k]
@@ -619,20 +625,7 @@ fn feed_agrees_with_run(target: &str, file: &str, produce: &dyn Fn(&Path) -> Str
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
         let (h1, r1) = parse_csv(&produce(&emitted));
         assert_eq!(h1, h2, "{target} (reduced {reduced})");
-        assert_eq!(r1.len(), r2.len(), "{r1:?}\n{r2:?}");
-        for (a, b) in r1.iter().zip(&r2) {
-            for k in 0..a.len() {
-                let scale = r2.iter().map(|r| r[k].abs()).fold(0.0, f64::max);
-                assert!(
-                    (a[k] - b[k]).abs() <= 1e-6 * b[k].abs() + 1e-9 * scale,
-                    "{target} (reduced {reduced}): {} at t = {}: {} vs run {}",
-                    h1[k],
-                    a[0],
-                    a[k],
-                    b[k]
-                );
-            }
-        }
+        rows_agree(&format!("{target} (reduced {reduced})"), &h1, &r1, &r2);
     }
 }
 
