@@ -139,6 +139,12 @@ fn plan(model: &Model, end: f64) -> Plan {
     Plan { events, triggers }
 }
 
+/// A condition that does not hold: a rising function that is not above
+/// zero, NaN included (a condition that cannot be evaluated is not true).
+fn not_positive(value: f64) -> bool {
+    value.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)
+}
+
 /// Triggered firings allowed in one run (a condition that flips at every
 /// step would otherwise never let the run end).
 const MAX_FIRINGS: usize = 100_000;
@@ -336,7 +342,7 @@ macro_rules! simulate_with {
                 let species = &row[..system.species_count()];
                 plan.triggers
                     .iter()
-                    .map(|&e| !(mixture.rising(model, e, species, 0.0) > 0.0))
+                    .map(|&e| not_positive(mixture.rising(model, e, species, 0.0)))
                     .collect()
             };
             let mut firings = 0usize;
@@ -445,7 +451,7 @@ macro_rules! simulate_with {
                     system.outputs(&mut workspace.borrow_mut(), &start.borrow(), t_event, &mut row);
                     let species = &row[..system.species_count()];
                     for (k, &e) in plan.triggers.iter().enumerate() {
-                        if !(mixture.rising(model, e, species, t_event) > 0.0) {
+                        if not_positive(mixture.rising(model, e, species, t_event)) {
                             armed[k] = true;
                         }
                     }
@@ -573,8 +579,8 @@ where
                 }
                 crossing = Some(best);
             }
-            for k in 0..g.len() {
-                if !(g[k] > 0.0) {
+            for (k, &value) in g.iter().enumerate() {
+                if not_positive(value) {
                     watch.armed[k] = true;
                 }
             }
