@@ -438,7 +438,10 @@ function [tt, yy, te, ye, ie] = integrate(m, grid, y0, p, rtol, atol, armed)
     opts = odeset(opts, 'Events', @(t, y) trigger_events(m, t, y, p, armed));
   end
   te = []; ye = []; ie = [];
-  if nargout > 2
+  if isempty(y0)
+    % Nothing to integrate: the state stands still (ode15s needs a vector).
+    tt = grid(:); yy = zeros(numel(grid), 0);
+  elseif nargout > 2
     [tt, yy, te, ye, ie] = ode15s(@(t, y) rhs(t, y, p), grid, y0, opts);
   else
     [tt, yy] = ode15s(@(t, y) rhs(t, y, p), grid, y0, opts);

@@ -443,6 +443,9 @@ simulate <- function(times, p = NULL, rtol = 1e-8, atol = 1e-12) {
     p <<- s$parms
   }
   integrate <- function(grid, roots) {
+    # Nothing to integrate (every species dependent or constant): the state
+    # stands still, and the solver cannot take an empty vector.
+    if (length(y) == 0) return(cbind(time = grid))
     sol <- deSolve::ode(y = y, times = grid, func = rhs, parms = p, method = "lsoda",
                         jacfunc = jacobian, jactype = "fullusr", rootfunc = roots,
                         rtol = rtol, atol = atol)
