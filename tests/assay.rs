@@ -675,3 +675,30 @@ fn the_emitted_octave_runs_the_assay_protocol_like_run() {
         stdout_of(c, "octave-cli")
     });
 }
+
+#[test]
+fn a_trigger_fires_where_nothing_is_integrated() {
+    // No step changes A, so the reduced run has an empty state; `when t > 2 s`
+    // must still fire there. Mass balance (common practice): 1 uM in 100 uL
+    // plus 10 uL of 5 uM is 150 pmol in 110 uL; the trigger then adds 1 uM.
+    let dir = tempfile::tempdir().unwrap();
+    let model = write(
+        dir.path(),
+        "still.mech",
+        "units concentration uM, time s\nvolume 100 uL\nfixed F = 2 uM\nspecies A = 1 uM\nparam k = 3 /s\nobserve o = k*F\nadd 10 uL of 5 uM A, 1 uM F at 1 s\nwhen t > 2 s: add 1 uM A\n",
+    );
+    for extra in [&[][..], &["--reduced"][..]] {
+        let (h, rows) = run_csv(&model, &[&["--times", "0,1.5,2.5,4"][..], extra].concat());
+        let a = column(&h, "A");
+        let after_stock = 150.0 / 110.0;
+        let want = [1.0, after_stock, after_stock + 1.0, after_stock + 1.0];
+        for (r, w) in rows.iter().zip(want) {
+            assert!(
+                close(r[a], w, 1e-12),
+                "{extra:?}: t = {}: {} vs {w}",
+                r[0],
+                r[a]
+            );
+        }
+    }
+}
