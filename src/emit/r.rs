@@ -4,7 +4,8 @@
 //! the protocol (timed events, triggers, the volume) and `simulate(times)`,
 //! which runs it with deSolve's LSODA piece by piece between events, its
 //! root finding locating the `when` conditions. Run with `Rscript` it writes
-//! CSV shaped like `ratewright run -o`.
+//! CSV with the columns of `ratewright run -o`, one row per asked time (the
+//! rows of `run --times`; no extra rows at event times).
 
 use super::names::{Names, R_RESERVED, quoted};
 use super::system::{Needs, System};
