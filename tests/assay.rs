@@ -543,17 +543,161 @@ fn the_emitted_python_runs_the_assay_protocol_like_run() {
     let (h1, r1) = parse_csv(&std::fs::read_to_string(&py_csv).unwrap());
     let (h2, r2) = run_csv(&model, &shared);
     assert_eq!(h1, h2);
-    assert_eq!(r1.len(), r2.len(), "{r1:?}\n{r2:?}");
-    for (a, b) in r1.iter().zip(&r2) {
+    rows_agree("python", &h1, &r1, &r2);
+}
+
+/// Every value of `got` within 1e-6 relative of `run`'s (plus 1e-9 of its
+/// column's largest value, for values near zero).
+fn rows_agree(what: &str, header: &[String], got: &[Vec<f64>], run: &[Vec<f64>]) {
+    assert_eq!(got.len(), run.len(), "{what}: {got:?}\n{run:?}");
+    for (a, b) in got.iter().zip(run) {
         for k in 0..a.len() {
-            let scale = r2.iter().map(|r| r[k].abs()).fold(0.0, f64::max);
+            let scale = run.iter().map(|r| r[k].abs()).fold(0.0, f64::max);
             assert!(
                 (a[k] - b[k]).abs() <= 1e-6 * b[k].abs() + 1e-9 * scale,
-                "{} at t = {}: python {} vs run {}",
-                h1[k],
+                "{what}: {} at t = {}: {} vs run {}",
+                header[k],
                 a[0],
                 a[k],
                 b[k]
+            );
+        }
+    }
+}
+
+/// Substrate fed by repeated stock additions, an inhibitor stock (with more
+/// of the fixed buffer B) added each time the product rises through 5 uM,
+/// a withdrawal, and an enzyme conserved as E + ES + EI: dilutions push P
+/// back under 5 uM, so the trigger fires many times.
+const FEED: &str =
+    "mechanism feed \"Substrate fed into a well; an inhibitor stock added when product passes 5 uM\"
+volume 200 uL
+species E = 0.1 uM, ES = 0, EI = 0
+species S = 20 uM, P = 0, I = 0
+fixed B = 50 mM
+param k_on = 2 /uM/s
+param k_off = 10 /s
+param k_cat = 0.5 /s
+param ki_on = 1 /uM/s
+param ki_off = 0.2 /s
+param unit_b = 1 mM
+step bind E + S <=> ES with k_on, k_off
+step turnover ES -> E + P law k_cat * ES * B / (B + unit_b)
+step inhibit E + I <=> EI with ki_on, ki_off
+observe signal = 3 * P + 0.5
+when P > 5 uM: add 4 uL of 50 uM I, 10 mM B
+every 5 min from 5 min to 25 min: add 5 uL of 2 mM S
+remove 20 uL at 700 s
+";
+
+/// Output times between and at events (300 s and 700 s are event times).
+const FEED_TIMES: &str = "20,100,200,299,300,450,699,700,800,1000,1400,1600";
+
+/// The emitted file's CSV (from `produce`, given the emitted file's path)
+/// against `run --times` on FEED, full and reduced: same header, and every
+/// value within 1e-6 relative (plus 1e-9 of its column's largest value,
+/// for the species near zero).
+fn feed_agrees_with_run(target: &str, file: &str, produce: &dyn Fn(&Path) -> String) {
+    let dir = tempfile::tempdir().unwrap();
+    let model = write(dir.path(), "feed.mech", FEED);
+    let (h2, r2) = run_csv(
+        &model,
+        &["--times", FEED_TIMES, "--rtol", "1e-10", "--atol", "1e-14"],
+    );
+    // The trigger fired (each firing adds 4 uL) and more than once.
+    let vol = column(&h2, "volume");
+    assert!(r2[2][vol] > 204.0, "{r2:?}");
+    for reduced in [false, true] {
+        let emitted = dir.path().join(format!("{reduced}")).join(file);
+        std::fs::create_dir_all(emitted.parent().unwrap()).unwrap();
+        let mut args = vec![
+            "emit",
+            model.to_str().unwrap(),
+            "--target",
+            target,
+            "-o",
+            emitted.to_str().unwrap(),
+        ];
+        if reduced {
+            args.push("--reduced");
+        }
+        let o = ratewright(&args);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let (h1, r1) = parse_csv(&produce(&emitted));
+        assert_eq!(h1, h2, "{target} (reduced {reduced})");
+        rows_agree(&format!("{target} (reduced {reduced})"), &h1, &r1, &r2);
+    }
+}
+
+fn stdout_of(mut command: std::process::Command, what: &str) -> String {
+    let out = command
+        .output()
+        .unwrap_or_else(|e| panic!("{what} runs: {e}"));
+    assert!(
+        out.status.success(),
+        "{what}: {}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).unwrap()
+}
+
+#[test]
+fn the_emitted_r_runs_the_assay_protocol_like_run() {
+    // The r target's driver (deSolve's LSODA, its root finding for `when`)
+    // run by Rscript as a script, against `run`.
+    common::ensure_r();
+    feed_agrees_with_run("r", "feed.R", &|file| {
+        let mut c = std::process::Command::new("Rscript");
+        c.arg(file)
+            .args(["--times", FEED_TIMES, "--rtol", "1e-10", "--atol", "1e-14"]);
+        stdout_of(c, "Rscript")
+    });
+}
+
+#[test]
+fn the_emitted_octave_runs_the_assay_protocol_like_run() {
+    // The octave target's driver (ode15s, its Events option for `when`)
+    // under octave-cli, against `run`.
+    common::ensure_octave();
+    feed_agrees_with_run("octave", "feed.m", &|file| {
+        let script = file.with_file_name("check.m");
+        std::fs::write(
+            &script,
+            format!(
+                "m = feed();\nr = m.simulate(m, [{FEED_TIMES}], 1e-10, 1e-12);\nprintf('%s\\n', strjoin([{{'t'}}, m.species_names, m.observable_names, {{'volume'}}], ','));\nfor i = 1:rows(r)\n  printf('%s\\n', strjoin(arrayfun(@(v) sprintf('%.17g', v), r(i, :), 'UniformOutput', false), ','));\nend\n"
+            ),
+        )
+        .unwrap();
+        let mut c = std::process::Command::new("octave-cli");
+        c.args(["--no-gui", "--quiet", "--no-window-system", "check.m"])
+            .current_dir(file.parent().unwrap());
+        stdout_of(c, "octave-cli")
+    });
+}
+
+#[test]
+fn a_trigger_fires_where_nothing_is_integrated() {
+    // No step changes A, so the reduced run has an empty state; `when t > 2 s`
+    // must still fire there. Mass balance (common practice): 1 uM in 100 uL
+    // plus 10 uL of 5 uM is 150 pmol in 110 uL; the trigger then adds 1 uM.
+    let dir = tempfile::tempdir().unwrap();
+    let model = write(
+        dir.path(),
+        "still.mech",
+        "units concentration uM, time s\nvolume 100 uL\nfixed F = 2 uM\nspecies A = 1 uM\nparam k = 3 /s\nobserve o = k*F\nadd 10 uL of 5 uM A, 1 uM F at 1 s\nwhen t > 2 s: add 1 uM A\n",
+    );
+    for extra in [&[][..], &["--reduced"][..]] {
+        let (h, rows) = run_csv(&model, &[&["--times", "0,1.5,2.5,4"][..], extra].concat());
+        let a = column(&h, "A");
+        let after_stock = 150.0 / 110.0;
+        let want = [1.0, after_stock, after_stock + 1.0, after_stock + 1.0];
+        for (r, w) in rows.iter().zip(want) {
+            assert!(
+                close(r[a], w, 1e-12),
+                "{extra:?}: t = {}: {} vs {w}",
+                r[0],
+                r[a]
             );
         }
     }

@@ -2149,3 +2149,129 @@ fn a_mechanism_in_the_named_constants_runs_like_the_original() {
     assert_eq!(r.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&r.stderr).contains("--format mech"));
 }
+
+/// An event described by names (indices differ between a file and the
+/// file derived from it).
+fn event_by_names(m: &Model, e: &ratewright::model::Event) -> String {
+    use ratewright::model::{Action, Timing};
+    let when = match &e.timing {
+        Timing::At(t) => format!("at {t:?}"),
+        Timing::When(trigger) => format!("when {}", trigger.text),
+    };
+    let what = match &e.action {
+        Action::Species {
+            kind,
+            species,
+            amount,
+        } => format!("{kind:?} {amount:?} {}", m.species[*species].name),
+        Action::Stock { volume, contents } => format!(
+            "stock {volume:?} of {:?}",
+            contents
+                .iter()
+                .map(|(s, c)| (m.name_of(*s).to_string(), *c))
+                .collect::<Vec<_>>()
+        ),
+        Action::Withdraw { volume } => format!("withdraw {volume:?}"),
+    };
+    format!("{when}: {what}")
+}
+
+const FED_QSS: &str = "mechanism fed \"a fed well under the quasi-steady state\"
+volume 200 uL
+temperature 37 C
+species E = 0.01 uM, ES = 0
+species S = 20 uM, P = 0, I = 0
+param k_on = 2 /uM/s at 25 C energy 20 kJ/mol
+param k_off = 10 /s
+param k_cat = 0.5 /s
+step bind E + S <=> ES with k_on, k_off
+step turnover ES -> E + P with k_cat
+assume steady E, ES
+when P > 5 uM: add 4 uL of 50 uM I
+every 5 min from 5 min to 25 min: add 5 uL of 2 mM S
+remove 20 uL at 700 s
+add 1 uM S at 800 s
+";
+
+#[test]
+fn derive_mech_keeps_the_volume_and_the_whole_protocol() {
+    let m = write("fed", FED_QSS);
+    let original = load_path(&m.path).model.unwrap();
+    for extra in [&[][..], &["--constants"][..]] {
+        let out_path = m
+            .path
+            .with_file_name(format!("derived{}.mech", extra.len()));
+        let mut args = vec![
+            "derive",
+            m.path.to_str().unwrap(),
+            "--format",
+            "mech",
+            "-o",
+            out_path.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        let o = ratewright(&args);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let derived = load_path(&out_path).model.expect("the derived file loads");
+        assert_eq!(derived.volume, original.volume);
+        assert_eq!(derived.volume_unit, original.volume_unit);
+        let events =
+            |m: &Model| -> Vec<String> { m.events.iter().map(|e| event_by_names(m, e)).collect() };
+        assert_eq!(events(&derived), events(&original), "{extra:?}");
+        // The enzyme total is diluted with the mixture: a fixed species.
+        assert!(
+            derived.fixed.iter().any(|f| f.name == "E_total"),
+            "{:?}",
+            derived.fixed
+        );
+        // The volume follows the same protocol under `run` (the trigger's
+        // firings differ only by the quasi-steady-state error in P).
+        let volume = |path: &Path| -> Vec<String> {
+            let csv = path.with_extension("csv");
+            let o = ratewright(&[
+                "run",
+                path.to_str().unwrap(),
+                "--times",
+                "100,650,1000,1600",
+                "-o",
+                csv.to_str().unwrap(),
+            ]);
+            assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+            let text = std::fs::read_to_string(&csv).unwrap();
+            let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+            let k = lines
+                .next()
+                .unwrap()
+                .split(',')
+                .position(|h| h == "volume")
+                .expect("a volume column");
+            lines
+                .map(|l| l.split(',').nth(k).unwrap().to_string())
+                .collect()
+        };
+        assert_eq!(volume(&out_path), volume(&m.path), "{extra:?}");
+    }
+}
+
+#[test]
+fn derive_mech_refuses_an_event_on_an_eliminated_form() {
+    let m = write(
+        "form_event",
+        &FED_QSS.replace("add 1 uM S at 800 s", "add 0.01 uM E at 800 s"),
+    );
+    let o = ratewright(&["derive", m.path.to_str().unwrap(), "--format", "mech"]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        !o.status.success(),
+        "{}",
+        String::from_utf8_lossy(&o.stdout)
+    );
+    assert!(err.contains("`E`") && err.contains("eliminates"), "{err}");
+    // Located: the code and the line of the event.
+    assert!(
+        err.contains("E0805") && err.contains("form_event.mech:15:"),
+        "{err}"
+    );
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(!err.contains("panicked"), "{err}");
+}

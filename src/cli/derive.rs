@@ -146,7 +146,10 @@ pub fn run(args: &Args) -> ExitCode {
                 .unwrap_or_default();
             match output::mechanism(&derivation, &model, &source, args.constants) {
                 Ok(s) => in_canonical_layout(s),
-                Err(e) => return common::usage_error_as(json, e),
+                Err(output::MechanismError::Usage(e)) => return common::usage_error_as(json, e),
+                Err(output::MechanismError::Model(diag)) => {
+                    return report_failure(&[*diag], &sources, json, EXIT_MODEL);
+                }
             }
         }
     };

@@ -897,6 +897,8 @@ fn assumption_changes(ctx: &Context, out: &mut Vec<Change>) {
 /// The mixture's volume (compared in litres) and the assay temperature.
 fn condition_changes(ctx: &Context, out: &mut Vec<Change>) {
     let (old, new) = (ctx.old, ctx.new);
+    // (what, old value, new value, old unit, new unit): read once, below.
+    #[allow(clippy::type_complexity)]
     let conditions: [(&str, Option<f64>, Option<f64>, &str, &str); 2] = [
         (
             "volume",

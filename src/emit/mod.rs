@@ -139,3 +139,12 @@ pub(crate) fn banner(system: &System, options: &EmitOptions, target: &str) -> St
         options.source_name
     )
 }
+
+/// Indices counted from 1 (the arrays of Julia, R and Octave), joined by `sep`.
+pub(crate) fn one_based(indices: &[usize], sep: &str) -> String {
+    indices
+        .iter()
+        .map(|i| (i + 1).to_string())
+        .collect::<Vec<_>>()
+        .join(sep)
+}

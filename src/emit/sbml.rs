@@ -1,5 +1,5 @@
-//! SBML target: SBML Level 3 Version 2 core. One compartment of size 1 in
-//! the model's volume unit; species in concentrations (fixed species are
+//! SBML target: SBML Level 3 Version 2 core. One compartment, its size the
+//! declared volume in litres (1 when none is declared); species in concentrations (fixed species are
 //! boundary conditions and constant); params with values are constant
 //! parameters, derived params get initial assignments, observables and
 //! totals assignment rules (a total follows its species through events);

@@ -14,7 +14,7 @@
 
 use crate::algebra::calculus::{derivative, is_zero, simplify};
 use crate::diagnostics::{Code, Diagnostic};
-use crate::model::{Coef, Event, EventKind, Expr, Model, ParamDef, Sym, coef_f64};
+use crate::model::{Coef, Event, EventKind, Expr, Model, ParamDef, Sym, Timing, Trigger, coef_f64};
 use std::collections::BTreeSet;
 
 /// Inlined expressions larger than this are refused (a model whose
@@ -419,9 +419,111 @@ impl System {
         set.into_iter().collect()
     }
 
+    /// The species a function over the full species vector reads for
+    /// `exprs` (model order).
+    pub fn species_read<'a>(&self, exprs: impl IntoIterator<Item = &'a Expr>) -> Vec<usize> {
+        let mut set = BTreeSet::new();
+        for e in exprs {
+            e.visit_names(&mut |s| {
+                if let Sym::Species(i) = s {
+                    set.insert(i);
+                }
+            });
+        }
+        set.into_iter().collect()
+    }
+
+    /// The timed events in the order the protocol applies them: by time,
+    /// file order at one time (as `run` orders them).
+    pub fn timed_events(&self) -> Vec<(f64, &Event)> {
+        let mut v: Vec<(f64, &Event)> = self
+            .model
+            .events
+            .iter()
+            .filter_map(|e| e.time().map(|t| (t, e)))
+            .collect();
+        v.sort_by(|a, b| a.0.total_cmp(&b.0));
+        v
+    }
+
+    /// The `when` events (file order) with their condition and their
+    /// rising function (observables inlined).
+    pub fn when_events(&self) -> Vec<(&Event, &Trigger, &Expr)> {
+        self.model
+            .events
+            .iter()
+            .filter_map(|e| match &e.timing {
+                Timing::When(t) => Some((e, t)),
+                Timing::At(_) => None,
+            })
+            .zip(&self.triggers)
+            .map(|((e, t), rising)| (e, t, rising))
+            .collect()
+    }
+
+    /// The functions of the protocol over the full species vector, each
+    /// target printing them in its syntax: `observables` (every observable,
+    /// model order), then `rising_1`, `rising_2`, … (each `when` event's
+    /// rising function, file order, with its condition as written).
+    pub fn functions_over_full(&self) -> Vec<FullFunction<'_>> {
+        let mut v = vec![FullFunction {
+            name: "observables".into(),
+            condition: None,
+            exprs: self.observables.iter().collect(),
+        }];
+        for (k, (_, trigger, rising)) in self.when_events().into_iter().enumerate() {
+            v.push(FullFunction {
+                name: format!("rising_{}", k + 1),
+                condition: Some(trigger.text.replace('\n', " ")),
+                exprs: vec![rising],
+            });
+        }
+        v
+    }
+
+    /// The totals in the parameter vector, which an event recomputes from
+    /// their species: (total, its species, their coefficients).
+    pub fn totals_after_events(&self) -> Vec<(usize, Vec<usize>, Vec<f64>)> {
+        self.constants
+            .iter()
+            .filter_map(|c| match c.sym {
+                Sym::Total(i) => Some(i),
+                Sym::Param(_) | Sym::Fixed(_) | Sym::Species(_) | Sym::Observable(_) => None,
+            })
+            .map(|i| {
+                let terms = &self.model.totals[i].terms;
+                (
+                    i,
+                    terms.iter().map(|(s, _)| *s).collect(),
+                    terms.iter().map(|(_, c)| coef_f64(*c)).collect(),
+                )
+            })
+            .collect()
+    }
+
     /// Species that are dependent (reduced system).
     pub fn dependent_of(&self, species: usize) -> Option<&Dependent> {
         self.dependent.iter().find(|d| d.species == species)
+    }
+}
+
+/// A function of the emitted protocol over the full species vector.
+pub struct FullFunction<'a> {
+    /// `observables` or `rising_K`, the same in every target.
+    pub name: String,
+    /// The `when` condition as written, for a rising function.
+    pub condition: Option<String>,
+    pub exprs: Vec<&'a Expr>,
+}
+
+impl FullFunction<'_> {
+    /// The species the function reads from the full vector.
+    pub fn species(&self, sys: &System) -> Vec<usize> {
+        sys.species_read(self.exprs.iter().copied())
+    }
+    /// What it must define before its body (constants and derived params).
+    pub fn needs(&self, sys: &System) -> Needs {
+        sys.needs_over_full(self.exprs.iter().copied())
     }
 }
 

@@ -184,8 +184,12 @@ fn rate_model(
                 return Err(vec![d]);
             }
         }
-        let text = ratelaw::output::mechanism(&derivation, model, label, in_constants)
-            .map_err(request_error)?;
+        let text = ratelaw::output::mechanism(&derivation, model, label, in_constants).map_err(
+            |e| match e {
+                ratelaw::output::MechanismError::Usage(m) => request_error(m),
+                ratelaw::output::MechanismError::Model(d) => vec![*d],
+            },
+        )?;
         let loaded = load_str(&text, Path::new("derived.mech"));
         let Some(derived) = loaded.model else {
             return Err(request_error(format!(

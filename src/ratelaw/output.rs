@@ -11,7 +11,8 @@ use super::{Constant, Derivation, Derived, VarKind};
 use crate::algebra::poly::{Monomial, Poly, Printer, Syntax, Var};
 use crate::algebra::print::{self, plain_literal};
 use crate::algebra::rational::RationalFunction;
-use crate::model::{Dim, EventKind, Model, ParamDef, Sym};
+use crate::diagnostics::{Code, Diagnostic};
+use crate::model::{Action, Dim, Event, EventKind, Model, ParamDef, Sym, Timing};
 use serde_json::{Value, json};
 use std::collections::BTreeSet;
 
@@ -484,22 +485,31 @@ pub fn json(d: &Derivation, model: &Model) -> Value {
 ///
 /// With `in_constants`, the params are the named constants of the
 /// constants form, valued at the file's params, and the law is that form.
+/// Why `--format mech` writes nothing: an option that does not apply, or
+/// part of the file (located) the derived file cannot keep.
+#[derive(Debug)]
+pub enum MechanismError {
+    Usage(String),
+    Model(Box<Diagnostic>),
+}
+
 pub fn mechanism(
     d: &Derivation,
     model: &Model,
     source: &str,
     in_constants: bool,
-) -> Result<String, String> {
+) -> Result<String, MechanismError> {
     let Derived::Overall(o) = &d.derived else {
-        return Err("`--format mech` writes the overall reaction; it cannot be combined with --species or --flux".into());
+        return Err(MechanismError::Usage("`--format mech` writes the overall reaction; it cannot be combined with --species or --flux".into()));
     };
     let form = match (in_constants, &d.constants_form) {
         (false, _) => None,
         (true, Some(f)) => Some(f),
         (true, None) => {
-            return Err("`--constants`: this rate law has no form in named constants (it needs one enzyme total the rate is proportional to)".into());
+            return Err(MechanismError::Usage("`--constants`: this rate law has no form in named constants (it needs one enzyme total the rate is proportional to)".into()));
         }
     };
+    let protocol = protocol_lines(d, model)?;
     let keys = keys_for(d);
     let p = printer(d, Syntax::Mech, &keys);
     let mut out = String::new();
@@ -507,7 +517,17 @@ pub fn mechanism(
         "# Derived by `ratewright derive` from {source}:\n# {}.\n",
         method_text(d, model)
     ));
-    out.push_str("# The intermediates are eliminated; their totals are params here.\n");
+    if let Some(kelvin) = model.temperature {
+        out.push_str(&format!(
+            "# Params are the file's values at its assay temperature ({} K).\n",
+            plain_literal(kelvin)
+        ));
+    }
+    out.push_str(if protocol.dilutes {
+        "# The intermediates are eliminated; their totals are fixed species here\n# (additions of a stock dilute them).\n"
+    } else {
+        "# The intermediates are eliminated; their totals are params here.\n"
+    });
     let name = model.name.clone().unwrap_or_else(|| "mechanism".into());
     let desc = model
         .description
@@ -519,10 +539,18 @@ pub fn mechanism(
         desc.replace('"', "'")
     ));
     out.push_str(&format!(
-        "units concentration {}, time {}\n\n",
+        "units concentration {}, time {}\n",
         model.units.concentration.symbol(),
         model.units.time.symbol()
     ));
+    if let Some(v) = model.volume {
+        out.push_str(&format!(
+            "volume {} {}\n",
+            plain_literal(v),
+            model.volume_symbol()
+        ));
+    }
+    out.push('\n');
     let used: BTreeSet<Var> = d
         .rate
         .num
@@ -536,7 +564,8 @@ pub fn mechanism(
             continue;
         }
         let touched = o.reactants.iter().chain(&o.products).any(|(k, _)| *k == i)
-            || used.iter().any(|v| d.kind(*v) == Some(VarKind::Species(i)));
+            || used.iter().any(|v| d.kind(*v) == Some(VarKind::Species(i)))
+            || protocol.names.contains(&Sym::Species(i));
         if !touched {
             continue;
         }
@@ -551,8 +580,9 @@ pub fn mechanism(
             describe(&s.description)
         ));
     }
-    for f in &model.fixed {
-        if used.iter().any(|v| d.vars.name(*v) == f.name) {
+    for (k, f) in model.fixed.iter().enumerate() {
+        if used.iter().any(|v| d.vars.name(*v) == f.name) || protocol.names.contains(&Sym::Fixed(k))
+        {
             out.push_str(&format!(
                 "fixed {} = {}{}\n",
                 f.name,
@@ -569,6 +599,10 @@ pub fn mechanism(
             Some(VarKind::Param(i)) => Some(i),
             _ => None,
         })
+        .chain(protocol.names.iter().filter_map(|s| match s {
+            Sym::Param(i) => Some(*i),
+            Sym::Species(_) | Sym::Fixed(_) | Sym::Total(_) | Sym::Observable(_) => None,
+        }))
         .collect();
     loop {
         let mut more = Vec::new();
@@ -593,10 +627,10 @@ pub fn mechanism(
         for c in form.constants_used(d) {
             let (value, dim) = value_of(c, d, model);
             if !value.is_finite() {
-                return Err(format!(
+                return Err(MechanismError::Usage(format!(
                     "`--constants`: {} has no finite value at the file's params",
                     c.name
-                ));
+                )));
             }
             // A dimensionless value as an expression, whose dimension is
             // known (a bare number's is not), so the law's checks hold.
@@ -632,8 +666,15 @@ pub fn mechanism(
             .iter()
             .map(|&i| model.species[i].name.as_str())
             .collect();
+        // A dilution changes a total as it changes its forms, and a
+        // dilution changes fixed species, not params.
+        let (keyword, note) = if protocol.dilutes {
+            ("fixed", ", diluted with the mixture")
+        } else {
+            ("param", "")
+        };
         out.push_str(&format!(
-            "param {} = {} \"total of {}\"\n",
+            "{keyword} {} = {} \"total of {}{note}\"\n",
             t.name,
             with_unit(t.value, Some(Dim::CONC), model),
             forms.join(" + ")
@@ -666,33 +707,112 @@ pub fn mechanism(
             None => rate_text(d, &p, &keys),
         }
     ));
-    let kept = |i: usize| !is_form(i);
-    let mut events = String::new();
-    for e in &model.events {
-        // The derived file keeps the protocol's species changes; volume
-        // changes and triggers are the assay's, kept in the original file.
-        let Some((time, kind, species, amount)) = e.timed_species_change() else {
-            continue;
-        };
-        if !kept(species) {
-            continue;
-        }
-        let n = &model.species[species].name;
-        let (a, t) = (
-            with_unit(amount, Some(Dim::CONC), model),
-            with_unit(time, Some(Dim::TIME), model),
-        );
-        events.push_str(&match kind {
-            EventKind::Add => format!("add {a} {n} at {t}\n"),
-            EventKind::Remove => format!("remove {a} {n} at {t}\n"),
-            EventKind::Set => format!("set {n} = {a} at {t}\n"),
-        });
-    }
+    let events = protocol.text;
     if !events.is_empty() {
         out.push('\n');
         out.push_str(&events);
     }
     Ok(out)
+}
+
+/// The protocol as the derived file writes it, and what it needs there.
+struct Protocol {
+    /// The event lines, in file order.
+    text: String,
+    /// Species, fixed species and params the events name.
+    names: BTreeSet<Sym>,
+    /// Whether an addition of a stock dilutes the mixture.
+    dilutes: bool,
+}
+
+/// The events of the file in mechanism syntax: the derived file keeps the
+/// whole protocol (species changes, additions of a stock, withdrawals,
+/// triggers), or refuses when an event needs what derivation removed (an
+/// eliminated enzyme form, an observable, a total).
+fn protocol_lines(d: &Derivation, model: &Model) -> Result<Protocol, MechanismError> {
+    let mut names = BTreeSet::new();
+    let mut dilutes = false;
+    let conc = |v: f64| with_unit(v, Some(Dim::CONC), model);
+    let volume = |v: f64| format!("{} {}", plain_literal(v), model.volume_symbol());
+    let mut keep = |sym: Sym, e: &Event| -> Result<(), MechanismError> {
+        let refuse = |message: String, label: &str| {
+            MechanismError::Model(Box::new(
+                Diagnostic::error(Code::TargetCannotExpress, message)
+                    .with_label(e.span, label)
+                    .with_help(
+                        "derive without `--format mech`, or keep this event in the original file",
+                    ),
+            ))
+        };
+        match sym {
+            Sym::Species(i) if d.steady.contains(&i) => Err(refuse(
+                format!(
+                    "`--format mech`: this event names `{}`, an enzyme form the derivation eliminates",
+                    model.species[i].name
+                ),
+                "not expressible in the derived file",
+            )),
+            Sym::Species(_) | Sym::Fixed(_) | Sym::Param(_) => {
+                names.insert(sym);
+                Ok(())
+            }
+            Sym::Total(_) | Sym::Observable(_) => Err(refuse(
+                format!(
+                    "`--format mech`: this event names `{}`, which the derived file does not define",
+                    model.name_of(sym)
+                ),
+                "not expressible in the derived file",
+            )),
+        }
+    };
+    let mut text = String::new();
+    for e in &model.events {
+        let action = match &e.action {
+            Action::Species {
+                kind,
+                species,
+                amount,
+            } => {
+                keep(Sym::Species(*species), e)?;
+                let n = &model.species[*species].name;
+                match kind {
+                    EventKind::Add => format!("add {} {n}", conc(*amount)),
+                    EventKind::Remove => format!("remove {} {n}", conc(*amount)),
+                    EventKind::Set => format!("set {n} = {}", conc(*amount)),
+                }
+            }
+            Action::Stock {
+                volume: v,
+                contents,
+            } => {
+                dilutes = true;
+                let mut stock = Vec::new();
+                for (sym, c) in contents {
+                    keep(*sym, e)?;
+                    stock.push(format!("{} {}", conc(*c), model.name_of(*sym)));
+                }
+                format!("add {} of {}", volume(*v), stock.join(", "))
+            }
+            Action::Withdraw { volume: v } => format!("remove {}", volume(*v)),
+        };
+        match &e.timing {
+            Timing::At(t) => text.push_str(&format!(
+                "{action} at {}\n",
+                with_unit(*t, Some(Dim::TIME), model)
+            )),
+            Timing::When(trigger) => {
+                for sym in trigger.rising.names() {
+                    keep(sym, e)?;
+                }
+                text.push_str(&format!("when {}: {action}\n", trigger.text));
+            }
+        }
+    }
+    Ok(Protocol {
+        text,
+        names,
+        dilutes,
+    })
 }
 
 /// A value in the model's default units, written with its unit (so the

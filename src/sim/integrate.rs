@@ -139,6 +139,12 @@ pub(super) fn plan(model: &Model, end: f64) -> Plan {
     Plan { events, triggers }
 }
 
+/// A condition that does not hold: a rising function that is not above
+/// zero, NaN included (a condition that cannot be evaluated is not true).
+fn not_positive(value: f64) -> bool {
+    value.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)
+}
+
 /// Triggered firings allowed in one run (a condition that flips at every
 /// step would otherwise never let the run end).
 pub(super) const MAX_FIRINGS: usize = 100_000;
@@ -336,7 +342,7 @@ macro_rules! simulate_with {
                 let species = &row[..system.species_count()];
                 plan.triggers
                     .iter()
-                    .map(|&e| !(mixture.rising(model, e, species, 0.0) > 0.0))
+                    .map(|&e| not_positive(mixture.rising(model, e, species, 0.0)))
                     .collect()
             };
             let mut firings = 0usize;
@@ -359,15 +365,20 @@ macro_rules! simulate_with {
                     // Nothing is integrated (every species fixed, in no step,
                     // or dependent): the state is constant and the solver,
                     // which cannot take a step of size zero, is not needed.
-                    while next_out < times.len()
-                        && (times[next_out] < seg_end
-                            || (last_segment && times[next_out] <= seg_end))
-                    {
-                        system.outputs(&mut workspace.borrow_mut(), &[], times[next_out], &mut row);
-                        out.push(times[next_out], &row, mixture.volume);
-                        next_out += 1;
-                    }
-                    stretch = Stretch::Reached(Vec::new());
+                    let mut watch = Watch {
+                        model,
+                        mixture: &mixture,
+                        triggers: &plan.triggers,
+                        armed: &mut armed,
+                    };
+                    let mut sink = Sink {
+                        times,
+                        next_out: &mut next_out,
+                        out: &mut out,
+                        row: &mut row,
+                        volume: mixture.volume,
+                    };
+                    stretch = still_stretch(system, &workspace, t_start, seg_end, last_segment, &mut sink, &mut watch);
                 } else if seg_end > t_start {
                     problem.t0 = t_start;
                     cache.borrow_mut().valid = false;
@@ -446,7 +457,7 @@ macro_rules! simulate_with {
                     system.outputs(&mut workspace.borrow_mut(), &start.borrow(), t_event, &mut row);
                     let species = &row[..system.species_count()];
                     for (k, &e) in plan.triggers.iter().enumerate() {
-                        if !(mixture.rising(model, e, species, t_event) > 0.0) {
+                        if not_positive(mixture.rising(model, e, species, t_event)) {
                             armed[k] = true;
                         }
                     }
@@ -487,6 +498,93 @@ pub(super) struct Sink<'a> {
 pub(super) struct SensitivitySink {
     pub(super) at_outputs: Vec<(Vec<f64>, Vec<f64>)>,
     pub(super) at_end: Vec<f64>,
+}
+
+/// A stretch with nothing to integrate: the state stands still, so each
+/// trigger's rising function depends on `t` alone. It is sampled at the
+/// output times inside the stretch and at its end; a crossing between two
+/// samples is located by bisection to a relative 1e-13 of the time (a
+/// condition that becomes true and false again between two samples is
+/// not seen).
+fn still_stretch(
+    system: &CompiledSystem,
+    workspace: &RefCell<crate::numeric::Workspace>,
+    t_start: f64,
+    seg_end: f64,
+    last_segment: bool,
+    sink: &mut Sink<'_>,
+    watch: &mut Watch<'_>,
+) -> Stretch {
+    let mut scratch = Vec::new();
+    let mut crossing: Option<(f64, Vec<usize>)> = None;
+    if !watch.triggers.is_empty() {
+        let samples = sink.times[*sink.next_out..]
+            .iter()
+            .copied()
+            .filter(|&t| t > t_start && t < seg_end)
+            .chain(std::iter::once(seg_end));
+        let mut previous = t_start;
+        for t in samples {
+            let g = watch.values(system, workspace, &[], t, &mut scratch);
+            let rising: Vec<usize> = (0..g.len())
+                .filter(|&k| watch.armed[k] && g[k] > 0.0)
+                .collect();
+            if !rising.is_empty() {
+                let mut best = (t, Vec::new());
+                for &k in &rising {
+                    let (mut lo, mut hi) = (previous, t);
+                    for _ in 0..200 {
+                        if hi - lo <= 1e-13 * hi.abs().max(f64::MIN_POSITIVE) {
+                            break;
+                        }
+                        let mid = 0.5 * (lo + hi);
+                        if watch.values(system, workspace, &[], mid, &mut scratch)[k] > 0.0 {
+                            hi = mid;
+                        } else {
+                            lo = mid;
+                        }
+                    }
+                    if hi < best.0 {
+                        best = (hi, vec![k]);
+                    } else if hi == best.0 {
+                        best.1.push(k);
+                    }
+                }
+                for &k in &best.1 {
+                    watch.armed[k] = false;
+                }
+                crossing = Some(best);
+                break;
+            }
+            for (k, &value) in g.iter().enumerate() {
+                if not_positive(value) {
+                    watch.armed[k] = true;
+                }
+            }
+            previous = t;
+        }
+    }
+    while *sink.next_out < sink.times.len() {
+        let t = sink.times[*sink.next_out];
+        let before = match &crossing {
+            Some((time, _)) => t < *time,
+            None => t < seg_end || (last_segment && t <= seg_end),
+        };
+        if !before {
+            break;
+        }
+        system.outputs(&mut workspace.borrow_mut(), &[], t, sink.row);
+        sink.out.push(t, sink.row, sink.volume);
+        *sink.next_out += 1;
+    }
+    match crossing {
+        Some((time, fired)) => Stretch::Triggered {
+            time,
+            state: Vec::new(),
+            fired,
+        },
+        None => Stretch::Reached(Vec::new()),
+    }
 }
 
 /// Steps one solver to `seg_end`, recording outputs on the way, and stops
@@ -583,8 +681,8 @@ where
                 }
                 crossing = Some(best);
             }
-            for k in 0..g.len() {
-                if !(g[k] > 0.0) {
+            for (k, &value) in g.iter().enumerate() {
+                if not_positive(value) {
                     watch.armed[k] = true;
                 }
             }

@@ -88,6 +88,9 @@ pub struct Conversion {
     pub value: Quantity,
 }
 
+// One value a param line: the size of the largest variant costs nothing,
+// and boxing it would only complicate every match over the syntax tree.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Clone, PartialEq)]
 pub enum ParamValue {
     Quantity(Quantity),

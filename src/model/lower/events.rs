@@ -311,7 +311,15 @@ impl Lowerer<'_> {
             Comparison::Greater | Comparison::GreaterEqual => Expr::bin(BinOp::Sub, l, r),
             Comparison::Less | Comparison::LessEqual => Expr::bin(BinOp::Sub, r, l),
         };
-        let text = self.sources.snippet(span).to_string();
+        // The text is for messages and emitted comments: one space between
+        // words, so the layout of the file (tabs, line breaks) is no part of
+        // the model.
+        let text = self
+            .sources
+            .snippet(span)
+            .split_whitespace()
+            .collect::<Vec<_>>()
+            .join(" ");
         Some(Trigger { rising, text })
     }
 }
