@@ -377,6 +377,7 @@ macro_rules! simulate_with {
                         out: &mut out,
                         row: &mut row,
                         volume: mixture.volume,
+                        sensitivities: None,
                     };
                     stretch = still_stretch(system, &workspace, t_start, seg_end, last_segment, &mut sink, &mut watch);
                 } else if seg_end > t_start {
