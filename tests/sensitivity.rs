@@ -382,3 +382,47 @@ add 20 uL of 1 mM S at 5 s
     assert_eq!(o.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&o.stderr).contains("--reduced"));
 }
+
+#[test]
+fn a_network_above_the_sparse_threshold_matches_its_closed_form() {
+    // 80 species in a chain X0 → X1 → … with one rate constant k, from
+    // X0 = 1: X0 = e^{−kt}, X1 = k·t·e^{−kt} (consecutive first-order
+    // steps of equal rate, common practice), so ∂X0/∂k = −t·e^{−kt} and
+    // ∂X1/∂k = t·e^{−kt}·(1 − k·t). Above 60 states the sparse LU solves
+    // the sensitivities, one column per parameter.
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("species X0 = 1 uM\nparam k = 0.5 /s\nparam unused = 2 /s\n");
+    for i in 1..80 {
+        text.push_str(&format!("species X{i} = 0\n"));
+    }
+    for i in 0..79 {
+        text.push_str(&format!("step s{i} X{i} -> X{} with k\n", i + 1));
+    }
+    let model = write(dir.path(), "chain.mech", &text);
+    let times: [f64; 4] = [0.5, 1.0, 3.0, 6.0];
+    let list = times.map(|t| t.to_string()).join(",");
+    let doc = sensitivity(&model, &list, "k,unused,X0(0)", &[]);
+    let (x0, x1, none) = (
+        series(&doc, "X0", "k"),
+        series(&doc, "X1", "k"),
+        series(&doc, "X1", "unused"),
+    );
+    let initial = series(&doc, "X1", "X0(0)");
+    for (i, &t) in times.iter().enumerate() {
+        let e = (-0.5 * t).exp();
+        assert!(
+            (x0[i] + t * e).abs() <= 1e-8 * t * e,
+            "t={t}: {} vs {}",
+            x0[i],
+            -t * e
+        );
+        let want = t * e * (1.0 - 0.5 * t);
+        assert!(
+            (x1[i] - want).abs() <= 1e-8 * (t * e),
+            "t={t}: {} vs {want}",
+            x1[i]
+        );
+        assert_eq!(none[i], 0.0);
+        assert!((initial[i] - 0.5 * t * e).abs() <= 1e-8 * 0.5 * t * e);
+    }
+}

@@ -324,6 +324,10 @@ impl Factors {
             self.solve(data.col_as_slice_mut(0), transpose);
             return;
         }
+        if !transpose {
+            self.solve_interleaved(data);
+            return;
+        }
         let mut gathered = self.batch_work.borrow_mut();
         gathered.clear();
         for c in 0..columns {
@@ -360,6 +364,104 @@ impl Factors {
             self.after_tail(y, transpose);
             for k in 0..n {
                 bc[self.perm[k]] = y[k];
+            }
+        }
+    }
+
+    /// The non-transposed solve of every column of `data` with the columns
+    /// interleaved (row r of column c at `r·columns + c`): each entry of L
+    /// and U is read once and updates all columns, and the dense trailing
+    /// block is a row-major block of right-hand sides for one blocked solve.
+    fn solve_interleaved(&self, data: &mut faer::Mat<f64>) {
+        use faer::linalg::lu::partial_pivoting::solve;
+        let (n, columns, split) = (self.n, data.ncols(), self.split);
+        let mut work = self.batch_work.borrow_mut();
+        work.clear();
+        work.resize(n * columns, 0.0);
+        for c in 0..columns {
+            let column = data.col_as_slice_mut(c);
+            for r in 0..n {
+                work[r * columns + c] = column[self.perm[r]];
+            }
+        }
+        // Forward with L's sparse columns (rows below j).
+        for j in 0..split {
+            let (head, below) = work.split_at_mut((j + 1) * columns);
+            let yj = &head[j * columns..];
+            if yj.iter().all(|v| *v == 0.0) {
+                continue;
+            }
+            for q in self.l_ptr[j]..self.l_ptr[j + 1] {
+                let (i, v) = (self.l_row[q], self.l_val[q]);
+                let yi = &mut below[(i - j - 1) * columns..(i - j) * columns];
+                for (a, b) in yi.iter_mut().zip(yj) {
+                    *a -= v * b;
+                }
+            }
+        }
+        let rows = n - split;
+        if rows > 0 {
+            let permutation =
+                faer::perm::PermRef::new_checked(&self.tail_perm, &self.tail_perm_inv, rows);
+            // faer's blocked solve is fastest on column-major right-hand sides.
+            let mut tail_columns = self.solve_work.borrow_mut();
+            tail_columns.clear();
+            tail_columns.resize(rows * columns, 0.0);
+            for r in 0..rows {
+                for c in 0..columns {
+                    tail_columns[c * rows + r] = work[(split + r) * columns + c];
+                }
+            }
+            let rhs = faer::MatMut::from_column_major_slice_mut(&mut tail_columns, rows, columns);
+            let mut scratch = self.tail_scratch.borrow_mut();
+            let needed = solve::solve_in_place_scratch::<usize, f64>(rows, columns, faer::Par::Seq);
+            if scratch.len() < needed.unaligned_bytes_required() {
+                *scratch = faer::dyn_stack::MemBuffer::new(needed);
+            }
+            let stack = faer::dyn_stack::MemStack::new(&mut scratch);
+            let lu = self.tail.as_ref();
+            solve::solve_in_place_with_conj::<usize, f64>(
+                lu,
+                lu,
+                permutation,
+                faer::Conj::No,
+                rhs,
+                faer::Par::Seq,
+                stack,
+            );
+            for r in 0..rows {
+                for c in 0..columns {
+                    work[(split + r) * columns + c] = tail_columns[c * rows + r];
+                }
+            }
+        }
+        // Backward with U: every entry of column k lies in a row above k.
+        for k in (0..n).rev() {
+            let (above, rest) = work.split_at_mut(k * columns);
+            let yk = &mut rest[..columns];
+            let end = if k < split {
+                let diag = self.u_ptr[k + 1] - 1;
+                let d = self.u_val[diag];
+                yk.iter_mut().for_each(|v| *v /= d);
+                diag
+            } else {
+                self.u_ptr[k + 1]
+            };
+            if yk.iter().all(|v| *v == 0.0) {
+                continue;
+            }
+            for q in self.u_ptr[k]..end {
+                let (r, v) = (self.u_row[q], self.u_val[q]);
+                let yr = &mut above[r * columns..(r + 1) * columns];
+                for (a, b) in yr.iter_mut().zip(yk.iter()) {
+                    *a -= v * b;
+                }
+            }
+        }
+        for c in 0..columns {
+            let column = data.col_as_slice_mut(c);
+            for r in 0..n {
+                column[self.perm[r]] = work[r * columns + c];
             }
         }
     }
@@ -760,5 +862,54 @@ mod tests {
         // ordering meets a zero pivot first, so the pivoting LU must take over.
         let entries = [(0, 0, 0.0), (0, 1, 2.0), (1, 0, 3.0), (1, 1, 0.0)];
         check(2, &entries, true);
+    }
+
+    #[test]
+    fn a_batched_right_hand_side_is_solved_in_every_column() {
+        // Forward sensitivities hand the solver one column per parameter
+        // (a batched vector against an unbatched matrix); each column must
+        // match nalgebra's dense LU, with and without a dense tail.
+        for (n, per_column) in [(60, 3), (300, 6)] {
+            let entries = random_network_matrix(n, per_column);
+            let (op, dense) = matrix(n, &entries);
+            let mut lu = StaticPivotLu::default();
+            LaLinearSolver::set_sparsity(&mut lu, &op);
+            LaLinearSolver::set_linearisation(&mut lu, &op);
+            assert!(!lu.using_fallback);
+            let columns = 3;
+            let b: Vec<f64> = (0..n * columns)
+                .map(|i| 1.0 + (i as f64 * 0.37).sin())
+                .collect();
+            for transpose in [false, true] {
+                let mut x = FaerVec::from_slice(&b, FaerContext::with_nbatch(columns));
+                if transpose {
+                    lu.solve_transpose_in_place(&mut x).expect("solves");
+                } else {
+                    lu.solve_in_place(&mut x).expect("solves");
+                }
+                let got = x.clone_as_vec();
+                let factors = if transpose {
+                    dense.transpose().lu()
+                } else {
+                    dense.clone().lu()
+                };
+                for c in 0..columns {
+                    let reference = factors
+                        .solve(&nalgebra::DVector::from_column_slice(
+                            &b[c * n..(c + 1) * n],
+                        ))
+                        .expect("nonsingular");
+                    let scale = reference.amax();
+                    for i in 0..n {
+                        assert!(
+                            (got[c * n + i] - reference[i]).abs() <= 1e-12 * scale,
+                            "n {n}, column {c}, x[{i}] = {} vs {} (transpose {transpose})",
+                            got[c * n + i],
+                            reference[i]
+                        );
+                    }
+                }
+            }
+        }
     }
 }
