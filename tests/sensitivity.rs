@@ -426,3 +426,28 @@ fn a_network_above_the_sparse_threshold_matches_its_closed_form() {
         assert!((initial[i] - 0.5 * t * e).abs() <= 1e-8 * 0.5 * t * e);
     }
 }
+
+#[test]
+fn plots_are_lines_for_a_few_pairs_and_a_heat_map_for_many() {
+    let dir = tempfile::tempdir().unwrap();
+    let model = common::root().join("models/protease_assay.mech");
+    let m = model.to_str().unwrap();
+    let lines = dir.path().join("lines.svg");
+    let heat = dir.path().join("heat.svg");
+    for (extra, path) in [
+        (vec!["--of", "P", "--to", "k_cat,k_on"], &lines),
+        (vec![], &heat),
+    ] {
+        let mut args = vec!["sensitivity", m, "--plot", path.to_str().unwrap()];
+        args.extend(extra);
+        let o = ratewright(&args);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    }
+    let lines = std::fs::read_to_string(lines).unwrap();
+    let heat = std::fs::read_to_string(heat).unwrap();
+    // Lines carry a legend of ∂P/∂k_cat; the heat map names its rows
+    // ∂ln y/∂ln p and has a colour bar of many cells.
+    assert!(lines.contains("∂P/∂k_cat"), "legend of the line plot");
+    assert!(heat.contains("∂ln S/∂ln k_off") && heat.contains("∂ln y/∂ln p"));
+    assert!(heat.matches("<rect").count() > lines.matches("<rect").count() + 100);
+}

@@ -38,6 +38,8 @@ pub struct HeatMap {
     pub values: Vec<Vec<f64>>,
     pub log_x: bool,
     pub log_y: bool,
+    /// Names of the rows when they are categories (then `y` is 0, 1, …).
+    pub y_names: Vec<String>,
 }
 
 /// Lines, each in a shaded band, with thin sample paths in the band's
@@ -668,11 +670,25 @@ fn edges(points: &[f64], log: bool) -> Vec<f64> {
 macro_rules! heat_chart {
     ($area:expr, $spec:expr, $xr:expr, $yr:expr, $xe:expr, $ye:expr, $lo:expr, $hi:expr) => {{
         let spec = $spec;
+        let names = &spec.y_names;
+        // Category rows are named at their whole-number positions.
+        let row_label = |v: &f64| -> String {
+            if names.is_empty() {
+                return tick(v);
+            }
+            let i = v.round();
+            if (v - i).abs() < 1e-6 && i >= 0.0 && (i as usize) < names.len() {
+                names[i as usize].clone()
+            } else {
+                String::new()
+            }
+        };
+        let name_width = names.iter().map(|n| n.chars().count()).max().unwrap_or(0) as u32;
         let mut chart = ChartBuilder::on($area)
             .caption(&spec.title, ("sans-serif", 26))
             .margin(18)
             .x_label_area_size(56)
-            .y_label_area_size(90)
+            .y_label_area_size(90.max(name_width * 9 + 20))
             .build_cartesian_2d($xr, $yr)
             .map_err(err)?;
         chart
@@ -681,7 +697,8 @@ macro_rules! heat_chart {
             .x_desc(spec.x_label.as_str())
             .y_desc(spec.y_label.as_str())
             .x_label_formatter(&tick)
-            .y_label_formatter(&tick)
+            .y_labels(if names.is_empty() { 10 } else { names.len() })
+            .y_label_formatter(&row_label)
             .label_style(("sans-serif", 16))
             .axis_desc_style(("sans-serif", 19))
             .draw()

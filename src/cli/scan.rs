@@ -383,6 +383,7 @@ pub fn run(args: &Args) -> ExitCode {
                     values,
                     log_x: axes[0].log,
                     log_y: axes[1].log,
+                    y_names: Vec::new(),
                 },
             )
         };

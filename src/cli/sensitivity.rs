@@ -69,6 +69,10 @@ pub struct Args {
     pub plot: Option<PathBuf>,
 }
 
+/// Above this many output × parameter pairs, `--plot` draws a heat map
+/// instead of lines.
+const MOST_LINES: usize = 8;
+
 fn names(list: &Option<String>) -> Option<Vec<String>> {
     list.as_ref().map(|l| {
         l.split(',')
@@ -220,38 +224,75 @@ pub fn run(args: &Args) -> ExitCode {
     }
     if args.plot.is_some() {
         let prefix = if args.normalized { "∂ln " } else { "∂" };
-        let spec = super::plot::LinePlot {
-            title: model
-                .description
-                .clone()
-                .or(model.name.clone())
-                .unwrap_or_else(|| "sensitivities".into()),
-            x_label: format!("time ({})", model.units.time.symbol()),
-            y_label: if args.normalized {
-                "normalised sensitivity ∂ln y/∂ln p".into()
-            } else {
-                "sensitivity ∂y/∂p (model units)".into()
-            },
-            x: result.times.clone(),
-            series: chosen
-                .iter()
-                .flat_map(|&o| (0..result.parameters.len()).map(move |k| (o, k)))
-                .map(|(o, k)| {
-                    (
-                        format!(
-                            "{prefix}{}/{prefix}{}",
-                            result.outputs[o], result.parameters[k]
-                        ),
-                        (0..result.times.len())
-                            .map(|t| value(o, k, t).unwrap_or(0.0))
-                            .collect(),
-                    )
-                })
-                .collect(),
-            log_x: false,
-            log_y: false,
+        let title = model
+            .description
+            .clone()
+            .or(model.name.clone())
+            .unwrap_or_else(|| "sensitivities".into());
+        let pairs: Vec<(usize, usize)> = chosen
+            .iter()
+            .flat_map(|&o| (0..result.parameters.len()).map(move |k| (o, k)))
+            .collect();
+        let name = |&(o, k): &(usize, usize)| {
+            format!(
+                "{prefix}{}/{prefix}{}",
+                result.outputs[o], result.parameters[k]
+            )
         };
-        if let Err(e) = super::plot::draw_lines(&mut staged, &sinks[sink_index], &spec) {
+        let series = |&(o, k): &(usize, usize), missing: f64| -> Vec<f64> {
+            (0..result.times.len())
+                .map(|t| value(o, k, t).unwrap_or(missing))
+                .collect()
+        };
+        let x_label = format!("time ({})", model.units.time.symbol());
+        let drawn = if pairs.len() > MOST_LINES {
+            // Many pairs: a heat map of the normalised sensitivities (one row
+            // per output and parameter), comparable across units.
+            let normalised =
+                |o: usize, k: usize, t: usize| result.normalized(o, k, t).unwrap_or(f64::NAN);
+            super::plot::draw_heat_map(
+                &mut staged,
+                &sinks[sink_index],
+                &super::plot::HeatMap {
+                    title,
+                    x_label,
+                    y_label: "output / parameter".into(),
+                    value_label: "∂ln y/∂ln p".into(),
+                    x: result.times.clone(),
+                    y: (0..pairs.len()).map(|r| r as f64).collect(),
+                    values: (0..result.times.len())
+                        .map(|t| pairs.iter().map(|&(o, k)| normalised(o, k, t)).collect())
+                        .collect(),
+                    log_x: false,
+                    log_y: false,
+                    y_names: pairs
+                        .iter()
+                        .map(|&(o, k)| {
+                            format!("∂ln {}/∂ln {}", result.outputs[o], result.parameters[k])
+                        })
+                        .collect(),
+                },
+            )
+        } else {
+            super::plot::draw_lines(
+                &mut staged,
+                &sinks[sink_index],
+                &super::plot::LinePlot {
+                    title,
+                    x_label,
+                    y_label: if args.normalized {
+                        "normalised sensitivity ∂ln y/∂ln p".into()
+                    } else {
+                        "sensitivity ∂y/∂p (model units)".into()
+                    },
+                    x: result.times.clone(),
+                    series: pairs.iter().map(|p| (name(p), series(p, 0.0))).collect(),
+                    log_x: false,
+                    log_y: false,
+                },
+            )
+        };
+        if let Err(e) = drawn {
             return common::run_error(format!("[E0803] {e}"));
         }
     }
