@@ -831,3 +831,48 @@ fn per_series_values_in_a_rate_table() {
 fn fit_one_with(dir: &Path, kind: &str, csv: &str, free: &str) -> Value {
     fit_json(dir, &inhibition_mechanism(kind), csv, &["--free", free])
 }
+
+#[test]
+fn the_double_reciprocal_view_is_drawn_for_rate_tables_only() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = common::root();
+    let figure = dir.path().join("lb.svg");
+    let o = ratewright(&[
+        "fit",
+        root.join("models/lipase_competitive.mech")
+            .to_str()
+            .unwrap(),
+        "--data",
+        root.join("models/data/lipase_inhibition.csv")
+            .to_str()
+            .unwrap(),
+        "--free",
+        "kcat=10,Km_S=10,Ki_I=1",
+        "--plot",
+        figure.to_str().unwrap(),
+        "--reciprocal",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let svg = std::fs::read_to_string(&figure).unwrap();
+    assert!(
+        svg.contains("1/S (1/(uM))"),
+        "the axis names the reciprocal"
+    );
+    let o = ratewright(&[
+        "fit",
+        root.join("models/plate_reader.mech").to_str().unwrap(),
+        "--data",
+        root.join("models/data/plate_reader.csv").to_str().unwrap(),
+        "--free",
+        "k_cat=2",
+        "--plot",
+        dir.path().join("pc.svg").to_str().unwrap(),
+        "--reciprocal",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("rate table"));
+    assert!(
+        !dir.path().join("pc.svg").exists(),
+        "nothing written on refusal"
+    );
+}

@@ -48,6 +48,9 @@ pub struct Args {
     /// A figure of the data, the fitted curves and the residuals (.svg or .png; one model).
     #[arg(long, value_name = "FIGURE")]
     pub plot: Option<PathBuf>,
+    /// With --plot and a rate table, draw the double-reciprocal view (1/v against 1/[S]) instead, for reading inhibition patterns.
+    #[arg(long, requires = "plot")]
+    pub reciprocal: bool,
     /// Write the model file with the fitted values in place (one model).
     #[arg(short = 'o', long, value_name = "FITTED.mech")]
     pub output: Option<PathBuf>,
@@ -269,6 +272,19 @@ pub fn run(args: &Args) -> ExitCode {
                         );
                     };
                     let title = model.name.clone().unwrap_or_else(|| label.clone());
+                    let reciprocal;
+                    let figure = if args.reciprocal {
+                        if !figure.of_rates {
+                            return usage_error_as(
+                                json,
+                                "--reciprocal: the double-reciprocal view is of a rate table; these data are progress curves",
+                            );
+                        }
+                        reciprocal = figure.double_reciprocal();
+                        &reciprocal
+                    } else {
+                        figure
+                    };
                     if let Err(e) = super::plot::draw_fit(&mut staged, sink, &title, figure) {
                         return super::common::run_error(e);
                     }

@@ -29,6 +29,66 @@ pub struct Figure {
     pub y_label: String,
     pub log_x: bool,
     pub groups: Vec<Group>,
+    /// Whether it shows a rate table (rate against a concentration).
+    pub of_rates: bool,
+}
+
+impl Figure {
+    /// The double-reciprocal view of a rate table's figure (1/v against
+    /// 1/[S], Lineweaver & Burk 1934), for reading inhibition patterns:
+    /// lines meeting on the 1/v axis (competitive), parallel
+    /// (uncompetitive), or meeting left of it (mixed). Points with a zero
+    /// or negative rate or concentration have no reciprocal and are left
+    /// out; residuals are 1/observed − 1/fitted.
+    pub fn double_reciprocal(&self) -> Figure {
+        let positive = |&(x, y): &(f64, f64)| x > 0.0 && y > 0.0;
+        let groups = self
+            .groups
+            .iter()
+            .map(|g| Group {
+                label: g.label.clone(),
+                data: g
+                    .data
+                    .iter()
+                    .filter(|p| positive(p))
+                    .map(|&(x, y)| (1.0 / x, 1.0 / y))
+                    .collect(),
+                curve: g
+                    .curve
+                    .iter()
+                    .filter(|p| positive(p))
+                    .map(|&(x, y)| (1.0 / x, 1.0 / y))
+                    .rev()
+                    .collect(),
+                residuals: g
+                    .data
+                    .iter()
+                    .zip(&g.residuals)
+                    .filter(|((x, observed), (_, r))| {
+                        *x > 0.0 && *observed > 0.0 && observed - r > 0.0
+                    })
+                    .map(|(&(x, observed), &(_, r))| {
+                        (1.0 / x, 1.0 / observed - 1.0 / (observed - r))
+                    })
+                    .collect(),
+            })
+            .collect();
+        Figure {
+            x_label: reciprocal_label(&self.x_label),
+            y_label: reciprocal_label(&self.y_label),
+            log_x: false,
+            groups,
+            of_rates: self.of_rates,
+        }
+    }
+}
+
+/// `S (uM)` → `1/S (1/uM)`.
+fn reciprocal_label(label: &str) -> String {
+    match label.strip_suffix(')').and_then(|l| l.rsplit_once(" (")) {
+        Some((name, unit)) => format!("1/{name} (1/({unit}))"),
+        None => format!("1/{label}"),
+    }
 }
 
 fn grid(lo: f64, hi: f64, log: bool, n: usize) -> Vec<f64> {
@@ -160,6 +220,7 @@ pub fn of_rates(problem: &RateProblem, values: &[f64], response: &str) -> Option
         },
         log_x,
         groups: figure_groups,
+        of_rates: true,
     })
 }
 
@@ -213,5 +274,45 @@ pub fn of_curves(problem: &CurveProblem, values: &[f64]) -> Option<Figure> {
         y_label: "measured".into(),
         log_x: false,
         groups,
+        of_rates: false,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_double_reciprocal_view_of_michaelis_menten_is_a_straight_line() {
+        // v = V·S/(K + S) gives 1/v = 1/V + (K/V)·(1/S) (Lineweaver & Burk
+        // 1934): every transformed point on that line; residuals in the
+        // reciprocal space; points at S = 0 left out.
+        let (v_max, k_m) = (12.0, 3.0);
+        let rate = |s: f64| v_max * s / (k_m + s);
+        let xs = [0.0, 0.5, 1.0, 2.0, 5.0, 10.0, 40.0];
+        let figure = Figure {
+            x_label: "S (uM)".into(),
+            y_label: "v (uM/s)".into(),
+            log_x: false,
+            groups: vec![Group {
+                label: "I = 0".into(),
+                data: xs.iter().map(|&s| (s, rate(s) * 1.01)).collect(),
+                curve: xs.iter().map(|&s| (s, rate(s))).collect(),
+                residuals: xs.iter().map(|&s| (s, 0.01 * rate(s))).collect(),
+            }],
+            of_rates: true,
+        };
+        let view = figure.double_reciprocal();
+        assert_eq!(view.x_label, "1/S (1/(uM))");
+        let g = &view.groups[0];
+        assert_eq!(g.curve.len(), xs.len() - 1, "S = 0 has no reciprocal");
+        for &(x, y) in &g.curve {
+            let line = 1.0 / v_max + k_m / v_max * x;
+            assert!((y - line).abs() <= 1e-12 * line, "({x}, {y}) vs {line}");
+        }
+        for (&(x, r), &(_, d)) in g.residuals.iter().zip(&g.data) {
+            let fitted = 1.0 / v_max + k_m / v_max * x;
+            assert!((r - (d - fitted)).abs() <= 1e-12 * fitted);
+        }
+    }
 }
