@@ -307,7 +307,7 @@ pub fn run(args: &Args) -> ExitCode {
         )
     } else if args.output.is_some() {
         // The table went to the file; people get the ranking.
-        human_ranking(&result)
+        human_ranking(&result, &chosen)
     } else {
         human(&result, &chosen, args.normalized, &value)
     };
@@ -376,15 +376,15 @@ fn document(
         "times": r.times,
         "sensitivities": sens,
         "normalized": normalized,
-        "ranking": r.ranking().iter().map(|(p, v)| json!({ "parameter": p, "influence": v })).collect::<Vec<_>>(),
+        "ranking": r.ranking(chosen).iter().map(|(p, v)| json!({ "parameter": p, "influence": v })).collect::<Vec<_>>(),
     })
 }
 
-fn human_ranking(r: &Sensitivities) -> String {
+fn human_ranking(r: &Sensitivities, chosen: &[usize]) -> String {
     let mut out = String::from(
-        "parameters by overall influence (root mean square of ∂ln y/∂ln p over outputs and times):\n",
+        "parameters by overall influence (root mean square of ∂ln y/∂ln p over the outputs shown and times):\n",
     );
-    for (p, v) in r.ranking() {
+    for (p, v) in r.ranking(chosen) {
         out.push_str(&format!("  {p:<16} {v:.4}\n"));
     }
     out
@@ -429,6 +429,6 @@ fn human(
         out.push('\n');
     }
     out.push('\n');
-    out.push_str(&human_ranking(r));
+    out.push_str(&human_ranking(r, chosen));
     out
 }

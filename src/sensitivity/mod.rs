@@ -120,14 +120,14 @@ impl Sensitivities {
     }
 
     /// Each parameter's overall influence: the root mean square of its
-    /// defined normalised sensitivities over outputs and times, largest
-    /// first.
-    pub fn ranking(&self) -> Vec<(String, f64)> {
+    /// defined normalised sensitivities over the given outputs and every
+    /// time, largest first.
+    pub fn ranking(&self, outputs: &[usize]) -> Vec<(String, f64)> {
         let mut out: Vec<(String, f64)> = (0..self.parameters.len())
             .map(|k| {
                 let mut sum = 0.0;
                 let mut n = 0usize;
-                for o in 0..self.outputs.len() {
+                for &o in outputs {
                     for t in 0..self.times.len() {
                         if let Some(v) = self.normalized(o, k, t) {
                             sum += v * v;
