@@ -11,6 +11,7 @@ use crate::fit::{self, Fit, FreeSpec, Request, rates::Weight};
 use crate::model::Model;
 use crate::model::units::parse_quantity;
 use serde_json::{Value, json};
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -221,12 +222,27 @@ pub fn run(args: &Args) -> ExitCode {
         }
     };
     let mut fits: Vec<(String, Fit)> = Vec::new();
+    // On a terminal, a bar over every start of every model of a multi-start.
+    let bar = (args.starts > 1 && std::io::stderr().is_terminal()).then(|| {
+        // Cleared when dropped, also on an early error return.
+        let b = indicatif::ProgressBar::new((args.starts * args.files.len()) as u64)
+            .with_finish(indicatif::ProgressFinish::AndClear);
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} starts, {eta} left")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b
+    });
     for file in &args.files {
         let (model, model_sources) = match load_model(file, json) {
             Ok(m) => m,
             Err(code) => return code,
         };
         let mut free = Vec::new();
+        let bar = bar.clone();
+        let progress = fit::Progress(bar.map(|b| {
+            std::sync::Arc::new(move || b.inc(1)) as std::sync::Arc<dyn Fn() + Send + Sync>
+        }));
         for text in &args.free {
             match parse_free(text, &model) {
                 Ok(f) => free.push(f),
@@ -241,6 +257,7 @@ pub fn run(args: &Args) -> ExitCode {
             log_scale: args.scale == Scale::Log,
             skip_missing: args.files.len() > 1,
             starts: args.starts,
+            on_start_done: progress.clone(),
         };
         let label = file.display().to_string();
         match fit::fit(&model, &label, &tables, &request) {
@@ -300,6 +317,9 @@ pub fn run(args: &Args) -> ExitCode {
                 return report_failure(&diags, sources, json, EXIT_MODEL);
             }
         }
+    }
+    if let Some(b) = &bar {
+        b.finish_and_clear();
     }
     if let Err(e) = staged.commit() {
         return super::common::run_error(e);

@@ -63,6 +63,30 @@ pub struct Request {
     pub skip_missing: bool,
     /// Starting points of a multi-start (1: the given start only).
     pub starts: usize,
+    /// Called once as each start's minimization ends (a progress bar).
+    pub on_start_done: Progress,
+}
+
+/// A callback for progress reports (a no-op by default).
+#[derive(Clone, Default)]
+pub struct Progress(pub Option<std::sync::Arc<dyn Fn() + Send + Sync>>);
+
+impl Progress {
+    pub fn tick(&self) {
+        if let Some(f) = &self.0 {
+            f();
+        }
+    }
+}
+
+impl std::fmt::Debug for Progress {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(if self.0.is_some() {
+            "Progress(..)"
+        } else {
+            "Progress(none)"
+        })
+    }
 }
 
 #[derive(Clone, Debug)]
@@ -698,7 +722,13 @@ fn estimate(
 ) -> Result<Fit, Vec<Diagnostic>> {
     let n = problem.residual_count();
     let p = start.len();
-    let (outcome, spread) = multi_start(problem, start, options, request.starts);
+    let (outcome, spread) = multi_start(
+        problem,
+        start,
+        options,
+        request.starts,
+        &request.on_start_done,
+    );
     if let lm::Stop::StartFailed(e) = &outcome.stop {
         return Err(vec![
             Diagnostic::error(Code::FitFailed, format!("fitting {label}: {e}"))

@@ -18,6 +18,7 @@ pub(super) fn multi_start(
     start: &[f64],
     options: &Options,
     starts: usize,
+    progress: &super::Progress,
 ) -> (lm::Outcome, Option<String>) {
     use rayon::prelude::*;
     if starts <= 1 {
@@ -80,7 +81,11 @@ pub(super) fn multi_start(
     }
     let outcomes: Vec<lm::Outcome> = points
         .par_iter()
-        .map(|x0| minimize(problem, x0, options))
+        .map(|x0| {
+            let out = minimize(problem, x0, options);
+            progress.tick();
+            out
+        })
         .collect();
     let finite: Vec<&lm::Outcome> = outcomes.iter().filter(|o| o.ssr.is_finite()).collect();
     let Some(best) = finite
