@@ -247,24 +247,14 @@ where
     let (x0, x1) =
         range_of(finite.iter().map(|p| p.0), false).ok_or("nothing to plot on the x axis")?;
     let (y0, y1) = range_of(finite.iter().map(|p| p.1), false).ok_or("nothing to plot")?;
-    let mut chart = ChartBuilder::on(&root)
-        .caption(&spec.title, ("sans-serif", 26))
-        .margin(18)
-        .x_label_area_size(56)
-        .y_label_area_size(90)
-        .build_cartesian_2d(x0..x1, y0..y1)
-        .map_err(err)?;
-    chart
-        .configure_mesh()
-        .x_desc(spec.x_label.as_str())
-        .y_desc(spec.y_label.as_str())
-        .x_label_formatter(&tick)
-        .y_label_formatter(&tick)
-        .label_style(("sans-serif", 16))
-        .axis_desc_style(("sans-serif", 19))
-        .light_line_style(RGBColor(235, 235, 235))
-        .draw()
-        .map_err(err)?;
+    let mut chart = linear_chart(
+        &root,
+        &spec.title,
+        &spec.x_label,
+        &spec.y_label,
+        x0..x1,
+        y0..y1,
+    )?;
     let color = PALETTE[0];
     // Consecutive points of one stability form a stretch; stretches share
     // their end points so the curve has no gaps.
@@ -335,24 +325,14 @@ where
         false,
     )
     .ok_or("nothing to plot: every value is missing")?;
-    let mut chart = ChartBuilder::on(&root)
-        .caption(&spec.title, ("sans-serif", 26))
-        .margin(18)
-        .x_label_area_size(56)
-        .y_label_area_size(90)
-        .build_cartesian_2d(x0..x1, y0..y1)
-        .map_err(err)?;
-    chart
-        .configure_mesh()
-        .x_desc(spec.x_label.as_str())
-        .y_desc(spec.y_label.as_str())
-        .x_label_formatter(&tick)
-        .y_label_formatter(&tick)
-        .label_style(("sans-serif", 16))
-        .axis_desc_style(("sans-serif", 19))
-        .light_line_style(RGBColor(235, 235, 235))
-        .draw()
-        .map_err(err)?;
+    let mut chart = linear_chart(
+        &root,
+        &spec.title,
+        &spec.x_label,
+        &spec.y_label,
+        x0..x1,
+        y0..y1,
+    )?;
     let finite = |x: &f64, y: &f64| x.is_finite() && y.is_finite();
     for (
         k,
@@ -442,24 +422,14 @@ where
         .filter(|v| v.is_finite())
         .fold(0.0, f64::max);
     let top = if top > 0.0 { top * 1.06 } else { 1.0 };
-    let mut chart = ChartBuilder::on(&root)
-        .caption(&spec.title, ("sans-serif", 26))
-        .margin(18)
-        .x_label_area_size(56)
-        .y_label_area_size(90)
-        .build_cartesian_2d(x0..x1, 0.0..top)
-        .map_err(err)?;
-    chart
-        .configure_mesh()
-        .x_desc(spec.x_label.as_str())
-        .y_desc(spec.y_label.as_str())
-        .x_label_formatter(&tick)
-        .y_label_formatter(&tick)
-        .label_style(("sans-serif", 16))
-        .axis_desc_style(("sans-serif", 19))
-        .light_line_style(RGBColor(235, 235, 235))
-        .draw()
-        .map_err(err)?;
+    let mut chart = linear_chart(
+        &root,
+        &spec.title,
+        &spec.x_label,
+        &spec.y_label,
+        x0..x1,
+        0.0..top,
+    )?;
     let n = spec.series.len().max(1) as f64;
     for (k, (name, heights)) in spec.series.iter().enumerate() {
         let color = PALETTE[k % PALETTE.len()];
@@ -522,6 +492,50 @@ fn err<E: std::fmt::Debug>(e: E) -> String {
 }
 
 /// Tick labels without float noise.
+/// A chart on linear axes with the figures' caption, margins and labelled
+/// mesh (time courses on log axes go through `line_chart!`).
+fn linear_chart<'a, DB: DrawingBackend>(
+    root: &'a DrawingArea<DB, Shift>,
+    title: &str,
+    x_label: &str,
+    y_label: &str,
+    x: std::ops::Range<f64>,
+    y: std::ops::Range<f64>,
+) -> Result<
+    ChartContext<
+        'a,
+        DB,
+        plotters::coord::cartesian::Cartesian2d<
+            plotters::coord::types::RangedCoordf64,
+            plotters::coord::types::RangedCoordf64,
+        >,
+    >,
+    String,
+>
+where
+    DB::ErrorType: 'static,
+{
+    let mut chart = ChartBuilder::on(root)
+        .caption(title, ("sans-serif", 26))
+        .margin(18)
+        .x_label_area_size(56)
+        .y_label_area_size(90)
+        .build_cartesian_2d(x, y)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .x_desc(x_label)
+        .y_desc(y_label)
+        .x_label_formatter(&tick)
+        .y_label_formatter(&tick)
+        .label_style(("sans-serif", 16))
+        .axis_desc_style(("sans-serif", 19))
+        .light_line_style(RGBColor(235, 235, 235))
+        .draw()
+        .map_err(err)?;
+    Ok(chart)
+}
+
 fn tick(v: &f64) -> String {
     if *v == 0.0 {
         return "0".into();
