@@ -46,6 +46,11 @@ pub struct Args {
     /// hypercube over the bounds), in parallel; the best is kept.
     #[arg(long, default_value_t = 1, value_name = "N")]
     pub starts: usize,
+    /// The minimizer's step: plain Levenberg–Marquardt, or with geodesic
+    /// acceleration (follows a curved, flat valley the plain step can stall
+    /// in; one more model evaluation per step).
+    #[arg(long, value_enum, default_value_t = StepKind::Plain)]
+    pub step: StepKind,
     /// A figure of the data, the fitted curves and the residuals (.svg or .png; one model).
     #[arg(long, value_name = "FIGURE")]
     pub plot: Option<PathBuf>,
@@ -55,6 +60,12 @@ pub struct Args {
     /// Write the model file with the fitted values in place (one model).
     #[arg(short = 'o', long, value_name = "FITTED.mech")]
     pub output: Option<PathBuf>,
+}
+
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum StepKind {
+    Plain,
+    Geodesic,
 }
 
 #[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
@@ -258,6 +269,10 @@ pub fn run(args: &Args) -> ExitCode {
             skip_missing: args.files.len() > 1,
             starts: args.starts,
             on_start_done: progress.clone(),
+            step: match args.step {
+                StepKind::Plain => fit::lm::Step::Plain,
+                StepKind::Geodesic => fit::lm::Step::Geodesic,
+            },
         };
         let label = file.display().to_string();
         match fit::fit(&model, &label, &tables, &request) {

@@ -454,4 +454,8 @@ impl Residuals for CurveProblem<'_> {
         }
         Ok(())
     }
+    /// The geodesic step's probe needs no sensitivities: a plain run.
+    fn residuals(&self, x: &[f64], r: &mut [f64]) -> Result<(), String> {
+        self.weighted_residuals(x, r)
+    }
 }

@@ -11,6 +11,20 @@
 //! Madsen, Nielsen & Tingleff 2004, "Methods for non-linear least squares
 //! problems"). Bounds are kept by projecting each trial point onto the box.
 //!
+//! With [`Step::Geodesic`] each step adds the second-order correction of
+//! Transtrum & Sethna (2012, "Improvements to the Levenberg–Marquardt
+//! algorithm for nonlinear least-squares minimization", arXiv:1201.5885):
+//! the acceleration `a` solves the same damped problem with the directional
+//! second derivative `r_vv` (a finite difference along the velocity `v`,
+//! h = 0.1) in place of `r`, the step is `v + a/2`, and it is taken only if
+//! `2‖a‖/‖v‖ ≤ 0.75` (otherwise it counts as a failed step and the
+//! damping rises). The damping keeps Nielsen's update: on the NIST
+//! problems it took fewer iterations than their delayed gratification
+//! (docs/fitting.md). The linear model's predicted reduction is the
+//! velocity's. It costs one more residual evaluation per step and pays
+//! where the plain step is drawn along a flat direction (Eckerle4 from
+//! NIST's first start on the log scale).
+//!
 //! Invariant: the returned point is the best evaluated point, inside the
 //! bounds, and its residuals are finite.
 
@@ -22,6 +36,22 @@ pub trait Residuals {
     /// Residuals at `x` and their Jacobian (`m × p`, row-major); an error
     /// when the model cannot be evaluated there.
     fn evaluate(&self, x: &[f64], r: &mut [f64], jacobian: &mut [f64]) -> Result<(), String>;
+    /// Residuals alone (the geodesic step's probe); by default through
+    /// [`Residuals::evaluate`].
+    fn residuals(&self, x: &[f64], r: &mut [f64]) -> Result<(), String> {
+        let mut jacobian = vec![0.0; r.len() * x.len()];
+        self.evaluate(x, r, &mut jacobian)
+    }
+}
+
+/// How each iteration steps.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum Step {
+    /// The Levenberg–Marquardt step with Nielsen's damping update.
+    #[default]
+    Plain,
+    /// The step with geodesic acceleration (Transtrum & Sethna 2012).
+    Geodesic,
 }
 
 #[derive(Clone, Debug)]
@@ -34,7 +64,13 @@ pub struct Options {
     pub step_tolerance: f64,
     pub lower: Vec<f64>,
     pub upper: Vec<f64>,
+    pub step: Step,
 }
+
+/// Transtrum & Sethna's (2012) recommended probe length along the velocity
+/// and bound on the acceleration's share of the step.
+const GEODESIC_PROBE: f64 = 0.1;
+const GEODESIC_RATIO: f64 = 0.75;
 
 impl Options {
     pub fn unbounded(p: usize) -> Options {
@@ -44,6 +80,7 @@ impl Options {
             step_tolerance: 1e-13,
             lower: vec![f64::NEG_INFINITY; p],
             upper: vec![f64::INFINITY; p],
+            step: Step::Plain,
         }
     }
 }
@@ -177,14 +214,28 @@ pub fn minimize(problem: &dyn Residuals, start: &[f64], options: &Options) -> Ou
         for i in 0..m {
             rhs[i] = -r[i];
         }
-        let Ok(h) = stacked.svd(true, true).solve(&rhs, 0.0) else {
+        let svd = stacked.svd(true, true);
+        let Ok(velocity) = svd.solve(&rhs, 0.0) else {
             stop = Stop::Singular;
             break;
         };
-        if h.iter().any(|v| !v.is_finite()) {
+        if velocity.iter().any(|v| !v.is_finite()) {
             stop = Stop::Singular;
             break;
         }
+        let h = match options.step {
+            Step::Plain => velocity.clone(),
+            Step::Geodesic => match acceleration(problem, &x, &r, &j_mat, &velocity, &svd, options)
+            {
+                Acceleration::Within(a) => &velocity + a * 0.5,
+                Acceleration::TooLarge => {
+                    mu *= nu;
+                    nu *= 2.0;
+                    continue;
+                }
+                Acceleration::Unavailable => velocity.clone(),
+            },
+        };
         let mut trial: Vec<f64> = x.iter().zip(h.iter()).map(|(a, b)| a + b).collect();
         clamp(&mut trial);
         let step: Vec<f64> = trial.iter().zip(&x).map(|(a, b)| a - b).collect();
@@ -194,8 +245,13 @@ pub fn minimize(problem: &dyn Residuals, start: &[f64], options: &Options) -> Ou
             stop = Stop::StepConverged;
             break;
         }
-        let predicted_r =
-            &j_mat * DVector::from_column_slice(&step) + DVector::from_column_slice(&r);
+        // The linear model predicts the velocity's reduction; the
+        // acceleration is a correction it cannot see.
+        let modelled = match options.step {
+            Step::Plain => DVector::from_column_slice(&step),
+            Step::Geodesic => velocity,
+        };
+        let predicted_r = &j_mat * modelled + DVector::from_column_slice(&r);
         let predicted = ssr - predicted_r.norm_squared();
         evaluations += 1;
         let ok = problem.evaluate(&trial, &mut r_new, &mut jac_new).is_ok()
@@ -252,6 +308,65 @@ pub fn minimize(problem: &dyn Residuals, start: &[f64], options: &Options) -> Ou
     }
 }
 
+enum Acceleration {
+    /// Within the bound on its share of the step.
+    Within(DVector<f64>),
+    /// Too large a share: the step is refused and the damping raised.
+    TooLarge,
+    /// The probe point is outside the bounds or cannot be evaluated: the
+    /// plain step is taken.
+    Unavailable,
+}
+
+/// The geodesic acceleration along `velocity`: the damped least-squares
+/// solution (same factorization) for the directional second derivative
+/// `r_vv ≈ (2/h) ((r(x + h v) − r(x))/h − J v)`.
+fn acceleration(
+    problem: &dyn Residuals,
+    x: &[f64],
+    r: &[f64],
+    j_mat: &DMatrix<f64>,
+    velocity: &DVector<f64>,
+    svd: &nalgebra::SVD<f64, nalgebra::Dyn, nalgebra::Dyn>,
+    options: &Options,
+) -> Acceleration {
+    let h = GEODESIC_PROBE;
+    let probe: Vec<f64> = x
+        .iter()
+        .zip(velocity.iter())
+        .map(|(a, v)| a + h * v)
+        .collect();
+    let inside = probe
+        .iter()
+        .enumerate()
+        .all(|(j, v)| *v >= options.lower[j] && *v <= options.upper[j]);
+    let mut r_probe = vec![0.0; r.len()];
+    if !inside
+        || problem.residuals(&probe, &mut r_probe).is_err()
+        || r_probe.iter().any(|v| !v.is_finite())
+    {
+        return Acceleration::Unavailable;
+    }
+    let jv = j_mat * velocity;
+    let m = r.len();
+    let mut rhs = DVector::zeros(m + x.len());
+    for i in 0..m {
+        let r_vv = (2.0 / h) * ((r_probe[i] - r[i]) / h - jv[i]);
+        rhs[i] = -r_vv;
+    }
+    let Ok(a) = svd.solve(&rhs, 0.0) else {
+        return Acceleration::Unavailable;
+    };
+    if a.iter().any(|v| !v.is_finite()) {
+        return Acceleration::Unavailable;
+    }
+    if 2.0 * a.norm() <= GEODESIC_RATIO * velocity.norm() {
+        Acceleration::Within(a)
+    } else {
+        Acceleration::TooLarge
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -274,6 +389,19 @@ mod tests {
     #[test]
     fn rosenbrock_reaches_its_minimum() {
         let out = minimize(&Rosenbrock, &[-1.2, 1.0], &Options::unbounded(2));
+        assert!(out.stop.converged(), "{:?}", out.stop);
+        assert!(
+            (out.x[0] - 1.0).abs() < 1e-8 && (out.x[1] - 1.0).abs() < 1e-8,
+            "{:?}",
+            out.x
+        );
+    }
+
+    #[test]
+    fn geodesic_steps_reach_rosenbrocks_minimum() {
+        let mut o = Options::unbounded(2);
+        o.step = Step::Geodesic;
+        let out = minimize(&Rosenbrock, &[-1.2, 1.0], &o);
         assert!(out.stop.converged(), "{:?}", out.stop);
         assert!(
             (out.x[0] - 1.0).abs() < 1e-8 && (out.x[1] - 1.0).abs() < 1e-8,

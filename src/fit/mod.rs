@@ -65,6 +65,8 @@ pub struct Request {
     pub starts: usize,
     /// Called once as each start's minimization ends (a progress bar).
     pub on_start_done: Progress,
+    /// Plain Levenberg–Marquardt steps or geodesic-accelerated ones.
+    pub step: lm::Step,
 }
 
 /// A callback for progress reports (a no-op by default).
@@ -301,6 +303,7 @@ fn free_params(model: &Model, request: &Request) -> Result<FreeSetup, Vec<Diagno
     let mut free = Vec::new();
     let mut start = Vec::new();
     let mut options = Options::unbounded(specs.len());
+    options.step = request.step;
     let mut errors = Vec::new();
     for (k, spec) in specs.into_iter().enumerate() {
         let (base, per_series) = base_name(&spec.name);

@@ -245,4 +245,9 @@ impl lm::Residuals for Fixed<'_> {
         }
         Ok(())
     }
+    fn residuals(&self, x: &[f64], r: &mut [f64]) -> Result<(), String> {
+        let mut full = x.to_vec();
+        full.insert(self.index, self.value);
+        self.problem.residuals(&full, r)
+    }
 }
