@@ -1881,3 +1881,54 @@ fn names_equal_under_normalisation_are_a_warning() {
             .success()
     );
 }
+
+/// docs/reliability.md finding 3: a param that is a product of 2 million
+/// factors (and a sum, a power tower, a chain of differences of as many
+/// operators) is refused with a located E0106 by every command that reads
+/// it, instead of overflowing the stack in a later pass; just under the
+/// bound, the product is checked (and its tree, as deep as the chain, is
+/// walked and dropped) without a crash.
+#[test]
+fn statements_with_millions_of_operators_are_refused_not_a_crash() {
+    let dir = tempfile::tempdir().expect("a temp dir");
+    let model = |ops: usize, op: &str| {
+        let chain = vec!["1"; ops + 1].join(op);
+        format!(
+            "param k0 = 1 /s\nparam k = k0 * ({chain})\nspecies A = 1 uM\nstep decay A -> 0 with k\n"
+        )
+    };
+    for (name, op) in [
+        ("product", " * "),
+        ("sum", " + "),
+        ("tower", "^"),
+        ("differences", "-"),
+    ] {
+        let path = write_temp(
+            dir.path(),
+            &format!("{name}.mech"),
+            model(2_000_000, op).as_bytes(),
+        );
+        let p = path.to_str().expect("UTF-8");
+        for args in [
+            vec!["check", p],
+            vec!["run", "--until", "1", p],
+            vec!["fmt", "--check", p],
+        ] {
+            let out = common::ratewright(&args);
+            let stderr = String::from_utf8_lossy(&out.stderr);
+            assert_eq!(out.status.code(), Some(1), "{name} {args:?}: {stderr}");
+            assert!(
+                stderr.contains("E0106") && stderr.contains(":2:1"),
+                "{name} {args:?}: {stderr}"
+            );
+        }
+    }
+    // 1 (k0 *) + 999,998 operators: within the bound.
+    let path = write_temp(dir.path(), "under.mech", model(999_998, " * ").as_bytes());
+    let out = common::ratewright(&["check", path.to_str().unwrap()]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}

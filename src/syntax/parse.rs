@@ -18,6 +18,12 @@ struct MechanismParser;
 pub const MAX_FILE_BYTES: usize = 64 * 1024 * 1024;
 /// Deepest accepted nesting of parentheses.
 pub const MAX_NESTING: usize = 200;
+/// At most this many operators in one statement. A chain of operators
+/// becomes a tree as deep as the chain is long, and every later pass over
+/// expressions recurses over it; the bound keeps that depth within the
+/// command thread's stack (a product of 2 million factors overflowed it,
+/// docs/reliability.md finding 3), with room for the nesting on top.
+pub const MAX_OPERATORS: usize = 1_000_000;
 
 /// Parses one file's text. Returns the tree or the diagnostics that stop it.
 pub fn parse(text: &str, file: FileId) -> Result<File, Vec<Diagnostic>> {
@@ -79,9 +85,27 @@ fn blank_inside_parentheses(text: &str, file: FileId) -> Result<String, Vec<Diag
     let mut depth = 0usize;
     let mut open_at: Vec<usize> = Vec::new();
     let mut in_string = false;
+    let mut operators = 0usize;
+    let mut statement_start = 0usize;
     let mut i = 0;
     while i < bytes.len() {
         let b = bytes[i];
+        if !in_string && matches!(b, b'+' | b'-' | b'*' | b'/' | b'^') {
+            operators += 1;
+            if operators > MAX_OPERATORS {
+                return Err(vec![
+                    Diagnostic::error(
+                        Code::InputTooLarge,
+                        format!("a statement has more than {MAX_OPERATORS} operators"),
+                    )
+                    .with_label(
+                        Span::new(file, statement_start, statement_start + 1),
+                        "this statement",
+                    )
+                    .with_help("split the expression into named params or observables"),
+                ]);
+            }
+        }
         if in_string {
             if b == b'"' || b == b'\n' {
                 in_string = false;
@@ -129,6 +153,10 @@ fn blank_inside_parentheses(text: &str, file: FileId) -> Result<String, Vec<Diag
                 open_at.pop();
             }
             b'\n' | b'\r' if depth > 0 => out[i] = b' ',
+            b'\n' => {
+                operators = 0;
+                statement_start = i + 1;
+            }
             _ => {}
         }
         i += 1;
